@@ -1,0 +1,164 @@
+"""Writes the malformed-input corpus (one mistake per file) and its manifest.
+
+Run from anywhere: python tests/bad_inputs/make_corpus.py.  The files are
+committed; this script documents how each one was made.  Every file is loaded
+on top of the invented families in tests/data/mini.
+"""
+
+import json
+from pathlib import Path
+
+HERE = Path(__file__).parent
+H = {
+    "people": "person,family,given_name,family_name,sex_at_birth,gender_identity,birth_date,vital_status,"
+    "death_date,mother,father,placeholder,proband,twin_of,twin_type,adoption,contact_status,"
+    "contact_status_date,notes",
+    "studies": "person,study_date,modality,site,height_cm,weight_kg,measure,value,unit",
+    "variants": "family,gene,transcript,hgvs_c,hgvs_p,zygosity,acmg_class,classified_on,reason",
+    "genetic-results": "person,test_date,test_type,variant,result,lab,report_reference",
+    "assessments": "person,assessment_date,affected_status,symptoms,competitive_athlete,pregnant,hypertension,notes",
+    "families": "family,condition,notes",
+}
+
+
+def person(code="T1-20", family="FAM-T1", sex="female", birth="1999-05-05", vital="alive", death="",
+           mother="T1-03", father="T1-04", placeholder="no", proband="no", twin="", twin_type="",
+           adoption="", contact="contactable", contact_date="2024-01-01", notes="", given=""):  # fmt: skip
+    return ",".join([code, family, given, "", sex, "", birth, vital, death, mother, father, placeholder,
+                     proband, twin, twin_type, adoption, contact, contact_date, notes])  # fmt: skip
+
+
+def study(person="T1-06", date="2025-01-10", modality="echo", site="Invented Vale Hospital", h="175",
+          w="65", measure="mwt_echo", value="12.0", unit="mm"):  # fmt: skip
+    return ",".join([person, date, modality, site, h, w, measure, value, unit])
+
+
+def variant(**kw):
+    d = dict(family="FAM-T1", gene="MYBPC3", transcript="NM_000256.3", hgvs_c="c.1504C>T",
+             hgvs_p="p.(Arg502Trp)", zyg="heterozygous", cls="pathogenic", on="2023-01-01", reason="review")  # fmt: skip
+    d.update(kw)
+    return ",".join(d.values())
+
+
+def gr(person="T1-07", date="2024-02-02", ttype="predictive", variant="NM_000256.3:c.1504C>T",
+       result="carrier", lab="Invented Genomics Lab", ref="IGL-0100"):  # fmt: skip
+    return ",".join([person, date, ttype, variant, result, lab, ref])
+
+
+def ass(person="T1-07", date="2024-02-02", status="unaffected", symptoms="", ath="no", preg="no", hyp="no", notes=""):
+    return ",".join([person, date, status, symptoms, ath, preg, hyp, notes])
+
+
+cases = []
+
+
+def add(name, kind, body, row, column, fragment, header=None, enc=None):
+    text = (header if header is not None else H[kind]) + "\n" + body + ("\n" if body else "")
+    data = text.encode(enc) if enc else text.encode("utf-8")
+    cases.append((name, kind, data, row, column, fragment))
+
+
+add("people_unknown_column.csv", "people", person() + ",x", 1, "nickname", "unknown column", header=H["people"] + ",nickname")
+add("people_missing_column.csv", "people", person().replace(",female,", ",", 1), 1, "sex_at_birth", "missing column",
+    header=H["people"].replace("sex_at_birth,", ""))
+add("people_semicolon.csv", "people", "", 1, None, "separated by ';'", header=H["people"].replace(",", ";"))
+add("people_tab.csv", "people", "", 1, None, "separated by tabs", header=H["people"].replace(",", "\t"))
+add("people_latin1.csv", "people", person(given="Siân"), 2, None, "not UTF-8", enc="latin-1")
+add("people_utf16.csv", "people", person(), None, None, "UTF-16", enc="utf-16")
+add("people_impossible_date.csv", "people", person(birth="2019-02-30"), 2, "birth_date", "not a real calendar date")
+add("people_us_date.csv", "people", person(birth="05/05/1999"), 2, "birth_date", "not an ISO 8601 date")
+add("people_future_birth.csv", "people", person(birth="2031-01-01", mother="", father=""), 2, "birth_date", "in the future")
+add("people_unknown_family.csv", "people", person(family="FAM-NOPE", mother="", father=""), 2, "family", "not in the database")
+add("people_bad_sex.csv", "people", person(sex="F"), 2, "sex_at_birth", "not one of")
+add("people_mother_male.csv", "people", person(mother="T1-04", father=""), 2, "mother", "sex at birth male")
+add("people_child_before_parent.csv", "people", person(birth="1950-01-01", father=""), 2, "birth_date", "before the birth of the mother")
+add("people_own_ancestor.csv", "people",
+    person(code="T1-30", mother="T1-31", father="") + "\n" + person(code="T1-31", mother="T1-30", father=""),
+    2, "mother/father", "own ancestor")
+add("people_death_before_birth.csv", "people", person(vital="deceased", death="1990-01-01"), 2, "death_date", "before the date of birth")
+add("people_death_but_alive.csv", "people", person(death="2020-01-01"), 2, "death_date", "vital_status is not deceased")
+add("people_duplicate_row.csv", "people", person() + "\n" + person(), 3, None, "duplicates row 2")
+add("people_conflict_stored.csv", "people",
+    "T1-03,FAM-T1,Orla,Penhallow,female,,1969-04-12,alive,,T1-02,T1-01,no,yes,,,,contactable,2019-01-10,",
+    2, "birth_date", "differs from the stored record")
+add("people_unknown_father.csv", "people", person(father="T9-99"), 2, "father", "not in this file or the database")
+add("people_second_proband.csv", "people", person(proband="yes"), 2, "proband", "already has a proband")
+add("people_extra_field.csv", "people", person() + ",surplus", 2, None, "has 20 fields")
+add("people_bad_code.csv", "people", person(code="T1 20"), 2, "person", "not a valid code")
+add("people_twin_type_missing.csv", "people", person(birth="1995-02-28", twin="T1-05"), 2, "twin_type", "required when twin_of")
+add("people_mz_twin_other_sex.csv", "people",
+    person(code="T1-21", birth="1995-02-28", twin="T1-05", twin_type="monozygotic"), 2, "twin_type", "different sex at birth")
+add("people_twin_other_birth.csv", "people",
+    person(code="T1-21", sex="male", birth="1996-02-28", twin="T1-05", twin_type="dizygotic"), 2, "birth_date", "co-twin")
+add("people_huge_field.csv", "people", person(notes="x" * 5000), 2, "notes", "longer than 4000")
+add("people_control_char.csv", "people", person(notes="bell\x07ring"), 2, "notes", "control characters")
+add("people_unterminated_quote.csv", "people", person(notes='"never closed'), 2, None, "not well-formed CSV")
+add("people_placeholder_proband.csv", "people",
+    person(code="T2-09", family="FAM-T2", mother="", father="", placeholder="yes", proband="yes"),
+    2, "proband", "placeholder member cannot be the proband")
+add("people_bad_yesno.csv", "people", person(placeholder="maybe"), 2, "placeholder", "not yes or no")
+add("people_required_empty.csv", "people", person(sex=""), 2, "sex_at_birth", "is empty")
+add("empty.csv", "people", "", None, None, "file is empty", header="")
+add("whitespace_only.csv", "families", "", None, None, "file is empty", header="   \n  ")
+add("nul_bytes.csv", "families", "FAM-X,hcm\x00,", None, None, "NUL bytes")
+add("families_missing_condition.csv", "families", "FAM-T9,,", 2, "condition", "is empty")
+add("families_duplicate.csv", "families",
+    "FAM-T9,hypertrophic cardiomyopathy,\nFAM-T9,hypertrophic cardiomyopathy,", 3, None, "duplicates row 2")
+add("families_blank_line.csv", "families",
+    "FAM-T9,hypertrophic cardiomyopathy,\n\nFAM-T8,hypertrophic cardiomyopathy,", 3, None, "empty row")
+add("bom_wrong_column.csv", "families", "FAM-T9,hcm,,x", 1, "kindred", "unknown column", header="\ufefffamily,condition,notes,kindred")
+add("studies_cm_in_mm.csv", "studies", study(value="1.4"), 2, "value", "looks like centimetres")
+add("studies_unknown_unit.csv", "studies", study(unit="inch"), 2, "unit", "not a known unit")
+add("studies_unconvertible_unit.csv", "studies", study(unit="ms"), 2, "unit", "cannot be converted")
+add("studies_unknown_measure.csv", "studies", study(measure="wall_thick"), 2, "measure", "not in the measure catalogue")
+add("studies_before_birth.csv", "studies", study(date="2005-01-01"), 2, "study_date", "before the person's date of birth")
+add("studies_after_death.csv", "studies", study(person="T1-02", date="2016-01-01"), 2, "study_date", "after the person's date of death")
+add("studies_placeholder.csv", "studies", study(person="T1-01", date="1990-01-01"), 2, "person", "placeholder")
+add("studies_wrong_modality.csv", "studies", study(measure="mwt_cmr"), 2, "measure", "is a cmr measure")
+add("studies_not_a_number.csv", "studies", study(value="twelve"), 2, "value", "not a number")
+add("studies_decimal_comma.csv", "studies", study(value='"12,5"'), 2, "value", "decimal mark")
+add("studies_height_in_m.csv", "studies", study(h="1.75"), 2, "height_cm", "outside the plausible range")
+add("studies_negative_weight.csv", "studies", study(w="-65"), 2, "weight_kg", "greater than zero")
+add("studies_gls_positive.csv", "studies", study(measure="gls", value="19.5", unit="%"), 2, "value", "lost minus sign")
+add("studies_ef_fraction.csv", "studies", study(measure="lvef_echo", value="0.62", unit="%"), 2, "value", "fraction")
+add("studies_eprime_in_ms.csv", "studies", study(measure="e_prime_septal", value="0.08", unit="cm/s"), 2, "value", "looks like m/s")
+add("studies_negative_gradient.csv", "studies", study(measure="lvot_rest", value="-5", unit="mmHg"), 2, "value", "outside the plausible range")
+add("studies_inconsistent_study.csv", "studies", study() + "\n" + study(h="180", measure="ivsd"), 3, "height_cm",
+    "differs between rows of the same study")
+add("studies_unknown_person.csv", "studies", study(person="T7-77"), 2, "person", "not in the database")
+add("studies_value_without_measure.csv", "studies", study(measure="", unit=""), 2, "measure", "empty but a value")
+add("studies_derived_measure.csv", "studies", study(measure="lv_mass", unit="g", value="150"), 2, "measure", "computed by the tool")
+add("studies_future_date.csv", "studies", study(date="2099-01-01"), 2, "study_date", "in the future")
+add("studies_conflict_stored.csv", "studies", study(date="2022-05-03", h="165", w="52", value="9.9"), 2, "value",
+    "differs from the stored record")
+add("variants_lowercase_bases.csv", "variants", variant(hgvs_c="c.1504c>t"), 2, "hgvs_c", "not an HGVS coding change")
+add("variants_unversioned_transcript.csv", "variants", variant(transcript="NM_000256"), 2, "transcript", "versioned transcript")
+add("variants_one_letter_protein.csv", "variants", variant(hgvs_p="p.R502W"), 2, "hgvs_p", "three-letter")
+add("variants_bad_class.csv", "variants", variant(cls="VUS"), 2, "acmg_class", "not one of")
+add("variants_other_gene.csv", "variants", variant(gene="MYH7"), 2, "gene", "same variant")
+add("variants_unknown_family.csv", "variants", variant(family="FAM-NOPE"), 2, "family", "not in the database")
+add("genetic_unknown_variant.csv", "genetic-results", gr(variant="NM_000257.4:c.1208G>A"), 2, "variant", "not a variant of family FAM-T1")
+add("genetic_predictive_no_variant_found.csv", "genetic-results", gr(variant="", result="no_variant_found"), 2, "result",
+    "only for a diagnostic panel")
+add("genetic_carrier_without_variant.csv", "genetic-results", gr(variant=""), 2, "variant", "is required")
+add("genetic_malformed_variant.csv", "genetic-results", gr(variant="MYBPC3 c.1504C>T"), 2, "variant", "transcript:c.change")
+add("assessments_bad_status.csv", "assessments", ass(status="affected?"), 2, "affected_status", "not one of")
+add("assessments_bad_yesno.csv", "assessments", ass(ath="sometimes"), 2, "competitive_athlete", "not yes or no")
+add("assessments_missing_date.csv", "assessments", ass(date=""), 2, "assessment_date", "is empty")
+
+if __name__ == "__main__":
+    for old in HERE.glob("*.csv"):
+        old.unlink()
+    with open(HERE / "manifest.toml", "w", encoding="utf-8") as fh:
+        fh.write("# Malformed inputs, one mistake per file (written by make_corpus.py).\n")
+        fh.write("# Each must be refused with one line naming the file, row and column, exit 1,\n")
+        fh.write("# and leave the database unchanged.\n\n")
+        for name, kind, data, row, column, frag in cases:
+            (HERE / name).write_bytes(data)
+            fh.write(f"[[case]]\nfile = {json.dumps(name)}\nkind = {json.dumps(kind)}\n")
+            if row is not None:
+                fh.write(f"row = {row}\n")
+            if column is not None:
+                fh.write(f"column = {json.dumps(column)}\n")
+            fh.write(f"message = {json.dumps(frag)}\n\n")
+    print(f"{len(cases)} cases written")

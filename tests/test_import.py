@@ -1,0 +1,141 @@
+"""CSV import: the malformed-input corpus, idempotency, and the import -> export -> import round trip."""
+
+from __future__ import annotations
+
+import tomllib
+from pathlib import Path
+
+import pytest
+
+from conftest import MINI, dump
+
+BAD = Path(__file__).parent / "bad_inputs"
+CASES = tomllib.loads((BAD / "manifest.toml").read_text(encoding="utf-8"))["case"]
+
+
+def test_corpus_is_large_enough():
+    assert len(CASES) >= 50
+    assert len({c["file"] for c in CASES}) == len(CASES)
+    assert all((BAD / c["file"]).exists() for c in CASES)
+
+
+@pytest.mark.parametrize("case", CASES, ids=[c["file"] for c in CASES])
+def test_bad_input_is_refused_with_one_line_and_nothing_written(case, loaded_db, run):
+    before = dump(loaded_db)
+    r = run("import", case["kind"], BAD / case["file"], db=loaded_db)
+    assert r.code == 1, r
+    lines = r.err.strip().splitlines()
+    assert len(lines) == 1, r.err
+    line = lines[0]
+    assert "Traceback" not in r.err
+    assert line.startswith(f"error: {case['file']}"), line
+    if "row" in case:
+        assert line.startswith(f"error: {case['file']}:{case['row']}:"), line
+    if "column" in case:
+        assert f"column '{case['column']}'" in line, line
+    assert case["message"] in line, line
+    assert dump(loaded_db) == before
+
+
+def test_dry_run_writes_nothing(db_url, run):
+    assert run("init", db=db_url).code == 0
+    before = dump(db_url)
+    r = run("import", "all", MINI, "--dry-run", db=db_url)
+    assert r.code == 0, r
+    assert "would add 10" in r.out and "nothing was written" in r.out
+    assert dump(db_url) == before
+
+
+def test_importing_twice_adds_nothing(loaded_db, run):
+    before = {k: v for k, v in dump(loaded_db).items() if k != "import_run"}
+    r = run("import", "all", MINI, "--json", db=loaded_db)
+    assert r.code == 0, r
+    import json
+
+    files = json.loads(r.out)["files"]
+    assert all(f["rows_added"] == 0 for f in files)
+    assert sum(f["rows_already_stored"] for f in files) == sum(f["rows_read"] for f in files)
+    after = {k: v for k, v in dump(loaded_db).items() if k != "import_run"}
+    assert after == before
+
+
+def test_round_trip_is_exact(loaded_db, run, tmp_path, db_url):
+    """import -> export -> import into an empty database gives the same records and the same files."""
+    first = tmp_path / "first"
+    assert run("export", "all", "--out", first, db=loaded_db).code == 0
+    second_db = str(tmp_path / "second.sqlite")
+    assert run("init", db=second_db).code == 0
+    assert run("import", "all", first, db=second_db).code == 0, run
+    second = tmp_path / "second"
+    assert run("export", "all", "--out", second, db=second_db).code == 0
+    for f in sorted(first.iterdir()):
+        assert f.read_bytes() == (second / f.name).read_bytes(), f.name
+
+    # Row ids may differ (rows arrive in another order); every record and value must not.
+    assert _content(loaded_db) == _content(second_db)
+
+
+def _content(url):
+    from tracker.store import repository as repo
+    from tracker.store.database import locate, make_engine, reading
+
+    engine = make_engine(locate(url))
+    with reading(engine) as conn:
+        frames = {kind: load(conn).to_dict("records") for kind, load in repo.LOADERS.items()}
+        frames["stored values"] = repo.load_studies(conn, entered=False).to_dict("records")
+        frames["catalogue"] = repo.load_measures(conn).to_dict("records")
+    engine.dispose()
+    return repr(frames)
+
+
+def test_exported_files_match_the_input_files(loaded_db, run, tmp_path):
+    out = tmp_path / "out"
+    assert run("export", "all", "--out", out, db=loaded_db).code == 0
+    for name in ("families.csv", "people.csv", "variants.csv", "genetic_results.csv", "assessments.csv"):
+        assert (out / name).read_text().splitlines() == (MINI / name).read_text().splitlines(), name
+
+
+def test_units_are_converted_and_the_entered_value_kept(loaded_db):
+    from tracker.store import repository as repo
+    from tracker.store.database import locate, make_engine, reading
+
+    engine = make_engine(locate(loaded_db))
+    with reading(engine) as conn:
+        stored = repo.load_studies(conn, entered=False)
+        entered = repo.load_studies(conn, entered=True)
+    engine.dispose()
+    pick = lambda f: f[(f["person"] == "T1-03") & (f["measure"] == "lvpwd")].iloc[0]  # noqa: E731
+    assert pick(stored)["value"] == pytest.approx(10.0) and pick(stored)["unit"] == "mm"
+    assert pick(entered)["value"] == 1.0 and pick(entered)["unit"] == "cm"
+    e = stored[(stored["person"] == "T1-06") & (stored["measure"] == "e_prime_septal")].iloc[0]
+    assert e["value"] == pytest.approx(12.0) and e["unit"] == "cm/s"
+
+
+def test_formula_cells_are_neutralised_on_export_and_restored_on_import(db_url, run, tmp_path):
+    assert run("init", db=db_url).code == 0
+    src = tmp_path / "families.csv"
+    src.write_text('family,condition,notes\nFAM-X,hypertrophic cardiomyopathy,"=HYPERLINK(""x"")"\n')
+    assert run("import", "families", src, db=db_url).code == 0
+    out = tmp_path / "out.csv"
+    assert run("export", "families", "--out", out, db=db_url).code == 0
+    text = out.read_text()
+    assert "'=HYPERLINK" in text
+    db2 = str(tmp_path / "again.sqlite")
+    assert run("init", db=db2).code == 0
+    assert run("import", "families", out, db=db2).code == 0
+    assert dump(db2)["family"][0][3] == '=HYPERLINK("x")'
+
+
+def test_a_file_with_many_mistakes_lists_each(loaded_db, run, tmp_path):
+    bad = tmp_path / "studies.csv"
+    bad.write_text(
+        "person,study_date,modality,site,height_cm,weight_kg,measure,value,unit\n"
+        "T1-06,2025-01-10,echo,,175,65,mwt_echo,1.4,mm\n"
+        "T1-06,2025-01-11,echo,,175,65,mwt_echo,14,inch\n"
+    )
+    r = run("import", "studies", bad, db=loaded_db)
+    assert r.code == 1
+    lines = r.err.strip().splitlines()
+    assert lines[0].startswith("error: studies.csv:2: column 'value'")
+    assert lines[1].startswith("error: studies.csv:3: column 'unit'")
+    assert lines[-1] == "error: 2 problems; nothing was written"

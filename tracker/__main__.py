@@ -1,0 +1,5 @@
+import sys
+
+from tracker.cli.app import main
+
+sys.exit(main())

@@ -1,0 +1,127 @@
+"""The `tracker` command: a thin layer that parses options, calls the store and engines, and prints."""
+
+from __future__ import annotations
+
+import sys
+
+import typer
+
+from tracker import __version__
+from tracker.cli import admin, families
+from tracker.cli.common import dispose_engines
+from tracker.errors import UserError
+from tracker.io.reading import InputRejected
+
+app = typer.Typer(
+    name="tracker",
+    help=(
+        "Family screening for inherited hypertrophic cardiomyopathy: families, genotypes, "
+        "serial measurements and recalls.\n\n"
+        "Example: tracker demo && tracker families\n\n"
+        "Decision support only: the treating clinician decides; follow local protocols "
+        "and the current guideline."
+    ),
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+    context_settings={"help_option_names": ["-h", "--help"]},
+)
+
+
+def _version(value: bool) -> None:
+    if value:
+        typer.echo(f"tracker {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def _root(
+    version: bool = typer.Option(False, "--version", callback=_version, is_eager=True, help="Show the version."),
+) -> None:
+    """Family screening tracker."""
+
+
+admin.register(app)
+families.register(app)
+
+
+def _one_line(message: str) -> str:
+    return " ".join(str(message).split())
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point: user errors become one line on stderr and exit code 1, never a traceback."""
+    try:
+        return _run(argv)
+    finally:
+        dispose_engines()
+
+
+def _run(argv: list[str] | None) -> int:
+    try:
+        app(args=argv, standalone_mode=False)
+    except InputRejected as exc:
+        problems = exc.problems
+        for p in problems[:50]:
+            sys.stderr.write(f"error: {_one_line(str(p))}\n")
+        if len(problems) > 50:
+            sys.stderr.write(f"error: ... and {len(problems) - 50} more problems\n")
+        if len(problems) > 1:
+            sys.stderr.write(f"error: {len(problems)} problems; nothing was written\n")
+        return 1
+    except UserError as exc:
+        sys.stderr.write(f"error: {_one_line(str(exc))}\n")
+        return 1
+    except typer.Exit as exc:
+        return exc.exit_code
+    except typer.Abort:
+        sys.stderr.write("error: aborted\n")
+        return 1
+    except KeyboardInterrupt:
+        sys.stderr.write("error: interrupted; nothing was written by the interrupted command\n")
+        return 130
+    except _click_errors() as exc:
+        exc.show()
+        return exc.exit_code
+    except OSError as exc:
+        sys.stderr.write(f"error: {_one_line(_os_message(exc))}\n")
+        return 1
+    except Exception as exc:  # the store refused a write (disk full, read-only, lock)
+        message = _store_message(exc)
+        if message is None:
+            raise
+        sys.stderr.write(f"error: {message}\n")
+        return 1
+    return 0
+
+
+def _click_errors() -> tuple[type, ...]:
+    """Command-line usage errors (exit code 2), whichever click the installed typer uses."""
+    return tuple(c for c in typer.BadParameter.__mro__ if c.__name__ == "ClickException")
+
+
+def _os_message(exc: OSError) -> str:
+    name = getattr(exc, "filename", None)
+    return f"{name}: {exc.strerror}" if name else str(exc.strerror or exc)
+
+
+def _store_message(exc: Exception) -> str | None:
+    from sqlalchemy.exc import OperationalError
+
+    if not isinstance(exc, OperationalError):
+        return None
+    text = str(exc.orig) if getattr(exc, "orig", None) is not None else str(exc)
+    low = text.lower()
+    if "locked" in low or "busy" in low:
+        return "the database is busy (another user is writing); nothing was written: try again"
+    if "readonly" in low or "read-only" in low:
+        return "the database is read-only; nothing was written"
+    if "disk" in low and "full" in low:
+        return "the disk is full; nothing was written"
+    if "could not connect" in low or "connection refused" in low:
+        return "cannot connect to the database server (" + _one_line(text)[:200] + ")"
+    return "the database refused the operation (" + _one_line(text)[:200] + "); nothing was written"
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,67 @@
+"""Shared pieces of the command line: the --db and --json options, opening the store, output."""
+
+from __future__ import annotations
+
+import json
+import sys
+from typing import Annotated, Any
+
+import typer
+from rich.console import Console
+from rich.table import Table
+from sqlalchemy import Engine
+
+from tracker.store import migrate
+from tracker.store.database import ENV_VAR, locate, make_engine, reading
+
+DbOption = Annotated[
+    str | None,
+    typer.Option(
+        "--db",
+        envvar=ENV_VAR,
+        help="SQLite file path or database URL (postgresql+psycopg://...). "
+        f"Default: ${ENV_VAR}, else ./tracker.sqlite",
+        show_default=False,
+    ),
+]
+JsonOption = Annotated[bool, typer.Option("--json", help="Print JSON (stable keys) instead of a table.")]
+
+out = Console(highlight=False, soft_wrap=True)
+err = Console(stderr=True, highlight=False)
+
+
+_engines: list[Engine] = []
+
+
+def engine_for(db: str | None, *, create: bool = False) -> Engine:
+    """An engine for ``--db``; every engine made here is disposed when the command ends."""
+    engine = make_engine(locate(db), create=create)
+    _engines.append(engine)
+    return engine
+
+
+def dispose_engines() -> None:
+    while _engines:
+        _engines.pop().dispose()
+
+
+def open_store(db: str | None) -> Engine:
+    """An engine for an existing database at the head schema revision (else a clear error)."""
+    location = locate(db)
+    engine = engine_for(db)
+    with reading(engine) as conn:
+        migrate.require_current(conn, location.describe())
+    return engine
+
+
+def print_json(data: Any) -> None:
+    sys.stdout.write(json.dumps(data, indent=2, ensure_ascii=False, default=str) + "\n")
+
+
+def print_table(title: str | None, columns: list[str], rows: list[list[Any]]) -> None:
+    table = Table(title=title, title_justify="left", show_lines=False)
+    for c in columns:
+        table.add_column(c)
+    for r in rows:
+        table.add_row(*["" if v is None else str(v) for v in r])
+    out.print(table)

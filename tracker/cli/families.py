@@ -1,0 +1,207 @@
+"""Commands for loading and listing families: import, export, demo, families."""
+
+from __future__ import annotations
+
+import datetime as dt
+from enum import Enum
+from pathlib import Path
+from typing import Annotated
+
+import typer
+from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+
+from tracker.cli.common import engine_for, DbOption, JsonOption, err, open_store, print_json, print_table
+from tracker.errors import UserError
+from tracker.io import csv_import, export
+from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
+from tracker.outputs import summary
+from tracker.store import migrate
+from tracker.store import repository as repo
+from tracker.store.database import locate, make_engine, reading, writing
+
+ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all")}, type=str)
+ExportKind = Enum("ExportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all")}, type=str)
+
+PROGRESS_THRESHOLD = 20_000  # rows; smaller files finish before a bar would be seen
+
+
+class _DryRun(Exception):
+    """Raised inside the transaction to roll back a dry run."""
+
+
+def _progress_bar(total: int):
+    return Progress(
+        TextColumn("{task.description}"),
+        BarColumn(),
+        MofNCompleteColumn(),
+        TimeRemainingColumn(),
+        console=err,
+        transient=True,
+        disable=total < PROGRESS_THRESHOLD,
+    )
+
+
+def import_(
+    kind: Annotated[ImportKind, typer.Argument(help="What the file holds; `all` reads a folder of layout files.")],
+    path: Annotated[Path, typer.Argument(help="CSV file (or folder for `all`).")],
+    dry_run: Annotated[bool, typer.Option("--dry-run", help="Check only; write nothing.")] = False,
+    user: Annotated[str | None, typer.Option("--user", help="Who is importing (default: the OS user).")] = None,
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """Check a CSV file completely, then store it in one transaction (all or nothing).
+
+    Rows already stored with the same values are skipped, so importing a file
+    twice adds nothing. Layouts: docs/data-layouts.md.
+
+    Example: tracker import people demo_family/people.csv --dry-run
+    """
+    engine = open_store(db)
+    kind = kind.value
+    total = _count_rows(path)
+    summaries: list[csv_import.ImportSummary] = []
+    with _progress_bar(total) as bar:
+        task = bar.add_task(f"importing {path.name}", total=total)
+        advance = lambda n: bar.advance(task, n)  # noqa: E731
+        try:
+            with writing(engine) as conn:
+                if kind == "all":
+                    summaries = csv_import.import_folder(conn, path, user=user, progress=advance)
+                else:
+                    summaries = [csv_import.import_file(conn, kind, path, user=user, progress=advance)]
+                if dry_run:
+                    raise _DryRun
+        except _DryRun:
+            pass
+    _report(summaries, dry_run, json_out)
+
+
+def _count_rows(path: Path) -> int:
+    try:
+        if path.is_file():
+            with path.open("rb") as fh:
+                return max(sum(1 for _ in fh) - 1, 0)
+    except OSError:
+        pass
+    return 0
+
+
+def _report(summaries, dry_run: bool, json_out: bool) -> None:
+    if json_out:
+        print_json({"dry_run": dry_run, "files": [s.as_dict() for s in summaries]})
+        return
+    verb = "would add" if dry_run else "added"
+    for s in summaries:
+        typer.echo(
+            f"{s.file} ({s.kind}): {s.rows_read} rows checked, {verb} {s.rows_added}, "
+            f"{s.rows_already_stored} already stored"
+        )
+    if dry_run:
+        typer.echo("dry run: nothing was written")
+
+
+def export_(
+    kind: Annotated[ExportKind, typer.Argument(help="What to export; `all` writes every layout file.")],
+    out: Annotated[Path, typer.Option("--out", "-o", help="CSV file (or folder for `all`).")],
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """Write stored records in the import layout (import -> export -> import is exact).
+
+    Example: tracker export studies --out studies.csv
+    """
+    engine = open_store(db)
+    kind = kind.value
+    with reading(engine) as conn:
+        if kind == "all":
+            counts = export.export_all(conn, out)
+        else:
+            if out.is_dir():
+                raise UserError(f"--out {out} is a folder; give a file name")
+            counts = {kind: export.export_kind(conn, kind, out)}
+    if json_out:
+        print_json({"out": str(out), "rows": counts})
+    else:
+        for k, n in counts.items():
+            typer.echo(f"{k}: {n} rows written")
+
+
+def demo_folder() -> Path:
+    import tracker
+
+    here = Path(tracker.__file__).resolve().parent
+    for candidate in (here / "_bundled" / "demo_family", here.parent / "demo_family"):
+        if (candidate / "people.csv").exists():
+            return candidate
+    raise UserError("the demo_family folder is missing from this installation")
+
+
+def demo(db: DbOption = None, json_out: JsonOption = False) -> None:
+    """Build a database from the invented demo families and print what it holds.
+
+    All names, places and the clinic are invented. Default database: ./tracker.sqlite.
+
+    Example: tracker demo --db demo.sqlite
+    """
+    location = locate(db)
+    engine = engine_for(db, create=True)
+    migrate.upgrade(engine)
+    with writing(engine) as conn:
+        imported = csv_import.import_folder(conn, demo_folder(), user="demo")
+    result = _summary(engine)
+    result["database"] = location.describe()
+    result["files"] = [s.as_dict() for s in imported]
+    if json_out:
+        print_json(result)
+        return
+    typer.echo(f"Demo database: {location.describe()} (invented families; no real patient data)")
+    _print_summary(result)
+    typer.echo("Next: `tracker families`, `tracker export people --out people.csv`, `tracker --help`")
+
+
+def _summary(engine) -> dict:
+    with reading(engine) as conn:
+        fams = repo.load_families(conn)
+        people = repo.load_people(conn)
+        variants = repo.load_variants(conn)
+        results = repo.load_genetic_results(conn)
+        studies = repo.load_studies(conn)
+    return {
+        "totals": summary.totals(people, studies, fams),
+        "families": summary.family_rows(fams, people, variants, results, studies),
+    }
+
+
+def _print_summary(result: dict) -> None:
+    t = result["totals"]
+    typer.echo(
+        f"{t['families']} families, {t['people']} people (+{t['placeholders']} placeholders), "
+        f"{t['studies']} studies with {t['measurements']} values, {t['first_study']} to {t['last_study']}"
+    )
+    print_table(
+        None,
+        ["family", "proband", "variant (current class)", "members", "carriers", "non-carriers", "studies"],
+        [
+            [f["family"], f["proband"], f["variant"], f["members"], f["carriers"], f["non_carriers"], f["studies"]]
+            for f in result["families"]
+        ],
+    )
+
+
+def families_(db: DbOption = None, json_out: JsonOption = False) -> None:
+    """List the families with their variant, members, genotype results and studies.
+
+    Example: tracker families --json
+    """
+    result = _summary(open_store(db))
+    if json_out:
+        print_json(result)
+    else:
+        _print_summary(result)
+
+
+def register(app: typer.Typer) -> None:
+    app.command("import")(import_)
+    app.command("export")(export_)
+    app.command("demo")(demo)
+    app.command("families")(families_)

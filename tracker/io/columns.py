@@ -1,0 +1,224 @@
+"""Column types of the CSV layouts: vectorised parsing of text cells into clean values.
+
+Each type turns a column of text cells (pandas Series of ``str``; empty string
+= not given) into a column of clean values plus, for every cell that cannot be
+read, the reason.  Parsing is vectorised so that a file of millions of
+measurement rows is checked in seconds.
+
+Clean values: text stays text (``None`` when empty), dates are ISO 8601 text
+(``YYYY-MM-DD``, or ``YYYY`` for year-only dates), numbers are floats (NaN
+when empty), yes/no cells are booleans.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from tracker.domain.dates import PartialDate, parse_partial_date
+
+# A text cell starting with one of these is run as a formula by spreadsheets.
+FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+MAX_TEXT = 4000  # characters in a free-text cell; longer is refused as a likely paste error
+
+CODE_RE = r"[A-Za-z0-9][A-Za-z0-9._-]{0,39}"
+# HGVS syntax pre-check (HGVS nomenclature, varnomen; pattern as in standards.md section 5 [V]).
+TRANSCRIPT_RE = r"(?:(?:NM|NR|NC|NG|XM|XR)_\d+\.\d+)|(?:LRG_\d+(?:t\d+)?)|(?:ENST\d{11}\.\d+)"
+_POS = r"[-*]?\d+(?:[+-]\d+)?"
+HGVS_C_RE = (
+    rf"[cgnm]\.{_POS}(?:_{_POS})?"
+    r"(?:[ACGT]>[ACGT]|del(?:[ACGT]+)?|dup(?:[ACGT]+)?|ins[ACGT]+|delins[ACGT]+|inv)"
+)
+_AA = "Ala|Arg|Asn|Asp|Cys|Gln|Glu|Gly|His|Ile|Leu|Lys|Met|Phe|Pro|Ser|Thr|Trp|Tyr|Val|Sec|Pyl|Ter"
+HGVS_P_RE = (
+    rf"p\.\(?(?:(?:{_AA})\d+(?:(?:{_AA})|\*|=|fs(?:Ter\d+|\*\d+)?|del|dup|"
+    rf"(?:{_AA})fs(?:Ter\d+|\*\d+)?)|\?|=|0)\)?"
+)
+GENE_RE = r"[A-Z][A-Z0-9-]{0,19}"
+
+_ISO_DAY = r"\d{4}-\d{2}-\d{2}"
+_YEAR = r"\d{4}"
+
+
+@dataclass
+class Parsed:
+    """Clean values of one column, and the reason for each unreadable cell (None = fine)."""
+
+    values: pd.Series
+    errors: pd.Series  # object Series: reason text or None
+
+
+@dataclass(frozen=True)
+class Column:
+    """One column of a layout: its name, type, and whether a value is required."""
+
+    name: str
+    kind: str  # text, code, date, partial_date, choice, yesno, number, regex
+    required: bool = False
+    choices: tuple[str, ...] = ()
+    pattern: str = ""
+    what: str = ""  # words for the pattern in error messages, e.g. "an HGVS c. change"
+    max_length: int = MAX_TEXT
+    positive: bool = False
+    extra: dict = field(default_factory=dict)
+
+
+def _no_errors(index) -> pd.Series:
+    return pd.Series([None] * len(index), index=index, dtype=object)
+
+
+def parse(col: Column, cells: pd.Series, today: dt.date) -> Parsed:
+    """Parse one column of stripped text cells according to ``col``."""
+    cells = cells.astype(object).where(cells.notna(), "")
+    empty = cells == ""
+    errors = _no_errors(cells.index)
+    if col.required:
+        errors[empty] = "is empty (a value is required)"
+    handler = _HANDLERS[col.kind]
+    values, bad = handler(col, cells, empty, today)
+    # Required-but-empty beats a type error; keep the first reason.
+    errors = errors.where(errors.notna(), bad)
+    return Parsed(values, errors)
+
+
+def _text(col, cells, empty, today):
+    bad = _no_errors(cells.index)
+    too_long = cells.str.len() > col.max_length
+    bad[too_long] = f"is longer than {col.max_length} characters"
+    control = cells.str.contains(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]", regex=True)
+    bad[control & bad.isna()] = "contains control characters"
+    # Undo the exporter's protection against spreadsheet formulas ("'=..." -> "=...").
+    escaped = cells.str.startswith("'") & cells.str[1:2].isin(FORMULA_START)
+    cells = cells.where(~escaped, cells.str[1:])
+    values = cells.where(~empty, None)
+    return values, bad
+
+
+def _code(col, cells, empty, today):
+    bad = _no_errors(cells.index)
+    ok = cells.str.fullmatch(CODE_RE)
+    bad[~ok & ~empty] = (
+        "is not a valid code (letters, digits, '-', '_', '.'; at most 40 characters)"
+    )
+    return cells.where(~empty, None), bad
+
+
+def _regex(col, cells, empty, today):
+    bad = _no_errors(cells.index)
+    ok = cells.str.fullmatch(col.pattern)
+    bad[~ok & ~empty] = [f"{v[:60]!r} is not {col.what}" for v in cells[~ok & ~empty]]
+    return cells.where(~empty, None), bad
+
+
+def _choice(col, cells, empty, today):
+    bad = _no_errors(cells.index)
+    lowered = cells.str.lower()
+    ok = lowered.isin(col.choices)
+    wrong = ~ok & ~empty
+    allowed = ", ".join(col.choices)
+    bad[wrong] = [f"{v[:40]!r} is not one of: {allowed}" for v in cells[wrong]]
+    return lowered.where(~empty, None), bad
+
+
+def _yesno(col, cells, empty, today):
+    bad = _no_errors(cells.index)
+    lowered = cells.str.lower()
+    ok = lowered.isin(("yes", "no")) | empty
+    bad[~ok] = [f"{v[:40]!r} is not yes or no" for v in cells[~ok]]
+    return lowered == "yes", bad
+
+
+def _dates(cells: pd.Series, allow_year: bool, today: dt.date):
+    """Return (iso text or None, reason or None) for each cell."""
+    bad = _no_errors(cells.index)
+    day = cells.str.fullmatch(_ISO_DAY)
+    year = cells.str.fullmatch(_YEAR) if allow_year else pd.Series(False, index=cells.index)
+    empty = cells == ""
+    form = "YYYY-MM-DD or YYYY" if allow_year else "YYYY-MM-DD"
+    wrong_form = ~day & ~year & ~empty
+    bad[wrong_form] = [f"{v[:40]!r} is not an ISO 8601 date ({form})" for v in cells[wrong_form]]
+    parsed = pd.to_datetime(cells.where(day, None), format="%Y-%m-%d", errors="coerce")
+    impossible = day & parsed.isna()
+    bad[impossible] = [f"{v!r} is not a real calendar date" for v in cells[impossible]]
+    years = pd.to_numeric(cells.where(year, None), errors="coerce")
+    too_old = (day & (parsed.dt.year < 1800)) | (year & (years < 1800))
+    bad[too_old & bad.isna()] = "is before 1800"
+    ts_today = pd.Timestamp(today)
+    future = (day & (parsed > ts_today)) | (year & (years > today.year))
+    bad[future & bad.isna()] = [
+        f"{v!r} is in the future (after {today.isoformat()})" for v in cells[future & bad.isna()]
+    ]
+    values = cells.where((day | year) & bad.isna(), None)
+    return values, bad
+
+
+def _date(col, cells, empty, today):
+    return _dates(cells, allow_year=False, today=today)
+
+
+def _partial_date(col, cells, empty, today):
+    return _dates(cells, allow_year=True, today=today)
+
+
+def _number(col, cells, empty, today):
+    bad = _no_errors(cells.index)
+    numbers = pd.to_numeric(cells.where(~empty, None), errors="coerce").astype(float)
+    not_number = numbers.isna() & ~empty
+    hint = cells[not_number].str.contains(",", regex=False)
+    bad[not_number] = [
+        f"{v[:40]!r} is not a number" + (" (use '.' as the decimal mark)" if h else "")
+        for v, h in zip(cells[not_number], hint)
+    ]
+    infinite = ~np.isfinite(numbers) & numbers.notna()
+    bad[infinite] = "is not a finite number"
+    if col.positive:
+        nonpos = (numbers <= 0) & bad.isna()
+        bad[nonpos] = "must be greater than zero"
+    return numbers.where(bad.isna()), bad
+
+
+_HANDLERS = {
+    "text": _text,
+    "code": _code,
+    "regex": _regex,
+    "choice": _choice,
+    "yesno": _yesno,
+    "date": _date,
+    "partial_date": _partial_date,
+    "number": _number,
+}
+
+
+def format_cell(value) -> str:
+    """Clean value -> CSV text (the inverse of :func:`parse`)."""
+    if value is None:
+        return ""
+    if isinstance(value, (bool, np.bool_)):
+        return "yes" if value else "no"
+    if isinstance(value, float):
+        if math.isnan(value):
+            return ""
+        return str(int(value)) if value.is_integer() and abs(value) < 1e15 else repr(value)
+    if isinstance(value, dt.date):
+        return value.isoformat()
+    return str(value)
+
+
+def partial_to_storage(iso: str | None) -> tuple[dt.date | None, str | None]:
+    """ISO text (``YYYY-MM-DD`` or ``YYYY``) -> (date, precision) as stored."""
+    if iso is None:
+        return None, None
+    p = parse_partial_date(iso)
+    return p.value, p.precision
+
+
+def partial_from_storage(value: dt.date | None, precision: str | None) -> str | None:
+    """Stored (date, precision) -> ISO text."""
+    if value is None:
+        return None
+    return PartialDate(value, precision or "day").isoformat()

@@ -1,0 +1,55 @@
+"""Writing the store back out in the CSV layouts (the inverse of the importer).
+
+Free-text cells that a spreadsheet would run as a formula (starting with
+``=``, ``+``, ``-``, ``@``, tab or carriage return) are written with a leading
+apostrophe; the importer removes it again, so import -> export -> import is
+exact and a file opened in a spreadsheet cannot run anything.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from pathlib import Path
+
+import pandas as pd
+from sqlalchemy import Connection
+
+from tracker.io.columns import FORMULA_START, format_cell
+from tracker.io.layouts import LAYOUTS
+from tracker.store import repository as repo
+
+
+def export_frame(conn: Connection, kind: str) -> pd.DataFrame:
+    """The stored records of ``kind`` in its layout's clean form and column order."""
+    return repo.LOADERS[kind](conn)[LAYOUTS[kind].names]
+
+
+def to_csv_text(frame: pd.DataFrame, kind: str) -> str:
+    layout = LAYOUTS[kind]
+    text_cols = {c.name for c in layout.columns if c.kind == "text"}
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(layout.names)
+    for rec in frame.itertuples(index=False):
+        cells = []
+        for name, value in zip(layout.names, rec):
+            cell = format_cell(value)
+            if name in text_cols and cell.startswith(FORMULA_START):
+                cell = "'" + cell
+            cells.append(cell)
+        writer.writerow(cells)
+    return out.getvalue()
+
+
+def export_kind(conn: Connection, kind: str, path: Path) -> int:
+    """Write ``kind`` to ``path``; returns the number of rows written."""
+    frame = export_frame(conn, kind)
+    path.write_text(to_csv_text(frame, kind), encoding="utf-8")
+    return len(frame)
+
+
+def export_all(conn: Connection, folder: Path) -> dict[str, int]:
+    """Write every kind into ``folder`` under its layout file name."""
+    folder.mkdir(parents=True, exist_ok=True)
+    return {kind: export_kind(conn, kind, folder / LAYOUTS[kind].file_name) for kind in LAYOUTS}

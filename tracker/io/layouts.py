@@ -1,0 +1,165 @@
+"""The CSV layouts: for each kind of record, its columns and its key.
+
+The layouts are documented for users in docs/data-layouts.md; a test checks
+that the document and this module list the same columns.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from tracker.domain import vocabulary as V
+from tracker.io.columns import (
+    CODE_RE,
+    GENE_RE,
+    HGVS_C_RE,
+    HGVS_P_RE,
+    TRANSCRIPT_RE,
+    Column,
+)
+
+
+@dataclass(frozen=True)
+class Layout:
+    kind: str
+    file_name: str
+    columns: tuple[Column, ...]
+    key: tuple[str, ...]
+
+    @property
+    def names(self) -> list[str]:
+        return [c.name for c in self.columns]
+
+
+FAMILIES = Layout(
+    "families",
+    "families.csv",
+    (
+        Column("family", "code", required=True),
+        Column("condition", "text", required=True, max_length=200),
+        Column("notes", "text"),
+    ),
+    key=("family",),
+)
+
+PEOPLE = Layout(
+    "people",
+    "people.csv",
+    (
+        Column("person", "code", required=True),
+        Column("family", "code", required=True),
+        Column("given_name", "text", max_length=200),
+        Column("family_name", "text", max_length=200),
+        Column("sex_at_birth", "choice", required=True, choices=V.SEX_AT_BIRTH),
+        Column("gender_identity", "text", max_length=100),
+        Column("birth_date", "partial_date"),
+        Column("vital_status", "choice", required=True, choices=V.VITAL_STATUS),
+        Column("death_date", "partial_date"),
+        Column("mother", "code"),
+        Column("father", "code"),
+        Column("placeholder", "yesno"),
+        Column("proband", "yesno"),
+        Column("twin_of", "code"),
+        Column("twin_type", "choice", choices=V.TWIN_TYPE),
+        Column("adoption", "choice", choices=V.ADOPTION),
+        Column("contact_status", "choice", choices=V.CONTACT_STATUS),
+        Column("contact_status_date", "date"),
+        Column("notes", "text"),
+    ),
+    key=("person",),
+)
+
+VARIANTS = Layout(
+    "variants",
+    "variants.csv",
+    (
+        Column("family", "code", required=True),
+        Column("gene", "regex", required=True, pattern=GENE_RE, what="an HGNC gene symbol"),
+        Column(
+            "transcript",
+            "regex",
+            required=True,
+            pattern=TRANSCRIPT_RE,
+            what="a versioned transcript accession (e.g. NM_000256.3)",
+        ),
+        Column(
+            "hgvs_c",
+            "regex",
+            required=True,
+            pattern=HGVS_C_RE,
+            what="an HGVS coding change (e.g. c.1504C>T)",
+        ),
+        Column(
+            "hgvs_p",
+            "regex",
+            pattern=HGVS_P_RE,
+            what="an HGVS protein change with three-letter amino acids (e.g. p.(Arg502Trp))",
+        ),
+        Column("zygosity", "choice", required=True, choices=V.ZYGOSITY),
+        Column("acmg_class", "choice", required=True, choices=V.ACMG_CLASSES),
+        Column("classified_on", "date", required=True),
+        Column("reason", "text"),
+    ),
+    key=("family", "transcript", "hgvs_c", "classified_on"),
+)
+
+GENETIC_RESULTS = Layout(
+    "genetic-results",
+    "genetic_results.csv",
+    (
+        Column("person", "code", required=True),
+        Column("test_date", "date", required=True),
+        Column("test_type", "choice", required=True, choices=V.TEST_TYPES),
+        Column(
+            "variant",
+            "regex",
+            pattern=rf"(?:{TRANSCRIPT_RE}):{HGVS_C_RE}",
+            what="a variant as transcript:c.change (e.g. NM_000256.3:c.1504C>T)",
+        ),
+        Column("result", "choice", required=True, choices=V.TEST_RESULTS),
+        Column("lab", "text", max_length=200),
+        Column("report_reference", "text", max_length=200),
+    ),
+    key=("person", "test_date", "test_type", "variant"),
+)
+
+ASSESSMENTS = Layout(
+    "assessments",
+    "assessments.csv",
+    (
+        Column("person", "code", required=True),
+        Column("assessment_date", "date", required=True),
+        Column("affected_status", "choice", required=True, choices=V.AFFECTED_STATUS),
+        Column("symptoms", "text"),
+        Column("competitive_athlete", "yesno"),
+        Column("pregnant", "yesno"),
+        Column("hypertension", "yesno"),
+        Column("notes", "text"),
+    ),
+    key=("person", "assessment_date"),
+)
+
+STUDIES = Layout(
+    "studies",
+    "studies.csv",
+    (
+        Column("person", "code", required=True),
+        Column("study_date", "date", required=True),
+        Column("modality", "choice", required=True, choices=V.MODALITIES),
+        Column("site", "text", max_length=200),
+        Column("height_cm", "number", positive=True),
+        Column("weight_kg", "number", positive=True),
+        Column("measure", "code"),
+        Column("value", "number"),
+        Column("unit", "text", max_length=20),
+    ),
+    key=("person", "study_date", "modality", "measure"),
+)
+
+LAYOUTS = {
+    layout.kind: layout
+    for layout in (FAMILIES, PEOPLE, VARIANTS, GENETIC_RESULTS, ASSESSMENTS, STUDIES)
+}
+IMPORT_ORDER = tuple(LAYOUTS)
+
+__all__ = ["LAYOUTS", "IMPORT_ORDER", "Layout", "CODE_RE"]

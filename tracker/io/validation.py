@@ -1,0 +1,378 @@
+"""Checks of one kind of record against itself and against what the store already holds.
+
+Every check adds :class:`~tracker.io.reading.Problem` items naming the file,
+row and column; nothing here writes.  The checks run on whole columns at a
+time (pandas), not row by row, so that large files are checked quickly.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from tracker.domain import units
+from tracker.domain.dates import parse_partial_date
+from tracker.io.columns import parse
+from tracker.io.layouts import Layout
+from tracker.io.reading import Problem
+
+# Body size at a study: data-entry limits (engineering default, common practice, from memory, verify).
+HEIGHT_CM = (30.0, 250.0)
+WEIGHT_KG = (1.0, 350.0)
+
+
+@dataclass
+class Context:
+    """What the store holds, in layout form, as the checks need it."""
+
+    families: pd.DataFrame
+    people: pd.DataFrame
+    variants: pd.DataFrame
+    measures: pd.DataFrame
+    today: dt.date
+
+
+@dataclass
+class Checked:
+    """A file's rows in clean form, with every problem found."""
+
+    layout: Layout
+    file: str
+    rows: pd.DataFrame
+    problems: list[Problem] = field(default_factory=list)
+
+    def add(self, mask: pd.Series, column: str | None, message) -> None:
+        """Add a problem for every row where ``mask`` is true (message: text or per-row texts)."""
+        mask = mask.fillna(False).astype(bool)
+        if not mask.any():
+            return
+        rows = self.rows.index[mask.to_numpy()]
+        msgs = [message] * len(rows) if isinstance(message, str) else list(message)
+        for r, m in zip(rows, msgs):
+            self.note(int(r), column, m)
+
+    def note(self, row: int | None, column: str | None, message: str) -> None:
+        """Add one problem, unless that cell already has one (one reason per cell is enough)."""
+        if (row, column) in self._seen:
+            return
+        self._seen.add((row, column))
+        self.problems.append(Problem(self.file, row, column, message))
+
+    def __post_init__(self) -> None:
+        self._seen: set = {(p.row, p.column) for p in self.problems}
+
+
+def parse_cells(layout: Layout, file: str, cells: pd.DataFrame, today: dt.date) -> Checked:
+    """Parse every column of the layout; unreadable cells become problems."""
+    clean = pd.DataFrame(index=cells.index)
+    checked = Checked(layout, file, clean)
+    for col in layout.columns:
+        parsed = parse(col, cells[col.name], today)
+        clean[col.name] = parsed.values
+        bad = parsed.errors.notna()
+        checked.add(bad, col.name, parsed.errors[bad])
+    checked.rows = clean
+    return checked
+
+
+def check_duplicates(c: Checked) -> None:
+    """The same key twice in one file."""
+    key = list(c.layout.key)
+    frame = c.rows[key].astype(object).where(c.rows[key].notna(), "")
+    dup = frame.duplicated(keep="first")
+    if dup.any():
+        first = {}
+        for r, k in zip(frame.index, map(tuple, frame.to_numpy())):
+            first.setdefault(k, r)
+        msgs = [f"duplicates row {first[tuple(k)]} ({', '.join(key)})" for k in frame[dup].to_numpy()]
+        c.add(dup, None, msgs)
+
+
+def _partial(iso):
+    return parse_partial_date(iso) if isinstance(iso, str) else None
+
+
+def _latest(iso):
+    p = _partial(iso)
+    return pd.Timestamp(p.latest()) if p else pd.NaT
+
+
+def _earliest(iso):
+    p = _partial(iso)
+    return pd.Timestamp(p.earliest()) if p else pd.NaT
+
+
+# --------------------------------------------------------------------------- families
+
+
+def check_families(c: Checked, ctx: Context) -> None:
+    check_duplicates(c)
+
+
+# --------------------------------------------------------------------------- people
+
+
+def check_people(c: Checked, ctx: Context) -> None:
+    rows = c.rows
+    check_duplicates(c)
+    known_families = set(ctx.families["family"])
+    c.add(
+        rows["family"].notna() & ~rows["family"].isin(known_families),
+        "family",
+        [f"family {f!r} is not in the database (import families first)" for f in
+         rows["family"][rows["family"].notna() & ~rows["family"].isin(known_families)]],
+    )
+
+    # All people the file may refer to: the file's rows override nothing, they add.
+    stored = ctx.people.set_index("person")
+    incoming = rows[rows["person"].notna()].drop_duplicates("person").set_index("person", drop=False)
+    everyone = pd.concat([stored[~stored.index.isin(incoming.index)], incoming.drop(columns="person")])
+
+    for link, wrong_sex, word in (("mother", "male", "mother"), ("father", "female", "father")):
+        ref = rows[link]
+        given = ref.notna()
+        unknown = given & ~ref.isin(everyone.index)
+        c.add(unknown, link, [f"{word} {p!r} is not in this file or the database" for p in ref[unknown]])
+        c.add(given & (ref == rows["person"]), link, f"a person cannot be their own {word}")
+        known = given & ~unknown
+        sex = ref[known].map(everyone["sex_at_birth"])
+        bad_sex = pd.Series(False, index=rows.index)
+        bad_sex[known] = (sex == wrong_sex).to_numpy()
+        c.add(bad_sex, link, f"{word} is recorded with sex at birth {wrong_sex}")
+        # A child born before a parent.
+        child_latest = rows["birth_date"][known].map(_latest)
+        parent_earliest = ref[known].map(everyone["birth_date"]).map(_earliest)
+        before = pd.Series(False, index=rows.index)
+        before[known] = (child_latest < parent_earliest).to_numpy()
+        c.add(before, "birth_date", f"is before the birth of the {word}")
+
+    deceased = rows["vital_status"] == "deceased"
+    c.add(rows["death_date"].notna() & ~deceased, "death_date", "is given but vital_status is not deceased")
+    death_before_birth = rows["death_date"].map(_latest) < rows["birth_date"].map(_earliest)
+    c.add(death_before_birth, "death_date", "is before the date of birth")
+
+    twin = rows["twin_of"]
+    has_twin = twin.notna()
+    c.add(has_twin & rows["twin_type"].isna(), "twin_type", "is required when twin_of is given")
+    c.add(~has_twin & rows["twin_type"].notna(), "twin_of", "is required when twin_type is given")
+    c.add(has_twin & (twin == rows["person"]), "twin_of", "a person cannot be their own twin")
+    unknown_twin = has_twin & ~twin.isin(everyone.index)
+    c.add(unknown_twin, "twin_of", [f"twin {p!r} is not in this file or the database" for p in twin[unknown_twin]])
+    known_twin = has_twin & ~unknown_twin & (twin != rows["person"])
+    if known_twin.any():
+        other = everyone.loc[twin[known_twin]]
+        mine = rows[known_twin]
+        diff_birth = (
+            mine["birth_date"].notna().to_numpy()
+            & other["birth_date"].notna().to_numpy()
+            & (mine["birth_date"].to_numpy() != other["birth_date"].to_numpy())
+        )
+        m = pd.Series(False, index=rows.index)
+        m[known_twin] = diff_birth
+        c.add(m, "birth_date", "differs from the co-twin's date of birth")
+        mz = (mine["twin_type"] == "monozygotic").to_numpy()
+        diff_sex = mz & (mine["sex_at_birth"].to_numpy() != other["sex_at_birth"].to_numpy())
+        m = pd.Series(False, index=rows.index)
+        m[known_twin] = diff_sex
+        c.add(m, "twin_type", "monozygotic twins recorded with different sex at birth")
+
+    c.add(rows["placeholder"] & rows["proband"], "proband", "a placeholder member cannot be the proband")
+    probands = pd.concat(
+        [
+            stored[stored["proband"] & ~stored.index.isin(incoming.index)][["family"]].assign(_row=0),
+            rows[rows["proband"]][["family"]].assign(_row=rows.index[rows["proband"]]),
+        ]
+    )
+    extra = probands.duplicated("family", keep="first") & (probands["_row"] > 0)
+    for r, fam in zip(probands["_row"][extra], probands["family"][extra]):
+        c.note(int(r), "proband", f"family {fam!r} already has a proband")
+
+    _check_cycles(c, everyone)
+
+
+def _check_cycles(c: Checked, everyone: pd.DataFrame) -> None:
+    """A person who would become their own ancestor (follows mother/father links)."""
+    parents: dict[str, list[str]] = {}
+    for person, m, f in zip(everyone.index, everyone["mother"], everyone["father"]):
+        parents[person] = [p for p in (m, f) if isinstance(p, str) and p in everyone.index]
+    state: dict[str, int] = {}  # 1 = on the current path, 2 = done
+    row_of = {p: r for r, p in zip(c.rows.index, c.rows["person"])}
+    reported = set()
+    for start in parents:
+        if state.get(start):
+            continue
+        stack = [(start, iter(parents[start]))]
+        path = [start]
+        state[start] = 1
+        while stack:
+            node, it = stack[-1]
+            nxt = next(it, None)
+            if nxt is None:
+                state[node] = 2
+                stack.pop()
+                path.pop()
+                continue
+            if state.get(nxt) == 1:
+                loop = path[path.index(nxt):] + [nxt]
+                culprit = next((p for p in loop if p in row_of), loop[0])
+                if culprit not in reported:
+                    reported.add(culprit)
+                    c.note(row_of.get(culprit), "mother/father",
+                           "would become their own ancestor: " + " -> ".join(loop))
+            elif not state.get(nxt):
+                state[nxt] = 1
+                stack.append((nxt, iter(parents[nxt])))
+                path.append(nxt)
+
+
+# --------------------------------------------------------------------------- variants
+
+
+def check_variants(c: Checked, ctx: Context) -> None:
+    rows = c.rows
+    check_duplicates(c)
+    known = set(ctx.families["family"])
+    unknown = rows["family"].notna() & ~rows["family"].isin(known)
+    c.add(unknown, "family", [f"family {f!r} is not in the database" for f in rows["family"][unknown]])
+    vkey = ["family", "transcript", "hgvs_c"]
+    attrs = ["gene", "hgvs_p", "zygosity"]
+    both = pd.concat([ctx.variants.assign(_row=0), rows.assign(_row=rows.index)], ignore_index=True)
+    for attr in attrs:
+        first = both.groupby(vkey, dropna=False)[attr].transform(
+            lambda s: s.iloc[0] if len(s) else None
+        )
+        differs = (both[attr].fillna("") != first.fillna("")) & (both["_row"] > 0)
+        for r in both["_row"][differs]:
+            c.note(int(r), attr, "differs from another row (or the stored record) of the same variant")
+
+
+# --------------------------------------------------------------------------- people-linked kinds
+
+
+def _person_checks(c: Checked, ctx: Context, date_col: str) -> pd.DataFrame:
+    """Person must exist and not be a placeholder; the date within their life. Returns their records."""
+    rows = c.rows
+    people = ctx.people.set_index("person")
+    given = rows["person"].notna()
+    unknown = given & ~rows["person"].isin(people.index)
+    c.add(unknown, "person", [f"person {p!r} is not in the database (import people first)" for p in rows["person"][unknown]])
+    known = given & ~unknown
+    placeholder = pd.Series(False, index=rows.index)
+    placeholder[known] = rows["person"][known].map(people["placeholder"]).astype(bool).to_numpy()
+    c.add(placeholder, "person", "is a placeholder member (placeholders carry no clinical data)")
+    when = pd.to_datetime(rows[date_col], format="%Y-%m-%d", errors="coerce")
+    births = rows["person"][known].map(people["birth_date"]).map(_earliest)
+    deaths = rows["person"][known].map(people["death_date"]).map(_latest)
+    before = pd.Series(False, index=rows.index)
+    before[known] = (when[known] < births).to_numpy()
+    c.add(before, date_col, "is before the person's date of birth")
+    after = pd.Series(False, index=rows.index)
+    after[known] = (when[known] > deaths).to_numpy()
+    c.add(after, date_col, "is after the person's date of death")
+    return people
+
+
+def check_genetic_results(c: Checked, ctx: Context) -> None:
+    rows = c.rows
+    check_duplicates(c)
+    people = _person_checks(c, ctx, "test_date")
+    panel = rows["test_type"] == "diagnostic_panel"
+    none_found = rows["result"] == "no_variant_found"
+    has_variant = rows["variant"].notna()
+    c.add(none_found & ~panel, "result", "no_variant_found is only for a diagnostic panel")
+    c.add(none_found & has_variant, "variant", "must be empty when the result is no_variant_found")
+    c.add(~none_found & rows["result"].notna() & ~has_variant, "variant",
+          "is required (transcript:c.change) for this result")
+    fam = rows["person"].map(people["family"]) if len(people) else pd.Series(None, index=rows.index)
+    known_variants = set(
+        f"{f}|{t}:{h}" for f, t, h in zip(ctx.variants["family"], ctx.variants["transcript"], ctx.variants["hgvs_c"])
+    )
+    keyed = fam.astype(object).fillna("") + "|" + rows["variant"].astype(object).fillna("")
+    missing = has_variant & fam.notna() & ~keyed.isin(known_variants)
+    c.add(missing, "variant", [f"{v} is not a variant of family {f} (import variants first)"
+                               for v, f in zip(rows["variant"][missing], fam[missing])])
+
+
+def check_assessments(c: Checked, ctx: Context) -> None:
+    check_duplicates(c)
+    _person_checks(c, ctx, "assessment_date")
+
+
+def check_studies(c: Checked, ctx: Context) -> None:
+    rows = c.rows
+    check_duplicates(c)
+    _person_checks(c, ctx, "study_date")
+
+    for col, (lo, hi), unit in (("height_cm", HEIGHT_CM, "cm"), ("weight_kg", WEIGHT_KG, "kg")):
+        v = rows[col]
+        out = v.notna() & ((v < lo) | (v > hi))
+        c.add(out, col, [f"{x:g} {unit} is outside the plausible range {lo:g}-{hi:g} {unit}" for x in v[out]])
+
+    # The study-level cells must agree on every row of one study.
+    skey = ["person", "study_date", "modality"]
+    for col in ("site", "height_cm", "weight_kg"):
+        filled = rows[col].astype(object).where(rows[col].notna(), "")
+        first = filled.groupby([rows[k] for k in skey], dropna=False).transform("first")
+        c.add(filled != first, col, "differs between rows of the same study")
+
+    measure = rows["measure"]
+    has_measure = measure.notna()
+    c.add(~has_measure & rows["value"].notna(), "measure", "is empty but a value is given")
+    c.add(~has_measure & rows["unit"].notna(), "measure", "is empty but a unit is given")
+    c.add(has_measure & rows["value"].isna(), "value", "is empty (a value is required with a measure)")
+    c.add(has_measure & rows["unit"].isna(), "unit", "is empty (a unit is required with a measure)")
+
+    catalogue = ctx.measures.set_index("code")
+    unknown = has_measure & ~measure.isin(catalogue.index)
+    c.add(unknown, "measure", [f"{m!r} is not in the measure catalogue (see `tracker measures`)" for m in measure[unknown]])
+    known = has_measure & ~unknown
+    cat = catalogue.reindex(measure.where(known))
+    cat.index = rows.index
+    derived = known & cat["derived"].fillna(False).astype(bool)
+    c.add(derived, "measure", "is computed by the tool from other values; it is not entered")
+    wrong_modality = known & (cat["modality"] != rows["modality"])
+    c.add(wrong_modality, "measure",
+          [f"{m} is a {mod} measure, not {rm}" for m, mod, rm in
+           zip(measure[wrong_modality], cat["modality"][wrong_modality], rows["modality"][wrong_modality])])
+
+    entered_unit = rows["unit"].map(lambda u: units.normalise_unit(u) if isinstance(u, str) else None)
+    unit_unknown = known & rows["unit"].notna() & entered_unit.isna()
+    c.add(unit_unknown, "unit", [f"{u!r} is not a known unit" for u in rows["unit"][unit_unknown]])
+    factor = pd.Series(np.nan, index=rows.index)
+    ok_unit = known & entered_unit.notna()
+    factor[ok_unit] = [
+        units.conversion_factor(cu, eu) or np.nan for cu, eu in zip(cat["unit"][ok_unit], entered_unit[ok_unit])
+    ]
+    wrong_unit = ok_unit & factor.isna()
+    c.add(wrong_unit, "unit",
+          [f"{u} cannot be converted to {cu}, the unit of {m}" for u, cu, m in
+           zip(entered_unit[wrong_unit], cat["unit"][wrong_unit], measure[wrong_unit])])
+
+    value = rows["value"] * factor
+    lo, hi = cat["plausible_min"], cat["plausible_max"]
+    out = ok_unit & factor.notna() & rows["value"].notna() & ((value < lo) | (value > hi))
+    msgs = []
+    for v, ev, eu, cu, code, a, b in zip(
+        value[out], rows["value"][out], entered_unit[out], cat["unit"][out], measure[out], lo[out], hi[out]
+    ):
+        hint = units.likely_slip(cu, code, ev, a, b) if eu == cu else None
+        base = f"{ev:g} {eu} is outside the plausible range of {code} ({a:g} to {b:g} {cu})"
+        msgs.append(base + (f"; it {hint}" if hint else ""))
+    c.add(out, "value", msgs)
+
+    rows["_entered_unit"] = entered_unit
+    rows["_value"] = value
+    rows["_unit"] = cat["unit"]
+
+
+CHECKS = {
+    "families": check_families,
+    "people": check_people,
+    "variants": check_variants,
+    "genetic-results": check_genetic_results,
+    "assessments": check_assessments,
+    "studies": check_studies,
+}

@@ -1,0 +1,236 @@
+"""Tables of the family store (SQLAlchemy 2.x declarative models).
+
+The schema itself is created only by the Alembic migrations in
+``migrations/versions``; these classes describe it for queries, and a test
+checks that the two agree.
+
+Vocabularies (stored as short lower-case words, checked by CHECK constraints
+so that a write from any client cannot store a word the tool does not know)
+are defined once in :mod:`tracker.domain.vocabulary`.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+
+from sqlalchemy import (
+    Boolean,
+    CheckConstraint,
+    Date,
+    DateTime,
+    Float,
+    ForeignKey,
+    Integer,
+    MetaData,
+    String,
+    Text,
+    UniqueConstraint,
+)
+from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
+
+NAMING = {
+    "ix": "ix_%(column_0_label)s",
+    "uq": "uq_%(table_name)s_%(column_0_name)s",
+    "ck": "ck_%(table_name)s_%(constraint_name)s",
+    "fk": "fk_%(table_name)s_%(column_0_name)s_%(referred_table_name)s",
+    "pk": "pk_%(table_name)s",
+}
+
+
+class Base(DeclarativeBase):
+    metadata = MetaData(naming_convention=NAMING)
+
+
+class Family(Base):
+    __tablename__ = "family"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    code: Mapped[str] = mapped_column(String(40), unique=True)
+    condition: Mapped[str] = mapped_column(String(200))
+    notes: Mapped[str | None] = mapped_column(Text)
+
+
+class Person(Base):
+    __tablename__ = "person"
+    __table_args__ = (
+        CheckConstraint("sex_at_birth IN ('female','male','unknown')", name="sex_at_birth"),
+        CheckConstraint("birth_date_precision IN ('day','year')", name="birth_date_precision"),
+        CheckConstraint("death_date_precision IN ('day','year')", name="death_date_precision"),
+        CheckConstraint("vital_status IN ('alive','deceased','unknown')", name="vital_status"),
+        CheckConstraint("twin_type IN ('monozygotic','dizygotic','unknown')", name="twin_type"),
+        CheckConstraint("adoption IN ('in','out')", name="adoption"),
+        CheckConstraint(
+            "contact_status IN ('not_contacted','contactable','declined','lost_to_follow_up')",
+            name="contact_status",
+        ),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    code: Mapped[str] = mapped_column(String(40), unique=True)
+    family_id: Mapped[int] = mapped_column(ForeignKey("family.id"), index=True)
+    given_name: Mapped[str | None] = mapped_column(String(200))
+    family_name: Mapped[str | None] = mapped_column(String(200))
+    sex_at_birth: Mapped[str] = mapped_column(String(10))
+    gender_identity: Mapped[str | None] = mapped_column(String(100))
+    birth_date: Mapped[dt.date | None] = mapped_column(Date)
+    birth_date_precision: Mapped[str | None] = mapped_column(String(4))
+    vital_status: Mapped[str] = mapped_column(String(10))
+    death_date: Mapped[dt.date | None] = mapped_column(Date)
+    death_date_precision: Mapped[str | None] = mapped_column(String(4))
+    mother_id: Mapped[int | None] = mapped_column(ForeignKey("person.id"), index=True)
+    father_id: Mapped[int | None] = mapped_column(ForeignKey("person.id"), index=True)
+    is_placeholder: Mapped[bool] = mapped_column(Boolean, default=False)
+    is_proband: Mapped[bool] = mapped_column(Boolean, default=False)
+    twin_of_id: Mapped[int | None] = mapped_column(ForeignKey("person.id"))
+    twin_type: Mapped[str | None] = mapped_column(String(12))
+    adoption: Mapped[str | None] = mapped_column(String(3))
+    contact_status: Mapped[str | None] = mapped_column(String(20))
+    contact_status_date: Mapped[dt.date | None] = mapped_column(Date)
+    notes: Mapped[str | None] = mapped_column(Text)
+
+
+class Assessment(Base):
+    __tablename__ = "assessment"
+    __table_args__ = (
+        UniqueConstraint("person_id", "assessment_date"),
+        CheckConstraint(
+            "affected_status IN ('affected','unaffected','uncertain')", name="affected_status"
+        ),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    person_id: Mapped[int] = mapped_column(ForeignKey("person.id"))
+    assessment_date: Mapped[dt.date] = mapped_column(Date)
+    affected_status: Mapped[str] = mapped_column(String(10))
+    symptoms: Mapped[str | None] = mapped_column(Text)
+    competitive_athlete: Mapped[bool] = mapped_column(Boolean, default=False)
+    pregnant: Mapped[bool] = mapped_column(Boolean, default=False)
+    hypertension: Mapped[bool] = mapped_column(Boolean, default=False)
+    notes: Mapped[str | None] = mapped_column(Text)
+
+
+class Variant(Base):
+    __tablename__ = "variant"
+    __table_args__ = (
+        UniqueConstraint("family_id", "transcript", "hgvs_c"),
+        CheckConstraint(
+            "zygosity IN ('heterozygous','homozygous','hemizygous','compound_heterozygous')",
+            name="zygosity",
+        ),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    family_id: Mapped[int] = mapped_column(ForeignKey("family.id"))
+    gene: Mapped[str] = mapped_column(String(20))
+    transcript: Mapped[str] = mapped_column(String(40))
+    hgvs_c: Mapped[str] = mapped_column(String(200))
+    hgvs_p: Mapped[str | None] = mapped_column(String(200))
+    zygosity: Mapped[str] = mapped_column(String(24))
+
+
+class VariantClassification(Base):
+    """One dated ACMG/AMP classification of a variant; rows are never updated.
+
+    The current class of a variant is the row with the latest date.
+    """
+
+    __tablename__ = "variant_classification"
+    __table_args__ = (
+        UniqueConstraint("variant_id", "classified_on"),
+        CheckConstraint(
+            "acmg_class IN ('pathogenic','likely_pathogenic','uncertain_significance',"
+            "'likely_benign','benign')",
+            name="acmg_class",
+        ),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    variant_id: Mapped[int] = mapped_column(ForeignKey("variant.id"))
+    classified_on: Mapped[dt.date] = mapped_column(Date)
+    acmg_class: Mapped[str] = mapped_column(String(24))
+    reason: Mapped[str | None] = mapped_column(Text)
+
+
+class GeneticResult(Base):
+    __tablename__ = "genetic_result"
+    __table_args__ = (
+        UniqueConstraint("person_id", "test_date", "test_type", "variant_id"),
+        CheckConstraint("test_type IN ('diagnostic_panel','predictive')", name="test_type"),
+        CheckConstraint(
+            "result IN ('carrier','non_carrier','inconclusive','no_variant_found')", name="result"
+        ),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    person_id: Mapped[int] = mapped_column(ForeignKey("person.id"))
+    variant_id: Mapped[int | None] = mapped_column(ForeignKey("variant.id"))
+    test_type: Mapped[str] = mapped_column(String(20))
+    result: Mapped[str] = mapped_column(String(20))
+    test_date: Mapped[dt.date] = mapped_column(Date)
+    lab: Mapped[str | None] = mapped_column(String(200))
+    report_reference: Mapped[str | None] = mapped_column(String(200))
+
+
+class Measure(Base):
+    """The catalogue of measures: what a value means, its unit and plausible range."""
+
+    __tablename__ = "measure"
+    __table_args__ = (
+        CheckConstraint("modality IN ('echo','cmr','ecg','clinic')", name="modality"),
+    )
+
+    code: Mapped[str] = mapped_column(String(40), primary_key=True)
+    label: Mapped[str] = mapped_column(String(200))
+    modality: Mapped[str] = mapped_column(String(10))
+    unit: Mapped[str] = mapped_column(String(20))
+    plausible_min: Mapped[float] = mapped_column(Float)
+    plausible_max: Mapped[float] = mapped_column(Float)
+    range_source: Mapped[str] = mapped_column(Text)
+    derived: Mapped[bool] = mapped_column(Boolean, default=False)
+    loinc: Mapped[str | None] = mapped_column(String(20))
+
+
+class Study(Base):
+    __tablename__ = "study"
+    __table_args__ = (
+        UniqueConstraint("person_id", "study_date", "modality"),
+        CheckConstraint("modality IN ('echo','cmr','ecg','clinic')", name="modality"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    person_id: Mapped[int] = mapped_column(ForeignKey("person.id"), index=True)
+    study_date: Mapped[dt.date] = mapped_column(Date)
+    modality: Mapped[str] = mapped_column(String(10))
+    site: Mapped[str | None] = mapped_column(String(200))
+    height_cm: Mapped[float | None] = mapped_column(Float)
+    weight_kg: Mapped[float | None] = mapped_column(Float)
+
+
+class Measurement(Base):
+    """One value of a study, in the catalogue unit, with the value as entered beside it."""
+
+    __tablename__ = "measurement"
+    __table_args__ = (UniqueConstraint("study_id", "measure_code"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    study_id: Mapped[int] = mapped_column(ForeignKey("study.id"), index=True)
+    measure_code: Mapped[str] = mapped_column(ForeignKey("measure.code"))
+    value: Mapped[float] = mapped_column(Float)
+    unit: Mapped[str] = mapped_column(String(20))
+    entered_value: Mapped[float] = mapped_column(Float)
+    entered_unit: Mapped[str] = mapped_column(String(20))
+
+
+class ImportRun(Base):
+    """One accepted import: which file, when, by whom, and what it added."""
+
+    __tablename__ = "import_run"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    kind: Mapped[str] = mapped_column(String(30))
+    file_name: Mapped[str] = mapped_column(String(500))
+    sha256: Mapped[str] = mapped_column(String(64))
+    imported_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    imported_by: Mapped[str] = mapped_column(String(100))
+    rows_read: Mapped[int] = mapped_column(Integer)
+    rows_added: Mapped[int] = mapped_column(Integer)
