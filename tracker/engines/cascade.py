@@ -1,0 +1,536 @@
+"""Cascade plan: who to offer predictive testing and clinical screening, and the gaps.
+
+Pure engine.  Input: a :class:`~tracker.domain.pedigree.Pedigree` (vital and
+contact status, birth dates), the genotype statuses from
+:func:`tracker.domain.genetics.genotype_statuses`, the family variant's
+current ACMG/AMP class, the date of the plan, a guideline rule set, each
+person's latest affected status ('affected'/'unaffected'/'uncertain'/None),
+and the people with any study or genetic test on record.
+
+Each guideline is its own rule set (never blended):
+
+``aha_acc_2020``      2020 AHA/ACC HCM guideline, restated in the 2024
+                      AHA/ACC/AMSSM/HRS/PACES/SCMR guideline: all first-degree
+                      relatives are offered clinical screening (ECG + echo)
+                      and cascade testing when the proband has a P/LP variant
+                      (1 B-NR); genetic or clinical screening can start at any
+                      age, with expert counselling and shared decisions [V].
+``esc_2023``          2023 ESC cardiomyopathy guidelines: first-degree relatives
+                      screened with ECG and imaging, cascade testing where a
+                      disease-causing variant is known; no minimum age for
+                      predictive testing (adults I B, children IIa B, in the
+                      child's best interests); a deceased first-degree
+                      relative brings the proband's second-degree relatives in
+                      (RT14, IIa C) [V].
+``hrs_2022_testing``  2022 EHRA/HRS/APHRS/LAHRS expert consensus on genetic
+                      testing: predictive testing of children recommended
+                      from 10-12 y; below that it may be considered,
+                      especially with early-onset disease in the family [V].
+                      The consensus is about testing; its clinical-screening
+                      list here (first-degree relatives of affected members
+                      and at-risk relatives) is common practice.
+
+Age rules (common practice, documented): a child counts as N years old from
+the Nth birthday (a 29 February birthday falls on 1 March in common years).
+A birth date known only as a year is counted from 31 December of that year
+-- the youngest the person can be -- so nobody is offered testing before the
+minimum age; the row says so.  ``hrs_2022_testing``: eligible from the 10th
+birthday, the 10-12 y band flagged ("timing within the band by counselling"),
+'recommended' from the 12th; younger children only with early-onset disease
+in the family (a clinician's judgement passed in as ``early_onset_family``),
+otherwise they are listed as deferred with the date they become eligible.
+``esc_2023`` distinguishes adults (18 y and over; common practice) from
+children only in the strength of the recommendation.  An unknown birth date
+never blocks a listing; the row asks for the age to be confirmed.
+
+Who is listed: living (or vital status unknown, flagged), not a placeholder,
+and contactable or not yet contacted.  People who declined or are lost to
+follow-up appear only among the gaps (listed for the record, not recalled).
+Deceased people are never listed.
+
+Decision support only: the treating clinician decides, following local
+protocols and the current guideline.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from collections.abc import Iterable, Mapping
+from dataclasses import asdict, dataclass
+from fractions import Fraction
+
+import pandas as pd
+
+from tracker.domain.dates import PartialDate, age_at, birthday_at_age, completed_years
+from tracker.domain.genetics import ACTIONABLE_CLASSES, GenotypeStatus, probability_text
+from tracker.domain.pedigree import Pedigree
+
+CAUTION = (
+    "Decision support only: this list proposes who to offer testing and screening; it is not a "
+    "diagnosis or an instruction. The treating clinician decides with the family, following local "
+    "protocols and the current guideline. Advise earlier review for new symptoms or new family events."
+)
+
+ADULT_AGE_YEARS = 18  # adult / child boundary for ESC 2023 strength wording: common practice
+
+
+@dataclass(frozen=True)
+class RuleSet:
+    """One guideline's cascade rules.  Ages in completed years."""
+
+    guideline: str
+    title: str
+    min_age_years: int | None  # predictive testing of unaffected children: lowest age offered
+    full_age_years: int | None  # from this age the recommendation is unqualified
+    early_onset_exception: bool  # younger children may be considered with early-onset family disease
+    testing_source: str
+    screening_source: str
+    release_source: str
+    second_degree_via_deceased: bool = False
+    second_degree_source: str = ""
+    segregation_source: str | None = None  # VUS families: segregation testing of affected relatives
+
+
+RULE_SETS: dict[str, RuleSet] = {
+    "aha_acc_2020": RuleSet(
+        guideline="aha_acc_2020",
+        title="2020 AHA/ACC HCM guideline (as restated in the 2024 AHA/ACC guideline)",
+        min_age_years=None,
+        full_age_years=None,
+        early_onset_exception=False,
+        testing_source=(
+            "AHA/ACC 2020 and 2024 §6.8 rec 6: cascade genetic testing of first-degree relatives "
+            "when the proband has a P/LP variant (1 B-NR); testing or screening can start at any "
+            "age, with expert counselling and shared decisions [V]"
+        ),
+        screening_source=(
+            "AHA/ACC 2024 §6.8 rec 6 (as 2020): clinical screening (ECG + echo) of all first-degree "
+            "relatives (1 B-NR) [V]; more distant at-risk relatives by judgement [M, from memory, verify]"
+        ),
+        release_source=(
+            "AHA/ACC: no ongoing screening of genotype-negative relatives (3: No Benefit) "
+            "[M, from memory, verify]; AHA 2024: unless the variant is downgraded [V2]"
+        ),
+    ),
+    "esc_2023": RuleSet(
+        guideline="esc_2023",
+        title="2023 ESC Guidelines for the management of cardiomyopathies",
+        min_age_years=None,
+        full_age_years=None,
+        early_onset_exception=False,
+        testing_source=(
+            "ESC 2023: cascade testing with pre- and post-test counselling, adults I B, children "
+            "IIa B; no minimum age once the family diagnosis is confident; testing must serve the "
+            "child's best interests [V]"
+        ),
+        screening_source=(
+            "ESC 2023 §6.11: ECG and cardiac imaging for all first-degree relatives; carriers of the "
+            "family variant followed with regular ECG and imaging [V]"
+        ),
+        release_source=(
+            "ESC 2023: genotype-negative relatives discharged, with advice to return for symptoms or "
+            "new family data (I C) [V]"
+        ),
+        second_degree_via_deceased=True,
+        second_degree_source="ESC 2023 RT14: first-degree relative deceased: evaluate second-degree relatives (IIa C) [V]",
+        segregation_source=(
+            "ESC 2023: segregation testing of affected relatives should be considered for a VUS "
+            "(IIa C) [V]"
+        ),
+    ),
+    "hrs_2022_testing": RuleSet(
+        guideline="hrs_2022_testing",
+        title="2022 EHRA/HRS/APHRS/LAHRS expert consensus on genetic testing for cardiac diseases",
+        min_age_years=10,
+        full_age_years=12,
+        early_onset_exception=True,
+        testing_source=(
+            "HRS 2022 consensus: predictive testing of related children recommended from 10-12 y; "
+            "earlier may be considered, especially with early-onset disease in the family [V]"
+        ),
+        screening_source=(
+            "clinical screening of first-degree relatives of affected members and of at-risk "
+            "relatives: common practice (the consensus addresses testing)"
+        ),
+        release_source=(
+            "HRS 2022: no ongoing clinical screening for genotype-negative relatives in most "
+            "genotype-positive families [V]"
+        ),
+        segregation_source="HRS 2022: segregation testing of affected relatives may be considered for a VUS [V]",
+    ),
+}
+
+
+@dataclass(frozen=True)
+class AgeOnDate:
+    """Age used by the rules.  ``years`` are completed years counted from
+    the latest possible birth date (31 December for a year-only date);
+    ``decimal_years`` is the usual decimal age (from 1 July for year-only)."""
+
+    years: int | None
+    decimal_years: float | None
+    basis: str  # 'day', 'year_only', 'unknown'
+    note: str = ""
+
+
+def date_reaching_age(birth: PartialDate | None, age_years: int) -> dt.date | None:
+    """First date on which the person has surely reached ``age_years``
+    (the birthday; 31 December of birth year + age for a year-only date)."""
+    if birth is None:
+        return None
+    if birth.precision == "day":
+        return birthday_at_age(birth.value, age_years)
+    return dt.date(birth.year + age_years, 12, 31)
+
+
+def _birth(ped: Pedigree, person: str) -> PartialDate | None:
+    m = ped.member(person)
+    if m.birth_date is None:
+        return None
+    return PartialDate(m.birth_date, m.birth_date_precision or "day")
+
+
+def age_for_rules(ped: Pedigree, person: str, on: dt.date) -> AgeOnDate:
+    """The age a rule set uses, conservative for year-only birth dates."""
+    birth = _birth(ped, person)
+    if birth is None:
+        return AgeOnDate(None, None, "unknown", "date of birth not recorded: confirm the age")
+    decimal = age_at(birth, on).years
+    if birth.precision == "day":
+        return AgeOnDate(completed_years(birth.value, on), decimal, "day")
+    latest = birth.latest()  # 31 December: the youngest the person can be
+    years = max(0, completed_years(latest, on))
+    return AgeOnDate(
+        years, decimal, "year_only",
+        f"birth year only ({birth.year}): age counted from 31 December {birth.year} (youngest possible)",
+    )
+
+
+@dataclass(frozen=True)
+class TestingCandidate:
+    """A relative for predictive (or, if affected, diagnostic) testing of the family variant."""
+
+    person: str
+    family: str | None
+    probability: Fraction | None
+    probability_text: str
+    age_years: int | None
+    age_note: str
+    recommendation: str
+    eligible: bool
+    eligible_from: dt.date | None
+    reason: str
+    source: str
+    guideline: str
+    notes: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class ScreeningCandidate:
+    """A relative to offer clinical screening (ECG and imaging), or one released from it."""
+
+    person: str
+    family: str | None
+    categories: tuple[str, ...]
+    reason: str
+    source: str
+    guideline: str
+    notes: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Gap:
+    """A break in the cascade: ``gap`` is 'never_contacted', 'contacted_not_seen',
+    'lost_to_follow_up' or 'declined'."""
+
+    family: str | None
+    person: str
+    gap: str
+    reason: str
+
+
+@dataclass(frozen=True)
+class CascadePlan:
+    guideline: str
+    variant_class: str | None
+    on: dt.date
+    testing: tuple[TestingCandidate, ...]
+    deferred: tuple[TestingCandidate, ...]
+    segregation: tuple[TestingCandidate, ...]
+    screening: tuple[ScreeningCandidate, ...]
+    released: tuple[ScreeningCandidate, ...]
+    gaps: tuple[Gap, ...]
+    notes: tuple[str, ...] = ()
+    caution: str = CAUTION
+
+    def frames(self) -> dict[str, pd.DataFrame]:
+        """One frame per list: testing, deferred, segregation, screening,
+        released, gaps (columns = the dataclass fields; probability as float)."""
+
+        def frame(items, cls) -> pd.DataFrame:
+            cols = list(cls.__dataclass_fields__)
+            rows = []
+            for it in items:
+                d = asdict(it)
+                if "probability" in d and d["probability"] is not None:
+                    d["probability"] = float(d["probability"])
+                rows.append(d)
+            return pd.DataFrame(rows, columns=cols)
+
+        return {
+            "testing": frame(self.testing, TestingCandidate),
+            "deferred": frame(self.deferred, TestingCandidate),
+            "segregation": frame(self.segregation, TestingCandidate),
+            "screening": frame(self.screening, ScreeningCandidate),
+            "released": frame(self.released, ScreeningCandidate),
+            "gaps": frame(self.gaps, Gap),
+        }
+
+    def people(self, list_name: str) -> tuple[str, ...]:
+        return tuple(it.person for it in getattr(self, list_name))
+
+
+def _listable(ped: Pedigree, person: str) -> bool:
+    m = ped.member(person)
+    return (not m.placeholder) and m.vital_status != "deceased"
+
+
+def _reachable(ped: Pedigree, person: str) -> bool:
+    return ped.member(person).contact_status in ("contactable", "not_contacted")
+
+
+def _vital_notes(ped: Pedigree, person: str) -> tuple[str, ...]:
+    if ped.member(person).vital_status == "unknown":
+        return ("vital status unknown: confirm before contact",)
+    return ()
+
+
+def _testing_recommendation(rules: RuleSet, age: AgeOnDate, birth: PartialDate | None, early_onset: bool):
+    """(eligible, recommendation words, eligible_from)."""
+    if rules.guideline == "aha_acc_2020":
+        return True, "recommended, any age (1 B-NR)", None
+    if rules.guideline == "esc_2023":
+        if age.years is None:
+            return True, "recommended for adults (I B), should be considered for children (IIa B): confirm the age", None
+        if age.years >= ADULT_AGE_YEARS:
+            return True, "recommended (adult, I B)", None
+        return True, "should be considered (child, IIa B): in the child's best interests", None
+    # hrs_2022_testing
+    assert rules.min_age_years is not None and rules.full_age_years is not None
+    if age.years is None:
+        return True, "recommended from 10-12 y: confirm the age before offering", None
+    if age.years >= rules.full_age_years:
+        return True, "recommended (12 y or older)", None
+    if age.years >= rules.min_age_years:
+        return True, "recommended (10-12 y band: timing within the band by counselling)", None
+    if early_onset and rules.early_onset_exception:
+        return True, "may be considered (under 10 y, early-onset disease in the family)", None
+    return False, "deferred: under 10 y", date_reaching_age(birth, rules.min_age_years)
+
+
+def plan_cascade(
+    pedigree: Pedigree,
+    statuses: Mapping[str, GenotypeStatus],
+    variant_class: str | None,
+    on: dt.date,
+    guideline: str,
+    affected: Mapping[str, str | None] | None = None,
+    seen: Iterable[str] = (),
+    early_onset_family: bool = False,
+) -> CascadePlan:
+    """The cascade plan for one pedigree on date ``on`` under ``guideline``.
+
+    ``affected``: person -> latest affected status.  ``seen``: people with any
+    study or genetic test on record (for the "contacted but never seen" gap).
+    ``early_onset_family``: clinician's judgement that the family has
+    early-onset disease (opens testing of younger children under
+    ``hrs_2022_testing``).
+    """
+    if guideline not in RULE_SETS:
+        raise ValueError(f"unknown guideline rule set {guideline!r}; one of {', '.join(RULE_SETS)}")
+    rules = RULE_SETS[guideline]
+    affected = dict(affected or {})
+    seen = set(seen)
+    actionable = variant_class in ACTIONABLE_CLASSES
+    people = pedigree.people
+
+    def is_affected(p: str) -> bool:
+        return affected.get(p) == "affected"
+
+    def fam(p: str) -> str | None:
+        return pedigree.member(p).family
+
+    testing: list[TestingCandidate] = []
+    deferred: list[TestingCandidate] = []
+    segregation: list[TestingCandidate] = []
+    indicated: dict[str, list[tuple[str, str, str]]] = {}  # person -> (category, reason, source)
+    released: list[ScreeningCandidate] = []
+    notes: list[str] = []
+
+    def indicate(p: str, category: str, reason: str, source: str) -> None:
+        indicated.setdefault(p, [])
+        if all(c != category for c, _, _ in indicated[p]):
+            indicated[p].append((category, reason, source))
+
+    # ---- predictive testing (P/LP families only) ----
+    testing_indicated: set[str] = set()
+    if actionable:
+        for p in people:
+            st = statuses[p]
+            if not _listable(pedigree, p):
+                continue
+            obligate = st.status == "carrier" and st.basis == "obligate"
+            if st.status != "at_risk_untested" and not obligate:
+                continue
+            testing_indicated.add(p)
+            age = age_for_rules(pedigree, p, on)
+            birth = _birth(pedigree, p)
+            cand_notes = list(_vital_notes(pedigree, p))
+            if age.note:
+                cand_notes.append(age.note)
+            if is_affected(p):
+                eligible, words, start = True, "diagnostic: affected, test for the family variant", None
+            else:
+                eligible, words, start = _testing_recommendation(rules, age, birth, early_onset_family)
+            if obligate:
+                words = f"confirmatory, optional (common practice): {words}"
+            cand = TestingCandidate(
+                person=p,
+                family=fam(p),
+                probability=st.probability,
+                probability_text=probability_text(st.probability),
+                age_years=age.years,
+                age_note=age.note,
+                recommendation=words,
+                eligible=eligible,
+                eligible_from=start,
+                reason=st.reason,
+                source=rules.testing_source,
+                guideline=guideline,
+                notes=tuple(cand_notes),
+            )
+            if not _reachable(pedigree, p):
+                continue
+            (testing if eligible else deferred).append(cand)
+
+    # ---- segregation testing of affected relatives (VUS families) ----
+    if variant_class == "uncertain_significance" and rules.segregation_source:
+        for p in people:
+            st = statuses[p]
+            if is_affected(p) and st.tested_result is None and _listable(pedigree, p) and _reachable(pedigree, p):
+                segregation.append(
+                    TestingCandidate(
+                        p, fam(p), None, "", age_for_rules(pedigree, p, on).years, "",
+                        "segregation testing of an affected relative for the VUS", True, None,
+                        st.reason, rules.segregation_source, guideline, _vital_notes(pedigree, p),
+                    )
+                )
+
+    # ---- clinical screening ----
+    affected_people = [p for p in people if is_affected(p)]
+    for a in affected_people:
+        sa = statuses[a]
+        explained = sa.status in ("carrier", "at_risk_untested")
+        for q in pedigree.first_degree_relatives(a):
+            if is_affected(q) or not _listable(pedigree, q):
+                continue
+            sq = statuses[q]
+            if actionable and sq.status == "non_carrier" and explained:
+                continue  # genotype-negative: released below
+            if actionable and sa.status == "non_carrier":
+                why = (f"first-degree relative of affected {a}, whose disease is not explained by the family "
+                       f"variant ({a} tested non-carrier): clinical screening")
+            elif actionable and sq.status == "not_at_risk":
+                why = (f"first-degree relative of affected {a} (not at risk from the family variant by "
+                       "pedigree, untested: screening per the first-degree rule)")
+            elif actionable:
+                why = f"first-degree relative of affected {a}"
+            else:
+                why = f"first-degree relative of affected {a}: clinical screening only ({sq.reason})"
+            indicate(q, "first_degree_of_affected", why, rules.screening_source)
+        if rules.second_degree_via_deceased:
+            for d in pedigree.first_degree_relatives(a):
+                if pedigree.member(d).vital_status != "deceased":
+                    continue
+                for q in pedigree.first_degree_relatives(d):
+                    if q == a or is_affected(q) or not _listable(pedigree, q):
+                        continue
+                    if pedigree.relationship(a, q).degree != 2:
+                        continue
+                    if actionable and statuses[q].status == "non_carrier":
+                        continue
+                    indicate(q, "second_degree_via_deceased",
+                             f"second-degree relative of affected {a} through deceased {d}",
+                             rules.second_degree_source)
+    if actionable:
+        for p in people:
+            st = statuses[p]
+            if is_affected(p) or not _listable(pedigree, p):
+                continue
+            if st.status == "carrier":
+                indicate(p, "carrier_surveillance",
+                         f"{st.reason}: genotype-positive, clinical surveillance", rules.screening_source)
+            elif st.status == "at_risk_untested":
+                indicate(p, "at_risk",
+                         f"{st.reason}: clinical screening until tested", rules.screening_source)
+            elif st.status == "non_carrier":
+                released.append(
+                    ScreeningCandidate(
+                        p, fam(p), ("genotype_negative",),
+                        f"{st.reason}: genotype-negative for the family P/LP variant: discharge from "
+                        "screening with advice to return for symptoms or new family data",
+                        rules.release_source, guideline, _vital_notes(pedigree, p),
+                    )
+                )
+            elif st.status == "uncertain":
+                notes.append(f"{p}: {st.reason}")
+    elif variant_class in ("likely_benign", "benign"):
+        notes.append(
+            "variant classified likely benign/benign: no cascade testing (AHA 3: No Benefit; ESC 2023 III C) [V]"
+        )
+    elif variant_class == "uncertain_significance":
+        notes.append(
+            "VUS: no cascade testing (ESC 2023) [V]; testing phenotype-negative relatives to reclassify is of "
+            "uncertain value (AHA 2b; HRS 2022) [V]"
+        )
+
+    screening: list[ScreeningCandidate] = []
+    for p in people:
+        if p not in indicated or not _reachable(pedigree, p):
+            continue
+        items = indicated[p]
+        screening.append(
+            ScreeningCandidate(
+                p, fam(p), tuple(c for c, _, _ in items), "; ".join(r for _, r, _ in items),
+                "; ".join(dict.fromkeys(s for _, _, s in items)), guideline, _vital_notes(pedigree, p),
+            )
+        )
+
+    # ---- gaps: anyone indicated for testing or screening ----
+    gaps: list[Gap] = []
+    for p in people:
+        if p not in indicated and p not in testing_indicated:
+            continue
+        contact = pedigree.member(p).contact_status
+        if contact == "not_contacted":
+            gaps.append(Gap(fam(p), p, "never_contacted", "indicated for testing or screening, never contacted"))
+        elif contact == "contactable" and p not in seen:
+            gaps.append(Gap(fam(p), p, "contacted_not_seen",
+                            "contacted (contactable) but no study or genetic test on record"))
+        elif contact == "lost_to_follow_up":
+            gaps.append(Gap(fam(p), p, "lost_to_follow_up", "lost to follow-up: consider another route of contact"))
+        elif contact == "declined":
+            gaps.append(Gap(fam(p), p, "declined", "declined: listed for the record, not recalled"))
+
+    return CascadePlan(
+        guideline=guideline,
+        variant_class=variant_class,
+        on=on,
+        testing=tuple(testing),
+        deferred=tuple(deferred),
+        segregation=tuple(segregation),
+        screening=tuple(screening),
+        released=tuple(released),
+        gaps=tuple(gaps),
+        notes=tuple(notes),
+    )

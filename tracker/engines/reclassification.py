@@ -1,0 +1,277 @@
+"""What a change in the family variant's ACMG/AMP class means for each relative.
+
+Pure engine.  :func:`impact` compares the genotype statuses computed with the
+old class and with the new class (both from
+:func:`tracker.domain.genetics.genotype_statuses`) and lists what changes for
+each person, with the action for the nurse.  :func:`impact_of_reclassification`
+computes the two sets of statuses itself and calls :func:`impact`.
+
+Rules (each item carries its source):
+
+* Serial re-evaluation of the variant is recommended because reclassification
+  changes diagnosis and cascade testing (AHA 2024, 1 B-NR) [V]; results of
+  reclassification are passed on to families (ESC 2023) [V].
+* Any reclassification is new clinically relevant family data: an unscheduled
+  review for everyone under follow-up (ESC 2023) [V].
+* P/LP downgraded to VUS/LB/B: variant-negative relatives who were discharged
+  go back into clinical screening on the genotype-unknown schedule (AHA 2024
+  exception [V2]); carriers lose genotype-positive status; re-counsel the
+  family; predictive testing is no longer offered (VUS: no cascade testing,
+  ESC 2023 [V]; LB/B: no benefit, AHA 3 / ESC III C [V]).
+* VUS/LB/B (or none) upgraded to LP/P: cascade testing is offered to untested
+  at-risk relatives; earlier results for this variant are re-interpreted:
+  carriers move to genotype-positive surveillance, non-carriers may be
+  discharged after counselling (ESC 2023 I C [V]).
+* LP <-> P, or VUS <-> LB/B: genotype meaning unchanged; record and review.
+
+``screening`` gives each person's screening state before the change:
+'released' (discharged as genotype-negative), 'surveillance' (under clinical
+follow-up) or 'none'; a mapping person -> state or a frame with columns
+``person, screening_state``.  Missing people count as 'none'.
+
+Decision support only: the treating clinician and genetics team decide,
+following local protocols and the current guideline.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import asdict, dataclass
+
+import pandas as pd
+
+from tracker.domain.genetics import (
+    ACMG_CLASSES,
+    ACTIONABLE_CLASSES,
+    GenotypeStatus,
+    genotype_statuses,
+    probability_text,
+)
+from tracker.domain.pedigree import Pedigree
+
+CAUTION = (
+    "Decision support only: reclassification actions are proposals for the clinical team; the "
+    "treating clinician decides, following local protocols and the current guideline. Confirm the "
+    "new classification with the laboratory report before acting."
+)
+
+SCREENING_STATES = ("released", "surveillance", "none")
+
+SRC_REVIEW = "ESC 2023: any reclassification is new family data: unscheduled review [V]"
+SRC_RECOUNSEL = (
+    "AHA 2024: re-evaluate variant significance at intervals, reclassification changes cascade "
+    "testing (1 B-NR) [V]; ESC 2023: results of reclassification passed on to families [V]"
+)
+SRC_DOWNGRADE_RELEASED = (
+    "AHA 2024: genotype-negative relatives leave screening unless the variant is downgraded to "
+    "VUS/LB/B [V2]: discharged variant-negative relatives go back into clinical screening on the "
+    "genotype-unknown schedule"
+)
+SRC_DOWNGRADE_CARRIER = (
+    "AHA 2024 (1 B-NR) and ESC 2023: reclassification changes diagnosis and cascade testing [V]: "
+    "after a downgrade carriers lose genotype-positive status; re-counsel"
+)
+SRC_NO_CASCADE_VUS = "ESC 2023: VUS: no cascade testing [V]"
+SRC_NO_CASCADE_BENIGN = "AHA 2024: cascade testing of no benefit for LB/B (3); ESC 2023 III C [V]"
+SRC_UPGRADE_TEST = "ESC 2023 (adults I B, children IIa B); AHA 2024 §6.8 (1 B-NR): cascade testing for a P/LP variant [V]"
+SRC_UPGRADE_NEGATIVE = "ESC 2023: genotype-negative relatives discharged with advice to return (I C) [V]"
+SRC_UPGRADE_CARRIER = "ESC 2023 §6.11: carriers followed with regular ECG and imaging [V]"
+
+
+@dataclass(frozen=True)
+class ImpactItem:
+    """One consequence of a reclassification.
+
+    ``person`` is None for a family-level item.  ``change`` is a code:
+    'recounsel_family', 'return_to_surveillance', 'keep_in_surveillance',
+    'loses_genotype_positive', 'testing_withdrawn', 'exclusion_lifted',
+    'offer_predictive_testing', 'result_reinterpreted_positive',
+    'result_reinterpreted_negative', 'obligate_carrier', 'unscheduled_review'.
+    """
+
+    person: str | None
+    change: str
+    what_changes: str
+    action: str
+    source: str
+    status_before: str | None = None
+    status_after: str | None = None
+
+
+def direction(old_class: str | None, new_class: str | None) -> str:
+    """'upgrade' (into P/LP), 'downgrade' (out of P/LP), 'within_actionable'
+    (LP <-> P), 'within_not_actionable' (among VUS/LB/B/None) or 'none'."""
+    for c in (old_class, new_class):
+        if c is not None and c not in ACMG_CLASSES:
+            raise ValueError(f"unknown ACMG/AMP class {c!r}")
+    if old_class == new_class:
+        return "none"
+    old_a, new_a = old_class in ACTIONABLE_CLASSES, new_class in ACTIONABLE_CLASSES
+    if new_a and not old_a:
+        return "upgrade"
+    if old_a and not new_a:
+        return "downgrade"
+    return "within_actionable" if old_a else "within_not_actionable"
+
+
+def _states(screening) -> dict[str, str]:
+    if screening is None:
+        return {}
+    if isinstance(screening, pd.DataFrame):
+        pairs = zip(screening["person"], screening["screening_state"])
+    else:
+        pairs = screening.items()
+    out = {}
+    for p, s in pairs:
+        if s not in SCREENING_STATES:
+            raise ValueError(f"person {p}: screening state {s!r} is not one of {', '.join(SCREENING_STATES)}")
+        out[str(p)] = s
+    return out
+
+
+def _class_words(c: str | None) -> str:
+    return "none found" if c is None else c.replace("_", " ")
+
+
+def impact(
+    old_class: str | None,
+    new_class: str | None,
+    statuses_before: Mapping[str, GenotypeStatus],
+    statuses_after: Mapping[str, GenotypeStatus],
+    screening: Mapping[str, str] | pd.DataFrame | None = None,
+) -> list[ImpactItem]:
+    """Impact items of a reclassification, family-level items first, then
+    people in the order of ``statuses_after``.  Empty when the class is unchanged."""
+    kind = direction(old_class, new_class)
+    if kind == "none":
+        return []
+    states = _states(screening)
+    change_txt = f"{_class_words(old_class)} -> {_class_words(new_class)}"
+    items: list[ImpactItem] = []
+
+    # ---- family level ----
+    if kind == "downgrade":
+        extra = (
+            " No cascade testing for a likely benign/benign variant."
+            if new_class in ("likely_benign", "benign")
+            else " Segregation testing of affected relatives may help reclassify the VUS (ESC 2023 IIa C) [V]."
+        )
+        items.append(ImpactItem(
+            None, "recounsel_family",
+            f"family variant downgraded ({change_txt}): genotype results no longer predict disease",
+            "re-counsel the family; stop predictive testing; record the new class and its date; set a re-review date."
+            + extra,
+            SRC_RECOUNSEL + "; " + (SRC_NO_CASCADE_BENIGN if new_class in ("likely_benign", "benign") else SRC_NO_CASCADE_VUS),
+        ))
+    elif kind == "upgrade":
+        items.append(ImpactItem(
+            None, "recounsel_family",
+            f"family variant upgraded ({change_txt}): cascade testing now applies",
+            "re-counsel the family; offer predictive testing to at-risk relatives; re-interpret earlier results; "
+            "record the new class and its date.",
+            SRC_RECOUNSEL + "; " + SRC_UPGRADE_TEST,
+        ))
+    else:
+        items.append(ImpactItem(
+            None, "recounsel_family",
+            f"family variant reclassified ({change_txt}): predictive meaning of genotypes unchanged",
+            "record the new class and its date; inform the family; no change to the cascade lists.",
+            SRC_RECOUNSEL,
+        ))
+
+    # ---- per person ----
+    for person, after in statuses_after.items():
+        before = statuses_before.get(person)
+        if before is None:
+            continue
+        state = states.get(person, "none")
+        b, a = before.status, after.status
+        own: list[ImpactItem] = []
+        if kind == "downgrade":
+            if b == "non_carrier":
+                if state == "released":
+                    own.append(ImpactItem(
+                        person, "return_to_surveillance",
+                        "genotype-negative result no longer releases from screening (variant no longer P/LP)",
+                        "recall: return to clinical surveillance on the genotype-unknown schedule",
+                        SRC_DOWNGRADE_RELEASED, b, a))
+                else:
+                    own.append(ImpactItem(
+                        person, "keep_in_surveillance",
+                        "genotype-negative result no longer releases from screening (variant no longer P/LP)",
+                        "do not discharge on this result; clinical surveillance on the genotype-unknown schedule "
+                        "if a first-degree relative of an affected member (see the recomputed cascade list)",
+                        SRC_DOWNGRADE_RELEASED, b, a))
+            elif b == "carrier":
+                own.append(ImpactItem(
+                    person, "loses_genotype_positive",
+                    "carrier loses genotype-positive certainty" + (" (obligate carrier)" if before.basis == "obligate" else ""),
+                    "re-counsel; remove the genotype-positive label; clinical surveillance on the genotype-unknown schedule",
+                    SRC_DOWNGRADE_CARRIER, b, a))
+            elif b == "at_risk_untested":
+                own.append(ImpactItem(
+                    person, "testing_withdrawn",
+                    f"predictive testing no longer offered (prior was {probability_text(before.probability)})",
+                    "withdraw pending test offers; clinical screening only, as a relative of affected members",
+                    SRC_NO_CASCADE_BENIGN if new_class in ("likely_benign", "benign") else SRC_NO_CASCADE_VUS,
+                    b, a))
+            elif b == "not_at_risk" and before.basis == "excluded":
+                own.append(ImpactItem(
+                    person, "exclusion_lifted",
+                    "risk exclusion that rested on the variant no longer holds",
+                    "review clinical screening eligibility (first-degree relatives of affected members are screened)",
+                    SRC_DOWNGRADE_RELEASED, b, a))
+        elif kind == "upgrade":
+            if a == "at_risk_untested":
+                own.append(ImpactItem(
+                    person, "offer_predictive_testing",
+                    f"now at risk of carrying a P/LP variant ({after.reason})",
+                    "offer predictive testing with pre-test counselling (the guideline's age rules apply)",
+                    SRC_UPGRADE_TEST, b, a))
+            elif a == "carrier" and after.basis == "obligate":
+                own.append(ImpactItem(
+                    person, "obligate_carrier",
+                    "obligate carrier of a P/LP variant",
+                    "manage as a carrier (genotype-positive surveillance); confirmatory testing optional (common practice)",
+                    SRC_UPGRADE_CARRIER, b, a))
+            elif a == "carrier":
+                own.append(ImpactItem(
+                    person, "result_reinterpreted_positive",
+                    "earlier carrier result re-interpreted: now genotype-positive"
+                    + (f" (inferred from monozygotic co-twin {after.inferred_from})" if after.inferred_from else ""),
+                    "inform; move to genotype-positive (carrier) surveillance",
+                    SRC_UPGRADE_CARRIER, b, a))
+            elif a == "non_carrier":
+                own.append(ImpactItem(
+                    person, "result_reinterpreted_negative",
+                    "earlier non-carrier result re-interpreted: now genotype-negative"
+                    + (f" (inferred from monozygotic co-twin {after.inferred_from})" if after.inferred_from else ""),
+                    "counsel; discharge from screening may be offered, with advice to return for symptoms or new family data",
+                    SRC_UPGRADE_NEGATIVE, b, a))
+        if own or state == "surveillance" or "carrier" in (b, a):
+            own.append(ImpactItem(
+                person, "unscheduled_review",
+                f"variant reclassified ({change_txt})",
+                "unscheduled review: new family data (ESC 2023)",
+                SRC_REVIEW, b, a))
+        items.extend(own)
+    return items
+
+
+def impact_of_reclassification(
+    pedigree: Pedigree,
+    results: pd.DataFrame | None,
+    old_class: str | None,
+    new_class: str | None,
+    screening: Mapping[str, str] | pd.DataFrame | None = None,
+    variant: str | None = None,
+) -> list[ImpactItem]:
+    """Compute statuses with the old and the new class, then :func:`impact`."""
+    before = genotype_statuses(pedigree, results, old_class, variant)
+    after = genotype_statuses(pedigree, results, new_class, variant)
+    return impact(old_class, new_class, before, after, screening)
+
+
+def impact_frame(items: list[ImpactItem]) -> pd.DataFrame:
+    """Columns: person, change, what_changes, action, source, status_before, status_after."""
+    return pd.DataFrame([asdict(i) for i in items], columns=list(ImpactItem.__dataclass_fields__))
