@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+from typing import Annotated
+
 import typer
 
 from tracker.cli.common import engine_for, DbOption, JsonOption, open_store, print_json, print_table
@@ -73,7 +76,89 @@ def schema(db: DbOption = None, json_out: JsonOption = False) -> None:
         typer.echo(f"{location.describe()}: revision {current}; tool needs {head} ({state})")
 
 
+def check(db: DbOption = None, json_out: JsonOption = False) -> None:
+    """Check the database: file integrity, schema revision, orphan rows, and consistency of the
+    records (pedigree cycles, dates out of order, values outside plausible ranges, placeholders
+    with clinical data). Exit code 1 when anything is found.
+
+    Example: tracker check --json
+    """
+    from tracker.domain import consistency as dc
+    from tracker.store import checks
+
+    location = locate(db)
+    engine = engine_for(db)
+    with reading(engine) as conn:
+        findings = checks.integrity_findings(conn) + checks.schema_findings(conn)
+        if not findings:
+            findings += checks.orphan_findings(conn)
+            people = repo.load_people(conn)
+            studies = repo.load_studies(conn, entered=False)
+            assessments = repo.load_assessments(conn)
+            results = repo.load_genetic_results(conn)
+            findings += dc.pedigree_findings(people)
+            findings += dc.date_findings(people, studies, assessments, results)
+            findings += dc.range_findings(studies, repo.load_measures(conn))
+            findings += dc.placeholder_findings(people, studies, assessments, results)
+    result = {"database": location.describe(), "ok": not findings,
+              "findings": [f.as_dict() for f in findings]}  # fmt: skip
+    if json_out:
+        print_json(result)
+    elif findings:
+        print_table(f"{len(findings)} findings", ["check", "where", "finding"],
+                    [[f.check, f.where, f.message] for f in findings])  # fmt: skip
+    else:
+        typer.echo(f"{location.describe()}: no problems found")
+    if findings:
+        raise typer.Exit(1)
+
+
+def backup_(
+    out: Annotated[Path, typer.Argument(help="Backup file to write.")],
+    force: Annotated[bool, typer.Option("--force", help="Replace an existing backup file.")] = False,
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """Write a consistent, verified copy of a SQLite database (others may keep working meanwhile).
+
+    PostgreSQL: use pg_dump (docs/operations.md).
+
+    Example: tracker backup backups/clinic-2026-12-01.sqlite
+    """
+    from tracker.store import backup
+
+    info = backup.backup(locate(db), out, force=force)
+    if json_out:
+        print_json(info.as_dict())
+    else:
+        typer.echo(f"backup written and verified: {info.file} (schema revision {info.revision}, {info.bytes} bytes)")
+
+
+def restore_(
+    backup_file: Annotated[Path, typer.Argument(help="Backup file made by `tracker backup`.")],
+    force: Annotated[bool, typer.Option("--force", help="Replace the existing database.")] = False,
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """Restore a database from a backup, after verifying the backup. Refuses to replace an
+    existing database without --force.
+
+    Example: tracker restore backups/clinic-2026-12-01.sqlite --db clinic.sqlite --force
+    """
+    from tracker.store import backup
+
+    location = locate(db)
+    info = backup.restore(location, backup_file, force=force)
+    if json_out:
+        print_json({"database": location.describe(), "restored_from": info.file, "revision": info.revision})
+    else:
+        typer.echo(f"{location.describe()}: restored from {info.file} (schema revision {info.revision})")
+
+
 def register(app: typer.Typer) -> None:
     app.command("init")(init)
     app.command("measures")(measures)
     app.command("schema")(schema)
+    app.command("check")(check)
+    app.command("backup")(backup_)
+    app.command("restore")(restore_)

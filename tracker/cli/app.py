@@ -59,7 +59,9 @@ def main(argv: list[str] | None = None) -> int:
 
 def _run(argv: list[str] | None) -> int:
     try:
-        app(args=argv, standalone_mode=False)
+        code = app(args=argv, standalone_mode=False)
+        if isinstance(code, int):  # typer.Exit(n) inside a command, returned by click
+            return code
     except InputRejected as exc:
         problems = exc.problems
         for p in problems[:50]:

@@ -1,0 +1,176 @@
+"""Faults: an import killed part way, a writer that cannot get the lock, backups, a read-only file.
+
+Each test shows that the database still opens, passes `tracker check`, and holds
+exactly what it held before the fault.
+"""
+
+from __future__ import annotations
+
+import os
+import signal
+import sqlite3
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from conftest import MINI, dump
+
+HEADER = "person,study_date,modality,site,height_cm,weight_kg,measure,value,unit\n"
+
+
+def _tracker(*args, check=False):
+    return subprocess.run([sys.executable, "-m", "tracker", *map(str, args)], capture_output=True, text=True,
+                          check=check)  # fmt: skip
+
+
+def _large_studies(path: Path, studies: int) -> int:
+    """An invented file of many echo studies for person T1-05 (born 1995), one per day from 2010."""
+    import datetime as dt
+
+    start = dt.date(2010, 1, 1)
+    rows = []
+    for i in range(studies):
+        d = (start + dt.timedelta(days=i)).isoformat()
+        for measure, value in (("mwt_echo", 9.0 + (i % 7) / 10), ("ivsd", 9.0), ("lvpwd", 8.5), ("lvidd", 48.0)):
+            rows.append(f"T1-05,{d},echo,Invented Vale Hospital,178,75,{measure},{value},mm\n")
+    path.write_text(HEADER + "".join(rows))
+    return len(rows)
+
+
+@pytest.fixture
+def mini_db(sqlite_db, run):
+    assert run("init", db=sqlite_db).code == 0
+    assert run("import", "all", MINI, db=sqlite_db).code == 0
+    return sqlite_db
+
+
+# Runs the real importer in a child process that kills itself (SIGKILL) after a few
+# chunks of measurement rows have been written inside the import transaction. A
+# small page cache makes SQLite spill those pages into the write-ahead log first,
+# so the kill lands with uncommitted data on disk.
+_KILLER = """
+import os, signal, sys
+from pathlib import Path
+from tracker.io import csv_import
+from tracker.store.database import locate, make_engine, writing
+
+csv_import.CHUNK = 1000
+calls = []
+
+def progress(n):
+    calls.append(n)
+    if len(calls) == 4:
+        os.kill(os.getpid(), signal.SIGKILL)
+
+engine = make_engine(locate(sys.argv[1]))
+with writing(engine) as conn:
+    conn.exec_driver_sql("PRAGMA cache_size = 8")
+    csv_import.import_file(conn, "studies", Path(sys.argv[2]), progress=progress)
+"""
+
+
+def test_import_killed_part_way_leaves_the_database_as_it_was(mini_db, tmp_path):
+    big = tmp_path / "studies.csv"
+    _large_studies(big, 5000)  # 20,000 values
+    before = dump(mini_db)
+    conn = sqlite3.connect(mini_db)
+    conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")  # an empty log, so its growth shows the writes
+    conn.close()
+    proc = subprocess.run([sys.executable, "-c", _KILLER, mini_db, str(big)], capture_output=True, text=True)
+    assert proc.returncode == -signal.SIGKILL, proc.stderr
+    wal = Path(mini_db + "-wal")
+    assert wal.exists() and wal.stat().st_size > 64 * 1024  # uncommitted pages had reached the disk
+    assert dump(mini_db) == before
+    r = _tracker("check", "--db", mini_db)
+    assert r.returncode == 0, r.stderr + r.stdout
+
+
+def test_writer_that_cannot_get_the_lock_fails_cleanly(mini_db, tmp_path):
+    src = tmp_path / "families.csv"
+    src.write_text("family,condition,notes\nFAM-T9,hypertrophic cardiomyopathy,\n")
+    before = dump(mini_db)
+    holder = sqlite3.connect(mini_db, isolation_level=None)
+    holder.execute("BEGIN IMMEDIATE")  # another user holds the write lock
+    try:
+        r = _tracker("import", "families", src, "--db", mini_db)
+    finally:
+        holder.execute("ROLLBACK")
+        holder.close()
+    assert r.returncode == 1
+    assert r.stderr.strip().splitlines() == [
+        "error: the database is busy (another user is writing); nothing was written: try again"
+    ]
+    assert dump(mini_db) == before
+
+
+def test_two_concurrent_importers_lose_nothing(mini_db, tmp_path):
+    """Two processes import different files at once: both land, in full."""
+    a, b = tmp_path / "a.csv", tmp_path / "b.csv"
+    a.write_text(HEADER + "".join(
+        f"T1-05,2020-01-{d:02d},echo,,178,75,mwt_echo,9.{d % 10},mm\n" for d in range(1, 29)))  # fmt: skip
+    b.write_text(HEADER + "".join(
+        f"T1-08,2021-02-{d:02d},echo,,165,60,mwt_echo,8.{d % 10},mm\n" for d in range(1, 29)))  # fmt: skip
+    procs = [subprocess.Popen([sys.executable, "-m", "tracker", "import", "studies", str(f), "--db", mini_db],
+                              stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True) for f in (a, b)]  # fmt: skip
+    outs = [p.communicate(timeout=120) for p in procs]
+    assert [p.returncode for p in procs] == [0, 0], outs
+    import tracker.store.repository as repo
+    from tracker.store.database import locate, make_engine, reading
+
+    engine = make_engine(locate(mini_db))
+    with reading(engine) as conn:
+        studies = repo.load_studies(conn)
+    engine.dispose()
+    assert len(studies[studies["person"] == "T1-05"]) == 28
+    assert len(studies[studies["person"] == "T1-08"]) == 28
+
+
+def test_backup_restore_round_trip(mini_db, tmp_path, run):
+    before = dump(mini_db)
+    backup = tmp_path / "backup.sqlite"
+    r = run("backup", backup, db=mini_db)
+    assert r.code == 0, r
+    assert oct(os.stat(backup).st_mode & 0o777) == "0o600"
+    # Change the live database after the backup, then restore.
+    extra = tmp_path / "families.csv"
+    extra.write_text("family,condition,notes\nFAM-T9,hypertrophic cardiomyopathy,\n")
+    assert run("import", "families", extra, db=mini_db).code == 0
+    r = run("restore", backup, db=mini_db)
+    assert r.code == 1 and "--force" in r.err  # refuses to overwrite without --force
+    r = run("restore", backup, "--force", db=mini_db)
+    assert r.code == 0, r
+    assert dump(mini_db) == before
+    assert run("check", db=mini_db).code == 0
+
+
+def test_restore_verifies_the_backup_first(mini_db, tmp_path, run):
+    bad = tmp_path / "bad.sqlite"
+    bad.write_bytes(b"this is not a database")
+    before = dump(mini_db)
+    r = run("restore", bad, "--force", db=mini_db)
+    assert r.code == 1 and "not a SQLite database" in r.err
+    assert dump(mini_db) == before
+
+
+def test_check_reports_a_problem_with_where_it_is(mini_db, run):
+    conn = sqlite3.connect(mini_db)
+    conn.execute("UPDATE measurement SET value = 400 WHERE measure_code = 'mwt_echo' AND value = 11.4")
+    conn.commit()
+    conn.close()
+    r = run("check", "--json", db=mini_db)
+    assert r.code == 1
+    import json
+
+    findings = json.loads(r.out)["findings"]
+    assert any(f["check"] == "range" and "T1-06 2024-05-02 echo mwt_echo" in f["where"] for f in findings)
+
+
+@pytest.mark.skipif(os.geteuid() == 0, reason="root can write a read-only file")
+def test_read_only_database_gives_a_clear_error(mini_db, tmp_path):
+    os.chmod(mini_db, 0o400)
+    src = tmp_path / "families.csv"
+    src.write_text("family,condition,notes\nFAM-T9,hypertrophic cardiomyopathy,\n")
+    r = _tracker("import", "families", src, "--db", mini_db)
+    assert r.returncode == 1 and "read-only" in r.stderr
