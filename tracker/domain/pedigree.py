@@ -66,12 +66,12 @@ from fractions import Fraction
 
 import pandas as pd
 
-SEXES = ("female", "male", "unknown")
-VITAL_STATUSES = ("alive", "deceased", "unknown")
-TWIN_TYPES = ("monozygotic", "dizygotic", "unknown")
-ADOPTIONS = ("in", "out")
-CONTACT_STATUSES = ("not_contacted", "contactable", "declined", "lost_to_follow_up")
-PRECISIONS = ("day", "year")
+from tracker.domain.dates import PRECISIONS
+from tracker.domain.vocabulary import ADOPTION as ADOPTIONS
+from tracker.domain.vocabulary import CONTACT_STATUS as CONTACT_STATUSES
+from tracker.domain.vocabulary import SEX_AT_BIRTH as SEXES
+from tracker.domain.vocabulary import TWIN_TYPE as TWIN_TYPES
+from tracker.domain.vocabulary import VITAL_STATUS as VITAL_STATUSES
 
 _VIRTUAL_PREFIX = "~"  # never a valid person code (codes: letters, digits, - _ .)
 
