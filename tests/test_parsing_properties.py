@@ -61,8 +61,12 @@ def test_numbers_round_trip_exactly(x):
 def test_text_round_trips_through_formula_protection(s):
     """The exporter's apostrophe before =, +, -, @ is removed again by the importer."""
     col = next(c for c in ALL_COLUMNS if c.kind == "text" and c.max_length >= 200)
+    import re
+
+    from tracker.io.columns import PROTECTED
+
     written = format_cell(s)
-    if written.startswith(("=", "+", "-", "@")):
+    if re.match(PROTECTED, written):
         written = "'" + written
     parsed = parse(col, pd.Series([written], dtype=object), TODAY)
     if parsed.errors.iloc[0] is None:

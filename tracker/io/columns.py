@@ -23,6 +23,10 @@ from tracker.domain.dates import PartialDate, parse_partial_date
 
 # A text cell starting with one of these is run as a formula by spreadsheets.
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+# A text cell the exporter protects with one more leading apostrophe: any apostrophes, then a
+# formula character.  The importer removes exactly one apostrophe from such a cell, so the
+# pair is a round trip for every text.
+PROTECTED = r"^'*[=+\-@\t\r]"
 
 MAX_TEXT = 4000  # characters in a free-text cell; longer is refused as a likely paste error
 
@@ -93,7 +97,7 @@ def _text(col, cells, empty, today):
     control = cells.str.contains(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]", regex=True)
     bad[control & bad.isna()] = "contains control characters"
     # Undo the exporter's protection against spreadsheet formulas ("'=..." -> "=...").
-    escaped = cells.str.startswith("'") & cells.str[1:2].isin(FORMULA_START)
+    escaped = cells.str.startswith("'") & cells.str.contains(PROTECTED, regex=True)
     cells = cells.where(~escaped, cells.str[1:])
     values = cells.where(~empty, None)
     return values, bad

@@ -15,7 +15,9 @@ from pathlib import Path
 import pandas as pd
 from sqlalchemy import Connection
 
-from tracker.io.columns import FORMULA_START, format_cell
+import re
+
+from tracker.io.columns import PROTECTED, format_cell
 from tracker.io.layouts import LAYOUTS
 from tracker.store import repository as repo
 
@@ -35,7 +37,7 @@ def to_csv_text(frame: pd.DataFrame, kind: str) -> str:
         cells = []
         for name, value in zip(layout.names, rec):
             cell = format_cell(value)
-            if name in text_cols and cell.startswith(FORMULA_START):
+            if name in text_cols and re.match(PROTECTED, cell):
                 cell = "'" + cell
             cells.append(cell)
         writer.writerow(cells)

@@ -72,7 +72,10 @@ def read_table(path: Path, layout: Layout) -> pd.DataFrame:
 
     # Blank lines at the very end of a file are not records.
     text = re.sub(r"(?:\r?\n[ \t]*)+\Z", "\n", text)
-    header = next(csv.reader(io.StringIO(text)))
+    try:
+        header = next(csv.reader(io.StringIO(text, newline=""), strict=True))
+    except csv.Error as exc:
+        raise InputRejected([Problem(name, 1, None, f"is not well-formed CSV ({exc})")]) from None
     header = [h.strip() for h in header]
     _check_header(name, header, layout)
 
@@ -112,7 +115,7 @@ def _check_header(name: str, header: list[str], layout: Layout) -> None:
 
 def _parse_records(name: str, text: str, width: int) -> pd.DataFrame:
     """All records after the header as text, checking each has ``width`` fields."""
-    reader = csv.reader(io.StringIO(text), strict=True)
+    reader = csv.reader(io.StringIO(text, newline=""), strict=True)
     try:
         next(reader)
         rows = []
