@@ -9,7 +9,7 @@ import pytest
 
 from tracker.normals.criteria import RULE_SETS, wall_thickness_criteria_frame, wall_thickness_criterion
 
-ESC, AHA = "esc2023", "aha_acc2020"
+ESC, AHA = "esc_2023", "aha_acc_2020"
 
 
 @pytest.mark.parametrize("g", [ESC, AHA])

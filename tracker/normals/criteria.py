@@ -1,12 +1,12 @@
 """Wall-thickness diagnostic thresholds for HCM in a screened relative, one rule
 set per guideline (data file ``data/hcm_criteria.toml``); never blended.
 
-- ``esc2023``: 2023 ESC cardiomyopathy guidelines (Arbelo et al.) [V]: adult
+- ``esc_2023``: 2023 ESC cardiomyopathy guidelines (Arbelo et al.) [V]: adult
   >= 15 mm; >= 13 mm in a first-degree relative of a patient with unequivocal
   disease; child z > 2.  13-14 mm in an adult who is not a first-degree
   relative is "borderline": it needs supporting features (family history,
   genetic finding, ECG) [V].
-- ``aha_acc2020``: 2020 AHA/ACC HCM guideline (Ommen et al.) [V2]: adult
+- ``aha_acc_2020``: 2020 AHA/ACC HCM guideline (Ommen et al.) [V2]: adult
   >= 15 mm; 13-14 mm diagnostic in family members or genotype-positive
   people; child z > 2.5 without, z > 2 with family history or a positive
   genetic test.
@@ -28,8 +28,8 @@ import pandas as pd
 from tracker.normals.classes import CAUTION, COMPARE_DECIMALS
 from tracker.normals.tables import tag_text, toml_data
 
-ESC_2023 = "esc2023"
-AHA_ACC_2020 = "aha_acc2020"
+ESC_2023 = "esc_2023"
+AHA_ACC_2020 = "aha_acc_2020"
 RULE_KEYS = ("adult", "adult_relative", "child", "child_relative")
 RELATIVE_FLAGS = ("first_degree_relative", "genotype_positive")
 

@@ -1,0 +1,397 @@
+"""Commands for the cardiologist's review of measurements: person, trends.
+
+Thin layer: read the store, call :mod:`tracker.engines.review`, print.  Output
+names the guideline, the source of every limit and the caution.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+import shutil
+from pathlib import Path
+from typing import Annotated, Any
+
+import pandas as pd
+import typer
+from rich.console import Console
+from rich.table import Table
+
+from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
+from tracker.domain.dates import age_at, parse_partial_date
+from tracker.engines import review
+from tracker.errors import UserError
+from tracker.normals.criteria import RULE_SETS
+from tracker.settings import load_settings
+from tracker.store import repository as repo
+from tracker.store.database import reading
+
+HorizonOption = Annotated[
+    float,
+    typer.Option("--horizon", min=0.5, max=10.0, help="Years after the last study within which a projected "
+                 "threshold crossing is flagged (default 3; a straight line is not extrapolated further)."),
+]  # fmt: skip
+
+TREND_JSON_KEYS = [c for c in review.TREND_COLUMNS if c != "caution"]
+
+
+# --------------------------------------------------------------------------- loading
+
+
+def _load(db: str | None) -> dict[str, pd.DataFrame]:
+    engine = open_store(db)
+    with reading(engine) as conn:
+        return {
+            "people": repo.load_people(conn),
+            "studies": repo.load_studies(conn, entered=False),
+            "results": repo.load_genetic_results(conn),
+            "variants": repo.load_variants(conn),
+            "assessments": repo.load_assessments(conn),
+            "measures": repo.load_measures(conn),
+        }
+
+
+def _status_sets(ctx: pd.DataFrame) -> tuple[set[str], set[str]]:
+    rel = set(ctx.loc[ctx["first_degree_relative_of_affected"], "person"])
+    pos = set(ctx.loc[ctx["genotype_status"] == "carrier", "person"])
+    return rel, pos
+
+
+def _guideline(settings) -> dict[str, Any]:
+    gid = settings.guideline
+    rs = RULE_SETS.get(gid)
+    return {
+        "id": gid,
+        "name": f"{rs.name} ({rs.citation})" if rs else gid,
+        "criteria_encoded": rs is not None,
+        "settings": settings.source,
+    }
+
+
+# --------------------------------------------------------------------------- formatting
+
+
+def _clean(v: Any) -> Any:
+    """JSON-safe scalar: NaN/NA -> None, dates -> ISO 8601, numpy -> Python."""
+    if v is None or v is pd.NA or v is pd.NaT:
+        return None
+    if isinstance(v, (dt.date, pd.Timestamp)):
+        return v.isoformat()[:10]
+    if hasattr(v, "item"):
+        v = v.item()
+    if isinstance(v, float) and math.isnan(v):
+        return None
+    return v
+
+
+def _records(df: pd.DataFrame, columns: list[str]) -> list[dict[str, Any]]:
+    return [{c: _clean(v) for c, v in zip(columns, row)} for row in df[columns].itertuples(index=False)]
+
+
+def _console() -> Console:
+    """A console at least 160 columns wide (tables of values read badly at 80)."""
+    return Console(highlight=False, soft_wrap=False, width=max(shutil.get_terminal_size((160, 24)).columns, 160))
+
+
+def print_table(title: str | None, columns: list[str], rows: list[list[Any]]) -> None:
+    table = Table(title=title, title_justify="left")
+    for c in columns:
+        table.add_column(c, overflow="fold")
+    for r in rows:
+        table.add_row(*["" if v is None else str(v) for v in r])
+    _console().print(table)
+
+
+def _num(x: Any, nd: int = 1) -> str:
+    x = _clean(x)
+    return "" if x is None else f"{x:.{nd}f}"
+
+
+def _ci(slope: Any, lo: Any, hi: Any, unit: str = "", nd: int = 2) -> str:
+    """Slope with its 95% CI, e.g. '0.79 (0.46 to 1.12) mm/y'; '' without a slope."""
+    if _clean(slope) is None:
+        return ""
+    per = f" {unit}/y" if unit else ""
+    if _clean(lo) is None:
+        return f"{_num(slope, nd)}{per} (no CI: 2 studies)"
+    return f"{_num(slope, nd)} ({_num(lo, nd)} to {_num(hi, nd)}){per}"
+
+
+def _limit(r: dict) -> str:
+    lo, hi, unit = r["lower"], r["upper"], r["unit"]
+    text = ""
+    if lo is not None and hi is not None:
+        text = f"{lo:.3g}-{hi:.3g} {unit}"
+    elif hi is not None:
+        text = f"<= {hi:.3g} {unit}"
+    elif lo is not None:
+        text = f">= {lo:.3g} {unit}"
+    if r["z"] is not None:
+        text = (text + "; " if text else "") + f"z {r['z']:.2f} ({r['reference_set']})"
+    return text
+
+
+def _criteria_text(r: dict) -> str:
+    if r["measure"] not in review.DIAGNOSTIC_MEASURES:
+        return ""
+    if r["meets_criteria"] is None:
+        return "not assessable"
+    rule = f"{r['comparison']} {r['threshold']:g} {r['threshold_unit']}"
+    return ("meets " if r["meets_criteria"] else "not met ") + rule + (" (borderline)" if r["borderline"] else "")
+
+
+def _projection_text(r: dict) -> str:
+    if r["projected_age"] is None:
+        return r["projection_reason"] if r["measure"] in review.DIAGNOSTIC_MEASURES else ""
+    ci = f" (95% CI {_num(r['projected_age_ci_low'])}-{_num(r['projected_age_ci_high'])})"
+    return f"{r['threshold']:g} {r['threshold_unit']} at {_num(r['projected_age'])} y{ci}; {r['projection_status']}"
+
+
+def _change_text(r: dict) -> str:
+    if r["last_change"] is None:
+        return ""
+    change = f"{r['last_change']:+.2f} {r['unit']}"
+    limits = []
+    if r["lsc"] is not None:
+        limits.append(f"{r['lsc']:.2f} {r['unit']}")
+    if r["lsc_relative"] is not None:
+        limits.append(f"{r['lsc_relative']:.0%}")
+    if not limits:
+        return f"{change}; no LSC for this measure"
+    verdict = "within" if r["last_change_vs_lsc"] == "within measurement variability" else "BEYOND"
+    return f"{change}; LSC {' or '.join(limits)} ({r['lsc_status']}): {verdict} measurement variability"
+
+
+# --------------------------------------------------------------------------- person
+
+
+VALUE_KEYS = [
+    "measure", "value", "unit", "derived", "derivation", "z", "lower", "upper", "assessment", "grade",
+    "flag", "reference_set", "source", "note", "meets_criteria", "threshold", "threshold_unit",
+    "comparison", "criteria_rule", "borderline", "criteria_source", "criteria_note",
+]  # fmt: skip
+STUDY_KEYS = ["study_date", "modality", "site", "age_years", "age_uncertainty_years", "height_cm", "weight_kg",
+              "bsa_m2", "bsa_formula"]  # fmt: skip
+CONVERSION_KEYS = [c for c in review.CONVERSION_COLUMNS if c not in ("person", "caution")]
+
+
+def _identity(code: str, people: pd.DataFrame, ctx: pd.DataFrame, today: dt.date) -> dict[str, Any]:
+    p = people.set_index("person").loc[code]
+    c = ctx.set_index("person").loc[code]
+    age = unc = None
+    if _clean(p["birth_date"]):
+        birth = parse_partial_date(p["birth_date"])
+        end = today
+        if _clean(p["death_date"]):
+            end = parse_partial_date(p["death_date"]).value
+        a = age_at(birth, end)
+        age, unc = round(a.years, 2), a.uncertainty_years
+    return {
+        "person": code,
+        "family": p["family"],
+        "sex_at_birth": p["sex_at_birth"],
+        "vital_status": p["vital_status"],
+        "age_years": age,
+        "age_uncertainty_years": unc,
+        "age_on": (today if p["vital_status"] != "deceased" else None),
+        "placeholder": bool(p["placeholder"]),
+        "genotype_status": c["genotype_status"],
+        "genotype_reason": c["genotype_reason"],
+        "variant": c["variant"],
+        "variant_class": c["variant_class"],
+        "affected_status": c["affected_status"],
+        "affected_status_date": c["affected_status_date"],
+        "first_degree_relative_of_affected": bool(c["first_degree_relative_of_affected"]),
+        "affected_first_degree_relatives": c["affected_first_degree_relatives"],
+    }
+
+
+def _person_data(code: str, data: dict, settings, horizon: float) -> dict[str, Any]:
+    people = data["people"]
+    if code not in set(people["person"]):
+        raise UserError(f"unknown person code {code!r}")
+    family = people.loc[people["person"] == code, "family"].iloc[0]
+    ctx = review.clinical_context(people[people["family"] == family], data["results"], data["variants"],
+                                  data["assessments"])  # fmt: skip
+    rel, pos = _status_sets(ctx)
+    kw = dict(guideline=settings.guideline, relative_of_affected=rel, genotype_positive=pos)
+    m = review.build_measurements(people, data["studies"][data["studies"]["person"] == code])
+    a = review.assess_measurements(m, **kw)
+    t = review.trend_table(a, **kw, clinic_repeatability=settings.repeatability, horizon_years=horizon)
+    conv = review.conversions(a)
+    studies = []
+    for (date, modality), rows in a.groupby(["study_date", "modality"], sort=True):
+        first = rows.iloc[0]
+        s = {k: _clean(first[k]) for k in STUDY_KEYS}
+        s["values"] = _records(rows, VALUE_KEYS)
+        studies.append(s)
+    conversion = _records(conv, CONVERSION_KEYS)[0] if len(conv) else None
+    identity = _identity(code, people, ctx, dt.date.today())
+    return {
+        **{k: _clean(v) for k, v in identity.items()},
+        "guideline": _guideline(settings),
+        "horizon_years": horizon,
+        "bsa_formula": "mosteller",
+        "studies": studies,
+        "trends": _records(t[t["n"] >= 2], TREND_JSON_KEYS),
+        "conversion": conversion,
+        "not_pooled": review.NOT_POOLED,
+        "caution": review.CAUTION,
+    }
+
+
+def _print_person(d: dict) -> None:
+    age = "age unknown" if d["age_years"] is None else f"age {d['age_years']:.1f} y"
+    if d["age_uncertainty_years"]:
+        age += f" (+/- {d['age_uncertainty_years']:g} y: year of birth only)"
+    affected = d["affected_status"] or "never assessed"
+    if d["affected_status_date"]:
+        affected += f" (assessment {d['affected_status_date']})"
+    typer.echo(f"{d['person']}  family {d['family']}  {d['sex_at_birth']}  {age}  "
+               f"genotype: {d['genotype_status']}  affected status: {affected}")  # fmt: skip
+    rel = d["affected_first_degree_relatives"]
+    typer.echo(f"First-degree relative of an affected member: {'yes (' + rel + ')' if rel else 'no'}")
+    typer.echo(f"Guideline: {d['guideline']['id']} - {d['guideline']['name']}")
+    sources: dict[str, int] = {}
+
+    def ref(text: str | None) -> str:
+        if not text:
+            return ""
+        return f"[{sources.setdefault(text, len(sources) + 1)}]"
+
+    for modality in ("echo", "cmr", "ecg"):
+        rows = []
+        for s in (s for s in d["studies"] if s["modality"] == modality):
+            head = [s["study_date"], _num(s["age_years"]), _num(s["bsa_m2"], 2)]
+            for v in s["values"]:
+                name = v["measure"] + (" (computed)" if v["derived"] else "")
+                cls = v["assessment"] + (f" ({v['grade']})" if v["grade"] else "")
+                texts = (v["source"], v["criteria_source"], v["derivation"], v["note"], v["criteria_note"])
+                src = " ".join(x for x in map(ref, texts) if x)
+                rows.append([*head, name, f"{v['value']:.4g} {v['unit']}", _limit(v), cls, _criteria_text(v), src])
+                head = ["", "", ""]
+        if rows:
+            typer.echo("")
+            title = f"{modality.upper()} values (catalogue units; BSA {d['bsa_formula']})"
+            print_table(title, ["date", "age (y)", "BSA (m2)", "measure", "value", "limit or z", "class", "criteria",
+                                "sources, notes"], rows)  # fmt: skip
+    typer.echo(d["not_pooled"])
+    for modality in ("echo", "cmr", "ecg"):
+        rows = [
+            [t["measure"], t["n"], _num(t["span_years"]), t["window"],
+             _ci(t["slope_per_year"], t["slope_ci_low"], t["slope_ci_high"], t["unit"]),
+             _ci(t["z_slope_per_year"], t["z_ci_low"], t["z_ci_high"], "z"), _change_text(t), _projection_text(t),
+             t["reasons"]]
+            for t in d["trends"] if t["modality"] == modality and t["n"] >= 2
+        ]  # fmt: skip
+        if rows:
+            typer.echo("")
+            print_table(f"{modality.upper()} trends (OLS slope per year of age, 95% CI; z slope under 18 y)",
+                        ["measure", "n", "span (y)", "studies", "slope/y (95% CI)", "z slope/y (95% CI)",
+                         "last change vs LSC", "projection", "flags"], rows)  # fmt: skip
+    typer.echo(d["not_pooled"])
+    c = d["conversion"]
+    if c is None:
+        typer.echo("Conversion: no assessable maximal wall thickness")
+    elif c["ever_met"]:
+        review_txt = " REVIEW: met criteria earlier but not at the latest study." if c["review_flag"] else ""
+        typer.echo(f"Conversion: first met criteria on {c['first_met_date']} (age {_num(c['first_met_age'])} y, "
+                   f"{c['first_met_measures']}); status: {c['status']}.{review_txt}")  # fmt: skip
+    else:
+        typer.echo(f"Conversion: criteria not met at {c['n_assessed_studies']} assessed studies")
+    if sources:
+        typer.echo("Sources and notes:")
+        for text, n in sources.items():
+            _console().print(f"  [{n}] {text}", markup=False)
+    typer.echo(d["caution"])
+
+
+def person(
+    code: Annotated[str, typer.Argument(help="Person code, e.g. HV01-IV-2.")],
+    db: DbOption = None,
+    settings: SettingsOption = None,
+    horizon: HorizonOption = 3.0,
+    json_out: JsonOption = False,
+) -> None:
+    """One relative's echo, CMR and ECG values against normal limits, derived indices, trends and conversion.
+
+    Limits: paediatric z-scores under 18 y, adult reference sets from 18 y, each with its source;
+    wall-thickness criteria from the settings' guideline. Echo and CMR are never pooled.
+
+    Example: tracker person HV01-IV-2 --db tracker.sqlite
+    """
+    s = load_settings(settings)
+    d = _person_data(code, _load(db), s, horizon)
+    if json_out:
+        print_json(d)
+    else:
+        _print_person(d)
+
+
+# --------------------------------------------------------------------------- trends
+
+
+def trends_(
+    family: Annotated[str | None, typer.Option("--family", help="Only this family code.")] = None,
+    measure: Annotated[str | None, typer.Option("--measure", help="Only this measure code, e.g. mwt_echo.")] = None,
+    csv_path: Annotated[Path | None, typer.Option("--csv", help="Also write the table to this CSV file.")] = None,
+    db: DbOption = None,
+    settings: SettingsOption = None,
+    horizon: HorizonOption = 3.0,
+    json_out: JsonOption = False,
+) -> None:
+    """The cohort's per-person slopes and flags, most concerning first.
+
+    One row per person and measure with at least two studies: slope per year with 95% CI (z slope
+    for children), last change against the least significant change, projected threshold crossing,
+    and flags (progressing beyond measurement variability, projected crossing within the horizon,
+    converted, review).
+
+    Example: tracker trends --family HV01 --measure mwt_echo --csv trends.csv
+    """
+    s = load_settings(settings)
+    data = _load(db)
+    people = data["people"]
+    if family is not None:
+        if family not in set(people["family"]):
+            raise UserError(f"unknown family code {family!r}")
+        people = people[people["family"] == family]
+    if measure is not None and measure not in set(data["measures"]["code"]):
+        raise UserError(f"unknown measure code {measure!r} (see `tracker measures`)")
+    ctx = review.clinical_context(people, data["results"], data["variants"], data["assessments"])
+    rel, pos = _status_sets(ctx)
+    studies = data["studies"][data["studies"]["person"].isin(set(people["person"]))]
+    m = review.build_measurements(people, studies)
+    t = review.trend_table(m, guideline=s.guideline, relative_of_affected=rel, genotype_positive=pos,
+                           clinic_repeatability=s.repeatability, horizon_years=horizon)  # fmt: skip
+    t = t[t["n"] >= 2]
+    if measure is not None:
+        t = t[t["measure"] == measure]
+    rows = _records(t, TREND_JSON_KEYS)
+    if csv_path is not None:
+        pd.DataFrame(rows, columns=TREND_JSON_KEYS).assign(caution=review.CAUTION).to_csv(csv_path, index=False)
+        typer.echo(f"wrote {len(rows)} rows to {csv_path}", err=True)
+    result = {"guideline": _guideline(s), "horizon_years": horizon, "family": family, "measure": measure,
+              "rows": rows, "not_pooled": review.NOT_POOLED, "caution": review.CAUTION}  # fmt: skip
+    if json_out:
+        print_json(result)
+        return
+    typer.echo(f"Guideline: {result['guideline']['id']} - {result['guideline']['name']}")
+    print_table(
+        f"Trends: {len(rows)} series (person, measure) with 2 or more studies, most concerning first",
+        ["person", "measure", "n", "span (y)", "slope/y (95% CI)", "z slope/y", "last change vs LSC",
+         "projection", "progressing", f"crossing <= {horizon:g} y", "converted", "flags"],
+        [[r["person"], r["measure"], r["n"], _num(r["span_years"]),
+          _ci(r["slope_per_year"], r["slope_ci_low"], r["slope_ci_high"], r["unit"]),
+          _ci(r["z_slope_per_year"], r["z_ci_low"], r["z_ci_high"], "z"), _change_text(r), _projection_text(r),
+          "yes" if r["progressing"] else "", "yes" if r["crossing_within_horizon"] else "",
+          (r["conversion_date"] or "yes") if r["converted"] else "", r["reasons"]] for r in rows],
+    )  # fmt: skip
+    typer.echo(review.NOT_POOLED)
+    typer.echo(review.CAUTION)
+
+
+def register(app: typer.Typer) -> None:
+    """Add this module's commands to the app."""
+    app.command("person")(person)
+    app.command("trends")(trends_)

@@ -1,0 +1,725 @@
+"""The cardiologist's review: one long frame of every measured and derived value,
+judged against normal limits and the guideline's wall-thickness criteria, then
+trended per person.
+
+Pure functions, DataFrames in and out, vectorised over the whole cohort:
+
+- :func:`clinical_context`: per person, affected status (latest assessment),
+  genotype status (:mod:`tracker.domain.genetics`) and whether the person is a
+  first-degree relative of an affected member (:mod:`tracker.domain.pedigree`).
+- :func:`build_measurements`: one row per value (catalogue unit) with age,
+  body size and BSA, plus the derived indices of each study (``derived=True``).
+- :func:`assess_measurements`: normal limits (:func:`tracker.normals.assess.assess_frame`)
+  and, for maximal wall thickness (``mwt_echo``, ``mwt_cmr``), the guideline's
+  criteria (:mod:`tracker.normals.criteria`).
+- :func:`trend_table`, :func:`conversions`, :func:`trend_flags`: slopes with
+  95% CI, last change against the least significant change, projected
+  threshold crossing, phenotype conversion and flags
+  (:mod:`tracker.engines.trends`).
+
+Echo and CMR values are different measure codes and are never pooled: each
+is judged, trended and projected on its own.  Decision support only: the
+treating clinician decides; follow local protocols and the current guideline.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Collection, Mapping
+
+import numpy as np
+import pandas as pd
+
+from tracker.domain.dates import DAYS_PER_YEAR, PartialDate, parse_date, parse_partial_date
+from tracker.domain.genetics import ACTIONABLE_CLASSES, genotype_statuses
+from tracker.domain.pedigree import Pedigree
+from tracker.engines import derived as dv
+from tracker.engines import repeatability, trends
+from tracker.engines.cohort_model import empirical_bayes_slopes
+from tracker.engines.deformation import derive_deformation
+from tracker.normals import paediatric
+from tracker.normals.assess import ADULT_FROM_YEARS, assess_frame
+from tracker.normals.bsa import HAYCOCK, bsa
+from tracker.normals.criteria import CRITERIA_CAUTION, RULE_SETS, wall_thickness_criteria_frame
+from tracker.normals.tables import CATALOGUE_UNITS
+
+CAUTION = (
+    "Decision support only: the treating clinician decides. Follow local protocols and the current "
+    "guideline. Echo and CMR values are separate series and are never pooled; a straight-line trend "
+    "assumes the recent rate of change continues."
+)
+NOT_POOLED = (
+    "Echo (mwt_echo) and CMR (mwt_cmr) wall thickness are separate series: never pooled, "
+    "averaged or trended together (cross-modality limits of agreement about -7 to +8 mm, "
+    "Hindieh et al., Circ Cardiovasc Imaging 2017 [V])."
+)
+
+#: Maximal wall thickness codes: the diagnostic measures of HCM (guidelines.md section 4).
+DIAGNOSTIC_MEASURES = ("mwt_echo", "mwt_cmr")
+#: Segment counts are bookkeeping, not measures: never trended.
+NOT_TRENDED = frozenset({"gls_segavg_n", "mech_dispersion_n"})
+_SEGMENT_PREFIXES = ("ls_seg", "ls_sys_seg", "ttp_seg", "ls18_seg", "ls18_sys_seg", "ttp18_seg")
+
+#: Unit of every derived code (as in the measure catalogue, migration 0002).
+DERIVED_UNITS = {
+    "lv_mass": "g", "lvmi_echo": "g/m2", "rwt": "ratio", "septal_posterior_ratio": "ratio",
+    "e_over_e_prime": "ratio", "sokolow_lyon": "mm", "cornell_voltage": "mm", "gls_segavg": "%",
+    "gls_segavg_n": "segments", "relaps": "ratio", "mech_dispersion": "ms",
+    "mech_dispersion_n": "segments", "psi_global": "%",
+}  # fmt: skip
+_DEFORMATION_TEXT = "computed from the segmental strain values (tracker.engines.deformation)"
+DERIVATIONS = {
+    "lv_mass": (
+        "computed: 0.8 x 1.04 x [(IVSd + LVIDd + LVPWd)^3 - LVIDd^3] + 0.6, cm "
+        "(Devereux, ASE-corrected; Lang 2015 [V2])"
+    ),
+    "lvmi_echo": "computed: LV mass / BSA ({bsa}) (Lang 2015 [V2])",
+    "rwt": "computed: 2 x LVPWd / LVIDd (Lang 2015 [V2])",
+    "septal_posterior_ratio": "computed: IVSd / LVPWd",
+    "e_over_e_prime": "computed: E / mean of septal and lateral e' (Nagueh 2016 [V2])",
+    "sokolow_lyon": "computed: S V1 + larger of R V5, R V6 (Sokolow & Lyon 1949 [V2])",
+    "cornell_voltage": "computed: R aVL + S V3 (Casale 1985 [V2])",
+    **{code: _DEFORMATION_TEXT for code in ("gls_segavg", "gls_segavg_n", "relaps", "mech_dispersion",
+                                            "mech_dispersion_n", "psi_global")},
+}  # fmt: skip
+
+MEASUREMENT_COLUMNS = [
+    "person", "family", "sex", "study_date", "modality", "site", "measure", "value", "unit",
+    "derived", "derivation", "age_years", "age_uncertainty_years", "height_cm", "weight_kg",
+    "bsa_m2", "bsa_formula",
+]  # fmt: skip
+
+
+# --------------------------------------------------------------------------- context
+
+
+def _latest_variants(variants: pd.DataFrame) -> dict[str, list[tuple[str, str, str]]]:
+    """family -> [(variant key, current ACMG/AMP class, classified_on)] from the class history."""
+    out: dict[str, list[tuple[str, str, str]]] = {}
+    if variants is None or len(variants) == 0:
+        return out
+    v = variants.sort_values(["family", "transcript", "hgvs_c", "classified_on"])
+    for r in v.groupby(["family", "transcript", "hgvs_c"], sort=True).tail(1).itertuples():
+        out.setdefault(r.family, []).append((f"{r.transcript}:{r.hgvs_c}", r.acmg_class, str(r.classified_on)))
+    return out
+
+
+CONTEXT_COLUMNS = [
+    "person", "family", "affected_status", "affected_status_date", "genotype_status", "genotype_reason",
+    "variant", "variant_class", "first_degree_relative_of_affected", "affected_first_degree_relatives",
+]  # fmt: skip
+
+
+def clinical_context(
+    people: pd.DataFrame, genetic_results: pd.DataFrame, variants: pd.DataFrame, assessments: pd.DataFrame
+) -> pd.DataFrame:
+    """One row per person (``CONTEXT_COLUMNS``), from the store's frames.
+
+    - affected_status: from the person's latest assessment (None if never assessed).
+    - genotype_status: :func:`tracker.domain.genetics.genotype_statuses` for the
+      family variant at its current class (carrier, non_carrier, at_risk_untested,
+      not_at_risk, uncertain); with several variants in one family the texts are joined
+      and the person counts as a carrier when a carrier of any P/LP variant.
+    - first_degree_relative_of_affected: a first-degree relative (pedigree degree 1)
+      of a member whose latest assessment is "affected".
+    """
+    latest = (
+        assessments.sort_values(["person", "assessment_date"]).groupby("person").tail(1).set_index("person")
+        if len(assessments)
+        else pd.DataFrame(columns=["affected_status", "assessment_date"])
+    )
+    fam_variants = _latest_variants(variants)
+    rows = []
+    for family, members in people.groupby("family", sort=True):
+        ped = Pedigree(members)
+        codes = set(members["person"])
+        res = genetic_results[genetic_results["person"].isin(codes)] if len(genetic_results) else None
+        statuses = []
+        for key, cls, _ in fam_variants.get(family, []) or [(None, None, "")]:
+            statuses.append((key, cls, genotype_statuses(ped, res, cls, key)))
+        affected = [p for p in members["person"] if p in latest.index and latest.at[p, "affected_status"] == "affected"]
+        near: dict[str, list[str]] = {}
+        for a in affected:
+            for q in ped.first_degree_relatives(a):
+                near.setdefault(q, []).append(a)
+        for p in members["person"]:
+            g = [(key, cls, fg[p]) for key, cls, fg in statuses]
+            carrier = any(s.status == "carrier" and cls in ACTIONABLE_CLASSES for _, cls, s in g)
+            status = "carrier" if carrier else "; ".join(dict.fromkeys(s.status for _, _, s in g))
+            rows.append(
+                {
+                    "person": p,
+                    "family": family,
+                    "affected_status": latest.at[p, "affected_status"] if p in latest.index else None,
+                    "affected_status_date": latest.at[p, "assessment_date"] if p in latest.index else None,
+                    "genotype_status": status,
+                    "genotype_reason": "; ".join(s.reason for _, _, s in g),
+                    "variant": "; ".join(k for k, _, _ in g if k) or None,
+                    "variant_class": "; ".join(c for _, c, _ in g if c) or None,
+                    "first_degree_relative_of_affected": p in near,
+                    "affected_first_degree_relatives": ", ".join(near.get(p, [])),
+                }
+            )
+    return pd.DataFrame(rows, columns=CONTEXT_COLUMNS)
+
+
+# --------------------------------------------------------------------------- measurements
+
+
+def _as_partial(v) -> PartialDate | None:
+    if v is None or (isinstance(v, float) and np.isnan(v)) or v is pd.NA or v is pd.NaT:
+        return None
+    if isinstance(v, PartialDate):
+        return v
+    if hasattr(v, "isoformat") and not isinstance(v, str):
+        return PartialDate(v if not hasattr(v, "date") else v.date())
+    text = str(v).strip()
+    return parse_partial_date(text) if text else None
+
+
+def _as_date(v):
+    if hasattr(v, "year") and not isinstance(v, str):
+        return v.date() if hasattr(v, "date") else v
+    return parse_date(str(v))
+
+
+def _ages(birth: pd.Series, study: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Decimal age (days / 365.2425, as :func:`tracker.domain.dates.age_at`) and its uncertainty (y).
+
+    A year-only birth date stands for 1 July with an uncertainty of 0.5 y.  Each distinct
+    date is parsed once; the arithmetic is vectorised.
+    """
+    b_obj = birth.astype(object)
+    parsed = {b: _as_partial(b) for b in pd.unique(b_obj)}
+    day = {b: (np.datetime64(p.value, "D") if p else np.datetime64("NaT")) for b, p in parsed.items()}
+    half = {b: (np.nan if p is None else (0.0 if p.precision == "day" else 0.5)) for b, p in parsed.items()}
+    b_day = b_obj.map(day).to_numpy(dtype="datetime64[D]")
+    unc = b_obj.map(half).to_numpy(dtype=float)
+    s_obj = study.astype(object)
+    s_day = s_obj.map({d: np.datetime64(d, "D") for d in pd.unique(s_obj)}).to_numpy(dtype="datetime64[D]")
+    diff = s_day - b_day
+    days = diff.astype("timedelta64[D]").astype(float)
+    days[np.isnat(diff)] = np.nan
+    age = days / DAYS_PER_YEAR
+    # a study in the birth year before 1 July of a year-only birth: age 0 (within the 0.5 y uncertainty)
+    return np.where((unc == 0.5) & (age < 0), 0.0, age), unc
+
+
+def _derived_rows(base: pd.DataFrame, bsa_formula: str) -> pd.DataFrame:
+    """Derived indices per study (vectorised on a pivot; segment strain per study)."""
+    keys = ["person", "study_date", "modality"]
+    studies = base.drop_duplicates(keys).set_index(keys)
+    need = [dv.IVSD, dv.LVIDD, dv.LVPWD, dv.MV_E, dv.E_PRIME_SEPTAL, dv.E_PRIME_LATERAL, *dv.ECG_INPUT_CODES]
+    sub = base[base["measure"].isin(need)]
+    out = []
+    if len(sub):
+        w = sub.pivot(index=keys, columns="measure", values="value").reindex(columns=need)
+        g = {c: w[c].to_numpy(dtype=float) for c in need}
+        b = studies["bsa_m2"].reindex(w.index).to_numpy(dtype=float)
+        mass = np.asarray(dv.lv_mass_g(g[dv.IVSD], g[dv.LVIDD], g[dv.LVPWD]), dtype=float)
+        calc = {
+            dv.LV_MASS: mass,
+            dv.LVMI_ECHO: np.asarray(dv.lv_mass_index_g_m2(mass, b), dtype=float),
+            dv.RWT: np.asarray(dv.relative_wall_thickness(g[dv.LVPWD], g[dv.LVIDD]), dtype=float),
+            dv.SEPTAL_POSTERIOR_RATIO: np.asarray(dv.septal_posterior_ratio(g[dv.IVSD], g[dv.LVPWD]), dtype=float),
+            dv.E_OVER_E_PRIME: np.asarray(
+                dv.average_e_over_e_prime(g[dv.MV_E], g[dv.E_PRIME_SEPTAL], g[dv.E_PRIME_LATERAL]), dtype=float
+            ),
+            dv.SOKOLOW_LYON: np.asarray(dv.sokolow_lyon_mm(g[dv.S_V1], g[dv.R_V5], g[dv.R_V6]), dtype=float),
+            dv.CORNELL_VOLTAGE: np.asarray(dv.cornell_voltage_mm(g[dv.R_AVL], g[dv.S_V3]), dtype=float),
+        }
+        for code, values in calc.items():
+            ok = np.isfinite(values)
+            if ok.any():
+                out.append(pd.DataFrame({"measure": code, "value": values[ok]}, index=w.index[ok]))
+    seg = base[base["measure"].astype(str).str.startswith(_SEGMENT_PREFIXES)]
+    for key, rows in seg.groupby(keys, sort=False):
+        try:
+            got = derive_deformation(dict(zip(rows["measure"], rows["value"])))
+        except ValueError:  # one study mixing 17- and 18-segment codes: nothing derived
+            continue
+        if got:
+            idx = pd.MultiIndex.from_tuples([key] * len(got), names=keys)
+            out.append(pd.DataFrame({"measure": list(got), "value": list(got.values())}, index=idx))
+    if not out:
+        return base.iloc[:0]
+    d = pd.concat(out)
+    attrs = studies.drop(columns=["measure", "value", "unit", "derived", "derivation"])
+    d = d.join(attrs).reset_index()
+    d["unit"] = d["measure"].map(DERIVED_UNITS)
+    d["derived"] = True
+    d["derivation"] = d["measure"].map(DERIVATIONS).str.replace("{bsa}", bsa_formula, regex=False)
+    return d[base.columns]
+
+
+def build_measurements(people: pd.DataFrame, studies: pd.DataFrame, *, bsa_formula: str = "mosteller") -> pd.DataFrame:
+    """Every value of every study as one long frame (``MEASUREMENT_COLUMNS``).
+
+    ``people``: person, family, sex_at_birth, birth_date (``YYYY-MM-DD`` or
+    ``YYYY`` text, a date or a PartialDate).  ``studies``: the long layout in
+    catalogue units (``load_studies(conn, entered=False)``): person, study_date,
+    modality, site, height_cm, weight_kg, measure, value, unit.  Rows without a
+    value (clinic visits) are left out.
+
+    Adds: sex (sex at birth), age_years at the study (days / 365.2425) with
+    age_uncertainty_years (0.5 for a year-only birth date, else 0), bsa_m2 by
+    ``bsa_formula`` (Mosteller by default; Mosteller RD, N Engl J Med
+    1987;317:1098 [V]) from the study's height (cm) and weight (kg), and the
+    derived indices of each study (LV mass, LVMI, RWT, IVSd/LVPWd, average
+    E/e', ECG voltages: :mod:`tracker.engines.derived`; segmental strain
+    indices: :func:`tracker.engines.deformation.derive_deformation`) as rows
+    with ``derived=True`` and the formula in ``derivation``.  study_date is a
+    datetime.date.
+    """
+    s = studies[studies["measure"].notna() & pd.to_numeric(studies["value"], errors="coerce").notna()]
+    if len(s) == 0:
+        return pd.DataFrame({c: pd.Series(dtype=object) for c in MEASUREMENT_COLUMNS})
+    p = people[["person", "family", "sex_at_birth", "birth_date"]].rename(columns={"sex_at_birth": "sex"})
+    d = s.merge(p, on="person", how="left", validate="many_to_one")
+    uniq = {x: _as_date(x) for x in pd.unique(d["study_date"])}
+    d["study_date"] = d["study_date"].map(uniq)
+    d["value"] = pd.to_numeric(d["value"]).astype(float)
+    d["height_cm"] = pd.to_numeric(d["height_cm"]).astype(float)
+    d["weight_kg"] = pd.to_numeric(d["weight_kg"]).astype(float)
+    d["age_years"], d["age_uncertainty_years"] = _ages(d["birth_date"], d["study_date"])
+    d["bsa_m2"] = np.asarray(bsa(d["height_cm"].to_numpy(), d["weight_kg"].to_numpy(), bsa_formula), dtype=float)
+    d["bsa_formula"] = bsa_formula
+    d["derived"] = False
+    d["derivation"] = ""
+    if "site" not in d:
+        d["site"] = None
+    base = d[MEASUREMENT_COLUMNS]
+    out = pd.concat([base, _derived_rows(base, bsa_formula)], ignore_index=True)
+    out["derived"] = out["derived"].astype(bool)
+    return out.sort_values(["person", "study_date", "modality", "derived", "measure"], kind="stable").reset_index(
+        drop=True
+    )
+
+
+# --------------------------------------------------------------------------- limits and criteria
+
+
+def _criteria(a: pd.DataFrame, guideline: str, relatives: Collection[str], positive: Collection[str]) -> dict:
+    """Wall-thickness criteria for the mwt_* rows of ``a`` (columns of the result)."""
+    n = len(a)
+    cols = {
+        "meets_criteria": pd.array([pd.NA] * n, dtype="boolean"),
+        "threshold": np.full(n, np.nan),
+        "threshold_unit": np.full(n, None, dtype=object),
+        "comparison": np.full(n, None, dtype=object),
+        "criteria_rule": np.full(n, None, dtype=object),
+        "borderline": np.zeros(n, dtype=bool),
+        "guideline": np.full(n, "", dtype=object),
+        "criteria_source": np.full(n, "", dtype=object),
+        "criteria_note": np.full(n, "", dtype=object),
+    }
+    mwt = a["measure"].isin(DIAGNOSTIC_MEASURES).to_numpy()
+    if not mwt.any():
+        return cols
+    if guideline not in RULE_SETS:
+        cols["criteria_note"][mwt] = (
+            f"no wall-thickness criteria encoded for guideline {guideline!r} "
+            f"(encoded: {', '.join(sorted(RULE_SETS))}); criteria not applied"
+        )
+        return cols
+    m = a.loc[mwt]
+    z = np.where(m["measure"].to_numpy() == "mwt_echo", m["z"].to_numpy(dtype=float), np.nan)
+    c = wall_thickness_criteria_frame(
+        pd.DataFrame(
+            {
+                "age_years": m["age_years"].to_numpy(dtype=float),
+                "mwt_mm": m["value"].to_numpy(dtype=float),
+                "mwt_z": z,
+                "first_degree_relative": m["person"].isin(set(relatives)).to_numpy(),
+                "genotype_positive": m["person"].isin(set(positive)).to_numpy(),
+            }
+        ),
+        guideline,
+    )
+    idx = np.flatnonzero(mwt)
+    cols["meets_criteria"][idx] = c["met"].array
+    for dst, src in (("threshold", "threshold"), ("threshold_unit", "threshold_unit"), ("comparison", "comparison"),
+                     ("criteria_rule", "rule"), ("borderline", "borderline"), ("guideline", "guideline"),
+                     ("criteria_source", "source"), ("criteria_note", "note")):  # fmt: skip
+        cols[dst][idx] = c[src].to_numpy()
+    return cols
+
+
+def assess_measurements(
+    frame: pd.DataFrame,
+    *,
+    guideline: str,
+    relative_of_affected: Collection[str],
+    genotype_positive: Collection[str],
+    paediatric_set: str = paediatric.DEFAULT_SET,
+) -> pd.DataFrame:
+    """Judge every row of :func:`build_measurements` output against normal limits and criteria.
+
+    Normal limits: :func:`tracker.normals.assess.assess_frame` (children < 18 y:
+    paediatric z-scores, PHN 2017 by default, with BSA by Haycock, the reference
+    set's own formula [V2]; adults: the measure's default adult set, e.g. ASE/EACVI
+    2015 (Lang et al.)).  Adds z, lower, upper (catalogue unit), assessment, grade,
+    flag, reference_set, z_model (set of a z-score), source, note.  Measures without
+    an encoded reference (ECG voltages, segmental indices) get "no reference".
+
+    Criteria (rows of mwt_echo and mwt_cmr only, each on its own): the
+    guideline's rule set in :mod:`tracker.normals.criteria` (ESC 2023 or AHA/ACC
+    2020) with the person's status: ``relative_of_affected`` (codes of first-degree
+    relatives of an affected member) and ``genotype_positive`` (carriers).  Adds
+    meets_criteria (nullable boolean), threshold, threshold_unit ("mm" or "z"),
+    comparison, criteria_rule, borderline, guideline (name and citation),
+    guideline_id, criteria_source, criteria_note, and caution.  A CMR wall
+    thickness in a child has no z-score and is not assessable by the child rule.
+    """
+    a = frame.copy().reset_index(drop=True)
+    child = (a["age_years"] < ADULT_FROM_YEARS).to_numpy()
+    limits_bsa = a["bsa_m2"].to_numpy(dtype=float).copy()
+    if child.any():
+        h = a.loc[child, "height_cm"].to_numpy(dtype=float)
+        w = a.loc[child, "weight_kg"].to_numpy(dtype=float)
+        limits_bsa[child] = np.asarray(bsa(h, w, HAYCOCK), dtype=float)
+    known = a["measure"].isin(list(CATALOGUE_UNITS)).to_numpy()
+    judged = assess_frame(
+        pd.DataFrame(
+            {
+                "person": a["person"].to_numpy(),
+                "measure": a["measure"].to_numpy(),
+                "value": a["value"].to_numpy(dtype=float),
+                "sex": a["sex"].to_numpy(dtype=object),
+                "age_years": a["age_years"].to_numpy(dtype=float),
+                "bsa_m2": limits_bsa,
+            }
+        ).loc[known],
+        paediatric_set=paediatric_set,
+    )
+    for c in ("z", "lower", "upper"):
+        a[c] = np.nan
+        a.loc[known, c] = judged[c].to_numpy(dtype=float)
+    for c in ("assessment", "grade", "flag", "reference_set", "source", "note"):
+        a[c] = pd.Series([None] * len(a), dtype=object)
+        a.loc[known, c] = judged[c].to_numpy(dtype=object)
+    a.loc[~known, "assessment"] = "no reference"
+    a.loc[~known, "source"] = ""
+    a.loc[~known, "note"] = "no normal range encoded for this measure"
+    a["z_model"] = a["reference_set"].where(np.isfinite(a["z"].to_numpy(dtype=float)), None)
+    for c, v in _criteria(a, guideline, relative_of_affected, genotype_positive).items():
+        a[c] = v
+    a["guideline_id"] = guideline
+    a["caution"] = np.where(a["measure"].isin(DIAGNOSTIC_MEASURES), CRITERIA_CAUTION, CAUTION)
+    return a
+
+
+def _assessed(frame, guideline, relatives, positive) -> pd.DataFrame:
+    if "meets_criteria" in frame.columns and "z" in frame.columns:
+        return frame
+    return assess_measurements(frame, guideline=guideline, relative_of_affected=relatives, genotype_positive=positive)
+
+
+# --------------------------------------------------------------------------- conversion
+
+
+CONVERSION_COLUMNS = trends.CONVERSION_COLUMNS + ["first_met_measures", "review_flag"]
+
+
+def conversions(frame: pd.DataFrame) -> pd.DataFrame:
+    """Phenotype conversion per person from the wall-thickness rows of an assessed frame.
+
+    Input: :func:`assess_measurements` output (needs ``meets_criteria``).  Uses
+    :func:`tracker.engines.trends.phenotype_conversion`: the first study date at
+    which echo or CMR maximal wall thickness meets the guideline's criteria (each
+    value judged on its own, never averaged), its age, and a review flag when the
+    latest study no longer meets criteria met before.  Adds first_met_measures
+    (which measure met on that date) and review_flag (bool).
+    """
+    if "meets_criteria" not in frame.columns:
+        raise ValueError("conversions needs an assessed frame (assess_measurements): no meets_criteria column")
+    m = frame[frame["measure"].isin(DIAGNOSTIC_MEASURES) & frame["meets_criteria"].notna()]
+    conv = trends.phenotype_conversion(m[["person", "study_date", "age_years", "meets_criteria"]])
+    met = m[m["meets_criteria"].astype(bool)]
+    first = conv.set_index("person")["first_met_date"]
+    on_first = met[met["study_date"].to_numpy() == met["person"].map(first).to_numpy()]
+    names = on_first.groupby("person")["measure"].agg(lambda s: ", ".join(sorted(set(s))))
+    conv["first_met_measures"] = conv["person"].map(names).astype(object).fillna("")
+    conv["review_flag"] = conv["status"] == trends.REVIEW_MET_EARLIER
+    return conv[CONVERSION_COLUMNS]
+
+
+# --------------------------------------------------------------------------- trends
+
+
+TREND_COLUMNS = [
+    "person", "family", "measure", "modality", "unit", "n", "first_date", "last_date", "first_age",
+    "last_age", "span_years", "window", "slope_per_year", "slope_ci_low", "slope_ci_high",
+    "slope_eb_per_year", "z_n", "z_slope_per_year", "z_ci_low", "z_ci_high", "z_model",
+    "last_change", "last_change_from", "last_change_to", "lsc", "lsc_relative", "lsc_status",
+    "last_change_vs_lsc", "threshold", "threshold_unit", "projection_status", "projected_age",
+    "projected_age_ci_low", "projected_age_ci_high", "projection_reason", "progressing",
+    "crossing_within_horizon", "converted", "conversion_date", "review_flag", "concern",
+    "reasons", "caution",
+]  # fmt: skip
+FLAG_COLUMNS = ["person", "progressing", "projected_crossing_age", "reasons"]
+
+
+def _window(a: pd.DataFrame) -> pd.DataFrame:
+    """Rows trended in the measure's unit: a series that reaches 18 y uses its studies
+    from 18 y only (values under 18 y change with growth; they are trended as z where a
+    paediatric z model exists)."""
+    adult = (a["age_years"] >= ADULT_FROM_YEARS).to_numpy()
+    has_adult = pd.Series(adult).groupby([a["person"].to_numpy(), a["measure"].to_numpy()]).transform("max")
+    return a[~(has_adult.to_numpy() & ~adult)]
+
+
+def _thresholds(t: pd.DataFrame, guideline: str, relatives, positive) -> pd.DataFrame:
+    """Criteria threshold at each series' last age (mwt_* rows; others NaN)."""
+    out = pd.DataFrame({"threshold": np.nan, "threshold_unit": None, "comparison": None}, index=t.index)
+    mwt = t["measure"].isin(DIAGNOSTIC_MEASURES)
+    if guideline not in RULE_SETS or not mwt.any():
+        return out
+    c = wall_thickness_criteria_frame(
+        pd.DataFrame(
+            {
+                "age_years": t.loc[mwt, "last_age"].to_numpy(dtype=float),
+                "first_degree_relative": t.loc[mwt, "person"].isin(set(relatives)).to_numpy(),
+                "genotype_positive": t.loc[mwt, "person"].isin(set(positive)).to_numpy(),
+            }
+        ),
+        guideline,
+    )
+    out.loc[mwt, "threshold"] = c["threshold"].to_numpy()
+    out.loc[mwt, "threshold_unit"] = c["threshold_unit"].to_numpy()
+    out.loc[mwt, "comparison"] = c["comparison"].to_numpy()
+    return out
+
+
+def _projections(t: pd.DataFrame, ols: pd.DataFrame, zols: pd.DataFrame, horizon: float) -> pd.DataFrame:
+    """Fieller projections per series, in mm (adults) or z (children, echo only)."""
+    cols = ["projection_status", "projected_age", "projected_age_ci_low", "projected_age_ci_high",
+            "projection_reason", "years_after_last"]  # fmt: skip
+    out = pd.DataFrame({c: np.nan for c in cols}, index=t.index).astype(object)
+    out["projection_status"] = "not applicable"
+    diagnostic = t["measure"].isin(DIAGNOSTIC_MEASURES)
+    out["projection_reason"] = np.where(diagnostic, "no threshold", "not a diagnostic measure")
+    have = t["threshold"].notna()
+    for (unit, comp, thr), grp in t[have].groupby(["threshold_unit", "comparison", "threshold"]):
+        source = zols if unit == "z" else ols
+        keyed = source.set_index(["person", "measure"])
+        idx = pd.MultiIndex.from_frame(grp[["person", "measure"]])
+        rows = keyed.reindex(idx)
+        ok = rows["n"].notna().to_numpy()
+        if not ok.any():
+            out.loc[grp.index, "projection_reason"] = f"no {'z-score' if unit == 'z' else 'mm'} series to project"
+            continue
+        p = trends.project_crossings(rows[ok].reset_index(), float(thr), horizon, meets_if_equal=comp == ">=")
+        at = grp.index[ok]
+        out.loc[at, "projection_status"] = p["status"].to_numpy()
+        out.loc[at, "projected_age"] = p["projected_age"].to_numpy()
+        out.loc[at, "projected_age_ci_low"] = p["ci_low"].to_numpy()
+        out.loc[at, "projected_age_ci_high"] = p["ci_high"].to_numpy()
+        out.loc[at, "projection_reason"] = p["reason"].to_numpy()
+        out.loc[at, "years_after_last"] = p["years_after_last"].to_numpy()
+        out.loc[grp.index[~ok], "projection_reason"] = "no z-score series to project" if unit == "z" else "no series"
+    for c in ("projected_age", "projected_age_ci_low", "projected_age_ci_high", "years_after_last"):
+        out[c] = out[c].astype(float)
+    return out
+
+
+def _last_changes(changes: pd.DataFrame) -> pd.DataFrame:
+    c = changes.sort_values(["person", "measure", "to_age"]).groupby(["person", "measure"]).tail(1)
+    return c.set_index(["person", "measure"])
+
+
+def trend_table(
+    frame: pd.DataFrame,
+    *,
+    guideline: str,
+    relative_of_affected: Collection[str],
+    genotype_positive: Collection[str],
+    clinic_repeatability: Mapping[str, float] | None = None,
+    horizon_years: float = trends.DEFAULT_HORIZON_YEARS,
+) -> pd.DataFrame:
+    """Per (person, measure) trend of :func:`build_measurements` output (assessed or not).
+
+    Columns ``TREND_COLUMNS``.  Method (see docs/measurements.md):
+
+    - slope_per_year: OLS of value on age (catalogue unit per year) with its 95%
+      t interval (:func:`tracker.engines.trends.per_person_ols`).  ``window``
+      says which studies: a series that reaches 18 y uses its studies from 18 y
+      only (values under 18 y change with growth); studies under 18 y of the
+      measures with a paediatric z model (mwt_echo, IVSd, LVPWd, LVIDd) are
+      trended as z (z_slope_per_year, z units per year, one reference set).
+      Series of one study are listed with n = 1 and no slope.
+      slope_eb_per_year: two-stage empirical-Bayes
+      slope (:func:`tracker.engines.cohort_model.empirical_bayes_slopes`).
+    - last change: between the last two studies of the window, against the
+      least significant change LSC = 2.77 x Sw (Bland & Altman 1999 [V]), Sw from
+      ``clinic_repeatability`` (measure -> within-subject SD, the clinic's own)
+      else the packaged defaults (:mod:`tracker.engines.repeatability`).
+    - projection (mwt_echo, mwt_cmr): the guideline's threshold for the person at
+      the last study (mm for adults, e.g. 15 mm, or 13 mm for first-degree
+      relatives; z for children, echo only), Fieller interval, refused beyond
+      ``horizon_years`` after the last study.
+    - flags: progressing (last change beyond variability towards disease, or the
+      slope CI excluding zero towards disease; under 18 y at the last study only
+      the z-score slope, never a slope in mm, mL or cm/s), crossing_within_horizon, converted / review_flag
+      (:func:`conversions`), concern (8 x crossing + 4 x progressing + 2 x review
+      + converted; the table is sorted by it, highest first).
+    """
+    a = _assessed(frame, guideline, relative_of_affected, genotype_positive)
+    a = a[~a["measure"].isin(NOT_TRENDED) & np.isfinite(a["value"].to_numpy(dtype=float))]
+    a = a[np.isfinite(a["age_years"].to_numpy(dtype=float))].reset_index(drop=True)
+    if len(a) == 0:
+        return pd.DataFrame({c: pd.Series(dtype=object) for c in TREND_COLUMNS})
+    w = _window(a)
+    ols = trends.per_person_ols(w)
+    zin = a[a["measure"].isin(list(paediatric.MODEL_MEASURE))]
+    zols = trends.per_person_z_ols(zin) if len(zin) else trends.per_person_ols(zin.assign(z=[]), y="z")
+    lsc = repeatability.lsc_table(repeatability.load_repeatability(clinic_repeatability))
+    changes = trends.consecutive_changes(w, lsc_table=lsc)
+    flags = trends.progression_flags(ols, changes, None, horizon_years)
+
+    key = ["person", "measure"]
+    t = ols.copy()
+    info = w.groupby(key, sort=False).agg(family=("family", "first"), modality=("modality", "first"),
+                                          unit=("unit", "first"), n_all=("value", "size"))  # fmt: skip
+    t = t.join(info, on=key)
+    n_all = a.groupby(key).size().reindex(pd.MultiIndex.from_frame(t[key])).to_numpy()
+    t["window"] = np.where(n_all > t["n"].to_numpy(), "studies from 18 y", "all studies (under 18 y)")
+    t.loc[(t["first_age"] >= ADULT_FROM_YEARS) & (n_all == t["n"].to_numpy()), "window"] = "all studies"
+    eb = pd.Series(dtype=float)
+    if (ols["n"] >= 2).any():
+        with np.errstate(divide="ignore", invalid="ignore"):  # a measure with one person: NaN, by design
+            eb = empirical_bayes_slopes(w).set_index(key)["slope_eb"]
+    t["slope_eb_per_year"] = eb.reindex(pd.MultiIndex.from_frame(t[key])).to_numpy(dtype=float)
+    z = zols.set_index(key).reindex(pd.MultiIndex.from_frame(t[key]))
+    t["z_n"] = z["n"].fillna(0).astype(int).to_numpy()
+    for dst, src in (("z_slope_per_year", "slope"), ("z_ci_low", "ci_low"), ("z_ci_high", "ci_high")):
+        t[dst] = z[src].to_numpy(dtype=float)
+    zkids = zin[(zin["age_years"] < ADULT_FROM_YEARS) & zin["z_model"].notna()]
+    zm = zkids.groupby(key)["z_model"].first()
+    t["z_model"] = zm.reindex(pd.MultiIndex.from_frame(t[key])).to_numpy(dtype=object)
+    lc = _last_changes(changes).reindex(pd.MultiIndex.from_frame(t[key]))
+    t["last_change"] = lc["delta"].to_numpy(dtype=float)
+    t["last_change_from"], t["last_change_to"] = lc["from_date"].to_numpy(), lc["to_date"].to_numpy()
+    t["lsc"], t["lsc_relative"] = lc["lsc"].to_numpy(dtype=float), lc["lsc_relative"].to_numpy(dtype=float)
+    t["lsc_status"], t["last_change_vs_lsc"] = lc["lsc_status"].to_numpy(), lc["variability"].to_numpy()
+    t = t.join(_thresholds(t, guideline, relative_of_affected, genotype_positive))
+    t = t.join(_projections(t, ols, zols, horizon_years))
+    _flag(t, flags, horizon_years)
+    conv = conversions(a).set_index("person") if a["measure"].isin(DIAGNOSTIC_MEASURES).any() else None
+    t["converted"] = t["person"].map(conv["ever_met"]).fillna(False).astype(bool) if conv is not None else False
+    t["conversion_date"] = t["person"].map(conv["first_met_date"]) if conv is not None else None
+    t["review_flag"] = t["person"].map(conv["review_flag"]).fillna(False).astype(bool) if conv is not None else False
+    t["first_met_measures"] = t["person"].map(conv["first_met_measures"]) if conv is not None else ""
+    t["concern"] = (8 * t["crossing_within_horizon"] + 4 * t["progressing"] + 2 * t["review_flag"]
+                    + t["converted"]).astype(int)  # fmt: skip
+    t["reasons"] = _reasons(t, horizon_years)
+    t["caution"] = CAUTION
+    t = t.rename(columns={"slope": "slope_per_year", "ci_low": "slope_ci_low", "ci_high": "slope_ci_high"})
+    t = t.sort_values(["concern", "person", "measure"], ascending=[False, True, True], kind="stable")
+    return t[TREND_COLUMNS].reset_index(drop=True)
+
+
+def _flag(t: pd.DataFrame, flags: pd.DataFrame, horizon: float) -> None:
+    """progressing and crossing_within_horizon; children on z-model measures use the z slope."""
+    f = flags.set_index(["person", "measure"]).reindex(pd.MultiIndex.from_frame(t[["person", "measure"]]))
+    change = f["last_change_beyond_towards_disease"].fillna(False).to_numpy(dtype=bool)
+    slope = f["slope_ci_towards_disease"].fillna(False).to_numpy(dtype=bool)
+    child = (t["last_age"] < ADULT_FROM_YEARS).to_numpy()
+    direction = t["measure"].map(trends.DISEASE_DIRECTION).fillna(0).to_numpy(dtype=float)
+    z_up = np.where(direction > 0, t["z_ci_low"].to_numpy(dtype=float) > 0,
+                    np.where(direction < 0, t["z_ci_high"].to_numpy(dtype=float) < 0, False))  # fmt: skip
+    t["flag_change"] = change
+    z_measure = t["measure"].isin(list(paediatric.MODEL_MEASURE)).to_numpy()
+    # under 18 y only a z-score slope flags: a slope in mm, mL or cm/s includes growth
+    t["flag_slope"] = np.where(child, z_up & z_measure, slope)
+    t["progressing"] = t["flag_change"] | t["flag_slope"]
+    st = t["projection_status"].to_numpy(dtype=object)
+    after = t["years_after_last"].to_numpy(dtype=float)
+    t["crossing_within_horizon"] = ((st == "projected") & (after <= horizon)) | (
+        st == "fitted line already past threshold"
+    )
+
+
+def _join(out: np.ndarray, mask: np.ndarray, text) -> np.ndarray:
+    """Append ``text`` (a string or an array) to ``out`` where ``mask``, joined by "; "."""
+    text = np.broadcast_to(np.asarray(text, dtype=object), out.shape)
+    joined = np.where(out == "", text, out + "; " + text)
+    return np.where(mask, joined, out)
+
+
+def _reasons(t: pd.DataFrame, horizon: float) -> np.ndarray:
+    """Plain-text reasons per row (vectorised; numbers formatted only where shown)."""
+    n = len(t)
+    out = np.full(n, "", dtype=object)
+    child = t["last_age"].to_numpy(dtype=float) < ADULT_FROM_YEARS
+    z_measure = t["measure"].isin(list(paediatric.MODEL_MEASURE)).to_numpy()
+    change = t["flag_change"].to_numpy(dtype=bool)
+    out = _join(out, change, "last change beyond measurement variability towards disease")
+    slope = t["flag_slope"].to_numpy(dtype=bool)
+    out = _join(out, slope & child & z_measure, "z-score slope 95% CI excludes zero towards disease")
+    out = _join(out, slope & ~(child & z_measure), "slope 95% CI excludes zero towards disease")
+    status = t["projection_status"].to_numpy(dtype=object)
+    proj = (status == "projected") & t["crossing_within_horizon"].to_numpy(dtype=bool)
+    if proj.any():
+        p = t.loc[proj]
+        text = [
+            f"projected to reach {thr:g} {u} at age {age:.1f} y (95% CI {lo:.1f}-{hi:.1f}), within {horizon:g} years"
+            for thr, u, age, lo, hi in zip(p["threshold"], p["threshold_unit"], p["projected_age"],
+                                           p["projected_age_ci_low"], p["projected_age_ci_high"])
+        ]  # fmt: skip
+        full = np.full(n, "", dtype=object)
+        full[proj] = text
+        out = _join(out, proj, full)
+    out = _join(out, status == "fitted line already past threshold",
+                "fitted line already past the threshold though the last value is not: review")  # fmt: skip
+    diag = t["measure"].isin(DIAGNOSTIC_MEASURES).to_numpy()
+    review_flag = t["review_flag"].to_numpy(dtype=bool)
+    out = _join(out, review_flag & diag, "review: met criteria earlier but not at the latest study")
+    first = t["first_met_measures"].astype(object).fillna("").astype(str).to_numpy(dtype=object)
+    met_here = np.array([m in f.split(", ") for m, f in zip(t["measure"], first)], dtype=bool) if n else first == ""
+    conv = t["converted"].to_numpy(dtype=bool) & ~review_flag & met_here
+    if conv.any():
+        dates = np.full(n, "", dtype=object)
+        dates[conv] = [f"met criteria from {d}" for d in t.loc[conv, "conversion_date"]]
+        out = _join(out, conv, dates)
+    return out
+
+
+def trend_flags(
+    frame: pd.DataFrame,
+    *,
+    guideline: str,
+    relative_of_affected: Collection[str],
+    genotype_positive: Collection[str],
+    clinic_repeatability: Mapping[str, float] | None = None,
+    horizon_years: float = trends.DEFAULT_HORIZON_YEARS,
+) -> pd.DataFrame:
+    """One row per person of ``frame`` (``FLAG_COLUMNS``): person, progressing (bool:
+    any measure progressing beyond measurement variability), projected_crossing_age
+    (earliest projected age, years, at which maximal wall thickness reaches the
+    guideline threshold within ``horizon_years``; NaN if none), reasons (plain text,
+    "measure: reason" joined by " | ").  Same arguments as :func:`trend_table`.
+    Decision support only: the treating clinician decides.
+    """
+    t = trend_table(
+        frame,
+        guideline=guideline,
+        relative_of_affected=relative_of_affected,
+        genotype_positive=genotype_positive,
+        clinic_repeatability=clinic_repeatability,
+        horizon_years=horizon_years,
+    )
+    people = pd.Index(pd.unique(frame["person"]), name="person")
+    g = t.groupby("person")
+    progressing = g["progressing"].any().astype(bool).reindex(people, fill_value=False).astype(bool)
+    crossing = t[t["crossing_within_horizon"].astype(bool)].groupby("person")["projected_age"].min().reindex(people)
+    flagged = t[t["reasons"] != ""]
+    reasons = (flagged["measure"] + ": " + flagged["reasons"]).groupby(flagged["person"]).agg(" | ".join)
+    return pd.DataFrame(
+        {
+            "person": people.to_numpy(dtype=object),
+            "progressing": progressing.to_numpy(dtype=bool),
+            "projected_crossing_age": crossing.to_numpy(dtype=float),
+            "reasons": reasons.reindex(people).fillna("").to_numpy(dtype=object),
+        },
+        columns=FLAG_COLUMNS,
+    )
