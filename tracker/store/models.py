@@ -234,3 +234,56 @@ class ImportRun(Base):
     imported_by: Mapped[str] = mapped_column(String(100))
     rows_read: Mapped[int] = mapped_column(Integer)
     rows_added: Mapped[int] = mapped_column(Integer)
+
+
+# Codes of :class:`tracker.engines.reclassification.ImpactItem.change` (the CHECK constraint of
+# migration 0003 holds the same list).
+IMPACT_CHANGES = (
+    "recounsel_family",
+    "return_to_surveillance",
+    "keep_in_surveillance",
+    "loses_genotype_positive",
+    "testing_withdrawn",
+    "exclusion_lifted",
+    "offer_predictive_testing",
+    "result_reinterpreted_positive",
+    "result_reinterpreted_negative",
+    "obligate_carrier",
+    "unscheduled_review",
+)
+
+
+class ImpactItem(Base):
+    """One consequence of a variant reclassification: an item on the nurse's to-do list.
+
+    Belongs to the classification row that caused it; ``person_id`` is None for
+    a family-level item.  Open until ``done_on`` is set (with ``done_by``);
+    never deleted.
+    """
+
+    __tablename__ = "impact_item"
+    __table_args__ = (
+        CheckConstraint(
+            "change IN (" + ",".join(f"'{c}'" for c in IMPACT_CHANGES) + ")",
+            name="change",
+        ),
+        CheckConstraint(
+            "(done_on IS NULL AND done_by IS NULL) OR (done_on IS NOT NULL AND done_by IS NOT NULL)",
+            name="done_together",
+        ),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    variant_classification_id: Mapped[int] = mapped_column(ForeignKey("variant_classification.id"), index=True)
+    person_id: Mapped[int | None] = mapped_column(ForeignKey("person.id"), index=True)
+    change: Mapped[str] = mapped_column(String(40))
+    what_changes: Mapped[str] = mapped_column(Text)
+    action: Mapped[str] = mapped_column(Text)
+    source: Mapped[str] = mapped_column(Text)
+    status_before: Mapped[str | None] = mapped_column(String(20))
+    status_after: Mapped[str | None] = mapped_column(String(20))
+    created_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    created_by: Mapped[str] = mapped_column(String(100))
+    done_on: Mapped[dt.date | None] = mapped_column(Date)
+    done_by: Mapped[str | None] = mapped_column(String(100))
+    done_note: Mapped[str | None] = mapped_column(Text)

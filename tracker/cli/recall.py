@@ -1,0 +1,846 @@
+"""Commands for cascade testing, reclassification and recalls: cascade, reclassify, tasks, recall, worklist.
+
+Thin: each command loads the store frames, builds the family state
+(:mod:`tracker.engines.family_state`), calls the engines (cascade,
+reclassification, schedule, worklist) and renders a table or JSON.  The only
+store access beyond the repository loaders is the reclassification task list
+(table ``impact_item``) and the new classification row, both written with
+SQLAlchemy Core inside one transaction.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import getpass
+import math
+from dataclasses import dataclass
+from enum import Enum
+from pathlib import Path
+from typing import Annotated, Any
+
+import pandas as pd
+import typer
+from sqlalchemy import Connection, insert, select, update
+
+from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json, print_table
+from tracker.domain.dates import parse_date
+from tracker.domain.genetics import ACMG_CLASSES
+from tracker.domain.genetics import CAUTION as GENOTYPE_CAUTION
+from tracker.engines import family_state as fs
+from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
+from tracker.engines.cascade import plan_cascade
+from tracker.engines.reclassification import CAUTION as RECLASSIFICATION_CAUTION
+from tracker.engines.reclassification import impact_of_reclassification
+from tracker.engines.schedule import CAUTIONS, Policy, Proposal, propose_recall
+from tracker.engines.worklist import book_into_slots, lost_to_follow_up, not_recalled, select_due, week_starts
+from tracker.errors import UserError
+from tracker.outputs import ics, worklist_csv
+from tracker.rules import available_rule_sets, load_rule_set
+from tracker.settings import Settings, load_settings
+from tracker.store import repository as repo
+from tracker.store.database import reading, writing
+from tracker.store.models import Family, ImpactItem, Person, Variant, VariantClassification
+
+AcmgClass = Enum("AcmgClass", {c: c for c in ACMG_CLASSES}, type=str)
+
+AsOfOption = Annotated[
+    str | None,
+    typer.Option("--as-of", help="Date of the plan, YYYY-MM-DD (default: today); later records are left out."),
+]
+GuidelineOption = Annotated[
+    str | None,
+    typer.Option("--guideline", help="Rule set id, overriding the settings file's [schedule] guideline."),
+]
+
+
+class _DryRun(Exception):
+    """Raised inside the transaction to roll back a dry run."""
+
+
+# --------------------------------------------------------------------------- small helpers
+
+
+def _day(text: str | None, option: str, default: dt.date | None = None) -> dt.date:
+    if text is None:
+        if default is None:
+            raise UserError(f"{option} is required (YYYY-MM-DD)")
+        return default
+    try:
+        return parse_date(text)
+    except ValueError as exc:
+        raise UserError(f"{option}: {exc}") from None
+
+
+def _iso(d: dt.date | None) -> str | None:
+    return d.isoformat() if d is not None else None
+
+
+def _recall_rules(settings_path: Path | None, guideline: str | None) -> tuple[Settings, Any, Policy]:
+    settings = load_settings(settings_path)
+    gid = guideline or settings.guideline
+    if gid not in available_rule_sets():
+        raise UserError(f"--guideline: {gid!r} is not a rule set (available: {', '.join(available_rule_sets())})")
+    return settings, load_rule_set(gid), Policy(point=settings.policy)
+
+
+@dataclass
+class _Frames:
+    families: pd.DataFrame
+    people: pd.DataFrame
+    variants: pd.DataFrame
+    results: pd.DataFrame
+    assessments: pd.DataFrame
+    studies: pd.DataFrame
+    pending: frozenset[str]
+
+
+def _load(conn: Connection) -> _Frames:
+    return _Frames(
+        families=repo.load_families(conn),
+        people=repo.load_people(conn),
+        variants=repo.load_variants(conn),
+        results=repo.load_genetic_results(conn),
+        assessments=repo.load_assessments(conn),
+        studies=repo.load_studies(conn, entered=False),
+        pending=frozenset(_open_task_people(conn)),
+    )
+
+
+def _family_state(frames: _Frames, family: str, as_of: dt.date | None) -> fs.FamilyState:
+    if family not in set(frames.families["family"]):
+        raise UserError(f"unknown family {family!r}")
+    if family not in set(frames.people["family"]):
+        raise UserError(f"family {family!r} has no members recorded")
+    return fs.build_family_state(
+        family, frames.people, frames.variants, frames.results, frames.assessments, frames.studies,
+        reclassification_pending=frames.pending, as_of=as_of,
+    )  # fmt: skip
+
+
+# --------------------------------------------------------------------------- trend modifiers
+
+
+def _with_trends(
+    frames: _Frames, states: dict[str, fs.FamilyState], rule_set_id: str, settings: Settings, as_of: dt.date
+) -> tuple[dict[str, fs.FamilyState], dict]:
+    """Fill progression / projected crossing from the trend engine, if it is installed."""
+    try:
+        from tracker.engines import review
+        from tracker.normals.criteria import RULE_SETS as CRITERIA
+
+        build, flags = review.build_measurements, review.trend_flags
+    except (ImportError, AttributeError):
+        return states, {
+            "applied": False,
+            "note": "trend modifiers not applied: the trend engine (tracker.engines.review) is not available; "
+            "intervals ignore progression and projected threshold crossing",
+        }
+    if rule_set_id not in CRITERIA:
+        return states, {
+            "applied": False,
+            "note": f"trend modifiers not applied: no diagnostic-criteria set for rule set {rule_set_id} "
+            "(guidelines are never blended); intervals ignore progression and projected crossing",
+        }
+    codes = {p for s in states.values() for p in s.states}
+    studies = fs.records_up_to(frames.studies[frames.studies["person"].isin(codes)], "study_date", as_of)
+    if studies is None or not studies["value"].notna().any():
+        return states, {"applied": True, "note": "trend modifiers: no measured values to trend"}
+    frame = build(frames.people, studies)
+    relatives = set().union(*(fs.first_degree_of_affected(s) for s in states.values()))
+    positive = set().union(*(fs.genotype_positive(s) for s in states.values()))
+    t = flags(
+        frame, guideline=rule_set_id, relative_of_affected=relatives, genotype_positive=positive,
+        clinic_repeatability=settings.repeatability or None,
+    )  # fmt: skip
+    return {f: fs.apply_trends(s, t) for f, s in states.items()}, {
+        "applied": True,
+        "note": f"trend modifiers from the measurement trends ({rule_set_id} thresholds): progression beyond "
+        "measurement variability and projected threshold crossing shorten the interval",
+    }
+
+
+# --------------------------------------------------------------------------- cascade
+
+
+def _testing_item(c) -> dict:
+    return {
+        "person": c.person,
+        "probability": float(c.probability) if c.probability is not None else None,
+        "probability_text": c.probability_text,
+        "age_years": c.age_years,
+        "age_note": c.age_note,
+        "recommendation": c.recommendation,
+        "eligible_from": _iso(c.eligible_from),
+        "reason": c.reason,
+        "source": c.source,
+        "notes": list(c.notes),
+    }
+
+
+def _screening_item(c) -> dict:
+    return {"person": c.person, "categories": list(c.categories), "reason": c.reason, "source": c.source,
+            "notes": list(c.notes)}  # fmt: skip
+
+
+def _variant_dict(v: fs.VariantInfo | None) -> dict | None:
+    if v is None:
+        return None
+    return {"gene": v.gene, "variant": v.key, "hgvs_p": v.hgvs_p, "acmg_class": v.current_class,
+            "classified_on": _iso(v.classified_on)}  # fmt: skip
+
+
+def cascade(
+    family: Annotated[str, typer.Argument(help="Family code.")],
+    as_of: AsOfOption = None,
+    guideline: Annotated[
+        str | None,
+        typer.Option("--guideline", help=f"Cascade rule set: {', '.join(CASCADE_RULE_SETS)} (default: the settings guideline)."),
+    ] = None,
+    settings: SettingsOption = None,
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """Cascade plan for one family: who to offer predictive testing, clinical screening, who is released, and the gaps.
+
+    Gaps are relatives never contacted, contacted but never seen, lost to
+    follow-up, or who declined (declined relatives are listed, never recalled).
+
+    Example: tracker cascade HV01 --settings demo_family/clinic.toml
+    """
+    on = _day(as_of, "--as-of", dt.date.today())
+    gid = guideline or load_settings(settings).guideline
+    if gid not in CASCADE_RULE_SETS:
+        raise UserError(
+            f"no cascade rule set for guideline {gid!r}: give --guideline one of {', '.join(CASCADE_RULE_SETS)}"
+        )
+    engine = open_store(db)
+    with reading(engine) as conn:
+        frames = _load(conn)
+    st = _family_state(frames, family, on)
+    plan = plan_cascade(
+        st.pedigree, st.genotypes, st.variant_class, on, gid, st.affected, st.seen,
+        early_onset_family="early_onset" in st.features,
+    )  # fmt: skip
+    notes = list(st.notes) + list(plan.notes)
+    if "early_onset" in st.features:
+        notes.append("early-onset disease in the family derived from the records: " + st.feature_reasons["early_onset"])
+    result = {
+        "family": family,
+        "as_of": on.isoformat(),
+        "guideline": gid,
+        "guideline_title": CASCADE_RULE_SETS[gid].title,
+        "variant": _variant_dict(st.variant),
+        "family_features": dict(sorted(st.feature_reasons.items())),
+        "predictive_testing": [_testing_item(c) for c in plan.testing],
+        "deferred": [_testing_item(c) for c in plan.deferred],
+        "segregation_testing": [_testing_item(c) for c in plan.segregation],
+        "clinical_screening": [_screening_item(c) for c in plan.screening],
+        "released": [_screening_item(c) for c in plan.released],
+        "gaps": [{"person": g.person, "gap": g.gap, "reason": g.reason, "recalled": g.gap != "declined"}
+                 for g in plan.gaps],  # fmt: skip
+        "notes": notes,
+        "caution": plan.caution + " " + GENOTYPE_CAUTION,
+    }
+    if json_out:
+        print_json(result)
+        return
+    v = result["variant"]
+    typer.echo(f"Family {family}, cascade plan on {result['as_of']} under {result['guideline_title']}")
+    typer.echo(f"Variant: {v['gene']} {v['variant']} ({v['acmg_class']}, {v['classified_on']})" if v else "Variant: none recorded")
+    for feat, why in result["family_features"].items():
+        typer.echo(f"  family feature {feat}: {why}")
+    _testing_table("Eligible for predictive testing", result["predictive_testing"])
+    _testing_table("Deferred (eligible from a later date)", result["deferred"])
+    _testing_table("Segregation testing (affected relatives, VUS)", result["segregation_testing"])
+    _screen_table("Clinical screening", result["clinical_screening"])
+    _screen_table("Released from screening", result["released"])
+    print_table("Gaps", ["person", "gap", "reason"], [[g["person"], g["gap"], g["reason"]] for g in result["gaps"]])
+    for n in notes:
+        typer.echo(f"note: {n}")
+    typer.echo(result["caution"])
+
+
+def _testing_table(title: str, items: list[dict]) -> None:
+    if not items:
+        typer.echo(f"{title}: none")
+        return
+    print_table(
+        title,
+        ["person", "P(carrier)", "age", "recommendation", "eligible from", "reason"],
+        [[i["person"], i["probability_text"], i["age_years"], i["recommendation"], i["eligible_from"], i["reason"]]
+         for i in items],
+    )  # fmt: skip
+    _sources(items)
+
+
+def _screen_table(title: str, items: list[dict]) -> None:
+    if not items:
+        typer.echo(f"{title}: none")
+        return
+    print_table(title, ["person", "why"], [[i["person"], i["reason"]] for i in items])
+    _sources(items)
+
+
+def _sources(items: list[dict]) -> None:
+    for src in dict.fromkeys(i["source"] for i in items if i["source"]):
+        typer.echo(f"  source: {src}")
+
+
+# --------------------------------------------------------------------------- reclassification
+
+
+def _targets(frames: _Frames, target: str) -> list[fs.VariantInfo]:
+    """The variant(s) a TARGET names: a family code (its only variant) or transcript:c.change."""
+    by_family = fs.family_variants(frames.variants)
+    if ":" in target:
+        found = [v for vs in by_family.values() for v in vs if v.key == target]
+        if not found:
+            raise UserError(f"no family has the variant {target!r} (give transcript:c.change, e.g. NM_000256.3:c.1504C>T)")
+        return found
+    if target not in set(frames.families["family"]):
+        raise UserError(f"unknown family or variant {target!r} (a family code, or transcript:c.change)")
+    vs = by_family.get(target, ())
+    if not vs:
+        raise UserError(f"family {target!r} has no variant recorded: nothing to reclassify")
+    if len(vs) > 1:
+        raise UserError(
+            f"family {target!r} has {len(vs)} variants ({', '.join(v.key for v in vs)}): name one as transcript:c.change"
+        )
+    return list(vs)
+
+
+def reclassify(
+    target: Annotated[str, typer.Argument(help="Family code (its only variant) or transcript:c.change.")],
+    to: Annotated[AcmgClass, typer.Option("--to", help="The new ACMG/AMP class.")],
+    date: Annotated[str, typer.Option("--date", help="Date of the new classification (YYYY-MM-DD).")],
+    reason: Annotated[str, typer.Option("--reason", help="Why the class changed (laboratory re-review, ...).")],
+    dry_run: Annotated[bool, typer.Option("--dry-run", help="Show the impact; write nothing.")] = False,
+    user: Annotated[str | None, typer.Option("--user", help="Who records it (default: the OS user).")] = None,
+    guideline: GuidelineOption = None,
+    settings: SettingsOption = None,
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """Record a new classification of a family variant, work out what changes for each relative, and store the tasks.
+
+    The class history is kept (a new row is added). Refused when the date is
+    not after the latest classification, or the class is the current one.
+    Everything is written in one transaction.
+
+    Example: tracker reclassify HV03 --to likely_pathogenic --date 2026-11-30 --reason "laboratory re-review" --dry-run
+    """
+    new_class = to.value
+    on = _day(date, "--date")
+    if on > dt.date.today():
+        raise UserError(f"--date {on.isoformat()} is in the future")
+    if not reason.strip():
+        raise UserError("--reason must not be empty")
+    _settings, rule_set, policy = _recall_rules(settings, guideline)
+    who = user or getpass.getuser()
+    engine = open_store(db)
+    out: list[dict] = []
+    try:
+        with writing(engine) as conn:
+            frames = _load(conn)
+            variants = _targets(frames, target)
+            for v in variants:
+                if on <= v.classified_on:
+                    raise UserError(
+                        f"{v.family} {v.key}: --date {on.isoformat()} is not after the latest classification "
+                        f"({v.classified_on.isoformat()}, {v.current_class}); the class history is kept in date order"
+                    )
+                if new_class == v.current_class:
+                    raise UserError(f"{v.family} {v.key} is already classified {new_class} (since {v.classified_on.isoformat()})")
+            for v in variants:
+                out.append(_reclassify_one(conn, frames, v, new_class, on, reason.strip(), who, rule_set, policy))
+            if dry_run:
+                raise _DryRun
+    except _DryRun:
+        for r in out:
+            r["classification_id"] = None
+            for i in r["items"]:
+                i["id"] = None
+    result = {"dry_run": dry_run, "reclassifications": out, "caution": RECLASSIFICATION_CAUTION}
+    if json_out:
+        print_json(result)
+        return
+    for r in out:
+        typer.echo(
+            f"{r['family']} {r['gene']} {r['variant']}: {r['from_class']} -> {r['to_class']} on {r['classified_on']}"
+            + (" (dry run: nothing written)" if dry_run else f" (recorded; {len(r['items'])} tasks stored)")
+        )
+        print_table(
+            None,
+            ["task", "person", "change", "what changes", "action", "source"],
+            [[i["id"], i["person"] or "(family)", i["change"], i["what_changes"], i["action"], i["source"]]
+             for i in r["items"]],
+        )  # fmt: skip
+        for n in r["notes"]:
+            typer.echo(f"note: {n}")
+    typer.echo(RECLASSIFICATION_CAUTION)
+
+
+def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on: dt.date, reason: str,
+                    who: str, rule_set, policy: Policy) -> dict:  # fmt: skip
+    state = _family_state(frames, v.family, None)
+    proposals = fs.propose_for_family(state, rule_set, policy, on)
+    screening = fs.screening_states(proposals)
+    items, notes = fs.task_items(
+        impact_of_reclassification(state.pedigree, state.results, v.current_class, new_class, screening, variant=v.key),
+        state,
+    )
+    variant_id = conn.execute(
+        select(Variant.id).join(Family, Variant.family_id == Family.id).where(
+            Family.code == v.family, Variant.transcript == v.transcript, Variant.hgvs_c == v.hgvs_c
+        )
+    ).scalar_one()
+    cid = conn.execute(
+        insert(VariantClassification).returning(VariantClassification.id),
+        dict(variant_id=variant_id, classified_on=on, acmg_class=new_class, reason=reason),
+    ).scalar_one()
+    person_ids = dict(conn.execute(select(Person.code, Person.id).where(Person.family_id == select(Family.id).where(
+        Family.code == v.family).scalar_subquery())).all())  # fmt: skip
+    now = dt.datetime.now(dt.timezone.utc).replace(tzinfo=None, microsecond=0)
+    rows = []
+    for it in items:
+        iid = conn.execute(
+            insert(ImpactItem).returning(ImpactItem.id),
+            dict(
+                variant_classification_id=cid, person_id=person_ids.get(it.person) if it.person else None,
+                change=it.change, what_changes=it.what_changes, action=it.action, source=it.source,
+                status_before=it.status_before, status_after=it.status_after, created_at=now, created_by=who,
+            ),
+        ).scalar_one()  # fmt: skip
+        rows.append({
+            "id": iid, "person": it.person, "change": it.change, "what_changes": it.what_changes,
+            "action": it.action, "source": it.source, "status_before": it.status_before,
+            "status_after": it.status_after,
+        })  # fmt: skip
+    return {
+        "family": v.family,
+        "gene": v.gene,
+        "variant": v.key,
+        "from_class": v.current_class,
+        "to_class": new_class,
+        "classified_on": on.isoformat(),
+        "reason": reason,
+        "classification_id": cid,
+        "items": rows,
+        "notes": notes,
+    }
+
+
+# --------------------------------------------------------------------------- tasks
+
+
+def _task_query():
+    return (
+        select(
+            ImpactItem.id, Family.code, Person.code, Variant.gene, Variant.transcript, Variant.hgvs_c,
+            VariantClassification.acmg_class, VariantClassification.classified_on, ImpactItem.change,
+            ImpactItem.what_changes, ImpactItem.action, ImpactItem.source, ImpactItem.created_at,
+            ImpactItem.created_by, ImpactItem.done_on, ImpactItem.done_by, ImpactItem.done_note,
+        )
+        .join(VariantClassification, ImpactItem.variant_classification_id == VariantClassification.id)
+        .join(Variant, VariantClassification.variant_id == Variant.id)
+        .join(Family, Variant.family_id == Family.id)
+        .outerjoin(Person, ImpactItem.person_id == Person.id)
+        .order_by(ImpactItem.id)
+    )  # fmt: skip
+
+
+def _task_dict(r) -> dict:
+    (iid, fam, person, gene, tx, c, cls, on, change, what, action, source, created_at, created_by,
+     done_on, done_by, done_note) = r  # fmt: skip
+    return {
+        "id": iid, "family": fam, "person": person, "variant": f"{tx}:{c}", "gene": gene,
+        "classification": cls, "classified_on": _iso(on), "change": change, "what_changes": what,
+        "action": action, "source": source, "created_at": created_at.isoformat() if created_at else None,
+        "created_by": created_by, "status": "done" if done_on else "open", "done_on": _iso(done_on),
+        "done_by": done_by, "done_note": done_note,
+    }  # fmt: skip
+
+
+def _open_task_people(conn: Connection) -> set[str]:
+    stmt = (
+        select(Person.code)
+        .join(ImpactItem, ImpactItem.person_id == Person.id)
+        .where(ImpactItem.done_on.is_(None))
+    )
+    return {r[0] for r in conn.execute(stmt).all()}
+
+
+tasks_app = typer.Typer(
+    name="tasks",
+    invoke_without_command=True,
+    no_args_is_help=False,
+    help="The reclassification to-do list: open tasks; `tasks done ID` marks one done.\n\n"
+    "Example: tracker tasks --family HV03",
+)
+
+
+@tasks_app.callback()
+def tasks_list(
+    ctx: typer.Context,
+    family: Annotated[str | None, typer.Option("--family", help="Only this family.")] = None,
+    all_: Annotated[bool, typer.Option("--all", help="Done tasks too.")] = False,
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """List open reclassification tasks (the nurse's to-do list); `tracker tasks done ID --note TEXT` marks one done.
+
+    Example: tracker tasks --family HV03 --json
+    """
+    if ctx.invoked_subcommand is not None:
+        return
+    engine = open_store(db)
+    with reading(engine) as conn:
+        if family is not None and conn.execute(select(Family.id).where(Family.code == family)).first() is None:
+            raise UserError(f"unknown family {family!r}")
+        stmt = _task_query()
+        if family is not None:
+            stmt = stmt.where(Family.code == family)
+        if not all_:
+            stmt = stmt.where(ImpactItem.done_on.is_(None))
+        rows = [_task_dict(r) for r in conn.execute(stmt).all()]
+    if json_out:
+        print_json({"tasks": rows, "caution": RECLASSIFICATION_CAUTION})
+        return
+    if not rows:
+        typer.echo("no open tasks" if not all_ else "no tasks")
+        return
+    print_table(
+        "Reclassification tasks",
+        ["task", "family", "person", "change", "action", "status", "done"],
+        [[r["id"], r["family"], r["person"] or "(family)", r["change"], r["action"], r["status"],
+          f"{r['done_on']} {r['done_by']}: {r['done_note']}" if r["done_on"] else ""] for r in rows],
+    )  # fmt: skip
+    typer.echo(RECLASSIFICATION_CAUTION)
+
+
+@tasks_app.command("done")
+def tasks_done(
+    task_id: Annotated[int, typer.Argument(help="Task number (from `tracker tasks`).")],
+    note: Annotated[str, typer.Option("--note", help="What was done.")],
+    user: Annotated[str | None, typer.Option("--user", help="Who did it (default: the OS user).")] = None,
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """Mark one reclassification task done (the task is kept, with the date, who and the note).
+
+    Example: tracker tasks done 12 --note "letter sent, recall booked"
+    """
+    if not note.strip():
+        raise UserError("--note must not be empty")
+    engine = open_store(db)
+    with writing(engine) as conn:
+        row = conn.execute(select(ImpactItem.id, ImpactItem.done_on).where(ImpactItem.id == task_id)).first()
+        if row is None:
+            raise UserError(f"no task {task_id}")
+        if row.done_on is not None:
+            raise UserError(f"task {task_id} was already done on {row.done_on.isoformat()}")
+        conn.execute(
+            update(ImpactItem)
+            .where(ImpactItem.id == task_id, ImpactItem.done_on.is_(None))
+            .values(done_on=dt.date.today(), done_by=user or getpass.getuser(), done_note=note.strip())
+        )
+        done = _task_dict(conn.execute(_task_query().where(ImpactItem.id == task_id)).one())
+    if json_out:
+        print_json(done)
+    else:
+        typer.echo(f"task {task_id} done on {done['done_on']} by {done['done_by']}: {done['done_note']}")
+
+
+# --------------------------------------------------------------------------- recall
+
+
+def _reason(p: Proposal) -> tuple[str, str]:
+    """Plain reason and sources: triggers, the governing rule or release, applied modifiers, overrides."""
+    order = {"trigger": 0, "rule": 1, "release": 1, "modifier": 2, "override": 3}
+    fired = sorted((f for f in p.fired if f.applied and f.kind in order), key=lambda f: order[f.kind])
+    if not fired:
+        return "; ".join(p.notes[1:] or p.notes), ""
+    return "; ".join(f.text.rstrip(".") for f in fired) + ".", "; ".join(dict.fromkeys(f.source for f in fired))
+
+
+def _proposal_dict(p: Proposal, st: fs.FamilyState) -> dict:
+    person = p.person_code
+    ps, facts, g = st.states[person], st.facts[person], st.genotypes[person]
+    reason, source = _reason(p)
+    return {
+        "person": person,
+        "family": st.family,
+        "as_of": p.today.isoformat(),
+        "rule_set": p.rule_set_id,
+        "status": p.status,
+        "due": _iso(p.due),
+        "days_overdue": p.days_overdue,
+        "interval_months": p.interval_months,
+        "routine_due": _iso(p.routine_due),
+        "rule_id": p.rule_id,
+        "needs": list(p.needs),
+        "consider": list(p.consider),
+        "reason": reason,
+        "source": source,
+        "fired": [
+            {"kind": f.kind, "code": f.code, "text": f.text, "source": f.source, "tag": f.tag, "applied": f.applied}
+            for f in p.fired
+        ],
+        "triggers": list(p.triggers),
+        "flags": list(p.flags),
+        "notes": list(p.notes),
+        "state": {
+            "genotype": ps.genotype,
+            "genotype_reason": g.reason,
+            "phenotype": ps.phenotype,
+            "affected_status": facts.affected_status,
+            "family_features": sorted(ps.family_features),
+            "last_visit": _iso(ps.last_visit),
+            "athlete": ps.athlete,
+            "contact_status": ps.contact_status,
+            "vital_status": ps.vital_status,
+            "progression": ps.progression,
+            "projected_crossing_age_years": ps.projected_crossing_age_years,
+            "trend_reasons": facts.trend_reasons,
+        },
+        "cautions": list(p.cautions),
+    }
+
+
+def _unscheduled_dict(person: str, st: fs.FamilyState, on: dt.date, rule_set_id: str) -> dict:
+    why = st.not_scheduled[person]
+    return {
+        "person": person, "family": st.family, "as_of": on.isoformat(), "rule_set": rule_set_id,
+        "status": "not_scheduled", "due": None, "days_overdue": None, "interval_months": None, "routine_due": None,
+        "rule_id": None, "needs": [], "consider": [], "reason": why, "source": "", "fired": [], "triggers": [],
+        "flags": [], "notes": [why], "state": None, "cautions": list(CAUTIONS),
+    }  # fmt: skip
+
+
+def recall(
+    person: Annotated[str, typer.Argument(help="Person code.")],
+    as_of: AsOfOption = None,
+    guideline: GuidelineOption = None,
+    settings: SettingsOption = None,
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """When one person should next be seen: due date, interval, every rule and modifier that fired with its source.
+
+    Deceased people are never scheduled; people who declined are not recalled.
+
+    Example: tracker recall HV01-IV-1 --settings demo_family/clinic.toml
+    """
+    on = _day(as_of, "--as-of", dt.date.today())
+    conf, rule_set, policy = _recall_rules(settings, guideline)
+    engine = open_store(db)
+    with reading(engine) as conn:
+        frames = _load(conn)
+    fam = frames.people.loc[frames.people["person"] == person, "family"]
+    if fam.empty:
+        raise UserError(f"unknown person {person!r}")
+    st = _family_state(frames, fam.iloc[0], on)
+    states, trend = _with_trends(frames, {st.family: st}, rule_set.id, conf, on)
+    st = states[st.family]
+    if person in st.states:
+        result = _proposal_dict(propose_recall(st.states[person], rule_set, policy, on), st)
+    else:
+        result = _unscheduled_dict(person, st, on, rule_set.id)
+    result["rule_set_title"] = rule_set.title
+    result["policy"] = policy.point
+    result["trend_modifiers"] = trend
+    if json_out:
+        print_json(result)
+        return
+    typer.echo(f"{person} ({result['family']}), {result['as_of']}, rule set {rule_set.title}, policy {policy.point}")
+    typer.echo(f"status: {result['status']}" + (f", due {result['due']}" if result["due"] else "")
+               + (f", every {result['interval_months']} months" if result["interval_months"] else ""))  # fmt: skip
+    if result["needs"]:
+        typer.echo("visit needs: " + ics.needs_words(result["needs"])
+                   + (f" (consider: {ics.needs_words(result['consider'])})" if result["consider"] else ""))  # fmt: skip
+    if result["state"]:
+        s = result["state"]
+        typer.echo(f"genotype {s['genotype']} ({s['genotype_reason']}); phenotype {s['phenotype']}; "
+                   f"family features {', '.join(s['family_features']) or 'none'}; last visit {s['last_visit']}")  # fmt: skip
+    if result["fired"]:
+        print_table(
+            "Rules and modifiers",
+            ["kind", "code", "applied", "text", "source"],
+            [[f["kind"], f["code"], "yes" if f["applied"] else "no", f["text"], f["source"]] for f in result["fired"]],
+        )
+    for n in result["notes"]:
+        typer.echo(f"note: {n}")
+    typer.echo(f"note: {trend['note']}")
+    for c in result["cautions"]:
+        typer.echo(f"caution: {c}")
+
+
+# --------------------------------------------------------------------------- worklist
+
+
+def _entry(p: Proposal, family: str, lst: str) -> dict:
+    reason, source = _reason(p)
+    return {
+        "list": lst, "person": p.person_code, "family": family, "status": p.status, "due": _iso(p.due),
+        "days_overdue": p.days_overdue, "interval_months": p.interval_months, "rule_id": p.rule_id,
+        "needs": list(p.needs), "consider": list(p.consider), "reason": reason, "source": source,
+        "triggers": list(p.triggers), "flags": list(p.flags), "booked_week": None, "late": None,
+    }  # fmt: skip
+
+
+def worklist(
+    from_: Annotated[str, typer.Option("--from", help="First day of the window (YYYY-MM-DD).")],
+    to: Annotated[str, typer.Option("--to", help="Last day of the window (YYYY-MM-DD).")],
+    slots_per_week: Annotated[
+        int | None, typer.Option("--slots-per-week", min=0, help="Weekly capacity: book into weeks (default: settings).")
+    ] = None,
+    csv_out: Annotated[Path | None, typer.Option("--csv", help="Also write the worklist as CSV.")] = None,
+    ics_out: Annotated[Path | None, typer.Option("--ics", help="Also write the proposed visits as iCalendar.")] = None,
+    as_of: AsOfOption = None,
+    guideline: GuidelineOption = None,
+    settings: SettingsOption = None,
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """Everyone due or overdue by the end of a window, most urgent first, with what the visit needs and why.
+
+    With a weekly capacity, people are booked into weeks and those who cannot
+    be seen by their due date are listed. Deceased people are never listed;
+    people who declined are listed apart, not recalled; affected members are
+    listed apart with their follow-up interval.
+
+    Example: tracker worklist --from 2026-12-07 --to 2027-01-31 --slots-per-week 4 --ics recalls.ics
+    """
+    start, end = _day(from_, "--from"), _day(to, "--to")
+    if end < start:
+        raise UserError("--to is before --from")
+    on = _day(as_of, "--as-of", dt.date.today())
+    conf, rule_set, policy = _recall_rules(settings, guideline)
+    slots = slots_per_week if slots_per_week is not None else conf.slots_per_week
+    engine = open_store(db)
+    with reading(engine) as conn:
+        frames = _load(conn)
+    states = fs.build_family_states(
+        frames.people, frames.variants, frames.results, frames.assessments, frames.studies,
+        reclassification_pending=frames.pending, as_of=on,
+    )  # fmt: skip
+    states, trend = _with_trends(frames, states, rule_set.id, conf, on)
+    proposals: list[Proposal] = []
+    family_of: dict[str, str] = {}
+    affected: set[str] = set()
+    for fam, st in states.items():
+        for p, prop in fs.propose_for_family(st, rule_set, policy, on).items():
+            proposals.append(prop)
+            family_of[p] = fam
+            if st.states[p].phenotype == "positive":
+                affected.add(p)
+    screening_due = select_due([p for p in proposals if p.person_code not in affected], start, end)
+    affected_due = select_due([p for p in proposals if p.person_code in affected], start, end)
+    due_rows = [_entry(p, family_of[p.person_code], "screening") for p in screening_due]
+    affected_rows = [_entry(p, family_of[p.person_code], "affected") for p in affected_due]
+
+    weeks = math.ceil(((end - start).days + 1) / 7)
+    booking = None
+    if slots is not None:
+        plan = book_into_slots(screening_due, start, weeks, slots)
+        booked = {b.person_code: b for b in plan.bookings}
+        unseen = {u.person_code for u in plan.unseen}
+        for r in due_rows:
+            b = booked.get(r["person"])
+            r["booked_week"] = _iso(b.week_start) if b else None
+            r["late"] = r["person"] in unseen
+        booking = {
+            "slots_per_week": slots,
+            "weeks": [
+                {"week_start": w.isoformat(), "booked": [b.person_code for b in plan.bookings if b.week_start == w],
+                 "free": slots - sum(1 for b in plan.bookings if b.week_start == w)}
+                for w in week_starts(start, weeks)
+            ],  # fmt: skip
+            "cannot_be_seen_by_due_date": [
+                {"person": u.person_code, "due": u.due.isoformat(), "booked_week": _iso(u.week_start), "reason": u.reason}
+                for u in plan.unseen
+            ],
+        }
+    declined = [
+        {"person": p.person_code, "family": family_of[p.person_code], "reason": "declined: not recalled"}
+        for p in not_recalled(proposals)
+    ]
+    lost = [p.person_code for p in lost_to_follow_up(screening_due + affected_due)]
+
+    files = {"csv": None, "ics": None}
+    if csv_out is not None:
+        csv_out.write_text(worklist_csv.worklist_csv(due_rows + affected_rows), encoding="utf-8")
+        files["csv"] = str(csv_out)
+    if ics_out is not None:
+        visits = [
+            ics.CalendarVisit(r["person"], dt.date.fromisoformat(r["booked_week"] or r["due"]), tuple(r["needs"]),
+                              r["reason"])
+            for r in due_rows + affected_rows
+        ]  # fmt: skip
+        ics_out.write_bytes(ics.calendar_bytes(visits, caution=" ".join(CAUTIONS)))
+        files["ics"] = str(ics_out)
+
+    result = {
+        "window": {"from": start.isoformat(), "to": end.isoformat(), "weeks": weeks},
+        "as_of": on.isoformat(),
+        "rule_set": rule_set.id,
+        "rule_set_title": rule_set.title,
+        "policy": policy.point,
+        "slots_per_week": slots,
+        "due": due_rows,
+        "affected": affected_rows,
+        "booking": booking,
+        "not_recalled": declined,
+        "lost_to_follow_up": lost,
+        "trend_modifiers": trend,
+        "files": files,
+        "cautions": list(CAUTIONS),
+    }
+    if json_out:
+        print_json(result)
+        return
+    typer.echo(f"Worklist {start.isoformat()} to {end.isoformat()} ({weeks} weeks), as of {on.isoformat()}, "
+               f"rule set {rule_set.title}, policy {policy.point}")  # fmt: skip
+    _worklist_table("Family screening: due or overdue, most urgent first", due_rows, booking is not None)
+    _worklist_table("Affected members (follow-up interval)", affected_rows, False)
+    if booking is not None:
+        print_table(
+            f"Cannot be seen by the due date ({slots} slots a week)",
+            ["person", "due", "booked week", "reason"],
+            [[u["person"], u["due"], u["booked_week"] or "not booked", u["reason"]]
+             for u in booking["cannot_be_seen_by_due_date"]],
+        )  # fmt: skip
+    if declined:
+        typer.echo("Declined, not recalled: " + ", ".join(d["person"] for d in declined))
+    if lost:
+        typer.echo("Lost to follow-up (re-contact needed): " + ", ".join(lost))
+    typer.echo(f"note: {trend['note']}")
+    for k, path in files.items():
+        if path:
+            typer.echo(f"{k} written: {path}")
+    for c in CAUTIONS:
+        typer.echo(f"caution: {c}")
+
+
+def _worklist_table(title: str, rows: list[dict], booked: bool) -> None:
+    if not rows:
+        typer.echo(f"{title}: none")
+        return
+    cols = ["person", "status", "due", "days overdue", "every (months)", "needs", "reason"]
+    if booked:
+        cols.append("booked week")
+    print_table(
+        title,
+        cols,
+        [[r["person"], r["status"], r["due"], r["days_overdue"], r["interval_months"], ics.needs_words(r["needs"]),
+          r["reason"]] + ([r["booked_week"] or "not booked"] if booked else []) for r in rows],
+    )  # fmt: skip
+
+
+def register(app: typer.Typer) -> None:
+    """Add this module's commands to the app."""
+    app.command("cascade")(cascade)
+    app.command("reclassify")(reclassify)
+    app.add_typer(tasks_app, name="tasks")
+    app.command("recall")(recall)
+    app.command("worklist")(worklist)
