@@ -1,0 +1,728 @@
+"""A family's pedigree as a printable PDF (A4 landscape), in standard pedigree nomenclature.
+
+Nomenclature (NSGC 1995 / 2008 / 2022 recommendations, docs/reference/standards.md
+section 1 [V] unless marked):
+
+* **Shapes**: square = male, circle = female, diamond = unknown.  The 2022
+  revision draws the shape by *gender identity* and writes the sex assigned at
+  birth below (AMAB / AFAB / UAAB) [V].  This store holds the sex at birth as
+  a controlled word and gender identity as free text, which cannot be mapped
+  to a shape reliably, so the shape here follows ``sex_at_birth`` (the 2008
+  convention) and, where a gender identity is recorded, it is printed under
+  the symbol together with the sex assigned at birth (e.g. "gender: woman,
+  AMAB").  This choice is stated in the legend.
+* **Affected** (latest assessment ``affected``) filled; **unaffected** open;
+  ``?`` inside an open symbol when the latest assessment is ``uncertain``, or
+  when a blood relative of the proband has never been assessed (affection
+  unknown; a married-in or adopted-in relative never assessed is drawn open).
+  Only clinical affection fills a symbol: a genotype-positive relative with a
+  normal echo is not shaded [V].
+* **Deceased**: diagonal slash.  **Proband**: arrow at the lower left with
+  "P".
+* **Carriers** (2008 marks): a vertical line through the symbol for a
+  presymptomatic carrier (tested carrier, or monozygotic co-twin of one, not
+  affected) of a pathogenic or likely pathogenic variant; a dot in the centre
+  for an obligate carrier (inferred, untested) who is not affected.  The 2022
+  revision changed how carrier status is shown; its new marks were not
+  re-read for this project (from memory, verify), so the test result is
+  always printed as text as well (standards.md 1a).
+* **Evaluation text** (2008): ``E`` is the genetic test for the family
+  variant: ``E+ (MYBPC3 c.1504C>T)`` carrier, ``E- (...)`` non-carrier,
+  ``Eu (...)`` uninformative (inconclusive); a panel that found no variant:
+  ``E- (panel: no variant found)``.  A variant that is not pathogenic or
+  likely pathogenic carries its class: ``E+ (TNNI3 c.508C>T, VUS)``.
+* **Text under a symbol**, in the standard order: birth year or death (age
+  at death), evaluation, individual number (``II-3``); above them the
+  person code (or the name, only with ``names=True``), and any gender
+  identity.  **Placeholders** (drawn only to connect the pedigree) are
+  ordinary symbols with no clinical text: code and number only.
+* Generations in Roman numerals at the left; a legend of every symbol used;
+  the family code, the date drawn (ISO 8601) and "Drawn by tracker".
+
+Style: black lines and text on white, Helvetica; no colour.
+
+Decision support only: the drawing shows what is recorded; the treating
+clinician and genetics team decide, following local protocols and the
+current guideline.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+from reportlab.lib.pagesizes import A4, landscape
+from reportlab.pdfbase.pdfmetrics import stringWidth
+from reportlab.pdfgen import canvas
+
+from tracker.domain.dates import PartialDate, completed_years, parse_partial_date
+from tracker.domain.genetics import ACTIONABLE_CLASSES, genotype_statuses
+from tracker.domain.pedigree import Pedigree
+from tracker.outputs.pedigree_layout import PedigreeLayout, PlacedPerson, layout_pedigree, roman
+
+FONT = "Helvetica"
+FONT_BOLD = "Helvetica-Bold"
+LABEL_FONT = 0.27  # text under symbols, in symbol widths
+LABEL_LINE = 0.33
+MAX_SCALE = 28.0  # points per symbol width (a symbol is at most about 10 mm wide)
+PAGE = landscape(A4)
+MARGIN = 28.0
+LEGEND_WIDTH = 200.0
+
+_CLASS_SHORT = {
+    "pathogenic": "P",
+    "likely_pathogenic": "LP",
+    "uncertain_significance": "VUS",
+    "likely_benign": "LB",
+    "benign": "B",
+}
+_SEX_AT_BIRTH_TEXT = {"male": "AMAB", "female": "AFAB", "unknown": "UAAB"}  # 2022 abbreviations [V]
+
+CAUTION = (
+    "Decision support only: the drawing shows what is recorded; the treating clinician and genetics team "
+    "decide, following local protocols and the current guideline."
+)
+
+
+# ---------------------------------------------------------------------------
+# what each symbol shows (pure)
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class PersonMarks:
+    """What is drawn for one person.
+
+    ``shape``: 'square', 'circle', 'diamond'.  ``affection``: 'affected',
+    'unaffected', 'uncertain' (shown '?').  ``carrier_mark``:
+    'presymptomatic' (vertical line), 'obligate' (dot) or None.  ``lines``:
+    the text under the symbol, top to bottom, without the individual number
+    (added from the layout)."""
+
+    person: str
+    shape: str
+    affection: str
+    deceased: bool
+    proband: bool
+    placeholder: bool
+    adopted: str | None
+    carrier_mark: str | None
+    lines: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class FamilyVariant:
+    key: str  # transcript:hgvs_c
+    gene: str
+    hgvs_c: str
+    hgvs_p: str | None
+    acmg_class: str | None
+    classified_on: str | None
+
+    @property
+    def actionable(self) -> bool:
+        return self.acmg_class in ACTIONABLE_CLASSES
+
+    def describe(self) -> str:
+        cls = (self.acmg_class or "unclassified").replace("_", " ")
+        p = f" {self.hgvs_p}" if self.hgvs_p else ""
+        when = f" ({self.classified_on})" if self.classified_on else ""
+        return f"{self.gene} {self.key}{p}, {cls}{when}"
+
+
+def _blank(v: object) -> bool:
+    if v is None:
+        return True
+    try:
+        if pd.isna(v):
+            return True
+    except (TypeError, ValueError):
+        pass
+    return isinstance(v, str) and v.strip() == ""
+
+
+def _text(v: object) -> str | None:
+    return None if _blank(v) else str(v).strip()
+
+
+def _partial(v: object) -> PartialDate | None:
+    if _blank(v):
+        return None
+    if isinstance(v, PartialDate):
+        return v
+    if isinstance(v, dt.date):
+        return PartialDate(v, "day")
+    return parse_partial_date(str(v))
+
+
+def family_variants(variants: pd.DataFrame | None, family: str) -> dict[str, FamilyVariant]:
+    """The family's variants by key, each with its current class (latest classification)."""
+    out: dict[str, FamilyVariant] = {}
+    if variants is None or len(variants) == 0:
+        return out
+    rows = variants[variants["family"] == family]
+    for (tx, c), grp in rows.groupby(["transcript", "hgvs_c"], sort=False):
+        last = grp.sort_values("classified_on", kind="stable").iloc[-1]
+        out[f"{tx}:{c}"] = FamilyVariant(
+            f"{tx}:{c}", str(last["gene"]), str(c), _text(last.get("hgvs_p")),
+            _text(last.get("acmg_class")), _text(last.get("classified_on")),
+        )
+    return out
+
+
+def family_variant(variants: pd.DataFrame | None, family: str) -> FamilyVariant | None:
+    """The family's variant with its current class; with several variants, the
+    most actionable current class (ties: the first)."""
+    found = list(family_variants(variants, family).values())
+    if not found:
+        return None
+    order = list(_CLASS_SHORT)
+    return min(found, key=lambda v: order.index(v.acmg_class) if v.acmg_class in order else len(order))
+
+
+def _latest_affection(assessments: pd.DataFrame | None, people: set[str]) -> dict[str, str]:
+    if assessments is None or len(assessments) == 0:
+        return {}
+    a = assessments[assessments["person"].isin(people)]
+    a = a.sort_values(["person", "assessment_date"], kind="stable")
+    out = {}
+    for p, grp in a.groupby("person", sort=False):
+        status = _text(grp.iloc[-1]["affected_status"])
+        if status:
+            out[p] = status
+    return out
+
+
+def _life_line(row: Mapping) -> str | None:
+    birth = _partial(row.get("birth_date"))
+    death = _partial(row.get("death_date"))
+    status = _text(row.get("vital_status")) or "unknown"
+    if status != "deceased":
+        return f"b. {birth.year}" if birth else None
+    parts = [f"b. {birth.year}"] if birth else []
+    if death:
+        age = ""
+        if birth:
+            exact = birth.precision == "day" and death.precision == "day"
+            years = completed_years(birth.value, death.value) if exact else death.year - birth.year
+            age = f" ({'' if exact else '~'}{years} y)"
+        parts.append(f"d. {death.year}{age}")
+    else:
+        parts.append("deceased")
+    return ", ".join(parts)
+
+
+def _evaluation_lines(results: pd.DataFrame | None, person: str, variants: Mapping[str, FamilyVariant]) -> list[str]:
+    """E lines for the person's genetic results, latest first (at most two)."""
+    if results is None or len(results) == 0:
+        return []
+    rows = results[results["person"] == person].sort_values("test_date", kind="stable")
+    lines: list[str] = []
+    seen: set[tuple] = set()
+    for r in reversed(rows.to_dict("records")):  # latest first
+        result = _text(r.get("result"))
+        key = _text(r.get("variant"))
+        if (result, key) in seen:
+            continue
+        seen.add((result, key))
+        if result == "no_variant_found":
+            lines.append("E- (panel: no variant found)")
+            continue
+        v = variants.get(key) if key else None
+        what = f"{v.gene} {v.hgvs_c}" if v else (key.split(":", 1)[-1] if key else "variant")
+        if v is not None and v.acmg_class and not v.actionable:
+            what += f", {_CLASS_SHORT.get(v.acmg_class, v.acmg_class)}"
+        sign = {"carrier": "E+", "non_carrier": "E-", "inconclusive": "Eu"}.get(result or "", "E?")
+        lines.append(f"{sign} ({what})")
+    return lines[:2]
+
+
+def pedigree_marks(
+    pedigree: Pedigree,
+    people: pd.DataFrame,
+    genetic_results: pd.DataFrame | None = None,
+    assessments: pd.DataFrame | None = None,
+    variants: pd.DataFrame | None = None,
+    *,
+    family: str | None = None,
+    names: bool = False,
+) -> dict[str, PersonMarks]:
+    """What to draw for each person of ``pedigree`` (frames as the store loaders return them)."""
+    rows = {r["person"]: r for r in people.to_dict("records") if r["person"] in pedigree}
+    codes = set(rows)
+    fam = family or next((_text(r.get("family")) for r in rows.values()), None)
+    fam_variant = family_variant(variants, fam) if fam else None
+    all_variants = family_variants(variants, fam) if fam else {}
+    fam_results = None
+    if genetic_results is not None and len(genetic_results):
+        fam_results = genetic_results[genetic_results["person"].isin(codes)]
+    affection = _latest_affection(assessments, codes)
+    statuses = genotype_statuses(
+        pedigree, fam_results, fam_variant.acmg_class if fam_variant else None,
+        fam_variant.key if fam_variant else None,
+    )
+    proband = next((p for p in pedigree.people if pedigree.member(p).proband), None)
+    out: dict[str, PersonMarks] = {}
+    for p in pedigree.people:
+        m = pedigree.member(p)
+        row = rows.get(p, {})
+        shape = {"male": "square", "female": "circle"}.get(m.sex_at_birth, "diamond")
+        blood = proband is not None and (p == proband or pedigree.kinship(proband, p) > 0)
+        aff = affection.get(p)
+        if aff is None:
+            aff = "uncertain" if (blood and not m.placeholder) else "unaffected"
+        if m.placeholder:
+            aff = "unaffected"
+        ident = p
+        if names:
+            full = " ".join(x for x in (_text(row.get("given_name")), _text(row.get("family_name"))) if x)
+            ident = full or p
+        lines = [ident]
+        mark = None
+        if not m.placeholder:
+            life = _life_line(row)
+            if life:
+                lines.append(life)
+            gender = _text(row.get("gender_identity"))
+            if gender:
+                lines.append(f"gender: {gender}, {_SEX_AT_BIRTH_TEXT[m.sex_at_birth]}")
+            lines += _evaluation_lines(fam_results, p, all_variants)
+            st = statuses[p]
+            actionable = fam_variant is not None and fam_variant.actionable
+            if actionable and st.status == "carrier" and aff != "affected":
+                mark = "obligate" if st.basis == "obligate" else "presymptomatic"
+            if st.basis == "obligate":
+                lines.append("obligate carrier")
+            elif st.basis == "mz_co_twin":
+                lines.append(f"{'carrier' if st.status == 'carrier' else 'non-carrier'} (MZ co-twin's result)")
+        out[p] = PersonMarks(p, shape, aff, m.vital_status == "deceased", m.proband, m.placeholder,
+                             m.adoption, mark, tuple(lines))
+    return out
+
+
+# ---------------------------------------------------------------------------
+# text sizes -> layout
+# ---------------------------------------------------------------------------
+
+
+def _label_lines(marks: PersonMarks, number: str | None) -> list[str]:
+    return list(marks.lines) + ([number] if number else [])
+
+
+def label_sizes(marks: Mapping[str, PersonMarks]) -> dict[str, tuple[float, float]]:
+    """Width and height of each text block in symbol widths (the number line is
+    reserved with a width for ``XIV-99``)."""
+    out = {}
+    num_w = stringWidth("XIV-99", FONT, LABEL_FONT)
+    for p, m in marks.items():
+        widths = [stringWidth(t, FONT, LABEL_FONT) for t in m.lines] + [num_w]
+        out[p] = (max(widths) + 0.1, (len(m.lines) + 1) * LABEL_LINE)
+    return out
+
+
+# ---------------------------------------------------------------------------
+# the PDF
+# ---------------------------------------------------------------------------
+
+
+@dataclass
+class PedigreeDrawing:
+    """What :func:`write_pedigree_pdf` wrote."""
+
+    path: Path
+    family: str
+    members: int
+    layout: PedigreeLayout
+    warnings: tuple[str, ...]
+    notes: tuple[str, ...]
+    legend: tuple[str, ...] = field(default_factory=tuple)
+
+
+class _Page:
+    """Layout units -> page points."""
+
+    def __init__(self, layout: PedigreeLayout, x0: float, y0: float, w: float, h: float):
+        b = layout.bounds
+        bw, bh = max(b.x1 - b.x0, 1e-6), max(b.y1 - b.y0, 1e-6)
+        self.scale = min(w / bw, h / bh, MAX_SCALE)
+        self.bx, self.by = b.x0, b.y0
+        # centre horizontally, top-align vertically
+        self.ox = x0 + (w - bw * self.scale) / 2
+        self.oy = y0 + h
+
+    def x(self, v: float) -> float:
+        return self.ox + (v - self.bx) * self.scale
+
+    def y(self, v: float) -> float:
+        return self.oy - (v - self.by) * self.scale
+
+    def d(self, v: float) -> float:
+        return v * self.scale
+
+
+def _draw_shape(c: canvas.Canvas, shape: str, cx: float, cy: float, size: float, filled: bool) -> None:
+    h = size / 2
+    if shape == "square":
+        c.rect(cx - h, cy - h, size, size, stroke=1, fill=1 if filled else 0)
+    elif shape == "circle":
+        c.circle(cx, cy, h, stroke=1, fill=1 if filled else 0)
+    else:
+        p = c.beginPath()
+        p.moveTo(cx, cy + h)
+        p.lineTo(cx + h, cy)
+        p.lineTo(cx, cy - h)
+        p.lineTo(cx - h, cy)
+        p.close()
+        c.drawPath(p, stroke=1, fill=1 if filled else 0)
+
+
+def _draw_symbol(c: canvas.Canvas, m: PersonMarks, cx: float, cy: float, size: float, line_w: float) -> None:
+    """One symbol with its marks, centred at (cx, cy) in points."""
+    c.setLineWidth(line_w)
+    c.setStrokeColorRGB(0, 0, 0)
+    shade = 0 if m.affection == "affected" else 1
+    c.setFillColorRGB(shade, shade, shade)
+    _draw_shape(c, m.shape, cx, cy, size, filled=True)
+    c.setFillColorRGB(0, 0, 0)
+    h = size / 2
+    if m.carrier_mark == "presymptomatic":
+        c.line(cx, cy - h, cx, cy + h)
+    elif m.carrier_mark == "obligate":
+        c.circle(cx, cy, size * 0.1, stroke=0, fill=1)
+    if m.affection == "uncertain":
+        with_line = m.carrier_mark == "presymptomatic"
+        fs = size * (0.46 if with_line else 0.62)
+        c.setFont(FONT_BOLD, fs)
+        dx = size * 0.2 if with_line else 0.0
+        c.drawCentredString(cx + dx, cy - fs * 0.35, "?")
+    if m.adopted:
+        b = size * 0.14
+        t = size * 0.1
+        for sgn in (-1, 1):
+            xb = cx + sgn * (h + b)
+            c.line(xb, cy - h, xb, cy + h)
+            c.line(xb, cy + h, xb - sgn * t, cy + h)
+            c.line(xb, cy - h, xb - sgn * t, cy - h)
+    if m.deceased:
+        e = size * 0.18
+        c.line(cx - h - e, cy - h - e, cx + h + e, cy + h + e)
+
+
+def _draw_arrow(c: canvas.Canvas, pg: _Page, pp: PlacedPerson, line_w: float) -> None:
+    tx, ty, hx, hy = pp.arrow
+    x0, y0, x1, y1 = pg.x(tx), pg.y(ty), pg.x(hx), pg.y(hy)
+    c.setLineWidth(line_w)
+    c.line(x0, y0, x1, y1)
+    ang = math.atan2(y1 - y0, x1 - x0)
+    L = pg.d(0.22)
+    p = c.beginPath()
+    p.moveTo(x1, y1)
+    for da in (2.7, -2.7):
+        p.lineTo(x1 + L * math.cos(ang + da), y1 + L * math.sin(ang + da))
+    p.close()
+    c.drawPath(p, stroke=0, fill=1)
+    fs = pg.d(0.34)
+    c.setFont(FONT_BOLD, fs)
+    c.drawRightString(x0 - pg.d(0.04), y0 - fs * 0.4, "P")
+
+
+def _legend_entries(marks: Mapping[str, PersonMarks], layout: PedigreeLayout) -> list[tuple[str, str]]:
+    """(kind, words) for every symbol used, in a fixed order."""
+    used = list(marks.values())
+    shapes = {m.shape for m in used}
+    out: list[tuple[str, str]] = []
+    for shape, words in (("square", "male"), ("circle", "female"), ("diamond", "sex unknown")):
+        if shape in shapes:
+            out.append((f"shape:{shape}", words))
+    if any(m.affection == "affected" for m in used):
+        out.append(("affected", "affected (HCM)"))
+    if any(m.affection == "unaffected" for m in used):
+        out.append(("unaffected", "unaffected, or not at risk and not assessed"))
+    if any(m.affection == "uncertain" for m in used):
+        out.append(("uncertain", "affection uncertain, or blood relative not assessed"))
+    if any(m.deceased for m in used):
+        out.append(("deceased", "deceased"))
+    if any(m.proband for m in used):
+        out.append(("proband", "proband"))
+    if any(m.carrier_mark == "presymptomatic" for m in used):
+        out.append(("presymptomatic", "presymptomatic carrier (2008 mark)"))
+    if any(m.carrier_mark == "obligate" for m in used):
+        out.append(("obligate", "obligate carrier, inferred (2008 mark)"))
+    kinds = {(s.kind, s.double, s.partner_unknown) for s in layout.segments}
+    if any(k == "relationship" and not d and not u for k, d, u in kinds):
+        out.append(("relationship", "partners (relationship line)"))
+    if any(k == "relationship" and d for k, d, _ in kinds):
+        out.append(("consanguinity", "partners related by blood"))
+    if any(k == "relationship" and u for k, _, u in kinds):
+        out.append(("partner_unknown", "other parent not recorded"))
+    zyg = {t.zygosity for t in layout.twins}
+    for z, words in (("monozygotic", "monozygotic twins"), ("dizygotic", "dizygotic twins"),
+                     ("unknown", "twins, zygosity unknown")):
+        if z in zyg:
+            out.append((f"twins:{z}", words))
+    if any(m.adopted == "in" for m in used):
+        out.append(("adopted_in", "adopted in (dashed line of descent)"))
+    if any(m.adopted == "out" for m in used):
+        out.append(("adopted_out", "adopted out"))
+    if any(m.placeholder for m in used):
+        out.append(("placeholder", "number only: drawn to connect the pedigree"))
+    if any(line.startswith("E") and "(" in line for m in used for line in m.lines):
+        out.append(("text:E", "E = genetic test for the family variant\nE+ carrier; E- non-carrier; "
+                              "Eu inconclusive"))
+    return out
+
+
+def _draw_legend_icon(c: canvas.Canvas, kind: str, x: float, y: float, s: float, lw: float) -> None:
+    c.setLineWidth(lw)
+
+    def m(**kw) -> PersonMarks:
+        base = dict(person="", shape="square", affection="unaffected", deceased=False, proband=False,
+                    placeholder=False, adopted=None, carrier_mark=None, lines=())
+        base.update(kw)
+        return PersonMarks(**base)
+
+    cx, cy = x + s, y
+    if kind.startswith("shape:"):
+        _draw_symbol(c, m(shape=kind.split(":")[1]), cx, cy, s, lw)
+    elif kind in ("affected", "unaffected", "uncertain"):
+        _draw_symbol(c, m(affection=kind), cx, cy, s, lw)
+    elif kind == "deceased":
+        _draw_symbol(c, m(deceased=True), cx, cy, s, lw)
+    elif kind in ("presymptomatic", "obligate"):
+        _draw_symbol(c, m(carrier_mark=kind), cx, cy, s, lw)
+    elif kind == "proband":
+        _draw_symbol(c, m(), cx + s * 0.4, cy, s, lw)
+        x1, y1 = cx + s * 0.4 - s * 0.56, cy - s * 0.12
+        x0, y0 = x1 - s * 0.7, y1 - s * 0.35
+        c.line(x0, y0, x1, y1)
+        c.setFont(FONT_BOLD, s * 0.45)
+        c.drawRightString(x0 - 1, y0 - s * 0.18, "P")
+    elif kind == "relationship":
+        c.line(x, cy, x + 2 * s, cy)
+    elif kind == "consanguinity":
+        c.line(x, cy + s * 0.1, x + 2 * s, cy + s * 0.1)
+        c.line(x, cy - s * 0.1, x + 2 * s, cy - s * 0.1)
+    elif kind == "partner_unknown":
+        _draw_symbol(c, m(), x + s * 0.5, cy, s * 0.8, lw)
+        c.line(x + s * 0.9, cy, x + s * 1.6, cy)
+        c.line(x + s * 1.6, cy, x + s * 1.6, cy - s * 0.5)
+    elif kind.startswith("twins:"):
+        z = kind.split(":")[1]
+        ax, ay = x + s, cy + s * 0.55
+        for dx in (-0.6, 0.6):
+            c.line(ax, ay, ax + dx * s, cy - s * 0.25)
+            _draw_symbol(c, m(shape="circle" if z == "monozygotic" else "square"), ax + dx * s, cy - s * 0.45,
+                         s * 0.4, lw)
+        if z == "monozygotic":
+            c.line(ax - 0.3 * s, (ay + cy - s * 0.25) / 2, ax + 0.3 * s, (ay + cy - s * 0.25) / 2)
+        if z == "unknown":
+            c.setFont(FONT, s * 0.45)
+            c.drawCentredString(ax, cy - s * 0.1, "?")
+    elif kind == "adopted_in":
+        c.setDash(1.5, 1.2)
+        c.line(cx, cy + s * 0.7, cx, cy + s * 0.3)
+        c.setDash()
+        _draw_symbol(c, m(adopted="in"), cx, cy - s * 0.05, s * 0.6, lw)
+    elif kind == "adopted_out":
+        _draw_symbol(c, m(adopted="out"), cx, cy, s * 0.8, lw)
+    elif kind == "placeholder":
+        _draw_symbol(c, m(), cx, cy, s, lw)
+    elif kind == "text:E":
+        c.setFont(FONT_BOLD, s * 0.7)
+        c.drawCentredString(cx, cy - s * 0.25, "E+")
+
+
+def _wrap_words(text: str, font: str, size: float, width: float) -> list[str]:
+    """Greedy word wrap to ``width`` points; ``\\n`` forces a new line."""
+    lines: list[str] = []
+    for para in text.split("\n"):
+        cur = ""
+        for w in para.split():
+            trial = f"{cur} {w}".strip()
+            if stringWidth(trial, font, size) <= width or not cur:
+                cur = trial
+            else:
+                lines.append(cur)
+                cur = w
+        if cur:
+            lines.append(cur)
+    return lines
+
+
+def draw_pedigree(
+    c: canvas.Canvas,
+    layout: PedigreeLayout,
+    marks: Mapping[str, PersonMarks],
+    *,
+    family: str,
+    drawn_on: dt.date,
+    subtitle: str | None = None,
+    names: bool = False,
+) -> list[str]:
+    """Draw one A4-landscape page on ``c``; returns the legend words used."""
+    W, H = PAGE
+    top = H - MARGIN
+    c.setTitle(f"Pedigree {family}")
+    c.setAuthor("tracker")
+    c.setSubject(f"Pedigree of family {family}, drawn {drawn_on.isoformat()}")
+    c.setFont(FONT_BOLD, 14)
+    c.drawString(MARGIN, top - 12, f"Pedigree of family {family}")
+    c.setFont(FONT, 9)
+    c.drawRightString(W - MARGIN, top - 10, f"Drawn {drawn_on.isoformat()}")
+    c.drawRightString(W - MARGIN, top - 22, "Drawn by tracker")
+    if subtitle:
+        c.setFont(FONT, 9)
+        c.drawString(MARGIN, top - 26, subtitle)
+    header_bottom = top - 36
+    footer_top = MARGIN + 44
+
+    # legend panel
+    lx = W - MARGIN - LEGEND_WIDTH
+    c.setLineWidth(0.6)
+    c.setFont(FONT_BOLD, 9)
+    c.drawString(lx, header_bottom - 10, "Legend")
+    entries = _legend_entries(marks, layout)
+    ly = header_bottom - 26
+    s_icon = 10.0
+    for kind, words in entries:
+        _draw_legend_icon(c, kind, lx, ly + 3, s_icon, 0.7)
+        c.setFont(FONT, 7.2)
+        wrapped = _wrap_words(words, FONT, 7.2, LEGEND_WIDTH - 3 * s_icon - 4)
+        for i, line in enumerate(wrapped):
+            c.drawString(lx + 3 * s_icon + 2, ly + 1 - i * 8.5, line)
+        ly -= max(16.0, 8.5 * len(wrapped) + 7.5)
+    notes = [
+        "Shape follows the sex recorded at birth; a recorded gender identity is written under the symbol "
+        "with AMAB/AFAB/UAAB (2022 wording).",
+        "Carrier marks follow the 2008 recommendations; the 2022 revision shows carrier status differently, "
+        "so the test result is always printed as text.",
+        "Under each symbol: " + ("name" if names else "person code") + "; birth year or death; evaluation; "
+        "individual number (generation-position).",
+    ]
+    c.setFont(FONT, 6.5)
+    ly -= 4
+    for n in notes:
+        for line in _wrap_words(n, FONT, 6.5, LEGEND_WIDTH):
+            c.drawString(lx, ly, line)
+            ly -= 7.6
+        ly -= 2
+
+    # pedigree area
+    area_x0 = MARGIN + 26
+    area_w = lx - 16 - area_x0
+    area_h = header_bottom - 8 - footer_top
+    pg = _Page(layout, area_x0, footer_top, area_w, area_h)
+    lw = max(0.5, min(1.1, pg.d(0.045)))
+    sym = pg.d(layout.symbol_size)
+
+    # generation numerals
+    c.setFont(FONT_BOLD, max(7.0, min(12.0, pg.d(0.45))))
+    for g in layout.generations:
+        c.drawString(MARGIN, pg.y(g.y) - 4, g.roman)
+
+    c.setLineWidth(lw)
+    for sgm in layout.segments:
+        x0, y0, x1, y1 = pg.x(sgm.x0), pg.y(sgm.y0), pg.x(sgm.x1), pg.y(sgm.y1)
+        if sgm.dashed:
+            c.setDash(max(1.5, pg.d(0.12)), max(1.2, pg.d(0.09)))
+        if sgm.double:
+            off = pg.d(0.07)
+            c.line(x0, y0 + off, x1, y1 + off)
+            c.line(x0, y0 - off, x1, y1 - off)
+        else:
+            c.line(x0, y0, x1, y1)
+        if sgm.dashed:
+            c.setDash()
+    for t in layout.twins:
+        if t.zygosity == "unknown":
+            fs = pg.d(0.3)
+            c.setFont(FONT, fs)
+            c.drawCentredString(pg.x(t.apex_x), pg.y(t.apex_y) - fs * 1.15, "?")
+
+    fs = pg.d(LABEL_FONT)
+    for pp in layout.people:
+        m = marks[pp.person]
+        _draw_symbol(c, m, pg.x(pp.x), pg.y(pp.y), sym, lw)
+        if pp.arrow:
+            _draw_arrow(c, pg, pp, lw)
+        c.setFont(FONT, fs)
+        c.setFillColorRGB(0, 0, 0)
+        for i, line in enumerate(_label_lines(m, pp.label)):
+            yl = pp.label_box.y0 + (i + 0.8) * LABEL_LINE
+            c.drawCentredString(pg.x(pp.x), pg.y(yl), line)
+
+    # footer
+    c.setFont(FONT, 7)
+    fy = MARGIN + 34
+    foot = [
+        f"Family {family}. Drawn {drawn_on.isoformat()} by tracker. "
+        + ("Names shown on request; handle as identifiable." if names else "Person codes only; no names."),
+        CAUTION,
+    ]
+    warn = list(layout.warnings)
+    if warn:
+        foot.append("Layout warnings: " + " | ".join(warn))
+    lines: list[str] = []
+    for f in foot:
+        lines += _wrap_words(f, FONT, 7, W - 2 * MARGIN)
+    for line in lines[:5]:
+        c.drawString(MARGIN, fy, line)
+        fy -= 8.5
+    return [w.replace("\n", " ") for _, w in entries]
+
+
+def write_pedigree_pdf(
+    out_path: str | Path,
+    family: str,
+    people: pd.DataFrame,
+    genetic_results: pd.DataFrame | None = None,
+    assessments: pd.DataFrame | None = None,
+    variants: pd.DataFrame | None = None,
+    *,
+    names: bool = False,
+    drawn_on: dt.date | None = None,
+) -> PedigreeDrawing:
+    """Lay out and draw the pedigree of ``family`` into ``out_path`` (one A4 landscape page).
+
+    Frames are those of :mod:`tracker.store.repository` (all families may be
+    passed).  Raises ``KeyError`` when the family has no members.
+    """
+    members = people[people["family"] == family].reset_index(drop=True)
+    if members.empty:
+        raise KeyError(family)
+    codes = set(members["person"])
+    frame = members.copy()
+    for col in ("mother", "father", "twin_of"):  # links into another family are not drawn
+        if col in frame.columns:
+            frame.loc[frame[col].notna() & ~frame[col].isin(codes), col] = None
+    ped = Pedigree(frame)
+    marks = pedigree_marks(ped, frame, genetic_results, assessments, variants, family=family, names=names)
+    layout = layout_pedigree(ped, label_sizes(marks))
+    fv = family_variant(variants, family)
+    subtitle = f"Family variant: {fv.describe()}" if fv else "No family variant recorded"
+    when = drawn_on or dt.date.today()
+    out = Path(out_path)
+    c = canvas.Canvas(str(out), pagesize=PAGE, invariant=1)
+    legend = draw_pedigree(c, layout, marks, family=family, drawn_on=when, subtitle=subtitle, names=names)
+    c.showPage()
+    c.save()
+    return PedigreeDrawing(out, family, len(members), layout, layout.warnings, layout.notes, tuple(legend))
+
+
+def render_png(pdf_path: str | Path, png_path: str | Path, *, page: int = 0, scale: float = 2.0) -> Path:
+    """Render one page of a PDF to a PNG file (``scale`` 1 = 72 dpi)."""
+    import pypdfium2 as pdfium
+
+    doc = pdfium.PdfDocument(str(pdf_path))
+    try:
+        bitmap = doc[page].render(scale=scale)
+        image = bitmap.to_pil()
+        out = Path(png_path)
+        image.save(out)
+    finally:
+        doc.close()
+    return out
