@@ -201,7 +201,10 @@ def families_(db: DbOption = None, json_out: JsonOption = False) -> None:
 
 
 def register(app: typer.Typer) -> None:
+    from tracker.cli.export_fhir import export_fhir_command
+
     app.command("import")(import_)
     app.command("export")(export_)
+    app.command("export-fhir")(export_fhir_command)
     app.command("demo")(demo)
     app.command("families")(families_)
