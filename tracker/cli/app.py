@@ -7,7 +7,7 @@ import sys
 import typer
 
 from tracker import __version__
-from tracker.cli import admin, families
+from tracker.cli import admin, families, recall, reports, review
 from tracker.cli.common import dispose_engines
 from tracker.errors import UserError
 from tracker.io.reading import InputRejected
@@ -43,6 +43,9 @@ def _root(
 
 admin.register(app)
 families.register(app)
+review.register(app)
+recall.register(app)
+reports.register(app)
 
 
 def _one_line(message: str) -> str:

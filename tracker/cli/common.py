@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import sys
+from pathlib import Path
 from typing import Annotated, Any
 
 import typer
@@ -21,6 +22,15 @@ DbOption = Annotated[
         envvar=ENV_VAR,
         help="SQLite file path or database URL (postgresql+psycopg://...). "
         f"Default: ${ENV_VAR}, else ./tracker.sqlite",
+        show_default=False,
+    ),
+]
+SettingsOption = Annotated[
+    Path | None,
+    typer.Option(
+        "--settings",
+        envvar="TRACKER_SETTINGS",
+        help="Clinic settings file (TOML). Default: $TRACKER_SETTINGS, else ./tracker.toml, else built-in defaults.",
         show_default=False,
     ),
 ]
