@@ -61,8 +61,8 @@ def _probability(db, person):
 
 # person, family type, extra options
 DEMO_RELATIVES = [
-    ("HV01-III-6", "plp", ()),  # half-brother of the proband, mother untested
-    ("HV01-II-2", "plp", ("--via-proband",)),
+    ("HV01-IV-5", "plp", ()),  # niece of the proband, father untested (declined)
+    ("HV01-IV-5", "plp", ("--via-proband",)),
     ("HV01-IV-4", "plp", ()),  # lost to follow-up
     ("HV02-IV-4", "plp", ()),  # a child: to the parent or guardian
     ("HV04-IV-2", "plp", ("--via-proband",)),  # a child
@@ -91,7 +91,7 @@ def test_every_default_template_meets_the_readability_target(run, demo_db, tmp_p
 
 
 def test_readability_figures_are_textstats_for_the_letter(run, demo_db, tmp_path):
-    r = _letter(run, demo_db, "HV01-III-6", tmp_path, "--json")
+    r = _letter(run, demo_db, "HV01-IV-5", tmp_path, "--json")
     d = json.loads(r.out)
     # the same letter through the library: same figures as textstat gives on the measured text
     engine = make_engine(locate(demo_db))
@@ -102,7 +102,7 @@ def test_readability_figures_are_textstats_for_the_letter(run, demo_db, tmp_path
     engine.dispose()
     v = st.variant
     lv = L.LetterVariant(v.gene, v.transcript, v.hgvs_c, v.hgvs_p, v.zygosity, v.current_class, v.classified_on)
-    plan = L.prepare_letter(st.pedigree, st.genotypes, lv, "HV01-III-6", dt.date(2026, 12, 1), "esc_2023",
+    plan = L.prepare_letter(st.pedigree, st.genotypes, lv, "HV01-IV-5", dt.date(2026, 12, 1), "esc_2023",
                             CLINIC, affected=st.affected, seen=st.seen)  # fmt: skip
     text = L.measured_text(L.compose_letter(plan).filled)
     t, _ = L.meter()
@@ -115,9 +115,9 @@ def test_readability_figures_are_textstats_for_the_letter(run, demo_db, tmp_path
     "person, expected",
     [
         # maternal half-brother of the proband, mother untested: second degree, 1/4 (Wright's r)
-        ("HV01-III-6", "about 1 in 4 (25%)"),
+        ("HV01-IV-5", "about 1 in 4 (25%)"),
         # mother of the proband, untested: first degree, 1/2
-        ("HV01-II-2", "about 1 in 2 (50%)"),
+        ("HV04-IV-2", "about 1 in 2 (50%)"),
         # son of the proband's monozygotic co-twin: genetically a child of a carrier, 1/2
         ("HV02-IV-4", "about 1 in 2 (50%)"),
         ("HV04-IV-2", "about 1 in 2 (50%)"),
@@ -131,9 +131,9 @@ def test_risk_figure_equals_the_pedigree_computation(run, demo_db, tmp_path, per
 
 
 def test_pdf_holds_the_facts_and_renders(run, demo_db, tmp_path):
-    r = _letter(run, demo_db, "HV01-III-6", tmp_path)
+    r = _letter(run, demo_db, "HV01-IV-5", tmp_path)
     assert r.code == 0, r
-    pdf = tmp_path / "letter-HV01-III-6.pdf"
+    pdf = tmp_path / "letter-HV01-IV-5.pdf"
     assert r.out.splitlines()[0] == f"wrote {pdf}"
     assert "Flesch reading ease" in r.out and "Flesch-Kincaid grade" in r.out
     reader = PdfReader(str(pdf))
@@ -146,7 +146,7 @@ def test_pdf_holds_the_facts_and_renders(run, demo_db, tmp_path):
         CLINIC.phone,
         CLINIC.email,
         "Tollbridge Road",
-        "HV01-III-6",
+        "HV01-IV-5",
         f"Date: {DATE}",
         "about 1 in 4 (25%)",
         "This letter is information, not a diagnosis.",
@@ -159,7 +159,7 @@ def test_pdf_holds_the_facts_and_renders(run, demo_db, tmp_path):
     ):
         assert fact in text, fact
     # codes only by default; no other family member named or coded
-    for absent in ("Neil", "Farrant", "Graham", "Thornbury", "HV01-III-1", "HV01-II-2"):
+    for absent in ("Ruby", "Martin", "Graham", "Thornbury", "HV01-III-1", "HV01-III-5"):
         assert absent not in text, absent
     png = render_png(pdf, tmp_path / "page1.png")
     data = png.read_bytes()
@@ -172,12 +172,12 @@ def test_pdf_holds_the_facts_and_renders(run, demo_db, tmp_path):
 
 
 def test_names_only_with_the_option(run, demo_db, tmp_path):
-    r = _letter(run, demo_db, "HV01-III-6", tmp_path, "--names")
+    r = _letter(run, demo_db, "HV01-IV-5", tmp_path, "--names")
     assert r.code == 0, r
-    text = _pdf_text(tmp_path / "letter-HV01-III-6.pdf")
-    assert "Neil Farrant" in text and "Dear Neil Farrant," in text
-    assert "Graham" not in text and "Margaret" not in text  # nobody else is named
-    assert list(tmp_path.glob("*.pdf")) == [tmp_path / "letter-HV01-III-6.pdf"]  # file name: code only
+    text = _pdf_text(tmp_path / "letter-HV01-IV-5.pdf")
+    assert "Ruby Thornbury" in text and "Dear Ruby Thornbury," in text
+    assert "Graham" not in text and "Martin" not in text  # nobody else is named
+    assert list(tmp_path.glob("*.pdf")) == [tmp_path / "letter-HV01-IV-5.pdf"]  # file name: code only
 
 
 def test_child_letter_is_addressed_to_a_parent(run, demo_db, tmp_path):
@@ -235,7 +235,7 @@ def test_refused_with_one_line_and_exit_1(run, demo_db, tmp_path, person, words)
 def test_own_template_with_unknown_placeholder(run, demo_db, tmp_path):
     bad = tmp_path / "clinic-letter.txt"
     bad.write_text("@subject S\n@greeting Dear {{ recipient_name }},\n@closing Bye,\n\nCall {{ fax }}.\n")
-    r = _letter(run, demo_db, "HV01-III-6", tmp_path / "out", "--template", bad)
+    r = _letter(run, demo_db, "HV01-IV-5", tmp_path / "out", "--template", bad)
     assert r.code == 1
     assert r.err.strip().splitlines() == [
         "error: template clinic-letter.txt line 5: unknown placeholder {{ fax }} (known: "
@@ -249,7 +249,7 @@ def test_own_template_is_used_and_measured(run, demo_db, tmp_path):
         "# a short clinic letter\n@subject Your heart\n@greeting Dear {{ recipient_name }},\n@closing Best wishes,\n"
         "\nYour chance is {{ risk }}. Please call us on {{ clinic_phone }}. We can help you.\n"
     )
-    r = _letter(run, demo_db, "HV01-III-6", tmp_path / "out", "--template", own, "--json")
+    r = _letter(run, demo_db, "HV01-IV-5", tmp_path / "out", "--template", own, "--json")
     assert r.code == 0, r
     d = json.loads(r.out)
     assert d["template"] == str(own)
@@ -259,14 +259,14 @@ def test_own_template_is_used_and_measured(run, demo_db, tmp_path):
 def test_settings_without_contact_details(run, demo_db, tmp_path):
     s = tmp_path / "bare.toml"
     s.write_text('[clinic]\nname = "Invented Clinic"\n')
-    r = run("report", "letter", "HV01-III-6", "--out", tmp_path, "--settings", s, db=demo_db)
+    r = run("report", "letter", "HV01-IV-5", "--out", tmp_path, "--settings", s, db=demo_db)
     assert r.code == 1 and "phone is empty" in r.err and len(r.err.strip().splitlines()) == 1
 
 
 def test_bad_date_and_guideline(run, demo_db, tmp_path):
-    r = _letter(run, demo_db, "HV01-III-6", tmp_path, "--date", "2026-13-01")
+    r = _letter(run, demo_db, "HV01-IV-5", tmp_path, "--date", "2026-13-01")
     assert r.code == 1 and "--date" in r.err
-    r = _letter(run, demo_db, "HV01-III-6", tmp_path, "--guideline", "esc_2014")
+    r = _letter(run, demo_db, "HV01-IV-5", tmp_path, "--guideline", "esc_2014")
     assert r.code == 1 and "no cascade rule set" in r.err
 
 

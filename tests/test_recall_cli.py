@@ -108,15 +108,21 @@ def test_cascade_for_a_plp_family_lists_untested_relatives_and_gaps(demo_db, run
     assert set(d) == CASCADE_KEYS
     assert d["guideline"] == "esc_2023" and d["variant"]["acmg_class"] == "pathogenic"
     testing = {t["person"]: t for t in d["predictive_testing"]}
-    # ESC 2023 (cascade testing of at-risk relatives, adults I B): untested, reachable relatives at risk
-    assert testing, d
-    for t in testing.values():
+    # In HV01 every reachable at-risk relative has been tested: the mother (II-2) tested non-carrier,
+    # so the variant is paternal and her son by her second husband (III-6) is not at risk.
+    assert "HV01-II-2" not in testing and "HV01-III-6" not in testing
+    # ESC 2023 (cascade testing of at-risk relatives, adults I B; children IIa B, no minimum age):
+    # HV02-IV-4, untested child of a carrier, is offered testing at 1/2.
+    d2 = js(run, "cascade", "HV02", "--as-of", "2026-11-30", "--settings", SETTINGS, db=demo_db)
+    offered = {t["person"]: t for t in d2["predictive_testing"]}
+    assert offered["HV02-IV-4"]["probability"] == 0.5
+    for t in list(testing.values()) + list(offered.values()):
         assert t["reason"] and "ESC 2023" in t["source"] and t["probability"] > 0
     # carriers (HV01-III-3 G+P-) are screened, not offered testing; ESC 2023 §6.11 carrier surveillance
     screening = {s["person"]: s for s in d["clinical_screening"]}
     assert "HV01-III-3" in screening and "HV01-III-3" not in testing
-    # the non-carrier nephew is released (ESC 2023 §6.11 discharge of G- relatives, I C)
-    assert [r["person"] for r in d["released"]] == ["HV01-IV-3"]
+    # the non-carrier mother and nephew are released (ESC 2023 §6.11 discharge of G- relatives, I C)
+    assert [r["person"] for r in d["released"]] == ["HV01-II-2", "HV01-IV-3"]  # both tested non-carriers
     gaps = {g["person"]: g for g in d["gaps"]}
     assert gaps["HV01-III-5"]["gap"] == "declined" and gaps["HV01-III-5"]["recalled"] is False  # listed, not recalled
     assert gaps["HV01-IV-4"]["gap"] == "lost_to_follow_up"
