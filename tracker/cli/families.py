@@ -202,9 +202,11 @@ def families_(db: DbOption = None, json_out: JsonOption = False) -> None:
 
 def register(app: typer.Typer) -> None:
     from tracker.cli.export_fhir import export_fhir_command
+    from tracker.cli.synth import synth
 
     app.command("import")(import_)
     app.command("export")(export_)
     app.command("export-fhir")(export_fhir_command)
+    app.command("synth")(synth)
     app.command("demo")(demo)
     app.command("families")(families_)

@@ -1,0 +1,498 @@
+"""Benchmark on a synthetic cohort: generation, import, whole-cohort trends, memory.
+
+Run (never run by the test suite)::
+
+    .venv/bin/python -m tracker.bench --families 1000
+    .venv/bin/python -m tracker.bench --families 10000 --json bench.json
+    .venv/bin/python -m tracker.bench --db postgresql+psycopg://root@127.0.0.1:5432/test
+
+Every figure and ratio printed is measured in the one run.  The benchmark is
+a list of :class:`Step` objects (``STEPS``) run in order on one shared
+:class:`Run`; a new measurement is added by appending a step.  Each step
+returns a dict of figures; ``TARGETS`` compares some of them with the
+project's goals.
+
+Steps:
+
+synth       generate the cohort and write its CSV files (tracker.synth)
+import      ``tracker import all`` of the whole cohort into a new database, one
+            transaction, timed file by file (tracker.io.csv_import)
+raw_insert  the same measurement rows inserted with a plain DB-API
+            ``executemany`` into an equivalent table (same columns, primary key,
+            unique constraint and index; no foreign keys), in one transaction:
+            sqlite3 always; psycopg too when ``--db`` is a PostgreSQL URL
+read        the measurement table read alone (``SELECT *``), and the studies in
+            long form through the repository (``load_studies``)
+trends      per_person_ols, consecutive_changes, project_crossings and
+            progression_flags on every (person, measure) series, and
+            empirical_bayes_slopes on mwt_echo
+statsmodels statsmodels OLS fitted series by series on a random sample of
+            ``--sample`` series; per-series speed ratio and a check that both
+            give the same slope, standard error and interval
+memory      peak resident memory of this process (getrusage ru_maxrss)
+
+The database is a new SQLite file in a temporary folder unless ``--db`` says
+otherwise; a PostgreSQL URL gets a new schema, dropped at the end.
+"""
+
+from __future__ import annotations
+
+import argparse
+import cProfile
+import datetime as dt
+import io
+import json
+import os
+import platform
+import pstats
+import resource
+import sqlite3
+import sys
+import tempfile
+import time
+import uuid
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from tracker import synth
+from tracker.io import csv_import
+from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
+
+# --------------------------------------------------------------------------- run state
+
+
+@dataclass
+class Run:
+    """What the steps share: options, where things are, and every figure measured so far."""
+
+    args: argparse.Namespace
+    workdir: Path
+    cohort_dir: Path | None = None
+    db_url: str | None = None
+    is_postgres: bool = False
+    engine: object = None
+    figures: dict[str, dict] = field(default_factory=dict)
+    frames: dict[str, pd.DataFrame] = field(default_factory=dict)
+    cleanup: list[Callable[[], None]] = field(default_factory=list)
+
+    def fig(self, step: str, name: str):
+        return self.figures.get(step, {}).get(name)
+
+
+@dataclass(frozen=True)
+class Step:
+    name: str
+    description: str
+    run: Callable[[Run], dict]
+
+
+def _timed(fn, *a, **kw):
+    t0 = time.perf_counter()
+    out = fn(*a, **kw)
+    return out, time.perf_counter() - t0
+
+
+def _rss_mb() -> float:
+    """Peak resident set size of this process so far, MB (Linux reports ru_maxrss in KiB)."""
+    kib = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    return kib / 1024.0 if sys.platform != "darwin" else kib / 1024.0**2
+
+
+# --------------------------------------------------------------------------- steps
+
+
+def step_synth(r: Run) -> dict:
+    if r.args.cohort:
+        r.cohort_dir = Path(r.args.cohort)
+        if not (r.cohort_dir / "studies.csv").exists():
+            raise SystemExit(f"--cohort {r.cohort_dir}: no studies.csv there")
+        return {"reused_folder": str(r.cohort_dir), **_file_rows(r.cohort_dir)}
+    r.cohort_dir = r.workdir / "cohort"
+    cohort, t_gen = _timed(synth.generate, r.args.families, r.args.seed)
+    _, t_write = _timed(synth.write, cohort, r.cohort_dir)
+    counts = cohort.counts()
+    del cohort
+    return {
+        "families": counts["families"], "people": counts["people"], "studies": counts["studies"],
+        "values": counts["values"], "csv_rows": _total_rows(r.cohort_dir),
+        "generate_s": t_gen, "write_s": t_write, "total_s": t_gen + t_write,
+        "studies_csv_mb": (r.cohort_dir / "studies.csv").stat().st_size / 1e6,
+    }  # fmt: skip
+
+
+def _file_rows(folder: Path) -> dict:
+    return {LAYOUTS[k].file_name: _count_lines(folder / LAYOUTS[k].file_name) for k in IMPORT_ORDER}
+
+
+def _count_lines(path: Path) -> int:
+    with open(path, "rb") as fh:
+        return max(sum(1 for _ in fh) - 1, 0)
+
+
+def _total_rows(folder: Path) -> int:
+    return sum(_file_rows(folder).values())
+
+
+def _open_database(r: Run) -> None:
+    from sqlalchemy import create_engine, text
+
+    from tracker.store import migrate
+    from tracker.store.database import locate, make_engine
+
+    if r.args.db and "://" in r.args.db and r.args.db.startswith("postgresql"):
+        base = r.args.db
+        schema = "bench_" + uuid.uuid4().hex[:10]
+        admin = create_engine(base)
+        with admin.begin() as conn:
+            conn.execute(text(f'CREATE SCHEMA "{schema}"'))
+
+        def _drop():
+            with admin.begin() as conn:
+                conn.execute(text(f'DROP SCHEMA "{schema}" CASCADE'))
+            admin.dispose()
+
+        if not r.args.keep:
+            r.cleanup.append(_drop)
+        sep = "&" if "?" in base else "?"
+        r.db_url = f"{base}{sep}options=-csearch_path%3D{schema}"
+        r.is_postgres = True
+    else:
+        path = Path(r.args.db) if r.args.db else r.workdir / "bench.sqlite"
+        if path.exists():
+            raise SystemExit(f"--db {path} exists; the benchmark needs a new database file")
+        r.db_url = str(path)
+    r.engine = make_engine(locate(r.db_url), create=True)
+    r.cleanup.insert(0, r.engine.dispose)
+    migrate.upgrade(r.engine)
+
+
+def step_import(r: Run) -> dict:
+    from tracker.store.database import writing
+
+    _open_database(r)
+    out: dict = {"database": "postgresql" if r.is_postgres else "sqlite"}
+    prof = cProfile.Profile() if r.args.profile_import else None
+    t_all = time.perf_counter()
+    with writing(r.engine) as conn:
+        for kind in IMPORT_ORDER:
+            path = r.cohort_dir / LAYOUTS[kind].file_name
+            if prof:
+                prof.enable()
+            s, t = _timed(csv_import.import_file, conn, kind, path, user="bench")
+            if prof:
+                prof.disable()
+            out[f"{kind}_rows"] = s.rows_read
+            out[f"{kind}_s"] = t
+            print(f"    import {kind}: {s.rows_read} rows in {t:.1f} s", flush=True)
+        t_commit = time.perf_counter()
+    out["commit_s"] = time.perf_counter() - t_commit
+    total = time.perf_counter() - t_all
+    rows = sum(v for k, v in out.items() if k.endswith("_rows"))
+    out.update(total_s=total, rows=rows, rows_per_s=rows / total)
+    out["studies_rows_per_s"] = out["studies_rows"] / out["studies_s"]
+    if prof:
+        prof.dump_stats(r.args.profile_import)
+        buf = io.StringIO()
+        pstats.Stats(prof, stream=buf).sort_stats("cumulative").print_stats(40)
+        print(buf.getvalue())
+        out["profile"] = str(r.args.profile_import)
+    return out
+
+
+_MEASUREMENT_DDL = (
+    "CREATE TABLE measurement (id INTEGER NOT NULL PRIMARY KEY, study_id INTEGER NOT NULL, "
+    "measure_code VARCHAR(40) NOT NULL, value FLOAT NOT NULL, unit VARCHAR(20) NOT NULL, "
+    "entered_value FLOAT NOT NULL, entered_unit VARCHAR(20) NOT NULL, "
+    "CONSTRAINT uq_measurement_study_id UNIQUE (study_id, measure_code))"
+)
+_MEASUREMENT_INDEX = "CREATE INDEX ix_measurement_study_id ON measurement (study_id)"
+_INSERT = (
+    "INSERT INTO measurement (study_id, measure_code, value, unit, entered_value, entered_unit) "
+    "VALUES ({p}, {p}, {p}, {p}, {p}, {p})"
+)
+
+
+def step_raw_insert(r: Run) -> dict:
+    with r.engine.connect() as conn:
+        rows = conn.exec_driver_sql(
+            "SELECT study_id, measure_code, value, unit, entered_value, entered_unit FROM measurement ORDER BY id"
+        ).all()
+    rows = [tuple(x) for x in rows]
+    out: dict = {"rows": len(rows)}
+    # sqlite3: a new file with the same pragmas as the store (WAL, foreign keys on), one transaction.
+    path = r.workdir / "raw.sqlite"
+    if path.exists():
+        path.unlink()
+    db = sqlite3.connect(path, isolation_level=None)
+    db.execute("PRAGMA journal_mode = WAL")
+    db.execute("PRAGMA foreign_keys = ON")
+    db.execute(_MEASUREMENT_DDL)
+    db.execute(_MEASUREMENT_INDEX)
+    t0 = time.perf_counter()
+    db.execute("BEGIN IMMEDIATE")
+    db.executemany(_INSERT.format(p="?"), rows)
+    db.execute("COMMIT")
+    out["sqlite3_s"] = time.perf_counter() - t0
+    out["sqlite3_rows_per_s"] = len(rows) / out["sqlite3_s"]
+    db.close()
+    if r.is_postgres:
+        import psycopg
+
+        raw = r.engine.raw_connection()
+        try:
+            pg: psycopg.Connection = raw.driver_connection
+            schema = "raw_" + uuid.uuid4().hex[:8]
+            with pg.cursor() as cur:
+                cur.execute(f'CREATE SCHEMA "{schema}"')
+                cur.execute(_MEASUREMENT_DDL.replace("measurement", f'"{schema}".measurement', 1)
+                            .replace("id INTEGER NOT NULL PRIMARY KEY", "id SERIAL PRIMARY KEY"))  # fmt: skip
+                cur.execute(_MEASUREMENT_INDEX.replace("ix_measurement_study_id ON measurement",
+                                                       f'ix_raw ON "{schema}".measurement'))  # fmt: skip
+            pg.commit()
+            t0 = time.perf_counter()
+            with pg.cursor() as cur:
+                cur.executemany(_INSERT.replace("measurement", f'"{schema}".measurement').format(p="%s"), rows)
+            pg.commit()
+            out["psycopg_s"] = time.perf_counter() - t0
+            out["psycopg_rows_per_s"] = len(rows) / out["psycopg_s"]
+            with pg.cursor() as cur:
+                cur.execute(f'DROP SCHEMA "{schema}" CASCADE')
+            pg.commit()
+        finally:
+            raw.close()
+    base = out["psycopg_s"] if r.is_postgres else out["sqlite3_s"]
+    out["import_over_raw"] = r.fig("import", "total_s") / base
+    out["studies_file_over_raw"] = r.fig("import", "studies_s") / base
+    return out
+
+
+def _existing_engine(r: Run):
+    """The engine of the run, or of ``--existing-db`` when the import step was not run."""
+    if r.engine is None:
+        from tracker.store.database import locate, make_engine
+
+        if not r.args.existing_db:
+            raise SystemExit("the read step needs the import step first, or --existing-db")
+        r.db_url = r.args.existing_db
+        r.is_postgres = r.db_url.startswith("postgresql")
+        r.engine = make_engine(locate(r.db_url))
+        r.cleanup.insert(0, r.engine.dispose)
+    return r.engine
+
+
+def step_read(r: Run) -> dict:
+    from tracker.store import repository as repo
+    from tracker.store.database import reading
+
+    with reading(_existing_engine(r)) as conn:
+        # Every row fetched, streamed in batches (not kept: the read alone, no frame built).
+        t0 = time.perf_counter()
+        n = 0
+        for batch in conn.exec_driver_sql("SELECT * FROM measurement").partitions(50_000):
+            n += len(batch)
+        t_raw = time.perf_counter() - t0
+        rss_before = _rss_mb()
+        studies, t_studies = _timed(repo.load_studies, conn, entered=False)
+        people, t_people = _timed(repo.load_people, conn)
+    r.frames["studies"], r.frames["people"] = studies, people
+    return {"measurement_rows": n, "measurement_table_s": t_raw, "load_studies_s": t_studies,
+            "load_people_s": t_people, "peak_rss_mb_before_load_studies": rss_before,
+            "studies_frame_mb": float(studies.memory_usage(deep=True).sum() / 1e6)}  # fmt: skip
+
+
+def _long_frame(studies: pd.DataFrame, people: pd.DataFrame) -> pd.DataFrame:
+    """The trend engine's long frame: one row per value with age at the study (days / 365.2425)."""
+    s = studies[studies["measure"].notna()]
+    birth = people.set_index("person")["birth_date"]
+    b = s["person"].map(birth).astype(object)
+    b = b.where(b.str.len() != 4, b + "-07-01")  # a year-only birth date stands for 1 July
+    bd = pd.to_datetime(b, format="%Y-%m-%d").to_numpy(dtype="datetime64[D]")
+    sd = pd.to_datetime(s["study_date"], format="%Y-%m-%d").to_numpy(dtype="datetime64[D]")
+    return pd.DataFrame({
+        "person": s["person"].to_numpy(dtype=object), "measure": s["measure"].to_numpy(dtype=object),
+        "modality": s["modality"].to_numpy(dtype=object), "study_date": sd,
+        "age_years": (sd - bd).astype(np.int64) / 365.2425, "value": s["value"].to_numpy(dtype=float),
+    })  # fmt: skip
+
+
+def step_trends(r: Run) -> dict:
+    from tracker.engines import trends
+    from tracker.engines.cohort_model import empirical_bayes_slopes
+
+    df, t_frame = _timed(_long_frame, r.frames["studies"], r.frames["people"])
+    ols, t_ols = _timed(trends.per_person_ols, df)
+    changes, t_changes = _timed(trends.consecutive_changes, df)
+    proj, t_proj = _timed(trends.project_crossings, ols, {"mwt_echo": 13.0, "mwt_cmr": 13.0})
+    _, t_flags = _timed(trends.progression_flags, ols, changes, proj)
+    _, t_eb = _timed(empirical_bayes_slopes, df, "mwt_echo")
+    r.frames["long"], r.frames["ols"] = df, ols
+    engine_s = t_ols + t_changes + t_proj + t_flags
+    raw = r.fig("read", "measurement_table_s")
+    return {
+        "values": len(df), "series": len(ols), "series_n_ge_3": int((ols["n"] >= 3).sum()),
+        "long_frame_s": t_frame, "per_person_ols_s": t_ols, "consecutive_changes_s": t_changes,
+        "project_crossings_s": t_proj, "progression_flags_s": t_flags, "empirical_bayes_mwt_echo_s": t_eb,
+        "engine_s": engine_s,
+        "ols_over_read": t_ols / raw, "engine_over_read": engine_s / raw,
+        "engine_and_frame_over_read": (engine_s + t_frame) / raw,
+    }  # fmt: skip
+
+
+def step_statsmodels(r: Run) -> dict:
+    import statsmodels.api as sm
+
+    df, ols = r.frames["long"], r.frames["ols"]
+    eligible = ols[(ols["n"] >= 3) & np.isfinite(ols["se_slope"])]
+    rng = np.random.default_rng(r.args.seed)
+    k = min(r.args.sample, len(eligible))
+    pick = eligible.iloc[np.sort(rng.choice(len(eligible), size=k, replace=False))]
+    keys = set(zip(pick["person"], pick["measure"]))
+    sub = df[pd.MultiIndex.from_arrays([df["person"], df["measure"]]).isin(keys)]
+    groups = {key: g for key, g in sub.groupby(["person", "measure"], sort=False)}
+    fits = []
+    t0 = time.perf_counter()
+    for key in zip(pick["person"], pick["measure"]):
+        g = groups[key]
+        res = sm.OLS(g["value"].to_numpy(), sm.add_constant(g["age_years"].to_numpy())).fit()
+        ci = res.conf_int(0.05)
+        fits.append((res.params[1], res.bse[1], ci[1, 0], ci[1, 1], res.pvalues[1]))
+    t_sm = time.perf_counter() - t0
+    got = np.array(fits, dtype=float)
+    ours = pick[["slope", "se_slope", "ci_low", "ci_high", "p_value"]].to_numpy(dtype=float).copy()
+    # A series whose values lie exactly on a line (e.g. a value clipped to the same number at every
+    # study) has no residual scatter: its p-value is 0/0, NaN here and NaN or round-off in statsmodels.
+    # Such series are counted and their p-values left out of the comparison.
+    exact = pick["resid_sd"].to_numpy(dtype=float) < 1e-9
+    got[exact, 4] = ours[exact, 4] = 0.0
+    both = np.isfinite(got) & np.isfinite(ours)
+    diff = np.where(both, np.abs(got - ours), 0.0)
+    scale = np.maximum(np.abs(got), 1e-12)
+    nan_mismatch = int((np.isnan(got) != np.isnan(ours)).sum())
+    equal = bool(np.allclose(ours, got, rtol=1e-7, atol=1e-10, equal_nan=True))
+    per_sm = t_sm / k
+    per_ours = r.fig("trends", "per_person_ols_s") / r.fig("trends", "series")
+    return {
+        "sample_series": k, "statsmodels_s": t_sm, "statsmodels_per_series_ms": per_sm * 1e3,
+        "per_person_ols_per_series_us": per_ours * 1e6, "per_series_speed_ratio": per_sm / per_ours,
+        "statsmodels_whole_cohort_estimate_s": per_sm * r.fig("trends", "series"),
+        "equal_results": equal, "max_abs_diff": float(diff.max()),
+        "max_rel_diff": float((diff / scale)[np.abs(got) > 1e-9].max()),
+        "exact_fit_series": int(exact.sum()), "nan_mismatches": nan_mismatch,
+    }  # fmt: skip
+
+
+def step_memory(r: Run) -> dict:
+    return {"peak_rss_mb": _rss_mb()}
+
+
+STEPS: list[Step] = [
+    Step("synth", "generate the synthetic cohort and write its CSV files", step_synth),
+    Step("import", "import the whole cohort (all six files, one transaction)", step_import),
+    Step("raw_insert", "plain DB-API executemany of the same measurement rows", step_raw_insert),
+    Step("read", "read the measurement table alone, and the studies through the repository", step_read),
+    Step("trends", "whole-cohort trend engine on every (person, measure) series", step_trends),
+    Step("statsmodels", "statsmodels OLS series by series on a sample", step_statsmodels),
+    Step("memory", "peak resident memory of the process", step_memory),
+]
+
+#: (step, figure, comparison, target, what the target means)
+TARGETS = [
+    ("raw_insert", "import_over_raw", "<=", 3.0, "whole import within 3x a raw executemany of the measurement rows"),
+    ("statsmodels", "per_series_speed_ratio", ">=", 50.0,
+     "per_person_ols at least 50x faster per series than statsmodels"),
+    ("statsmodels", "equal_results", "==", True, "same slope, SE, CI and p-value as statsmodels on the sample"),
+    ("trends", "engine_over_read", "<=", 3.0, "trend engine within 3x the time to read the measurement table"),
+    ("memory", "peak_rss_mb", "<=", 2048.0, "peak memory under 2 GB"),
+]
+
+
+def _machine() -> dict:
+    load = os.getloadavg() if hasattr(os, "getloadavg") else (float("nan"),) * 3
+    return {
+        "python": platform.python_version(), "platform": platform.platform(), "cpus": os.cpu_count(),
+        "load_average_at_start": [round(x, 2) for x in load],
+        "numpy": np.__version__, "pandas": pd.__version__, "sqlite": sqlite3.sqlite_version,
+        "started": dt.datetime.now(dt.timezone.utc).isoformat(timespec="seconds"),
+    }  # fmt: skip
+
+
+def _fmt(v) -> str:
+    if isinstance(v, float):
+        return f"{v:,.3f}" if abs(v) < 100 else f"{v:,.0f}"
+    if isinstance(v, int) and not isinstance(v, bool):
+        return f"{v:,}"
+    return str(v)
+
+
+def parse_args(argv: list[str] | None = None) -> argparse.Namespace:
+    p = argparse.ArgumentParser(prog="python -m tracker.bench", description=__doc__.split("\n\n")[0])
+    p.add_argument("--families", type=int, default=10_000, help="families in the synthetic cohort (default 10000)")
+    p.add_argument("--seed", type=int, default=1, help="seed of the cohort and of the statsmodels sample")
+    p.add_argument("--db", default=None,
+                   help="new SQLite file or postgresql+psycopg:// URL; default a temp SQLite file")
+    p.add_argument("--sample", type=int, default=3000, help="series fitted one by one with statsmodels (default 3000)")
+    p.add_argument("--cohort", default=None, help="reuse a folder written by `tracker synth` instead of generating")
+    p.add_argument("--workdir", default=None, help="folder for the cohort and SQLite files (default: a temp folder)")
+    p.add_argument("--steps", default=None, help="comma-separated step names to run (default: all, in order)")
+    p.add_argument("--json", default=None, help="also write every figure to this JSON file")
+    p.add_argument("--profile-import", default=None, help="cProfile the import step into this file and print the top")
+    p.add_argument("--keep", action="store_true", help="keep the PostgreSQL schema (and the temp folder)")
+    p.add_argument("--existing-db", default=None,
+                   help="run the read/trends/statsmodels steps on this database instead of importing "
+                   "(use with --steps read,trends,statsmodels,memory)")
+    return p.parse_args(argv)
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = parse_args(argv)
+    tmp = None
+    if args.workdir:
+        workdir = Path(args.workdir)
+        workdir.mkdir(parents=True, exist_ok=True)
+    else:
+        tmp = tempfile.TemporaryDirectory(prefix="tracker-bench-")
+        workdir = Path(tmp.name)
+    r = Run(args=args, workdir=workdir)
+    wanted = args.steps.split(",") if args.steps else [s.name for s in STEPS]
+    machine = _machine()
+    print(f"tracker benchmark: {args.families} families, seed {args.seed}, "
+          f"{machine['cpus']} CPUs, load average {machine['load_average_at_start']}", flush=True)  # fmt: skip
+    try:
+        for step in STEPS:
+            if step.name not in wanted:
+                continue
+            print(f"[{step.name}] {step.description}", flush=True)
+            t0 = time.perf_counter()
+            figures = step.run(r)
+            figures["step_s"] = time.perf_counter() - t0
+            figures["peak_rss_mb_so_far"] = _rss_mb()
+            r.figures[step.name] = figures
+            for k, v in figures.items():
+                print(f"    {k} = {_fmt(v)}", flush=True)
+    finally:
+        for fn in r.cleanup:
+            fn()
+        if tmp is not None and not args.keep:
+            tmp.cleanup()
+    print("targets:")
+    verdicts = []
+    for step, name, op, target, what in TARGETS:
+        v = r.fig(step, name)
+        if v is None:
+            continue
+        ok = {"<=": lambda a, b: a <= b, ">=": lambda a, b: a >= b, "==": lambda a, b: a == b}[op](v, target)
+        verdicts.append({"step": step, "figure": name, "value": v, "target": f"{op} {target}", "met": bool(ok)})
+        print(f"    {'met    ' if ok else 'NOT MET'} {step}.{name} = {_fmt(v)} (target {op} {target}): {what}")
+    if args.json:
+        Path(args.json).write_text(
+            json.dumps({"machine": machine, "args": vars(args), "figures": r.figures, "targets": verdicts},
+                       indent=2, default=str) + "\n", encoding="utf-8")  # fmt: skip
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
