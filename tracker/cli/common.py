@@ -70,8 +70,11 @@ def print_json(data: Any) -> None:
 
 def print_table(title: str | None, columns: list[str], rows: list[list[Any]]) -> None:
     table = Table(title=title, title_justify="left", show_lines=False)
-    for c in columns:
-        table.add_column(c)
-    for r in rows:
-        table.add_row(*["" if v is None else str(v) for v in r])
+    cells = [["" if v is None else str(v) for v in r] for r in rows]
+    for i, c in enumerate(columns):
+        # Codes, dates and numbers are never cut or wrapped; only long text wraps.
+        short = all(len(r[i]) <= 20 for r in cells) if cells else True
+        table.add_column(c, no_wrap=short, min_width=max(len(c), max((len(r[i]) for r in cells), default=0)) if short else None)
+    for r in cells:
+        table.add_row(*r)
     out.print(table)
