@@ -273,3 +273,23 @@ def test_no_values_give_empty_frames_not_errors():
     assert len(t) == 0 and list(t.columns) == review.TREND_COLUMNS
     f = review.trend_flags(m, **kw)
     assert len(f) == 0 and list(f.columns) == review.FLAG_COLUMNS
+
+
+def test_ecg_voltage_criteria_are_applied_to_adults_only():
+    """Sokolow-Lyon >= 35 mm (Sokolow & Lyon 1949) and Cornell > 28 mm men / > 20 mm women
+    (Casale et al. 1985), as encoded in tracker/engines/derived.py."""
+    import datetime as dt
+
+    from tracker.engines import review
+
+    frame = pd.DataFrame({
+        "person": ["A", "A", "B", "C"], "family": "F", "sex": ["male", "male", "female", "male"],
+        "study_date": [dt.date(2020, 1, 1)] * 4, "modality": "ecg",
+        "measure": ["sokolow_lyon", "cornell_voltage", "cornell_voltage", "sokolow_lyon"],
+        "value": [36.0, 27.0, 21.0, 40.0], "unit": "mm",
+        "age_years": [40.0, 40.0, 35.0, 12.0], "height_cm": np.nan, "weight_kg": np.nan, "bsa_m2": np.nan,
+    })  # fmt: skip
+    out = review.assess_measurements(frame, guideline="esc_2023", relative_of_affected=set(), genotype_positive=set())
+    assert list(out["assessment"]) == ["above normal limits", "within normal limits", "above normal limits",
+                                       "no reference"]  # fmt: skip
+    assert "Sokolow" in out.loc[0, "source"] and "Casale" in out.loc[2, "source"]

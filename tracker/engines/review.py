@@ -344,6 +344,31 @@ def _criteria(a: pd.DataFrame, guideline: str, relatives: Collection[str], posit
     return cols
 
 
+_VOLTAGE_SOURCES = {
+    dv.SOKOLOW_LYON: "Sokolow & Lyon, Am Heart J 1949: S V1 + R V5/V6 >= 35 mm [V2; from memory, verify]",
+    dv.CORNELL_VOLTAGE: "Casale et al. 1985: R aVL + S V3 > 28 mm men, > 20 mm women [V2; from memory, verify]",
+}
+
+
+def _ecg_voltage_criteria(a: pd.DataFrame, child: np.ndarray) -> None:
+    """ECG voltage criteria for LV hypertrophy on adults' computed voltages (in place).
+
+    Both criteria were defined in adults; children get "no reference".
+    """
+    for code, source in _VOLTAGE_SOURCES.items():
+        rows = (a["measure"] == code).to_numpy() & ~child
+        for i in np.flatnonzero(rows):
+            v = float(a.at[i, "value"])
+            met = (dv.sokolow_lyon_criterion(v) if code == dv.SOKOLOW_LYON
+                   else dv.cornell_criterion(v, str(a.at[i, "sex"])))  # fmt: skip
+            if met is None:
+                continue
+            a.at[i, "assessment"] = "above normal limits" if met else "within normal limits"
+            a.at[i, "flag"] = "LV hypertrophy voltage criterion met" if met else None
+            a.at[i, "source"] = source
+            a.at[i, "note"] = "ECG voltage criterion (adults)"
+
+
 def assess_measurements(
     frame: pd.DataFrame,
     *,
@@ -400,6 +425,7 @@ def assess_measurements(
     a.loc[~known, "assessment"] = "no reference"
     a.loc[~known, "source"] = ""
     a.loc[~known, "note"] = "no normal range encoded for this measure"
+    _ecg_voltage_criteria(a, child)
     a["z_model"] = a["reference_set"].where(np.isfinite(a["z"].to_numpy(dtype=float)), None)
     for c, v in _criteria(a, guideline, relative_of_affected, genotype_positive).items():
         a[c] = v
