@@ -23,34 +23,7 @@ import pytest
 from tracker.domain.genetics import carrier_probabilities, genotype_statuses, probability_text
 from tracker.domain.pedigree import Pedigree
 
-COLUMNS = [
-    "person", "family", "sex_at_birth", "birth_date", "birth_date_precision", "vital_status",
-    "mother", "father", "placeholder", "proband", "twin_of", "twin_type", "adoption", "contact_status",
-]
-
-
-def ped(rows: list[dict]) -> Pedigree:
-    """Pedigree from short rows; unspecified columns take neutral defaults."""
-    full = []
-    for r in rows:
-        d = {c: None for c in COLUMNS}
-        d.update(family="FAM-T", sex_at_birth="unknown", vital_status="alive", placeholder=False,
-                 proband=False, contact_status="not_contacted")
-        d.update(r)
-        full.append(d)
-    return Pedigree(pd.DataFrame(full, columns=COLUMNS))
-
-
-V = "NM_000256.3:c.1504C>T"  # family variant key (invented family)
-
-
-def results(*rows) -> pd.DataFrame:
-    """Predictive-test results: (person, result[, test_date])."""
-    out = []
-    for person, result, *rest in rows:
-        out.append(dict(person=person, test_date=rest[0] if rest else "2022-03-01",
-                        test_type="predictive", variant=V, result=result))
-    return pd.DataFrame(out, columns=["person", "test_date", "test_type", "variant", "result"])
+from pedigrees import COLUMNS, V, ped, results  # noqa: F401
 
 
 # Four-generation invented family (Roman numeral codes as in NSGC numbering):
