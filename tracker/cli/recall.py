@@ -688,6 +688,31 @@ def _entry(p: Proposal, family: str, lst: str) -> dict:
     }  # fmt: skip
 
 
+def due_proposals(frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date):
+    """Proposals due or overdue by ``end``: (screening, affected, family of each person, trend note,
+    every proposal).
+
+    Shared by ``tracker worklist`` and ``tracker report worklist``.
+    """
+    states = fs.build_family_states(
+        frames.people, frames.variants, frames.results, frames.assessments, frames.studies,
+        reclassification_pending=frames.pending, as_of=on,
+    )  # fmt: skip
+    states, trend = _with_trends(frames, states, rule_set.id, conf, on)
+    proposals: list[Proposal] = []
+    family_of: dict[str, str] = {}
+    affected: set[str] = set()
+    for fam, st in states.items():
+        for p, prop in fs.propose_for_family(st, rule_set, policy, on).items():
+            proposals.append(prop)
+            family_of[p] = fam
+            if st.states[p].phenotype == "positive":
+                affected.add(p)
+    screening_due = select_due([p for p in proposals if p.person_code not in affected], start, end)
+    affected_due = select_due([p for p in proposals if p.person_code in affected], start, end)
+    return screening_due, affected_due, family_of, trend, proposals
+
+
 def worklist(
     from_: Annotated[str, typer.Option("--from", help="First day of the window (YYYY-MM-DD).")],
     to: Annotated[str, typer.Option("--to", help="Last day of the window (YYYY-MM-DD).")],
@@ -720,22 +745,7 @@ def worklist(
     engine = open_store(db)
     with reading(engine) as conn:
         frames = _load(conn)
-    states = fs.build_family_states(
-        frames.people, frames.variants, frames.results, frames.assessments, frames.studies,
-        reclassification_pending=frames.pending, as_of=on,
-    )  # fmt: skip
-    states, trend = _with_trends(frames, states, rule_set.id, conf, on)
-    proposals: list[Proposal] = []
-    family_of: dict[str, str] = {}
-    affected: set[str] = set()
-    for fam, st in states.items():
-        for p, prop in fs.propose_for_family(st, rule_set, policy, on).items():
-            proposals.append(prop)
-            family_of[p] = fam
-            if st.states[p].phenotype == "positive":
-                affected.add(p)
-    screening_due = select_due([p for p in proposals if p.person_code not in affected], start, end)
-    affected_due = select_due([p for p in proposals if p.person_code in affected], start, end)
+    screening_due, affected_due, family_of, trend, proposals = due_proposals(frames, conf, rule_set, policy, start, end, on)
     due_rows = [_entry(p, family_of[p.person_code], "screening") for p in screening_due]
     affected_rows = [_entry(p, family_of[p.person_code], "affected") for p in affected_due]
 

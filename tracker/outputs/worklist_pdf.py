@@ -1,0 +1,235 @@
+"""The nurse's printable recall worklist for a window, as an A4 landscape PDF (reportlab).
+
+One line per visit: person code, due date, days overdue, what the visit needs
+(and what to consider), the reason (wrapped) and, when weekly slots are given,
+the booked week.  Family screening comes first, most urgent first (the order
+of :func:`tracker.engines.worklist.select_due`); affected members follow in
+their own table.
+
+Header on the first page: clinic name (settings), the window, the rule set and
+interval policy, the "as of" date and the date printed.  Every page carries the
+caution (:data:`PAGE_CAUTION` plus the schedule cautions) and "page N of M" in
+the footer.  The list carries person codes only, never a name; the PDF
+metadata carry the window and the clinic.
+
+Type: 9 pt table text on 11 pt leading (a desk list, not a letter for the
+public; common practice).  Fonts are the PDF standard Helvetica faces
+(Latin-1 text).  Pure apart from writing the file it is given.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+from xml.sax.saxutils import escape
+
+from reportlab.lib import colors
+from reportlab.lib.pagesizes import A4, landscape
+from reportlab.lib.styles import ParagraphStyle
+from reportlab.lib.units import mm
+from reportlab.pdfgen import canvas as rl_canvas
+from reportlab.platypus import Paragraph, SimpleDocTemplate, Spacer, Table, TableStyle
+
+from tracker.outputs.ics import needs_words
+
+PAGE = landscape(A4)
+MARGIN_MM = 14
+FOOTER_MM = 22
+
+PAGE_CAUTION = (
+    "Decision support only: the treating clinician decides. Follow local protocols and the current guideline."
+)
+
+_TEXT = ParagraphStyle("wl_text", fontName="Helvetica", fontSize=9, leading=11)
+_HEAD_CELL = ParagraphStyle("wl_head_cell", parent=_TEXT, fontName="Helvetica-Bold")
+_TITLE = ParagraphStyle("wl_title", parent=_TEXT, fontName="Helvetica-Bold", fontSize=15, leading=19, spaceAfter=2)
+_META = ParagraphStyle("wl_meta", parent=_TEXT, fontSize=10, leading=13)
+_SECTION = ParagraphStyle("wl_section", parent=_TEXT, fontName="Helvetica-Bold", fontSize=11, leading=14,
+                          spaceBefore=8, spaceAfter=4)  # fmt: skip
+_FOOTER = ParagraphStyle("wl_footer", parent=_TEXT, fontSize=7.5, leading=9.5, textColor=colors.HexColor("#333333"))
+
+
+@dataclass(frozen=True)
+class WorklistLine:
+    """One visit on the list.  ``due`` ISO date; ``days_overdue`` negative when not yet due."""
+
+    person: str
+    due: str | None
+    days_overdue: int | None
+    needs: tuple[str, ...]
+    consider: tuple[str, ...]
+    reason: str
+    booked_week: str | None = None
+    late: bool | None = None
+
+
+@dataclass(frozen=True)
+class WorklistDocument:
+    """Everything printed: header facts, the two lists, and the cautions (one per line in the footer)."""
+
+    clinic: str
+    window_from: dt.date
+    window_to: dt.date
+    rule_set: str
+    policy: str
+    as_of: dt.date
+    printed: dt.date
+    screening: tuple[WorklistLine, ...]
+    affected: tuple[WorklistLine, ...] = ()
+    slots_per_week: int | None = None
+    cautions: tuple[str, ...] = field(default_factory=tuple)
+    notes: tuple[str, ...] = ()
+
+
+def file_name(window_from: dt.date, window_to: dt.date) -> str:
+    """``worklist-FROM-TO.pdf`` with ISO dates (codes and dates only, never a name)."""
+    return f"worklist-{window_from.isoformat()}-{window_to.isoformat()}.pdf"
+
+
+def line_from_row(row: dict) -> WorklistLine:
+    """A :class:`WorklistLine` from a worklist row dict (the shape the worklist command builds)."""
+    return WorklistLine(
+        person=row["person"], due=row.get("due"), days_overdue=row.get("days_overdue"),
+        needs=tuple(row.get("needs") or ()), consider=tuple(row.get("consider") or ()),
+        reason=row.get("reason") or "", booked_week=row.get("booked_week"), late=row.get("late"),
+    )  # fmt: skip
+
+
+def _p(text: str, style: ParagraphStyle) -> Paragraph:
+    return Paragraph(re.sub(r" {2,}", lambda m: "&nbsp;" * len(m.group(0)), escape(text)), style)
+
+
+def overdue_text(days: int | None) -> str:
+    """'123' when overdue, 'due in 64 d' when not yet due, '0' on the day, '' when unknown."""
+    if days is None:
+        return ""
+    if days < 0:
+        return f"due in {-days} d"
+    return str(days)
+
+
+def _needs_text(line: WorklistLine) -> str:
+    text = needs_words(line.needs) or "visit"
+    if line.consider:
+        text += f" (consider: {needs_words(line.consider)})"
+    return text
+
+
+def _booked_text(line: WorklistLine) -> str:
+    if not line.booked_week:
+        return "not booked"
+    return line.booked_week + (" (late)" if line.late else "")
+
+
+def _table(lines: tuple[WorklistLine, ...], booked: bool, width: float) -> Table:
+    heads = ["Person", "Due", "Days overdue", "Visit needs", "Reason"] + (["Booked week"] if booked else [])
+    fixed_mm = [30, 22, 22, 48] + ([30] if booked else [])
+    reason_w = width - sum(fixed_mm) * mm
+    widths = [w * mm for w in fixed_mm[:4]] + [reason_w] + ([fixed_mm[4] * mm] if booked else [])
+    data = [[_p(h, _HEAD_CELL) for h in heads]]
+    for ln in lines:
+        row = [_p(ln.person, _TEXT), _p(ln.due or "", _TEXT), _p(overdue_text(ln.days_overdue), _TEXT),
+               _p(_needs_text(ln), _TEXT), _p(ln.reason, _TEXT)]  # fmt: skip
+        if booked:
+            row.append(_p(_booked_text(ln), _TEXT))
+        data.append(row)
+    t = Table(data, colWidths=widths, repeatRows=1)
+    t.setStyle(
+        TableStyle(
+            [
+                ("VALIGN", (0, 0), (-1, -1), "TOP"),
+                ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#E4E4E4")),
+                ("ROWBACKGROUNDS", (0, 1), (-1, -1), [colors.white, colors.HexColor("#F6F6F6")]),
+                ("LINEBELOW", (0, 0), (-1, -1), 0.3, colors.HexColor("#AAAAAA")),
+                ("BOX", (0, 0), (-1, -1), 0.5, colors.HexColor("#888888")),
+                ("LEFTPADDING", (0, 0), (-1, -1), 4),
+                ("RIGHTPADDING", (0, 0), (-1, -1), 4),
+                ("TOPPADDING", (0, 0), (-1, -1), 3),
+                ("BOTTOMPADDING", (0, 0), (-1, -1), 3),
+            ]
+        )
+    )
+    return t
+
+
+def build_story(doc: WorklistDocument) -> list:
+    """The flowables: header, the screening table, the affected table, notes."""
+    width = PAGE[0] - 2 * MARGIN_MM * mm
+    slots = f", {doc.slots_per_week} slots a week" if doc.slots_per_week is not None else ""
+    story: list = [
+        _p(f"Recall worklist: {doc.clinic}", _TITLE),
+        _p(f"Window {doc.window_from.isoformat()} to {doc.window_to.isoformat()}{slots}. "
+           f"Rule set: {doc.rule_set}; interval policy: {doc.policy}.", _META),  # fmt: skip
+        _p(f"Plan as of {doc.as_of.isoformat()}; printed {doc.printed.isoformat()}. "
+           "Person codes only; look the person up in the record.", _META),  # fmt: skip
+        Spacer(1, 4),
+    ]
+    booked = doc.slots_per_week is not None
+    story.append(_p(f"Family screening: due or overdue by {doc.window_to.isoformat()}, most urgent first "
+                    f"({len(doc.screening)})", _SECTION))  # fmt: skip
+    story.append(_table(doc.screening, booked, width) if doc.screening else _p("None.", _TEXT))
+    if doc.affected:
+        story.append(_p(f"Affected members: follow-up interval ({len(doc.affected)})", _SECTION))
+        story.append(_table(doc.affected, False, width))
+    for n in doc.notes:
+        story.append(Spacer(1, 3))
+        story.append(_p(f"Note: {n}", _TEXT))
+    return story
+
+
+def _numbered_canvas(footer_lines: list[str], printed: dt.date):
+    """A canvas class that draws the footer with 'page N of M' once the page count is known."""
+
+    class _Canvas(rl_canvas.Canvas):
+        def __init__(self, *args, **kwargs):
+            super().__init__(*args, **kwargs)
+            self._pages: list[dict] = []
+
+        def showPage(self):  # noqa: N802 - reportlab API
+            self._pages.append(dict(self.__dict__))
+            self._startPage()
+
+        def save(self):
+            total = len(self._pages)
+            for state in self._pages:
+                self.__dict__.update(state)
+                self._footer(total)
+                super().showPage()
+            super().save()
+
+        def _footer(self, total: int) -> None:
+            self.saveState()
+            width = PAGE[0] - 2 * MARGIN_MM * mm
+            top = FOOTER_MM * mm - 3 * mm
+            self.setStrokeColor(colors.HexColor("#999999"))
+            self.setLineWidth(0.5)
+            self.line(MARGIN_MM * mm, top, PAGE[0] - MARGIN_MM * mm, top)
+            text = " ".join(footer_lines) + f"  Printed {printed.isoformat()}, page {self._pageNumber} of {total}."
+            note = _p(text, _FOOTER)
+            _, h = note.wrap(width, FOOTER_MM * mm)
+            note.drawOn(self, MARGIN_MM * mm, top - 1.5 * mm - h)
+            self.restoreState()
+
+    return _Canvas
+
+
+def write_worklist_pdf(doc: WorklistDocument, path: str | Path) -> Path:
+    """Write ``doc`` as an A4 landscape PDF at ``path`` (the folder must exist) and return the path."""
+    path = Path(path)
+    footer = [PAGE_CAUTION] + [c for c in doc.cautions if c != PAGE_CAUTION]
+    pdf = SimpleDocTemplate(
+        str(path),
+        pagesize=PAGE,
+        leftMargin=MARGIN_MM * mm,
+        rightMargin=MARGIN_MM * mm,
+        topMargin=12 * mm,
+        bottomMargin=FOOTER_MM * mm + 3 * mm,
+        title=f"Recall worklist {doc.window_from.isoformat()} to {doc.window_to.isoformat()}",
+        author=doc.clinic,
+        subject="Recall worklist (person codes only)",
+        creator="hcm-family-tracker",
+    )
+    pdf.build(build_story(doc), canvasmaker=_numbered_canvas(footer, doc.printed))
+    return path
