@@ -264,8 +264,9 @@ def _person_checks(c: Checked, ctx: Context, date_col: str) -> pd.DataFrame:
     placeholder[known] = rows["person"][known].map(people["placeholder"]).astype(bool).to_numpy()
     c.add(placeholder, "person", "is a placeholder member (placeholders carry no clinical data)")
     when = pd.to_datetime(rows[date_col], format="%Y-%m-%d", errors="coerce")
-    births = rows["person"][known].map(people["birth_date"]).map(_earliest)
-    deaths = rows["person"][known].map(people["death_date"]).map(_latest)
+    # Parse each person's dates once, then look them up for every row (files may hold millions).
+    births = rows["person"][known].map(people["birth_date"].map(_earliest))
+    deaths = rows["person"][known].map(people["death_date"].map(_latest))
     before = pd.Series(False, index=rows.index)
     before[known] = (when[known] < births).to_numpy()
     c.add(before, date_col, "is before the person's date of birth")
