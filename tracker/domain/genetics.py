@@ -100,7 +100,7 @@ from fractions import Fraction
 import numpy as np
 import pandas as pd
 
-from tracker.domain.pedigree import Pedigree
+from tracker.domain.pedigree import Pedigree, _blank  # one definition of an empty cell
 
 ACMG_CLASSES = (
     "pathogenic",
@@ -246,15 +246,6 @@ class FamilyGenotypes(Mapping):
 # ---------------------------------------------------------------------------
 
 
-def _blank(v: object) -> bool:
-    if v is None:
-        return True
-    try:
-        if pd.isna(v):
-            return True
-    except (TypeError, ValueError):
-        pass
-    return isinstance(v, str) and v.strip() == ""
 
 
 def _as_date(v: object) -> dt.date | None:

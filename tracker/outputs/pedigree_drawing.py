@@ -55,13 +55,14 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import pandas as pd
+
 from reportlab.lib.pagesizes import A4, landscape
 from reportlab.pdfbase.pdfmetrics import stringWidth
 from reportlab.pdfgen import canvas
 
 from tracker.domain.dates import PartialDate, completed_years, parse_partial_date
 from tracker.domain.genetics import ACTIONABLE_CLASSES, genotype_statuses
-from tracker.domain.pedigree import Pedigree
+from tracker.domain.pedigree import Pedigree, _blank  # one definition of an empty cell
 from tracker.outputs.pedigree_layout import PedigreeLayout, PlacedPerson, layout_pedigree, roman
 
 FONT = "Helvetica"
@@ -134,15 +135,6 @@ class FamilyVariant:
         return f"{self.gene} {self.key}{p}, {cls}{when}"
 
 
-def _blank(v: object) -> bool:
-    if v is None:
-        return True
-    try:
-        if pd.isna(v):
-            return True
-    except (TypeError, ValueError):
-        pass
-    return isinstance(v, str) and v.strip() == ""
 
 
 def _text(v: object) -> str | None:
@@ -714,15 +706,7 @@ def write_pedigree_pdf(
 
 
 def render_png(pdf_path: str | Path, png_path: str | Path, *, page: int = 0, scale: float = 2.0) -> Path:
-    """Render one page of a PDF to a PNG file (``scale`` 1 = 72 dpi)."""
-    import pypdfium2 as pdfium
+    """Render one page of a PDF to a PNG file (``scale`` 1 = 72 dpi); see letter_pdf.render_png."""
+    from tracker.outputs.letter_pdf import render_png as render
 
-    doc = pdfium.PdfDocument(str(pdf_path))
-    try:
-        bitmap = doc[page].render(scale=scale)
-        image = bitmap.to_pil()
-        out = Path(png_path)
-        image.save(out)
-    finally:
-        doc.close()
-    return out
+    return render(pdf_path, png_path, page=page, scale=scale)
