@@ -7,6 +7,8 @@ and renders its first page to PNG with :func:`tracker.outputs.letter_pdf.render_
 * docs/images/letter-example.png   family letter for HV01-IV-5
 * docs/images/pedigree-HV01.png     pedigree of family HV01
 * docs/images/worklist-example.png  recall worklist 2026-12-01 to 2027-03-01, 3 slots a week
+* docs/images/trajectory-example.png  first page of the trajectory report of HV01-IV-2 (as of 2026-12-01,
+  with invented answers to the HCM Risk-SCD questions the store does not hold)
 
 Dates are fixed (letter date and worklist "as of" 2026-12-01) so the pictures
 do not change from day to day.  All data are invented.
@@ -26,6 +28,11 @@ IMAGES = ROOT / "docs" / "images"
 SETTINGS = ROOT / "demo_family" / "clinic.toml"
 ON = "2026-12-01"
 WINDOW = ("2026-12-01", "2027-03-01")
+# Invented answers for the demo (the store does not record them): no NSVT, syncope, SCD family history,
+# arrest or metabolic disease; the provoked gradient taken with Valsalva.
+RISK_ANSWERS = ("--scd-family-history", "no", "--nsvt", "no", "--unexplained-syncope", "no",
+                "--prior-arrest-or-sustained-vt", "no", "--metabolic-or-syndromic", "no",
+                "--provoked-gradient", "valsalva")  # fmt: skip
 
 # Used only while `tracker report worklist` is not yet registered in tracker/cli/reports.py.
 _WORKLIST_FALLBACK = (
@@ -61,10 +68,13 @@ def main() -> None:
         _tracker("report", "pedigree", "HV01", "--out", str(out), "--db", db)
         _tracker("report", "worklist", "--from", WINDOW[0], "--to", WINDOW[1], "--slots-per-week", "3",
                  "--as-of", ON, "--out", str(out), "--settings", str(SETTINGS), "--db", db)  # fmt: skip
+        _tracker("report", "trajectory", "HV01-IV-2", "--out", str(out), "--as-of", ON, "--settings", str(SETTINGS),
+                 "--db", db, *RISK_ANSWERS)  # fmt: skip
         made = {
             "letter-HV01-IV-5.pdf": "letter-example.png",
             "pedigree-HV01.pdf": "pedigree-HV01.png",
             f"worklist-{WINDOW[0]}-{WINDOW[1]}.pdf": "worklist-example.png",
+            "trajectory-HV01-IV-2.pdf": "trajectory-example.png",
         }
         for pdf, png in made.items():
             path = render_png(out / pdf, IMAGES / png, page=0, scale=2.0)

@@ -1,0 +1,444 @@
+"""`tracker report trajectory`: the cardiologist's one-person trajectory report, as a PDF.
+
+Thin: loads the store frames (records after ``--as-of`` left out), then
+computes exactly as the other commands do and hands plain data to
+:mod:`tracker.outputs.trajectory_pdf`:
+
+- values, limits, criteria, trends, flags and conversion as ``tracker person``
+  (:mod:`tracker.engines.review`: clinical_context, build_measurements,
+  assess_measurements, trend_table, conversions), with its text helpers;
+- the line drawn on each chart: the trend engine's fit of the same window
+  (:func:`tracker.engines.trends.per_person_ols`) and its confidence band
+  (:func:`tracker.engines.trend_band.mean_line_band`);
+- the recall proposal as ``tracker recall`` (family state, trend modifiers,
+  :func:`tracker.engines.schedule.propose_recall`, via :mod:`tracker.cli.recall`);
+- HCM Risk-SCD (:func:`tracker.engines.risk.hcm_risk_scd`) for an affected
+  person, from the latest echo and the clinical answers given as options
+  (the store does not record them); missing answers refuse the figure.
+
+The file is DIR/trajectory-PERSON.pdf (the code only, never a name).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+import math
+import re
+from enum import Enum
+from pathlib import Path
+from typing import Annotated, Any
+
+import numpy as np
+import pandas as pd
+import typer
+
+from tracker.cli import recall as R
+from tracker.cli import review as RV
+from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
+from tracker.engines import family_state as fs
+from tracker.engines import review, risk, trends
+from tracker.engines.schedule import propose_recall
+from tracker.engines.trend_band import mean_line_band
+from tracker.errors import UserError
+from tracker.outputs import ics
+from tracker.outputs import trajectory_pdf as T
+from tracker.store import repository as repo
+from tracker.store.database import reading
+
+
+class YesNo(str, Enum):
+    yes = "yes"
+    no = "no"
+
+
+class Provoked(str, Enum):
+    valsalva = "valsalva"
+    standing = "standing"
+
+
+def _yn(help_text: str):
+    return Annotated[YesNo | None, typer.Option(help=help_text + " (for HCM Risk-SCD; not in the store).")]
+
+
+CHART_TITLES = {
+    "mwt_echo": "Maximal LV wall thickness, echo",
+    "mwt_cmr": "Maximal LV wall thickness, CMR",
+    "gls": "LV global longitudinal strain, echo",
+    "e_over_e_prime": "Average E/e', echo (computed)",
+    "e_prime_septal": "Septal e' velocity, echo",
+    "lavi": "Left atrial volume index, echo",
+}
+_CHILD_WINDOW = "all studies (under 18 y)"
+_LS17 = re.compile(r"^ls_seg(\d\d)$")
+_STRAIN_INDICES = ("gls_segavg", "gls_segavg_n", "relaps", "mech_dispersion", "psi_global")
+
+
+# --------------------------------------------------------------------------- document parts
+
+
+def _f(v: Any) -> float | None:
+    v = RV._clean(v)
+    return None if v is None else float(v)
+
+
+def _tables(a: pd.DataFrame, labels: dict[str, str]) -> tuple[T.ModalityTable, ...]:
+    out = []
+    shown = a[~a["measure"].astype(str).str.startswith(review._SEGMENT_PREFIXES) & ~a["measure"].isin(review.NOT_TRENDED)]
+    order = {m: i for i, m in enumerate(T.ROW_ORDER)}
+    for modality in ("echo", "cmr", "ecg"):
+        rows = shown[shown["modality"] == modality]
+        if rows.empty:
+            continue
+        studies = rows.drop_duplicates("study_date").sort_values("study_date")
+        dates = [d for d in studies["study_date"]]
+        col = {d: i for i, d in enumerate(dates)}
+        measures = rows.drop_duplicates("measure")[["measure", "derived", "unit"]]
+        measures = measures.assign(k=[(bool(d), order.get(m, len(order)), m) for m, d in
+                                      zip(measures["measure"], measures["derived"])]).sort_values("k")  # fmt: skip
+        table_rows = []
+        for m, derived, unit in measures[["measure", "derived", "unit"]].itertuples(index=False):
+            cells: list[T.Cell | None] = [None] * len(dates)
+            for r in rows[rows["measure"] == m].itertuples(index=False):
+                meets = RV._clean(r.meets_criteria)
+                cells[col[r.study_date]] = T.Cell(
+                    float(r.value), T.limit_text(_f(r.lower), _f(r.upper), _f(r.z)),
+                    T.marks(RV._clean(r.assessment), meets is True),
+                )  # fmt: skip
+            table_rows.append(T.TableRow(m, labels.get(m, ""), unit, bool(derived), tuple(cells)))
+        out.append(T.ModalityTable(modality, tuple(d.isoformat() for d in dates),
+                                   tuple(_f(x) for x in studies["age_years"]), tuple(table_rows)))  # fmt: skip
+    return tuple(out)
+
+
+def _fit(a: pd.DataFrame, trow: dict) -> tuple[pd.DataFrame, pd.DataFrame] | None:
+    """The trend engine's fit of the trend row's window and its band, or None (one study, children)."""
+    if trow is None or trow["n"] < 2 or trow["window"] == _CHILD_WINDOW:
+        return None
+    rows = a[(a["measure"] == trow["measure"]) & (a["age_years"] >= trow["first_age"] - 1e-9)
+             & (a["age_years"] <= trow["last_age"] + 1e-9)]  # fmt: skip
+    ols = trends.per_person_ols(rows[["person", "measure", "modality", "study_date", "age_years", "value"]])
+    if len(ols) != 1 or not math.isclose(float(ols["slope"].iloc[0]), float(trow["slope_per_year"]), rel_tol=1e-9,
+                                         abs_tol=1e-12):  # fmt: skip
+        return None
+    grid = np.linspace(trow["first_age"], trow["last_age"], 41)
+    return ols, mean_line_band(ols.iloc[0], grid)
+
+
+def _charts(a: pd.DataFrame, trend_rows: dict[str, dict], guideline_label: str) -> tuple[T.Chart, ...]:
+    out = []
+    for m in T.KEY_MEASURES:
+        rows = a[a["measure"] == m].sort_values("age_years")
+        if rows.empty or (m != "mwt_echo" and len(rows) < 2):
+            continue
+        trow = trend_rows.get(m)
+        fitted = _fit(a, trow)
+        lo_age = trow["first_age"] if fitted else math.inf
+        hi_age = trow["last_age"] if fitted else -math.inf
+        points = tuple((float(r.age_years), float(r.value), bool(lo_age - 1e-9 <= r.age_years <= hi_age + 1e-9))
+                       for r in rows.itertuples())  # fmt: skip
+        fit = ()
+        note = ""
+        if fitted:
+            band = fitted[1]
+            fit = tuple(zip(band["age_years"], band["fit"], band["low"], band["high"]))
+            if not np.isfinite(band["low"]).any():
+                note = "2 studies: line without a confidence band"
+        elif trow is not None and trow["window"] == _CHILD_WINDOW:
+            note = "under 18 y: trended as z-score (see flags); no line in the unit drawn"
+        normal = tuple((float(r.age_years), _f(r.lower) if _f(r.lower) is not None else math.nan,
+                        _f(r.upper) if _f(r.upper) is not None else math.nan)
+                       for r in rows.itertuples() if _f(r.lower) is not None or _f(r.upper) is not None)  # fmt: skip
+        threshold = None
+        if m in review.DIAGNOSTIC_MEASURES:
+            adult = rows[(rows["threshold_unit"] == "mm") & rows["threshold"].notna()]
+            if len(adult):
+                last = adult.iloc[-1]
+                threshold = (float(last["threshold"]),
+                             f"{guideline_label}: {last['comparison']} {last['threshold']:g} mm")  # fmt: skip
+            elif rows["threshold_unit"].eq("z").any():
+                note = (note + "; " if note else "") + "child criterion is a z-score: see the table"
+        unit = str(rows["unit"].iloc[0])
+        out.append(T.Chart(m, f"{CHART_TITLES[m]} ({m}), {unit}", unit, points, fit, normal, threshold, note))
+    return tuple(out)
+
+
+def _flags(trend_records: list[dict]) -> tuple[str, ...]:
+    lines = []
+    key = set(T.KEY_MEASURES)
+    for r in trend_records:
+        if r["n"] < 2 or (not r["reasons"] and r["measure"] not in key):
+            continue
+        slope = RV._ci(r["slope_per_year"], r["slope_ci_low"], r["slope_ci_high"], r["unit"])
+        zs = RV._ci(r["z_slope_per_year"], r["z_ci_low"], r["z_ci_high"], "z")
+        parts = [f"{r['measure']} ({r['n']} studies, {r['window']}): " + (r["reasons"] or "no flag")]
+        if slope:
+            parts.append(f"slope {slope}")
+        if zs:
+            parts.append(f"z slope {zs}")
+        change = RV._change_text(r)
+        if change:
+            parts.append(f"last change {change}")
+        proj = RV._projection_text(r)
+        if proj and r["measure"] in review.DIAGNOSTIC_MEASURES:
+            parts.append(f"projection: {proj}")
+        lines.append("; ".join(parts))
+    return tuple(lines)
+
+
+def _conversion(conv: pd.DataFrame) -> str:
+    if conv is None or conv.empty:
+        return "Conversion: no assessable maximal wall thickness."
+    c = RV._records(conv, RV.CONVERSION_KEYS)[0]
+    if c["ever_met"]:
+        extra = " REVIEW: met criteria earlier but not at the latest study." if c["review_flag"] else ""
+        return (f"Conversion: first met the wall-thickness criteria on {c['first_met_date']} (age "
+                f"{RV._num(c['first_met_age'])} y, {c['first_met_measures']}); status: {c['status']}.{extra}")  # fmt: skip
+    return f"Conversion: criteria not met at {c['n_assessed_studies']} assessed studies."
+
+
+def _bool(v: YesNo | None) -> bool | None:
+    return None if v is None else v == YesNo.yes
+
+
+def _risk(a: pd.DataFrame, identity: dict, athlete: bool | None, answers: dict[str, YesNo | None],
+          provoked: Provoked | None) -> tuple[T.RiskSection, risk.RiskSCDResult | None]:  # fmt: skip
+    status = identity.get("affected_status")
+    if status != "affected":
+        return T.RiskSection("not applicable", "Not estimated: HCM Risk-SCD is for patients with HCM, and this person "
+                             f"is not recorded as affected (latest status: {status or 'never assessed'})."), None  # fmt: skip
+    echo = a[(a["modality"] == "echo") & (a["measure"] == "mwt_echo")] if a is not None else None
+    if echo is None or echo.empty:
+        return T.RiskSection("refused", "Not computed: no echo maximal wall thickness recorded. No figure is given.",
+                             reasons=("missing: mwt_mm",), validated_ranges=risk.VALIDATED_RANGES_TEXT,
+                             caution=risk.CAUTION, model=risk.MODEL_NAME), None  # fmt: skip
+    date = echo["study_date"].max()
+    at = a[(a["study_date"] == date) & (a["modality"] == "echo")].set_index("measure")["value"]
+    age = float(echo.loc[echo["study_date"] == date, "age_years"].iloc[0])
+    rest, prov = _f(at.get("lvot_rest")), _f(at.get("lvot_provoked"))
+    notes = []
+    if prov is None or provoked == Provoked.valsalva:
+        lvot = risk.lvot_max_for_risk_scd(rest, prov)
+    elif provoked == Provoked.standing:
+        lvot = risk.lvot_max_for_risk_scd(rest, None)
+        notes.append("provoked gradient taken by standing is not the model's Valsalva input: rest gradient used")
+    else:
+        lvot = None
+        notes.append("the stored provoked LVOT gradient may be Valsalva or standing: give --provoked-gradient")
+    result = risk.hcm_risk_scd(
+        age_years=age, mwt_mm=_f(at.get("mwt_echo")), la_diameter_mm=_f(at.get("la_diam")), lvot_max_mmhg=lvot,
+        family_history_scd=_bool(answers["scd_family_history"]), nsvt=_bool(answers["nsvt"]),
+        unexplained_syncope=_bool(answers["unexplained_syncope"]),
+        prior_cardiac_arrest_or_sustained_vt=_bool(answers["prior_arrest_or_sustained_vt"]),
+        competitive_athlete=athlete, metabolic_infiltrative_or_syndromic=_bool(answers["metabolic_or_syndromic"]),
+    )  # fmt: skip
+
+    def yn(v: object) -> str:
+        return "not recorded" if v is None else ("yes" if v else "no")
+
+    i = result.inputs
+    inputs = (
+        f"echo {date.isoformat()}", f"age {age:.1f} y", f"maximal wall thickness {T.number(i['mwt_mm'], 'mm') or 'missing'}",
+        f"LA diameter {T.number(i['la_diameter_mm'], 'mm') or 'missing'}",
+        f"maximal LVOT gradient {T.number(i['lvot_max_mmhg'], 'mmHg') or 'missing'}",
+        f"family history of SCD {yn(i['family_history_scd'])}", f"NSVT {yn(i['nsvt'])}",
+        f"unexplained syncope {yn(i['unexplained_syncope'])}",
+        f"prior cardiac arrest or sustained VT {yn(i['prior_cardiac_arrest_or_sustained_vt'])}",
+        f"competitive athlete {yn(i['competitive_athlete'])}",
+        f"metabolic/infiltrative disease or syndrome {yn(i['metabolic_infiltrative_or_syndromic'])}",
+    )  # fmt: skip
+    if result.computed:
+        head = (f"Estimated 5-year risk of sudden cardiac death: {result.risk_5y_pct:.2f}% "
+                f"({risk.MODEL_NAME}; inputs from the echo of {date.isoformat()}).")  # fmt: skip
+        bands = tuple(f"{b.guideline} band: {b.wording}" for b in (result.esc2014, result.esc2023) if b)
+        section = T.RiskSection("computed", head, result.risk_5y_pct, inputs, tuple(notes), bands,
+                                risk.VALIDATED_RANGES_TEXT, risk.CAUTION, risk.MODEL_NAME)  # fmt: skip
+    else:
+        head = ("Not computed: an input is missing, outside the model's validated range, or an exclusion applies "
+                "(reasons below). No figure is given.")  # fmt: skip
+        section = T.RiskSection("refused", head, None, inputs, tuple(notes) + result.refusal_reasons, (),
+                                risk.VALIDATED_RANGES_TEXT, risk.CAUTION, risk.MODEL_NAME)  # fmt: skip
+    return section, result
+
+
+def _strain(m: pd.DataFrame, a: pd.DataFrame) -> tuple[T.StrainMap | None, str]:
+    if m is None or m.empty:
+        return None, "No segmental strain values recorded."
+    codes = m["measure"].astype(str)
+    seg17 = m[codes.str.match(_LS17.pattern)]
+    if seg17.empty:
+        if codes.str.startswith("ls18_seg").any():
+            return None, "18-segment strain values recorded: this report draws the 17-segment model only."
+        return None, "No segmental strain values recorded."
+    date = seg17["study_date"].max()
+    rows = seg17[seg17["study_date"] == date]
+    values = {int(_LS17.match(c).group(1)): float(v) for c, v in zip(rows["measure"], rows["value"])}
+    values = {n: values.get(n) for n in range(1, 18)}
+    idx = a[(a["study_date"] == date) & a["measure"].isin(_STRAIN_INDICES)]
+    indices = tuple(f"{r.measure} (computed): {T.number(float(r.value), r.unit)}" for r in idx.itertuples())
+    n_dates = seg17["study_date"].nunique()
+    note = f"Latest of {n_dates} studies with segmental strain." if n_dates > 1 else ""
+    return T.StrainMap(date.isoformat(), values, indices), note
+
+
+def _sources(a: pd.DataFrame) -> tuple[tuple[str, str], ...]:
+    out: dict[str, str] = {}
+    keep = a[~a["measure"].astype(str).str.startswith(review._SEGMENT_PREFIXES)]
+    for r in keep.itertuples():
+        texts = [t for t in (r.source, r.criteria_source, r.derivation) if isinstance(t, str) and t.strip()]
+        if texts and r.measure not in out:
+            out[r.measure] = "; ".join(dict.fromkeys(texts))
+    return tuple(sorted(out.items()))
+
+
+# --------------------------------------------------------------------------- command
+
+
+def trajectory_report(
+    person: Annotated[str, typer.Argument(help="Person code, e.g. HV02-III-2.")],
+    out: Annotated[Path, typer.Option("--out", "-o", help="Folder for trajectory-PERSON.pdf (made if missing).")],
+    as_of: R.AsOfOption = None,
+    guideline: R.GuidelineOption = None,
+    horizon: RV.HorizonOption = 3.0,
+    scd_family_history: _yn("Family history of sudden cardiac death, as the guideline defines it") = None,
+    nsvt: _yn("Non-sustained ventricular tachycardia") = None,
+    unexplained_syncope: _yn("Unexplained syncope") = None,
+    prior_arrest_or_sustained_vt: _yn("Prior cardiac arrest or sustained ventricular tachycardia") = None,
+    metabolic_or_syndromic: _yn("Metabolic or infiltrative disease, or a syndrome") = None,
+    provoked_gradient: Annotated[
+        Provoked | None,
+        typer.Option(help="How the stored provoked LVOT gradient was taken (Risk-SCD uses Valsalva, never standing)."),
+    ] = None,
+    settings: SettingsOption = None,
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """Write one person's trajectory report as DIR/trajectory-PERSON.pdf (A4, person code only).
+
+    Identity, trends and flags, the recall proposal, HCM Risk-SCD (affected
+    people of 16 or over, when every input is known), charts of the key
+    measures over age with the fitted trend, its 95% band, the normal range
+    and the diagnostic threshold, a table per modality of every value against
+    its limit, and a 17-segment strain map where segmental strain exists.
+
+    Example: tracker report trajectory HV02-III-2 --out reports/ --as-of 2026-12-01
+    """
+    on = R._day(as_of, "--as-of", dt.date.today())
+    conf, rule_set, policy = R._recall_rules(settings, guideline)
+    gid = rule_set.id
+    if out.exists() and not out.is_dir():
+        raise UserError(f"--out {out} is a file; give a folder")
+    engine = open_store(db)
+    with reading(engine) as conn:
+        frames = R._load(conn)
+        measures = repo.load_measures(conn)
+    labels = dict(zip(measures["code"], measures["label"]))
+    people = frames.people
+    if person not in set(people["person"]):
+        raise UserError(f"unknown person {person!r}")
+    family = people.loc[people["person"] == person, "family"].iloc[0]
+
+    # --- the review, as `tracker person`, on the records up to --as-of
+    studies = fs.records_up_to(frames.studies, "study_date", on)
+    assessments = fs.records_up_to(frames.assessments, "assessment_date", on)
+    results = fs.records_up_to(frames.results, "test_date", on)
+    variants = fs.records_up_to(frames.variants, "classified_on", on)
+    ctx = review.clinical_context(people[people["family"] == family], results, variants, assessments)
+    rel, pos = RV._status_sets(ctx)
+    kw = dict(guideline=gid, relative_of_affected=rel, genotype_positive=pos)
+    mine = studies[studies["person"] == person] if studies is not None and len(studies) else None
+    m = review.build_measurements(people, mine) if mine is not None and len(mine) else None
+    a = t = conv = None
+    if m is not None and len(m):
+        a = review.assess_measurements(m, **kw)
+        t = review.trend_table(a, **kw, clinic_repeatability=conf.repeatability or None, horizon_years=horizon)
+        conv = review.conversions(a)
+    identity = {k: RV._clean(v) for k, v in RV._identity(person, people, ctx, on).items()}
+    trend_records = RV._records(t, RV.TREND_JSON_KEYS) if t is not None else []
+    trend_rows = {r["measure"]: r for r in trend_records}
+    g = RV._guideline(dataclasses.replace(conf, guideline=gid))
+
+    # --- the recall proposal, as `tracker recall`
+    st = R._family_state(frames, family, on)
+    states, trend_note = R._with_trends(frames, {st.family: st}, gid, conf, on)
+    st = states[st.family]
+    if person in st.states:
+        rec = R._proposal_dict(propose_recall(st.states[person], rule_set, policy, on), st)
+    else:
+        rec = R._unscheduled_dict(person, st, on, gid)
+    needs = ics.needs_words(rec["needs"])
+    if rec["consider"]:
+        needs += f" (consider: {ics.needs_words(rec['consider'])})"
+    rec.update(rule_set_title=rule_set.title, policy=policy.point, needs_text=needs,
+               notes_shown=[n for n in rec["notes"] if n not in rec["reason"]] + [trend_note["note"]])  # fmt: skip
+
+    # --- risk
+    latest = assessments[assessments["person"] == person].sort_values("assessment_date") if assessments is not None \
+        and len(assessments) else None  # fmt: skip
+    athlete = bool(latest["competitive_athlete"].iloc[-1]) if latest is not None and len(latest) else None
+    answers = dict(scd_family_history=scd_family_history, nsvt=nsvt, unexplained_syncope=unexplained_syncope,
+                   prior_arrest_or_sustained_vt=prior_arrest_or_sustained_vt,
+                   metabolic_or_syndromic=metabolic_or_syndromic)  # fmt: skip
+    risk_section, risk_result = _risk(a, identity, athlete, answers, provoked_gradient)
+
+    short = gid.replace("_", " ").upper().replace("AHA ACC", "AHA/ACC")
+    strain, strain_note = _strain(m, a) if a is not None else (None, "No segmental strain values recorded.")
+    doc = T.TrajectoryDocument(
+        identity=identity, guideline=f"{g['id']}: {g['name']}", clinic=conf.clinic.name, as_of=on,
+        generated=dt.date.today(), flags=_flags(trend_records), conversion=_conversion(conv) if a is not None else "",
+        recall=rec, risk=risk_section, charts=_charts(a, trend_rows, short) if a is not None else (),
+        tables=_tables(a, labels) if a is not None else (), strain=strain, strain_note=strain_note,
+        sources=_sources(a) if a is not None else (),
+        notes=(review.NOT_POOLED, f"Records dated after {on.isoformat()} are left out."),
+        cautions=tuple(rec["cautions"]),
+    )  # fmt: skip
+    out.mkdir(parents=True, exist_ok=True)
+    path = out / T.file_name(person)
+    replaced = path.exists()
+    T.write_trajectory_pdf(doc, path)
+    pages = _page_count(path)
+    if json_out:
+        print_json(
+            {
+                "file": str(path),
+                "person": person,
+                "family": family,
+                "as_of": on.isoformat(),
+                "pages": pages,
+                "guideline": gid,
+                "recall": {k: rec.get(k) for k in ("status", "due", "interval_months", "rule_set", "rule_id",
+                                                   "reason", "source")},  # fmt: skip
+                "risk": {"status": risk_section.status, "risk_5y_pct": risk_section.risk_5y_pct,
+                         "reasons": list(risk_section.reasons),
+                         "inputs": risk_result.inputs if risk_result is not None else None},  # fmt: skip
+                "flags": list(doc.flags),
+                "conversion": doc.conversion,
+                "charts": [c.measure for c in doc.charts],
+                "tables": {x.modality: len(x.dates) for x in doc.tables},
+                "strain_map": strain.study_date if strain else None,
+                "cautions": [T.PAGE_CAUTION, *rec["cautions"]],
+            }
+        )
+        return
+    typer.echo(f"{'replaced' if replaced else 'wrote'} {path} ({pages} pages)")
+    typer.echo(f"recall: {rec['status']}" + (f", due {rec['due']}" if rec["due"] else "")
+               + (f", every {rec['interval_months']} months" if rec["interval_months"] else "")
+               + f"; rule set {rule_set.title}")  # fmt: skip
+    typer.echo(f"HCM Risk-SCD: {risk_section.status}"
+               + (f", {risk_section.risk_5y_pct:.2f}% at 5 years" if risk_section.risk_5y_pct is not None else ""))  # fmt: skip
+    typer.echo(T.PAGE_CAUTION)
+
+
+def _page_count(path: Path) -> int:
+    import pypdfium2 as pdfium
+
+    pdf = pdfium.PdfDocument(str(path))
+    try:
+        return len(pdf)
+    finally:
+        pdf.close()
+
+
+def register(report_app: typer.Typer) -> None:
+    """Add this module's command to `tracker report`."""
+    report_app.command("trajectory")(trajectory_report)

@@ -1,0 +1,629 @@
+"""The cardiologist's one-person trajectory report as an A4 portrait PDF (reportlab).
+
+Content, top to bottom (plain data in, built by ``tracker report trajectory``
+from the review, trend, recall and risk engines; nothing is computed here
+beyond layout and number formatting):
+
+1. Identity: person code, family, sex at birth, age, genotype status and
+   variant class, affected status, the guideline and the "as of" date.  No name.
+2. Flags: progression beyond measurement variability, slope intervals,
+   projected threshold crossings and phenotype conversion, as the trend
+   engine words them (:func:`tracker.engines.review.trend_table`).
+3. The recall proposal (:func:`tracker.engines.schedule.propose_recall` via
+   the ``tracker recall`` helpers): status, due date, interval, rule set,
+   rule, reasons and source.
+4. HCM Risk-SCD (:func:`tracker.engines.risk.hcm_risk_scd`) for an affected
+   person of 16 or over: the figure with its inputs, bands, validated range and
+   caution, or the refusal with its reasons and no figure.
+5. Charts over age of the key measures (:data:`KEY_MEASURES`, those with a
+   value): the studies as dots, the fitted straight line with its 95%
+   confidence band (:func:`tracker.engines.trend_band.mean_line_band` on the
+   trend engine's fit), the normal range (lower and upper limit at each study,
+   as the review engine gives them) shaded, and the guideline's diagnostic
+   threshold (maximal wall thickness, adults, in mm) as a dashed line.
+6. One table per modality: every measure at every study, value in the
+   catalogue unit, the normal limit or z-score of that study, and the
+   judgement (H above, L below the normal limit, C meets the guideline's
+   wall-thickness criterion).  Wide series are split into several tables.
+7. Segmental strain of the latest study with segment values: a 17-segment
+   polar map (:mod:`tracker.outputs.polar_map`) with its legend.
+8. Notes and the source of every normal limit and criterion used.
+
+Every page carries the cautions (decision support only, the treating
+clinician decides, follow local protocols and the current guideline), the
+person code, the date generated and "page N of M" in the footer.
+
+Type: 8-9 pt text (a clinician's desk report, not a letter for the public;
+common practice).  Fonts are the PDF standard Helvetica faces (Latin-1 text).
+Pure apart from writing the file it is given.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+import re
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from xml.sax.saxutils import escape
+
+from reportlab.graphics.shapes import Circle, Drawing, Line, PolyLine, Polygon, Rect, String
+from reportlab.lib import colors
+from reportlab.lib.pagesizes import A4
+from reportlab.lib.styles import ParagraphStyle
+from reportlab.lib.units import mm
+from reportlab.pdfgen import canvas as rl_canvas
+from reportlab.platypus import CondPageBreak, KeepTogether, Paragraph, SimpleDocTemplate, Spacer, Table, TableStyle
+
+from tracker.outputs import polar_map
+
+PAGE = A4
+MARGIN_MM = 15
+FOOTER_MM = 20
+WIDTH = PAGE[0] - 2 * MARGIN_MM * mm
+
+PAGE_CAUTION = (
+    "Decision support only: the treating clinician decides. Follow local protocols and the current guideline."
+)
+
+#: Measures drawn as charts when the person has a value (order of drawing), with their axis unit.
+KEY_MEASURES: tuple[str, ...] = ("mwt_echo", "mwt_cmr", "gls", "e_over_e_prime", "e_prime_septal", "lavi")
+#: Units as printed on axes and in tables (catalogue unit -> text).
+UNIT_TEXT = {"mL/m2": "mL/m2", "g/m2": "g/m2", "ratio": "ratio", "%": "%", "mm": "mm", "ms": "ms",
+             "cm/s": "cm/s", "m/s": "m/s", "mmHg": "mmHg", "g": "g", "segments": "segments"}  # fmt: skip
+#: Preferred row order in the tables; other measures follow alphabetically, computed ones last.
+ROW_ORDER = (
+    "mwt_echo", "ivsd", "lvpwd", "lvidd", "lvids", "lvef_echo", "gls", "la_diam", "lavi", "lvot_rest",
+    "lvot_provoked", "mv_e", "mv_a", "e_prime_septal", "e_prime_lateral", "tr_vmax",
+    "mwt_cmr", "lvmi_cmr", "lvef_cmr", "lge_pct", "ecv",
+)  # fmt: skip
+MAX_STUDY_COLUMNS = 8
+CHARTS_PER_ROW = 3
+
+_TEXT = ParagraphStyle("tj_text", fontName="Helvetica", fontSize=8.5, leading=10.5)
+_SMALL = ParagraphStyle("tj_small", parent=_TEXT, fontSize=7, leading=8.5)
+_FLAG = ParagraphStyle("tj_flag", parent=_TEXT, fontSize=8, leading=9.6)
+_TINY = ParagraphStyle("tj_tiny", parent=_TEXT, fontSize=6.3, leading=7.6)
+_CELL = ParagraphStyle("tj_cell", parent=_TEXT, fontSize=7, leading=8.2)
+_CELL_HEAD = ParagraphStyle("tj_cell_head", parent=_CELL, fontName="Helvetica-Bold")
+_TITLE = ParagraphStyle("tj_title", parent=_TEXT, fontName="Helvetica-Bold", fontSize=14, leading=17, spaceAfter=2)
+_SECTION = ParagraphStyle("tj_section", parent=_TEXT, fontName="Helvetica-Bold", fontSize=10, leading=12.5,
+                          spaceBefore=6, spaceAfter=2)  # fmt: skip
+_FOOTER = ParagraphStyle("tj_footer", parent=_TEXT, fontSize=7, leading=8.6, textColor=colors.HexColor("#333333"))
+
+_GREY = colors.HexColor("#666666")
+_NORMAL_FILL = colors.HexColor("#DCEFD9")
+_BAND_FILL = colors.HexColor("#C9DAF0")
+_FIT = colors.HexColor("#1F4E9A")
+_THRESHOLD = colors.HexColor("#A3161A")
+
+
+# --------------------------------------------------------------------------- plain data
+
+
+@dataclass(frozen=True)
+class Cell:
+    """One value in a table: ``value`` in the catalogue unit, ``limit`` text ("6-9", "z 0.33"), judgement marks."""
+
+    value: float
+    limit: str = ""
+    marks: str = ""
+
+
+@dataclass(frozen=True)
+class TableRow:
+    measure: str
+    label: str
+    unit: str
+    derived: bool
+    cells: tuple[Cell | None, ...]
+
+
+@dataclass(frozen=True)
+class ModalityTable:
+    """Measures (rows) by studies (columns) of one modality; ``dates`` ISO, ``ages`` years."""
+
+    modality: str
+    dates: tuple[str, ...]
+    ages: tuple[float | None, ...]
+    rows: tuple[TableRow, ...]
+
+
+@dataclass(frozen=True)
+class Chart:
+    """One measure over age.  ``points``: (age, value, in_fit).  ``fit``: (age, fit, low, high) along the
+    fitted window (low/high NaN without a band).  ``normal``: (age, lower, upper), NaN where a side has no
+    limit.  ``threshold``: (value, label) in the measure's unit, or None."""
+
+    measure: str
+    title: str
+    unit: str
+    points: tuple[tuple[float, float, bool], ...]
+    fit: tuple[tuple[float, float, float, float], ...] = ()
+    normal: tuple[tuple[float, float, float], ...] = ()
+    threshold: tuple[float, str] | None = None
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class RiskSection:
+    """HCM Risk-SCD as shown: ``status`` "computed", "refused" or "not applicable"."""
+
+    status: str
+    headline: str
+    risk_5y_pct: float | None = None
+    inputs: tuple[str, ...] = ()
+    reasons: tuple[str, ...] = ()
+    bands: tuple[str, ...] = ()
+    validated_ranges: str = ""
+    caution: str = ""
+    model: str = ""
+
+
+@dataclass(frozen=True)
+class StrainMap:
+    """Segmental peak longitudinal strain (%) of one study, AHA 17-segment numbering."""
+
+    study_date: str
+    values: Mapping[int, float | None]
+    indices: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class TrajectoryDocument:
+    """Everything printed.  ``identity`` has the keys of the ``tracker person`` JSON identity block."""
+
+    identity: Mapping[str, object]
+    guideline: str
+    clinic: str
+    as_of: dt.date
+    generated: dt.date
+    flags: tuple[str, ...]
+    conversion: str
+    recall: Mapping[str, object]
+    risk: RiskSection
+    charts: tuple[Chart, ...]
+    tables: tuple[ModalityTable, ...]
+    strain: StrainMap | None = None
+    strain_note: str = ""
+    sources: tuple[tuple[str, str], ...] = ()
+    notes: tuple[str, ...] = ()
+    cautions: tuple[str, ...] = field(default_factory=tuple)
+
+
+def file_name(person: str) -> str:
+    """``trajectory-PERSON.pdf`` (the person code only, never a name)."""
+    return f"trajectory-{person}.pdf"
+
+
+# --------------------------------------------------------------------------- formatting
+
+
+def number(v: float | None, unit: str = "") -> str:
+    """A value as printed: 3 significant figures at most, 1 decimal from 1 to 100, none from 100 up."""
+    if v is None or not math.isfinite(v):
+        return ""
+    a = abs(v)
+    text = f"{v:.0f}" if a >= 100 else f"{v:.1f}" if a >= 1 else f"{v:.2f}"
+    return f"{text} {unit}".rstrip()
+
+
+def limit_text(lower: float | None, upper: float | None, z: float | None) -> str:
+    """'6-9', '<= 14', '>= 7'; with a z-score 'z 0.33' (children: 'z 0.33; 6-9')."""
+    lo = lower if lower is not None and math.isfinite(lower) else None
+    hi = upper if upper is not None and math.isfinite(upper) else None
+    text = ""
+    if lo is not None and hi is not None:
+        text = f"{lo:.3g}-{hi:.3g}"
+    elif hi is not None:
+        text = f"<= {hi:.3g}"
+    elif lo is not None:
+        text = f">= {lo:.3g}"
+    if z is not None and math.isfinite(z):
+        text = f"z {z:.2f}" + (f"; {text}" if text else "")
+    return text
+
+
+def marks(assessment: str | None, meets_criteria: object) -> str:
+    """'H' above / 'L' below the normal limit, plus 'C' when the wall-thickness criterion is met."""
+    out = ""
+    if assessment and assessment.startswith("above"):
+        out = "H"
+    elif assessment and assessment.startswith("below"):
+        out = "L"
+    if meets_criteria is True:
+        out += "C"
+    return out
+
+
+def _p(text: str, style: ParagraphStyle) -> Paragraph:
+    return Paragraph(re.sub(r" {2,}", lambda m: "&nbsp;" * len(m.group(0)), escape(text)), style)
+
+
+# --------------------------------------------------------------------------- charts
+
+
+def nice_ticks(lo: float, hi: float, target: int = 5) -> list[float]:
+    """Round tick values covering [lo, hi] (steps of 1, 2 or 5 times a power of ten)."""
+    if not (math.isfinite(lo) and math.isfinite(hi)) or hi <= lo:
+        return [lo]
+    raw = (hi - lo) / target
+    power = 10 ** math.floor(math.log10(raw))
+    step = next(m * power for m in (1, 2, 5, 10) if m * power >= raw)
+    start = math.ceil(lo / step - 1e-9) * step
+    out, v = [], start
+    while v <= hi + 1e-9 * step:
+        out.append(round(v, 10))
+        v += step
+    return out
+
+
+def _finite(*vals: float) -> list[float]:
+    return [v for v in vals if v is not None and math.isfinite(v)]
+
+
+def chart_drawing(c: Chart, width: float, height: float) -> Drawing:
+    """Draw one chart (points, fitted line and band, normal range, threshold) in a ``width`` x ``height`` box."""
+    d = Drawing(width, height)
+    left, right, bottom, top = 26.0, 6.0, 30.0, 30.0
+    pw, ph = width - left - right, height - bottom - top
+    ages = _finite(*[p[0] for p in c.points], *[f[0] for f in c.fit])
+    ys = _finite(*[p[1] for p in c.points], *[v for f in c.fit for v in f[1:]],
+                 *[v for n in c.normal for v in n[1:]], *([c.threshold[0]] if c.threshold else []))  # fmt: skip
+    name, _, rest = c.title.partition(" (")
+    d.add(String(0, height - 8, name, fontName="Helvetica-Bold", fontSize=7.5))
+    if rest:
+        d.add(String(0, height - 17, "(" + rest, fontName="Helvetica", fontSize=6.5, fillColor=_GREY))
+    if not ages or not ys:
+        d.add(String(left, bottom + ph / 2, "no values", fontName="Helvetica", fontSize=8))
+        return d
+    x0, x1 = min(ages), max(ages)
+    pad_x = max((x1 - x0) * 0.06, 0.5)
+    x0, x1 = x0 - pad_x, x1 + pad_x
+    y0, y1 = min(ys), max(ys)
+    pad_y = max((y1 - y0) * 0.10, abs(y1) * 0.03, 0.1)
+    y0, y1 = y0 - pad_y, y1 + pad_y
+
+    def X(a: float) -> float:  # noqa: N802
+        return left + (a - x0) / (x1 - x0) * pw
+
+    def Y(v: float) -> float:  # noqa: N802
+        return bottom + (min(max(v, y0), y1) - y0) / (y1 - y0) * ph
+
+    d.add(Rect(left, bottom, pw, ph, fillColor=colors.white, strokeColor=colors.HexColor("#999999"), strokeWidth=0.5))
+    # normal range: lower/upper at each study; a missing side runs to the plot edge
+    if c.normal:
+        pts = sorted(c.normal)
+        if len(pts) == 1:
+            a, lo, hi = pts[0]
+            pts = [(a - pad_x, lo, hi), (a + pad_x, lo, hi)]
+        lower = [(X(a), Y(lo if math.isfinite(lo) else y0)) for a, lo, _ in pts]
+        upper = [(X(a), Y(hi if math.isfinite(hi) else y1)) for a, _, hi in reversed(pts)]
+        poly = [v for xy in lower + upper for v in xy]
+        d.add(Polygon(poly, fillColor=_NORMAL_FILL, strokeColor=None, strokeWidth=0))
+    # grid and ticks
+    for t in nice_ticks(y0, y1):
+        d.add(Line(left, Y(t), left + pw, Y(t), strokeColor=colors.HexColor("#E6E6E6"), strokeWidth=0.3))
+        d.add(String(left - 3, Y(t) - 2.5, f"{t:g}", fontName="Helvetica", fontSize=6.5, textAnchor="end"))
+    for t in nice_ticks(x0, x1, 6):
+        d.add(Line(X(t), bottom, X(t), bottom - 2.5, strokeColor=_GREY, strokeWidth=0.5))
+        d.add(String(X(t), bottom - 10, f"{t:g}", fontName="Helvetica", fontSize=6.5, textAnchor="middle"))
+    d.add(String(left + pw / 2, bottom - 19, "age (years)", fontName="Helvetica", fontSize=7, textAnchor="middle"))
+    d.add(String(left - 3, bottom + ph + 4, c.unit, fontName="Helvetica", fontSize=7, textAnchor="end"))
+    # fitted line and its band
+    fit = [f for f in c.fit if math.isfinite(f[1])]
+    band = [f for f in fit if math.isfinite(f[2]) and math.isfinite(f[3])]
+    if len(band) >= 2:
+        poly = [v for f in band for v in (X(f[0]), Y(f[2]))] + [v for f in reversed(band) for v in (X(f[0]), Y(f[3]))]
+        d.add(Polygon(poly, fillColor=_BAND_FILL, strokeColor=None, strokeWidth=0, fillOpacity=0.85))
+    if len(fit) >= 2:
+        d.add(PolyLine([v for f in fit for v in (X(f[0]), Y(f[1]))], strokeColor=_FIT, strokeWidth=1.2))
+    # diagnostic threshold
+    if c.threshold is not None:
+        tv, label = c.threshold
+        d.add(Line(left, Y(tv), left + pw, Y(tv), strokeColor=_THRESHOLD, strokeWidth=0.9, strokeDashArray=[3, 2]))
+        d.add(String(left + 3, Y(tv) + 2.5, label, fontName="Helvetica", fontSize=6.5, fillColor=_THRESHOLD))
+    # studies
+    for a, v, in_fit in c.points:
+        if not (math.isfinite(a) and math.isfinite(v)):
+            continue
+        fill = colors.black if in_fit else colors.white
+        d.add(Circle(X(a), Y(v), 2.0, fillColor=fill, strokeColor=colors.black, strokeWidth=0.7))
+    if c.note:
+        d.add(String(0, 2, c.note, fontName="Helvetica", fontSize=6, fillColor=_GREY))
+    return d
+
+
+CHART_LEGEND = (
+    "Charts: dots = studies (open dots are not in the fitted window: values under 18 y change with growth); "
+    "blue line = fitted straight-line trend with its 95% confidence band (of the mean line, not of the next "
+    "study); green = normal range at each study (lower and upper limit as given by the review); red dashed = "
+    "diagnostic threshold of the guideline for this person (maximal wall thickness, adults)."
+)
+
+
+def _charts_block(charts: Sequence[Chart]) -> list:
+    if not charts:
+        return [_p("No key measure has a value.", _TEXT)]
+    per_row = CHARTS_PER_ROW
+    w = WIDTH / per_row - 3
+    h = 48 * mm
+    cells = [chart_drawing(c, w, h) for c in charts]
+    rows = [cells[i:i + per_row] for i in range(0, len(cells), per_row)]
+    rows = [r + [""] * (per_row - len(r)) for r in rows]
+    out: list = []
+    for r in rows:
+        t = Table([r], colWidths=[WIDTH / per_row] * per_row)
+        t.setStyle(TableStyle([("LEFTPADDING", (0, 0), (-1, -1), 0), ("RIGHTPADDING", (0, 0), (-1, -1), 4),
+                               ("TOPPADDING", (0, 0), (-1, -1), 2), ("BOTTOMPADDING", (0, 0), (-1, -1), 2),
+                               ("VALIGN", (0, 0), (-1, -1), "TOP")]))  # fmt: skip
+        out.append(t)
+    return out
+
+
+# --------------------------------------------------------------------------- tables
+
+
+def _chunks(n: int, size: int) -> list[range]:
+    """Split n columns into as few as possible near-equal chunks of at most ``size``."""
+    if n == 0:
+        return []
+    k = math.ceil(n / size)
+    base, extra = divmod(n, k)
+    out, start = [], 0
+    for i in range(k):
+        step = base + (1 if i < extra else 0)
+        out.append(range(start, start + step))
+        start += step
+    return out
+
+
+def _modality_tables(t: ModalityTable) -> list:
+    out: list = []
+    parts = _chunks(len(t.dates), MAX_STUDY_COLUMNS)
+    name_w, unit_w = 30 * mm, 11 * mm
+    for k, cols in enumerate(parts):
+        col_w = min((WIDTH - name_w - unit_w) / len(cols), 24 * mm)
+        head = [_p("measure", _CELL_HEAD), _p("unit", _CELL_HEAD)]
+        for i in cols:
+            age = "" if t.ages[i] is None else f"age {t.ages[i]:.1f}"
+            head.append(Paragraph(f"<b>{t.dates[i]}</b><br/>{age}", _CELL))
+        data = [head]
+        for r in t.rows:
+            if all(r.cells[i] is None for i in cols):
+                continue
+            name = f"<b>{escape(r.measure)}</b>" + ("*" if r.derived else "")
+            row = [Paragraph(name, _CELL), _p(UNIT_TEXT.get(r.unit, r.unit), _CELL)]
+            for i in cols:
+                c = r.cells[i]
+                if c is None:
+                    row.append("")
+                    continue
+                mark = f" <b>{c.marks}</b>" if c.marks else ""
+                lim = f"<br/><font size=6 color='#555555'>{escape(c.limit)}</font>" if c.limit else ""
+                row.append(Paragraph(escape(number(c.value)) + mark + lim, _CELL))
+            data.append(row)
+        tbl = Table(data, colWidths=[name_w, unit_w] + [col_w] * len(cols), repeatRows=1, hAlign="LEFT")
+        tbl.setStyle(
+            TableStyle(
+                [
+                    ("VALIGN", (0, 0), (-1, -1), "TOP"),
+                    ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#E4E4E4")),
+                    ("ROWBACKGROUNDS", (0, 1), (-1, -1), [colors.white, colors.HexColor("#F5F5F5")]),
+                    ("LINEBELOW", (0, 0), (-1, -1), 0.25, colors.HexColor("#BBBBBB")),
+                    ("BOX", (0, 0), (-1, -1), 0.5, colors.HexColor("#888888")),
+                    ("LEFTPADDING", (0, 0), (-1, -1), 3),
+                    ("RIGHTPADDING", (0, 0), (-1, -1), 3),
+                    ("TOPPADDING", (0, 0), (-1, -1), 1),
+                    ("BOTTOMPADDING", (0, 0), (-1, -1), 1),
+                ]
+            )
+        )
+        part = f" (part {k + 1} of {len(parts)})" if len(parts) > 1 else ""
+        out.append(CondPageBreak(35 * mm))
+        out.append(_p(f"{t.modality.upper()} values by study{part}", _SECTION))
+        out.append(tbl)
+    return out
+
+
+# --------------------------------------------------------------------------- sections
+
+
+def _identity_block(doc: TrajectoryDocument) -> list:
+    i = doc.identity
+    age = "unknown" if i.get("age_years") is None else f"{float(i['age_years']):.1f} years"
+    if i.get("age_uncertainty_years"):
+        age += f" (+/- {float(i['age_uncertainty_years']):g} y: year of birth only)"
+    if i.get("vital_status") == "deceased":
+        age += " at death"
+    else:
+        age += f" on {doc.as_of.isoformat()}"
+    geno = str(i.get("genotype_status") or "unknown")
+    if i.get("variant"):
+        geno += f" ({i['variant']}, {i.get('variant_class') or 'class unknown'})"
+    affected = str(i.get("affected_status") or "never assessed")
+    if i.get("affected_status_date"):
+        affected += f" (assessment {i['affected_status_date']})"
+    rel = i.get("affected_first_degree_relatives") or ""
+    rows = [
+        ("Person", f"{i['person']}    family {i.get('family')}    sex at birth {i.get('sex_at_birth')}    age {age}"),
+        ("Genotype", f"{geno}; {i.get('genotype_reason') or ''}".rstrip("; ")),
+        ("Phenotype", affected + (f"; first-degree relative of affected {rel}" if rel else "")),
+        ("Guideline", doc.guideline),
+    ]
+    t = Table([[_p(k, _CELL_HEAD), _p(v, _TEXT)] for k, v in rows], colWidths=[22 * mm, WIDTH - 22 * mm])
+    t.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"), ("LEFTPADDING", (0, 0), (-1, -1), 3),
+                           ("TOPPADDING", (0, 0), (-1, -1), 1), ("BOTTOMPADDING", (0, 0), (-1, -1), 1),
+                           ("BOX", (0, 0), (-1, -1), 0.5, colors.HexColor("#888888")),
+                           ("BACKGROUND", (0, 0), (0, -1), colors.HexColor("#EEEEEE"))]))  # fmt: skip
+    return [
+        _p(f"Trajectory report {i['person']}", _TITLE),
+        _p(f"{doc.clinic}. Data as of {doc.as_of.isoformat()}; generated {doc.generated.isoformat()}. "
+           "Person code only; look the person up in the record.", _SMALL),  # fmt: skip
+        Spacer(1, 4),
+        t,
+    ]
+
+
+def _flags_block(doc: TrajectoryDocument) -> list:
+    out = [_p("Trends and flags (beyond measurement variability, projections, conversion)", _SECTION)]
+    lines = list(doc.flags) or ["No measure is flagged."]
+    for ln in lines:
+        out.append(_p(f"- {ln}", _FLAG))
+    if doc.conversion:
+        out.append(_p(doc.conversion, _TEXT))
+    return out
+
+
+def _recall_block(doc: TrajectoryDocument) -> list:
+    r = doc.recall
+    out = [_p("Recall proposal", _SECTION)]
+    head = f"Status {r.get('status')}"
+    if r.get("due"):
+        head += f"; next due {r['due']}"
+    if r.get("interval_months"):
+        head += f"; interval {r['interval_months']} months"
+    head += f". Rule set: {r.get('rule_set_title') or r.get('rule_set')}"
+    if r.get("policy"):
+        head += f", policy {r['policy']}"
+    if r.get("rule_id"):
+        head += f"; rule {r['rule_id']}"
+    out.append(_p(head + ".", _TEXT))
+    if r.get("needs_text"):
+        out.append(_p(f"Visit needs: {r['needs_text']}.", _TEXT))
+    if r.get("reason"):
+        out.append(_p(f"Reasons: {r['reason']}", _TEXT))
+    if r.get("source"):
+        out.append(_p(f"Source: {r['source']}", _SMALL))
+    for n in r.get("notes_shown", ()) or ():
+        out.append(_p(f"Note: {n}", _SMALL))
+    return out
+
+
+def _risk_block(doc: TrajectoryDocument) -> list:
+    k = doc.risk
+    out = [_p("Sudden cardiac death risk (HCM Risk-SCD)", _SECTION), _p(k.headline, _TEXT)]
+    if k.inputs:
+        out.append(_p("Inputs: " + "; ".join(k.inputs) + ".", _SMALL))
+    for b in k.bands:
+        out.append(_p(b, _SMALL))
+    for reason in k.reasons:
+        out.append(_p(f"- {reason}", _SMALL))
+    if k.validated_ranges:
+        out.append(_p(k.validated_ranges + " The model does not apply outside this range.", _SMALL))
+    if k.caution:
+        out.append(_p(k.caution, _SMALL))
+    return out
+
+
+def _strain_block(doc: TrajectoryDocument) -> list:
+    out: list = [_p("Segmental longitudinal strain (17-segment polar map)", _SECTION)]
+    if doc.strain is None:
+        out.append(_p(doc.strain_note or "No segmental strain values recorded.", _TEXT))
+        return out
+    s = doc.strain
+    drawing = polar_map.polar_map_drawing(s.values, diameter=60 * mm)
+    text = [_p(f"Echo {s.study_date}: peak longitudinal strain per segment, % (negative = shortening).", _TEXT)]
+    text += [_p(x, _SMALL) for x in s.indices]
+    text.append(_p("Layout: AHA standardized 17-segment model (Cerqueira et al., Circulation 2002;105:539-42): "
+                   "basal 1-6, mid 7-12, apical 13-16, apex 17; segment 1 basal anterior at the top, then "
+                   "counter-clockwise anteroseptal, inferoseptal, inferior, inferolateral, anterolateral "
+                   "(septum left, lateral wall right).", _SMALL))  # fmt: skip
+    text.append(_p(polar_map.SCALE_TEXT, _SMALL))
+    if doc.strain_note:
+        text.append(_p(doc.strain_note, _SMALL))
+    t = Table([[drawing, text]], colWidths=[drawing.width + 4, WIDTH - drawing.width - 4])
+    t.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"), ("LEFTPADDING", (0, 0), (-1, -1), 0)]))
+    out.append(t)
+    return [KeepTogether(out)]
+
+
+def build_story(doc: TrajectoryDocument) -> list:
+    """The flowables: identity, flags, recall, risk, charts, tables, strain map, notes and sources."""
+    story: list = _identity_block(doc)
+    story += _flags_block(doc)
+    story += _recall_block(doc)
+    story += _risk_block(doc)
+    story.append(CondPageBreak(70 * mm))
+    story.append(_p("Key measures over age", _SECTION))
+    story.append(_p(CHART_LEGEND, _SMALL))
+    story += _charts_block(doc.charts)
+    story.append(_p("Tables: value in the catalogue unit; under it the normal limit of that study (or the "
+                    "z-score); H above, L below the normal limit; C meets the guideline's wall-thickness "
+                    "criterion (for GLS, stored negative, H and L refer to the magnitude of shortening, as the "
+                    "review judges it); * computed by the tool. Measure names are listed at the end. Echo and CMR are "
+                    "separate series, never pooled.", _SMALL))  # fmt: skip
+    for t in doc.tables:
+        story += _modality_tables(t)
+    story += _strain_block(doc)
+    if doc.notes or doc.sources:
+        story.append(_p("Notes, measures and sources", _SECTION))
+    for n in doc.notes:
+        story.append(_p(n, _TINY))
+    names = [f"{r.measure} {r.label}" for t in doc.tables for r in t.rows if r.label]
+    if names:
+        story.append(_p("Measures: " + "; ".join(dict.fromkeys(names)) + ".", _TINY))
+    grouped: dict[str, list[str]] = {}
+    for measure, src in doc.sources:
+        grouped.setdefault(src, []).append(measure)
+    for src, measures in grouped.items():
+        story.append(_p(f"{', '.join(measures)}: {src}", _TINY))
+    return story
+
+
+def _numbered_canvas(footer_lines: list[str], person: str, generated: dt.date):
+    """A canvas class that draws the footer with 'page N of M' once the page count is known."""
+
+    class _Canvas(rl_canvas.Canvas):
+        def __init__(self, *args, **kwargs):
+            super().__init__(*args, **kwargs)
+            self._pages: list[dict] = []
+
+        def showPage(self):  # noqa: N802 - reportlab API
+            self._pages.append(dict(self.__dict__))
+            self._startPage()
+
+        def save(self):
+            total = len(self._pages)
+            for state in self._pages:
+                self.__dict__.update(state)
+                self._footer(total)
+                super().showPage()
+            super().save()
+
+        def _footer(self, total: int) -> None:
+            self.saveState()
+            top = FOOTER_MM * mm - 3 * mm
+            self.setStrokeColor(colors.HexColor("#999999"))
+            self.setLineWidth(0.5)
+            self.line(MARGIN_MM * mm, top, PAGE[0] - MARGIN_MM * mm, top)
+            text = (" ".join(footer_lines) + f"  Trajectory report {person}; generated {generated.isoformat()}; "
+                    f"page {self._pageNumber} of {total}.")  # fmt: skip
+            note = _p(text, _FOOTER)
+            _, h = note.wrap(WIDTH, FOOTER_MM * mm)
+            note.drawOn(self, MARGIN_MM * mm, top - 1.5 * mm - h)
+            self.restoreState()
+
+    return _Canvas
+
+
+def write_trajectory_pdf(doc: TrajectoryDocument, path: str | Path) -> Path:
+    """Write ``doc`` as an A4 portrait PDF at ``path`` (the folder must exist) and return the path."""
+    path = Path(path)
+    person = str(doc.identity["person"])
+    footer = [PAGE_CAUTION] + [c for c in doc.cautions if c != PAGE_CAUTION and not c.startswith("Decision support")]
+    pdf = SimpleDocTemplate(
+        str(path),
+        pagesize=PAGE,
+        leftMargin=MARGIN_MM * mm,
+        rightMargin=MARGIN_MM * mm,
+        topMargin=12 * mm,
+        bottomMargin=FOOTER_MM * mm + 3 * mm,
+        title=f"Trajectory report {person}",
+        author=doc.clinic,
+        subject="Serial measurements, trends, recall and risk of one person (person code only)",
+        creator="hcm-family-tracker",
+    )
+    pdf.build(build_story(doc), canvasmaker=_numbered_canvas(footer, person, doc.generated))
+    return path
