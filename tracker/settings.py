@@ -20,6 +20,10 @@ else ``./tracker.toml`` if present, else the defaults below.  Example
     [repeatability]             # the clinic's own within-subject SD, in the measure's unit
     mwt_echo = 1.2
 
+    [privacy]                   # for `tracker export all --pseudonymise` (docs/privacy.md)
+    pseudonym_key_file = "pseudonym.key"   # relative to this file; or pseudonym_key = "..."
+    small_cell_threshold = 5
+
 Unknown sections or keys are errors, so that a typing mistake in a setting
 that changes recall intervals cannot pass unnoticed.
 """
@@ -52,6 +56,46 @@ class Clinic:
     signatory_role: str = ""
 
 
+# Fewer than 5 per cell: common practice for small-cell suppression in health statistics
+# (no single source).
+DEFAULT_SMALL_CELL = 5
+MIN_KEY_CHARS = 32  # RFC 2104 section 3: keys shorter than the hash output (32 bytes) are discouraged
+KEY_HOWTO = (
+    "set [privacy] pseudonym_key_file = \"PATH\" in the settings file (--settings), PATH a file "
+    "(mode 0600, kept out of any export) holding a random key of at least 32 characters, e.g. "
+    "from: python3 -c 'import secrets; print(secrets.token_hex(32))'"
+)
+
+
+@dataclass(frozen=True)
+class Privacy:
+    """The secret key of pseudonymised extracts and the small-cell threshold.
+
+    The key never appears in a repr, a message or an extract.
+    """
+
+    pseudonym_key: str | None = field(default=None, repr=False)
+    pseudonym_key_file: str | None = None  # absolute, or resolved against the settings file
+    small_cell_threshold: int = DEFAULT_SMALL_CELL
+
+    def key(self) -> str:
+        """The key, from the setting or its file; a clear one-line error when there is none."""
+        if self.pseudonym_key_file is not None:
+            p = Path(self.pseudonym_key_file)
+            try:
+                text = p.read_text(encoding="utf-8").strip()
+            except (OSError, UnicodeDecodeError):
+                raise UserError(f"[privacy] pseudonym_key_file {p} cannot be read") from None
+            where = f"the key file {p}"
+        elif self.pseudonym_key is not None:
+            text, where = self.pseudonym_key.strip(), "[privacy] pseudonym_key"
+        else:
+            raise UserError(f"no pseudonym key: {KEY_HOWTO}")
+        if len(text) < MIN_KEY_CHARS:
+            raise UserError(f"{where} is shorter than {MIN_KEY_CHARS} characters: {KEY_HOWTO}")
+        return text
+
+
 @dataclass(frozen=True)
 class Settings:
     clinic: Clinic = field(default_factory=Clinic)
@@ -60,12 +104,14 @@ class Settings:
     slots_per_week: int | None = None
     repeatability: dict[str, float] = field(default_factory=dict)
     source: str = "built-in defaults"
+    privacy: Privacy = field(default_factory=Privacy)
 
 
 _SECTIONS = {
     "clinic": set(Clinic.__dataclass_fields__),
     "schedule": {"guideline", "policy", "slots_per_week"},
     "repeatability": None,  # any measure code
+    "privacy": {"pseudonym_key", "pseudonym_key_file", "small_cell_threshold"},
 }
 
 
@@ -83,10 +129,11 @@ def load_settings(path: str | Path | None = None) -> Settings:
         data = tomllib.loads(p.read_text(encoding="utf-8"))
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
         raise UserError(f"{p.name}: not valid TOML ({exc})") from None
-    return parse_settings(data, p.name)
+    return parse_settings(data, p.name, base=p.parent)
 
 
-def parse_settings(data: dict, name: str = "settings") -> Settings:
+def parse_settings(data: dict, name: str = "settings", base: Path | None = None) -> Settings:
+    """Settings from parsed TOML; a relative key file is taken relative to ``base``."""
     for section, value in data.items():
         if section not in _SECTIONS:
             raise UserError(f"{name}: unknown section [{section}] (known: {', '.join(_SECTIONS)})")
@@ -117,4 +164,21 @@ def parse_settings(data: dict, name: str = "settings") -> Settings:
         if not isinstance(v, (int, float)) or v <= 0:
             raise UserError(f"{name}: [repeatability] {code} must be a positive number (within-subject SD)")
         rep[code] = float(v)
-    return Settings(clinic, guideline, policy, slots, rep, name)
+    return Settings(clinic, guideline, policy, slots, rep, name, _privacy(data.get("privacy", {}), name, base))
+
+
+def _privacy(section: dict, name: str, base: Path | None) -> Privacy:
+    key, key_file = section.get("pseudonym_key"), section.get("pseudonym_key_file")
+    if key is not None and key_file is not None:
+        raise UserError(f"{name}: [privacy] give pseudonym_key or pseudonym_key_file, not both")
+    if key is not None and not isinstance(key, str):
+        raise UserError(f"{name}: [privacy] pseudonym_key must be text")
+    if key_file is not None:
+        if not isinstance(key_file, str) or not key_file.strip():
+            raise UserError(f"{name}: [privacy] pseudonym_key_file must be a file path")
+        p = Path(key_file).expanduser()
+        key_file = str(p if p.is_absolute() or base is None else base / p)
+    threshold = section.get("small_cell_threshold", DEFAULT_SMALL_CELL)
+    if not isinstance(threshold, int) or isinstance(threshold, bool) or threshold < 1:
+        raise UserError(f"{name}: [privacy] small_cell_threshold must be a whole number of at least 1")
+    return Privacy(key, key_file, threshold)

@@ -10,13 +10,23 @@ from typing import Annotated
 import typer
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
-from tracker.cli.common import engine_for, DbOption, JsonOption, err, open_store, print_json, print_table
+from tracker.cli.common import (
+    DbOption,
+    JsonOption,
+    SettingsOption,
+    engine_for,
+    err,
+    open_store,
+    print_json,
+    print_table,
+)
 from tracker.errors import UserError
-from tracker.io import csv_import, export
+from tracker.io import csv_import, export, pseudonymise
 from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
 from tracker.outputs import summary
 from tracker.store import migrate
 from tracker.store import repository as repo
+from tracker.settings import load_settings
 from tracker.store.database import locate, make_engine, reading, writing
 
 ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all")}, type=str)
@@ -37,7 +47,7 @@ def _progress_bar(total: int):
         TimeRemainingColumn(),
         console=err,
         transient=True,
-        disable=total < PROGRESS_THRESHOLD,
+        disable=total < PROGRESS_THRESHOLD or not err.is_terminal,  # no bar (nor its blank line) in logs
     )
 
 
@@ -100,18 +110,50 @@ def _report(summaries, dry_run: bool, json_out: bool) -> None:
         typer.echo("dry run: nothing was written")
 
 
+DatesMode = Enum("DatesMode", {m: m for m in pseudonymise.DATE_MODES}, type=str)
+
+
 def export_(
     kind: Annotated[ExportKind, typer.Argument(help="What to export; `all` writes every layout file.")],
     out: Annotated[Path, typer.Option("--out", "-o", help="CSV file (or folder for `all`).")],
+    pseudonymise_: Annotated[
+        bool,
+        typer.Option(
+            "--pseudonymise",
+            help="Write a research extract instead (with `all`): keyed-hash codes, dates as ages "
+            "or shifted, free text dropped, a README and a small-cell check. Needs the settings "
+            "privacy section (pseudonym_key_file). See docs/privacy.md.",
+        ),
+    ] = False,
+    dates: Annotated[
+        DatesMode | None,
+        typer.Option("--dates", help="With --pseudonymise: `ages` (age at each date; default) or "
+                     "`shift` (each family's dates moved by one keyed shift of up to 180 days)."),
+    ] = None,
+    min_cell: Annotated[
+        int | None,
+        typer.Option("--min-cell", min=1, help="With --pseudonymise: warn about cells of sex x age band x "
+                     "gene with fewer people (default: settings, else 5)."),
+    ] = None,
+    settings: SettingsOption = None,
     db: DbOption = None,
     json_out: JsonOption = False,
 ) -> None:
     """Write stored records in the import layout (import -> export -> import is exact).
 
+    With --pseudonymise, write a pseudonymised research extract to a folder.
+
     Example: tracker export studies --out studies.csv
+
+    Example: tracker export all --out extract/ --pseudonymise --dates shift --settings clinic.toml
     """
-    engine = open_store(db)
     kind = kind.value
+    if pseudonymise_:
+        _export_pseudonymised(kind, out, dates.value if dates else "ages", min_cell, settings, db, json_out)
+        return
+    if dates is not None or min_cell is not None:
+        raise UserError("--dates and --min-cell need --pseudonymise")
+    engine = open_store(db)
     with reading(engine) as conn:
         if kind == "all":
             counts = export.export_all(conn, out)
@@ -124,6 +166,45 @@ def export_(
     else:
         for k, n in counts.items():
             typer.echo(f"{k}: {n} rows written")
+
+
+def _export_pseudonymised(kind, out: Path, dates: str, min_cell, settings_path, db, json_out: bool) -> None:
+    if kind != "all":
+        raise UserError("--pseudonymise writes a whole extract: use `tracker export all --out FOLDER --pseudonymise`")
+    conf = load_settings(settings_path).privacy
+    key = conf.key()
+    threshold = min_cell if min_cell is not None else conf.small_cell_threshold
+    pseudonymise.check_folder(out)
+    engine = open_store(db)
+    with reading(engine) as conn:
+        frames = {k: repo.LOADERS[k](conn) for k in IMPORT_ORDER}
+    extract = pseudonymise.pseudonymise(frames, key, dates=dates, min_cell=threshold, today=dt.date.today())
+    counts = pseudonymise.write_extract(extract, out)
+    small = extract.small_cells
+    warning = None
+    if small.below:
+        warning = (
+            f"{small.below} of {small.cells} cells of {small.categories} hold fewer than "
+            f"{small.threshold} people; review them before the extract leaves the clinic"
+        )
+        typer.echo(f"warning: {warning}", err=True)
+    if json_out:
+        print_json({
+            "out": str(out),
+            "pseudonymised": True,
+            "dates": dates,
+            "rows": counts,
+            "people": extract.people,
+            "families": extract.families,
+            "columns_dropped": extract.dropped,
+            "small_cells": small.as_dict(),
+            "warnings": 1 if warning else 0,
+            "warning": warning,
+        })
+    else:
+        for k, n in counts.items():
+            typer.echo(f"{k}: {n} rows written")
+        typer.echo(f"pseudonymised extract ({dates}) in {out}; see {out / pseudonymise.MANIFEST}")
 
 
 def demo_folder() -> Path:

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import csv
 import io
+import os
 from pathlib import Path
 
 import pandas as pd
@@ -44,10 +45,18 @@ def to_csv_text(frame: pd.DataFrame, kind: str) -> str:
     return out.getvalue()
 
 
+def write_private(path: Path, text: str) -> None:
+    """Write a UTF-8 text file readable by its owner only (0600): exports hold health data."""
+    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
+    with os.fdopen(fd, "w", encoding="utf-8", newline="") as f:
+        f.write(text)
+    os.chmod(path, 0o600)  # an existing file keeps its old mode on open: set it
+
+
 def export_kind(conn: Connection, kind: str, path: Path) -> int:
     """Write ``kind`` to ``path``; returns the number of rows written."""
     frame = export_frame(conn, kind)
-    path.write_text(to_csv_text(frame, kind), encoding="utf-8")
+    write_private(path, to_csv_text(frame, kind))
     return len(frame)
 
 
