@@ -26,6 +26,10 @@ How the numbers are made
   the hypertensive brother) are written by hand, in mm, as measured.
 * Every other echo and CMR measure is derived from body size, age, sex and a
   disease severity (0 = no phenotype, 1 = established HCM) with noise.
+* Segmental peak longitudinal strain (AHA 17 segments, ``ls_seg01`` ..
+  ``ls_seg17``) is hand-written for the last two echos of the proband of HV01
+  (``SEGMENT_STRAIN``; no random draws, so every other value stays the same).
+  The rows follow that echo's other rows in studies.csv.
 
 The script checks the data before writing (``check_all``) and refuses to write
 anything if a check fails.
@@ -475,6 +479,51 @@ GENETIC_RESULTS = [
 # Predictive tests of a variant that was not P/LP at the time (segregation in an
 # affected or borderline relative, ESC 2023 IIa C [V]):
 SEGREGATION_TESTS = {("HV03-II-3", "2019-06-10")}
+
+
+# ---------------------------------------------------------------------------
+# Segmental strain (hand-written, invented)
+# ---------------------------------------------------------------------------
+# Peak longitudinal strain in %, AHA 17-segment numbering (Cerqueira 2002, as in
+# tracker/engines/segments.py): basal 1-6, mid 7-12 (anterior, anteroseptal,
+# inferoseptal, inferior, inferolateral, anterolateral), apical 13-16 (anterior,
+# septal, inferior, lateral), apex 17.  Invented to look like asymmetric septal
+# hypertrophy: the hypertrophied basal and mid septum (2, 3, 8, 9) shortens
+# least (-8 to -13 %), the lateral wall and the apex most (-17 to -21 %), as is
+# usual in septal HCM (common practice, no single source).  The average of the
+# 17 values lies within SEGMENT_GLS_AGREEMENT of the study's GLS (demo choice).
+# Catalogue entry range of ls_segNN: -50 to 30 % (migration 0002).
+SEGMENT_STRAIN: dict[tuple[str, str], tuple[float, ...]] = {
+    # (person, visit month): values of segments 1..17
+    ("HV01-III-1", "2025-09"): (-15.8, -8.4, -9.1, -16.2, -17.9, -18.6,
+                                -16.9, -11.3, -12.0, -17.4, -18.8, -19.3,
+                                -19.6, -17.2, -19.9, -20.4, -20.8),
+    ("HV01-III-1", "2026-09"): (-16.3, -8.9, -9.6, -16.8, -18.4, -18.9,
+                                -17.4, -11.9, -12.6, -17.9, -19.1, -19.7,
+                                -20.1, -17.8, -20.3, -20.9, -21.4),
+}  # fmt: skip
+SEGMENT_GLS_AGREEMENT = 1.5  # % (demo choice: segment average and GLS of one study agree closely)
+SEGMENT_RANGE = (-50.0, 30.0)  # % plausible entry range of ls_segNN (migration 0002)
+
+
+def segment_rows(study: "Study") -> list[tuple[str, float]]:
+    """(code, value) of the hand-written segmental strain of an echo study, or []."""
+    values = SEGMENT_STRAIN.get((study.person, study.day.strftime("%Y-%m"))) if study.modality == "echo" else None
+    return [] if values is None else [(f"ls_seg{i:02d}", v) for i, v in enumerate(values, start=1)]
+
+
+def check_segment_strain(studies: list["Study"]) -> None:
+    """Each SEGMENT_STRAIN entry belongs to exactly one echo, has 17 values in range, a septum that
+    shortens less than the lateral wall, and an average close to that echo's GLS."""
+    for (person, month), values in SEGMENT_STRAIN.items():
+        echos = [s for s in studies if s.person == person and s.modality == "echo"
+                 and s.day.strftime("%Y-%m") == month]  # fmt: skip
+        assert len(echos) == 1, f"segment strain {person} {month}: {len(echos)} echo studies"
+        assert len(values) == 17 and all(SEGMENT_RANGE[0] <= v <= SEGMENT_RANGE[1] for v in values)
+        septum, lateral = values[1] + values[2], values[4] + values[5]  # segments 2+3 vs 5+6
+        assert septum > lateral, f"segment strain {person} {month}: septum not less negative"
+        gls = echos[0].values["gls"]
+        assert abs(sum(values) / 17 - gls) <= SEGMENT_GLS_AGREEMENT, f"segment strain {person} {month}"
 
 
 # ---------------------------------------------------------------------------
@@ -1209,6 +1258,7 @@ def write_csv(name: str, columns: list[str], rows: list[dict]) -> None:
 def main() -> None:
     studies, assessments = build()
     check_all(studies, assessments)
+    check_segment_strain(studies)
 
     write_csv("families.csv", ["family", "condition", "notes"],
               [dict(family=f, condition=CONDITION, notes=n) for f, n in FAMILIES])
@@ -1243,11 +1293,13 @@ def main() -> None:
             if code in s.values:
                 _, unit, decimals, _, _ = MEASURES[code]
                 study_rows.append(dict(base, measure=code, value=fmt(s.values[code], decimals), unit=unit))
+        for code, value in segment_rows(s):
+            study_rows.append(dict(base, measure=code, value=fmt(value, 1), unit="%"))
     write_csv("studies.csv", ["person", "study_date", "modality", "site", "height_cm", "weight_kg",
                               "measure", "value", "unit"], study_rows)
 
     n_studies = len({(s.person, s.day, s.modality) for s in studies})
-    n_meas = sum(len(s.values) for s in studies)
+    n_meas = sum(len(s.values) + len(segment_rows(s)) for s in studies)
     years = sorted({s.day.year for s in studies})
     by_mod = {m: sum(1 for s in studies if s.modality == m) for m in ("echo", "cmr", "ecg", "clinic")}
     print(f"families {len(FAMILIES)}, people {len(PEOPLE)} "

@@ -7,8 +7,10 @@ and renders its first page to PNG with :func:`tracker.outputs.letter_pdf.render_
 * docs/images/letter-example.png   family letter for HV01-IV-5
 * docs/images/pedigree-HV01.png     pedigree of family HV01
 * docs/images/worklist-example.png  recall worklist 2026-12-01 to 2027-03-01, 3 slots a week
-* docs/images/trajectory-example.png  first page of the trajectory report of HV01-IV-2 (as of 2026-12-01,
-  with invented answers to the HCM Risk-SCD questions the store does not hold)
+* docs/images/trajectory-example.png  first page of the trajectory report of HV01-III-1 (as of 2026-12-01,
+  with invented answers to the HCM Risk-SCD questions the store does not hold); the demo gives him
+  17-segment strain, so this page shows the polar map beside the charts (the script checks it does)
+* docs/images/trajectory-page2-example.png  second page of the same report (tables, notes and sources)
 
 Dates are fixed (letter date and worklist "as of" 2026-12-01) so the pictures
 do not change from day to day.  All data are invented.
@@ -28,6 +30,7 @@ IMAGES = ROOT / "docs" / "images"
 SETTINGS = ROOT / "demo_family" / "clinic.toml"
 ON = "2026-12-01"
 WINDOW = ("2026-12-01", "2027-03-01")
+TRAJECTORY = "HV01-III-1"  # affected proband: 15 echos, 3 CMRs and 17-segment strain in the demo
 # Invented answers for the demo (the store does not record them): no NSVT, syncope, SCD family history,
 # arrest or metabolic disease; the provoked gradient taken with Valsalva.
 RISK_ANSWERS = ("--scd-family-history", "no", "--nsvt", "no", "--unexplained-syncope", "no",
@@ -54,6 +57,15 @@ def _tracker(*args: str) -> None:
         raise SystemExit(f"tracker {' '.join(args)} failed:\n{r.stdout}\n{r.stderr}")
 
 
+def _check_map_on_first_page(pdf: Path) -> None:
+    """Stop unless page 1 of the trajectory report holds the polar map (its colour key) and the report has 2 pages."""
+    import pypdf
+
+    pages = pypdf.PdfReader(str(pdf)).pages
+    if len(pages) != 2 or "peak LS, %" not in (pages[0].extract_text() or ""):
+        raise SystemExit(f"{pdf.name}: expected 2 pages with the polar map on page 1 (got {len(pages)} pages)")
+
+
 def main() -> None:
     sys.path.insert(0, str(ROOT))
     from tracker.outputs.letter_pdf import render_png
@@ -68,17 +80,21 @@ def main() -> None:
         _tracker("report", "pedigree", "HV01", "--out", str(out), "--db", db)
         _tracker("report", "worklist", "--from", WINDOW[0], "--to", WINDOW[1], "--slots-per-week", "3",
                  "--as-of", ON, "--out", str(out), "--settings", str(SETTINGS), "--db", db)  # fmt: skip
-        _tracker("report", "trajectory", "HV01-IV-2", "--out", str(out), "--as-of", ON, "--settings", str(SETTINGS),
+        _tracker("report", "trajectory", TRAJECTORY, "--out", str(out), "--as-of", ON, "--settings", str(SETTINGS),
                  "--db", db, *RISK_ANSWERS)  # fmt: skip
+        _check_map_on_first_page(out / f"trajectory-{TRAJECTORY}.pdf")
         made = {
             "letter-HV01-IV-5.pdf": "letter-example.png",
             "pedigree-HV01.pdf": "pedigree-HV01.png",
             f"worklist-{WINDOW[0]}-{WINDOW[1]}.pdf": "worklist-example.png",
-            "trajectory-HV01-IV-2.pdf": "trajectory-example.png",
+            f"trajectory-{TRAJECTORY}.pdf": "trajectory-example.png",
         }
         for pdf, png in made.items():
             path = render_png(out / pdf, IMAGES / png, page=0, scale=2.0)
             print(f"wrote {path.relative_to(ROOT)}")
+        path = render_png(out / f"trajectory-{TRAJECTORY}.pdf", IMAGES / "trajectory-page2-example.png", page=1,
+                          scale=2.0)  # fmt: skip
+        print(f"wrote {path.relative_to(ROOT)}")
 
 
 if __name__ == "__main__":

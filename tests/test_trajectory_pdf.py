@@ -8,6 +8,10 @@ page; each page renders to PNG; HCM Risk-SCD shown equals
 range; the polar map follows the AHA 17-segment layout; the colour scale is
 ordered and covers the data-entry range; the trend band matches statsmodels;
 an unknown person is one line on stderr with exit code 1 and nothing written.
+Length: the demo people with the longest series (16 and 15 echos, the latter
+with 17-segment strain in the demo data, and 13 echos with 3 CMRs) and the
+invented strain case fit on two A4 pages; tables list the first and the latest
+studies, say how many are not listed, and the charts keep every study.
 Extra studies used here (a segmental strain study, an out-of-range wall) are
 invented and imported into a copy of the demo database only.
 """
@@ -30,6 +34,7 @@ from tracker.engines import risk
 from tracker.engines.trend_band import mean_line_band
 from tracker.engines.trends import per_person_ols
 from tracker.outputs import polar_map as PM
+from tracker.outputs import trajectory_pdf as T
 from tracker.outputs.letter_pdf import render_png
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -38,6 +43,9 @@ PEOPLE = ROOT / "demo_family" / "people.csv"
 AS_OF = "2026-12-01"
 RELATIVE = "HV02-III-2"  # carrier with serial echo, CMR, uncertain status (demo_family/README.md)
 AFFECTED = "HV01-IV-2"  # the carrier who converts; affected from 2021
+PROBAND = "HV01-III-1"  # 15 echos, 3 CMRs, 17-segment strain at the 2025 and 2026 echos (demo_family/make_demo.py)
+#: The demo people with the longest series: echo studies 16, 15, 13, 10 and 10 (demo_family/studies.csv).
+LONGEST = (AFFECTED, PROBAND, "HV02-III-1", "HV05-II-1", RELATIVE)
 ANSWERS = ["--scd-family-history", "no", "--nsvt", "no", "--unexplained-syncope", "no",
            "--prior-arrest-or-sustained-vt", "no", "--metabolic-or-syndromic", "no",
            "--provoked-gradient", "valsalva"]  # fmt: skip
@@ -225,8 +233,48 @@ def test_segmental_strain_map_in_the_report(demo, capsys, tmp_path):
     assert "gls_segavg (computed)" in text
     for b in PM.COLOUR_BINS:
         assert b.label in text
+    assert info["pages"] == len(pages) == 2  # 10 echos, 2 CMRs and the map: two pages
     for i in range(len(pages)):
         render_png(path, tmp_path / f"s{i}.png", page=i, scale=1.0)
+
+
+# --------------------------------------------------------------------------- length
+
+
+@pytest.mark.parametrize("person", LONGEST)
+def test_the_longest_demo_series_fit_on_two_pages(demo, capsys, person):
+    info, pages, _ = _report(capsys, str(demo[1]), person, demo[0] / f"two-{person}", *ANSWERS)
+    assert info["pages"] == len(pages) == 2
+    for n, page in enumerate(pages, start=1):
+        assert f"page {n} of 2" in _flat(page) and "Decision support only" in _flat(page)
+
+
+def test_tables_list_first_and_latest_and_charts_keep_every_study(demo, capsys, monkeypatch):
+    shown = {}
+    write = T.write_trajectory_pdf
+    monkeypatch.setattr(T, "write_trajectory_pdf", lambda doc, path: shown.setdefault("doc", doc) and write(doc, path))
+    info, pages, _ = _report(capsys, str(demo[1]), PROBAND, demo[0] / "listing", *ANSWERS)
+    code, out, _ = _cli(capsys, "person", PROBAND, "--json", "--db", demo[1])
+    assert code == 0
+    echo = [s["study_date"] for s in json.loads(out)["studies"] if s["modality"] == "echo" and s["study_date"] <= AS_OF]
+    assert len(echo) == 15 and info["tables"]["echo"] == 15
+    text = _flat(" ".join(pages))
+    assert "ECHO values: first study and the latest 5 of 15" in text
+    assert f"Not listed: 9 ECHO studies, {echo[1]} to {echo[9]}." in text
+    assert f"every value of every study is in `tracker person {PROBAND}`" in text
+    assert echo[0] in text and all(d in text for d in echo[10:])
+    mwt = next(c for c in shown["doc"].charts if c.measure == "mwt_echo")
+    assert len(mwt.points) == 15  # the chart keeps every study
+    # the demo's own segmental strain: the latest of the two studies, drawn on page 1 beside the charts
+    assert info["strain_map"] == echo[-1]
+    assert "peak LS, %" in pages[0] and "Latest of 2 studies with segmental strain" in text
+
+
+def test_table_columns_first_study_and_the_latest():
+    assert T.table_columns(4) == [0, 1, 2, 3]
+    assert T.table_columns(6) == list(range(6))
+    assert T.table_columns(15) == [0, 10, 11, 12, 13, 14]
+    assert T.table_columns(15, size=4) == [0, 12, 13, 14]
 
 
 # --------------------------------------------------------------------------- polar map geometry and colours

@@ -102,8 +102,8 @@ def _tables(a: pd.DataFrame, labels: dict[str, str]) -> tuple[T.ModalityTable, .
             for r in rows[rows["measure"] == m].itertuples(index=False):
                 meets = RV._clean(r.meets_criteria)
                 cells[col[r.study_date]] = T.Cell(
-                    float(r.value), T.limit_text(_f(r.lower), _f(r.upper), _f(r.z)),
-                    T.marks(RV._clean(r.assessment), meets is True),
+                    float(r.value), T.limit_text(_f(r.lower), _f(r.upper), None),
+                    T.marks(RV._clean(r.assessment), meets is True), _f(r.z),
                 )  # fmt: skip
             table_rows.append(T.TableRow(m, labels.get(m, ""), unit, bool(derived), tuple(cells)))
         out.append(T.ModalityTable(modality, tuple(d.isoformat() for d in dates),
@@ -163,27 +163,22 @@ def _charts(a: pd.DataFrame, trend_rows: dict[str, dict], guideline_label: str) 
     return tuple(out)
 
 
-def _flags(trend_records: list[dict]) -> tuple[str, ...]:
-    lines = []
+def _flags(trend_records: list[dict]) -> tuple[T.FlagRow, ...]:
+    """One row per trended measure: every key measure with 2 or more studies, other measures when flagged;
+    flagged measures first (the trend engine's order within each group)."""
+    rows = []
     key = set(T.KEY_MEASURES)
     for r in trend_records:
         if r["n"] < 2 or (not r["reasons"] and r["measure"] not in key):
             continue
-        slope = RV._ci(r["slope_per_year"], r["slope_ci_low"], r["slope_ci_high"], r["unit"])
-        zs = RV._ci(r["z_slope_per_year"], r["z_ci_low"], r["z_ci_high"], "z")
-        parts = [f"{r['measure']} ({r['n']} studies, {r['window']}): " + (r["reasons"] or "no flag")]
-        if slope:
-            parts.append(f"slope {slope}")
-        if zs:
-            parts.append(f"z slope {zs}")
-        change = RV._change_text(r)
-        if change:
-            parts.append(f"last change {change}")
-        proj = RV._projection_text(r)
-        if proj and r["measure"] in review.DIAGNOSTIC_MEASURES:
-            parts.append(f"projection: {proj}")
-        lines.append("; ".join(parts))
-    return tuple(lines)
+        rows.append(T.FlagRow(
+            measure=r["measure"], n=int(r["n"]), window=str(r["window"]), flag=r["reasons"] or "no flag",
+            flagged=bool(r["reasons"]), slope=RV._ci(r["slope_per_year"], r["slope_ci_low"], r["slope_ci_high"],
+                                                     r["unit"]),
+            z_slope=RV._ci(r["z_slope_per_year"], r["z_ci_low"], r["z_ci_high"], "z"), change=RV._change_text(r),
+            projection=RV._projection_text(r) if r["measure"] in review.DIAGNOSTIC_MEASURES else "",
+        ))  # fmt: skip
+    return tuple(sorted(rows, key=lambda f: not f.flagged))
 
 
 def _conversion(conv: pd.DataFrame) -> str:
@@ -282,13 +277,15 @@ def _strain(m: pd.DataFrame, a: pd.DataFrame) -> tuple[T.StrainMap | None, str]:
 
 
 def _sources(a: pd.DataFrame) -> tuple[tuple[str, str], ...]:
-    out: dict[str, str] = {}
+    """(measure, source text) for every distinct limit, criterion or formula source of a measure, over all its
+    studies (a series that starts in childhood has the child z-score source and the adult one)."""
+    out: dict[str, dict[str, None]] = {}
     keep = a[~a["measure"].astype(str).str.startswith(review._SEGMENT_PREFIXES)]
     for r in keep.itertuples():
-        texts = [t for t in (r.source, r.criteria_source, r.derivation) if isinstance(t, str) and t.strip()]
-        if texts and r.measure not in out:
-            out[r.measure] = "; ".join(dict.fromkeys(texts))
-    return tuple(sorted(out.items()))
+        for text in (r.source, r.criteria_source, r.derivation):
+            if isinstance(text, str) and text.strip():
+                out.setdefault(r.measure, {})[text.strip()] = None
+    return tuple((m, text) for m in sorted(out) for text in out[m])
 
 
 # --------------------------------------------------------------------------- command
@@ -318,8 +315,10 @@ def trajectory_report(
     Identity, trends and flags, the recall proposal, HCM Risk-SCD (affected
     people of 16 or over, when every input is known), charts of the key
     measures over age with the fitted trend, its 95% band, the normal range
-    and the diagnostic threshold, a table per modality of every value against
-    its limit, and a 17-segment strain map where segmental strain exists.
+    and the diagnostic threshold (every study), a 17-segment strain map beside
+    the charts where segmental strain exists, and a table per modality of the
+    first and the latest five studies against their limits (two A4 pages for a
+    long series; every value is in `tracker person`).
 
     Example: tracker report trajectory HV02-III-2 --out reports/ --as-of 2026-12-01
     """
@@ -411,7 +410,7 @@ def trajectory_report(
                 "risk": {"status": risk_section.status, "risk_5y_pct": risk_section.risk_5y_pct,
                          "reasons": list(risk_section.reasons),
                          "inputs": risk_result.inputs if risk_result is not None else None},  # fmt: skip
-                "flags": list(doc.flags),
+                "flags": [f.text for f in doc.flags],
                 "conversion": doc.conversion,
                 "charts": [c.measure for c in doc.charts],
                 "tables": {x.modality: len(x.dates) for x in doc.tables},

@@ -15,9 +15,12 @@ Angles are in degrees counter-clockwise from the positive x axis (3 o'clock),
 the convention of :class:`reportlab.graphics.shapes.Wedge`.  A six-segment
 ring gives each wall 60 degrees, the anterior wall centred at 90 degrees
 (12 o'clock); the apical ring gives each wall 90 degrees, also with the
-anterior centred at 90 degrees.  Ring radii are equal steps of a quarter of
-the outer radius (an engineering choice: the statement fixes the order, not
-the proportions of the drawing).
+anterior centred at 90 degrees.  Ring radii (fractions of the outer radius,
+:data:`RING_RADII`): basal 0.76-1, mid 0.52-0.76, apical 0.24-0.52, apex 0-0.24
+-- the inner rings a little wider than equal quarter steps so that a value and
+its segment number fit in the short apical segments of a small map (an
+engineering choice: the statement fixes the order, not the proportions of the
+drawing).
 
 Colour scale (this project's own design, defined numerically here; not taken
 from any imaging system): seven bins of peak longitudinal strain in %
@@ -54,9 +57,11 @@ SCALE_MAX_PCT = 30.0
 
 RING_ORDER = (seg.BASAL, seg.MID, seg.APICAL, seg.APEX)  # outermost first
 #: (inner, outer) radius of each ring as a fraction of the outer radius.
-RING_RADII = {seg.BASAL: (0.75, 1.0), seg.MID: (0.5, 0.75), seg.APICAL: (0.25, 0.5), seg.APEX: (0.0, 0.25)}
+RING_RADII = {seg.BASAL: (0.76, 1.0), seg.MID: (0.52, 0.76), seg.APICAL: (0.24, 0.52), seg.APEX: (0.0, 0.24)}
 
 OUT_OF_SCALE = "#BBBBBB"
+#: Width in points of the colour key drawn to the right of the map.
+LEGEND_WIDTH = 90.0
 
 
 @dataclass(frozen=True)
@@ -207,8 +212,10 @@ def polar_map_drawing(values: Mapping[int, float | None], diameter: float = 150.
     Every measured segment shows its value (one decimal); an unmeasured one shows "-" on white.
     """
     r = diameter / 2.0
-    legend_w = 110.0 if legend else 0.0
-    labels_pad = 14.0
+    # a small map (under 140 pt, as in the trajectory report's chart grid) uses smaller figures
+    value_pt, number_pt = (7.0, 5.0) if diameter >= 140 else (6.2, 4.6)
+    legend_w = LEGEND_WIDTH if legend else 0.0
+    labels_pad = 12.0
     width = diameter + 2 * labels_pad + legend_w
     height = diameter + 2 * labels_pad
     d = Drawing(width, height)
@@ -229,17 +236,19 @@ def polar_map_drawing(values: Mapping[int, float | None], diameter: float = 150.
         d.add(shape)
         text = "-" if v is None else f"{v:.1f}" + ("*" if bin_for(v) is None else "")
         fc = _text_colour(fill)
-        d.add(String(tx, ty - 1.5, text, fontName="Helvetica-Bold", fontSize=7, fillColor=fc, textAnchor="middle"))
-        d.add(String(tx, ty - 8.0, str(g.number), fontName="Helvetica", fontSize=5, fillColor=fc, textAnchor="middle"))
+        d.add(String(tx, ty + 0.3, text, fontName="Helvetica-Bold", fontSize=value_pt, fillColor=fc,
+                     textAnchor="middle"))  # fmt: skip
+        d.add(String(tx, ty - 5.2, str(g.number), fontName="Helvetica", fontSize=number_pt, fillColor=fc,
+                     textAnchor="middle"))  # fmt: skip
     small = dict(fontName="Helvetica", fontSize=6.5, fillColor=colors.HexColor("#333333"), textAnchor="middle")
     d.add(String(cx, cy + r + 4, "anterior", **small))
     d.add(String(cx, cy - r - 9, "inferior", **small))
     d.add(String(cx - r - 2, cy - 2, "septal", **{**small, "textAnchor": "end"}))
     d.add(String(cx + r + 2, cy - 2, "lateral", **{**small, "textAnchor": "start"}))
     if legend:
-        x0 = labels_pad * 2 + diameter + 16
+        x0 = labels_pad * 2 + diameter + 14
         box = 12.0
-        top = cy + 3.5 * box
+        top = min(height / 2 + 55.0, height - 12.0)  # the key (about 123 pt tall) centred, inside the drawing
         d.add(String(x0, top + 6, "peak LS, %", fontName="Helvetica-Bold", fontSize=7))
         for i, b in enumerate(COLOUR_BINS):
             y = top - (i + 1) * box
@@ -250,7 +259,7 @@ def polar_map_drawing(values: Mapping[int, float | None], diameter: float = 150.
         d.add(Rect(x0, y, box, box - 1.5, fillColor=colors.white, strokeColor=colors.HexColor("#444444"),
                    strokeWidth=0.4))  # fmt: skip
         d.add(String(x0 + box + 4, y + 3, "- not measured", fontName="Helvetica", fontSize=7))
-        d.add(Line(x0, y - 4, x0 + 90, y - 4, strokeColor=colors.HexColor("#BBBBBB"), strokeWidth=0.3))
+        d.add(Line(x0, y - 4, x0 + 70, y - 4, strokeColor=colors.HexColor("#BBBBBB"), strokeWidth=0.3))
         d.add(String(x0, y - 13, "lighter = more shortening", fontName="Helvetica", fontSize=6))
         d.add(String(x0, y - 21, "small number = segment", fontName="Helvetica", fontSize=6))
     return d

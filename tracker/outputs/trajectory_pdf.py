@@ -6,9 +6,10 @@ beyond layout and number formatting):
 
 1. Identity: person code, family, sex at birth, age, genotype status and
    variant class, affected status, the guideline and the "as of" date.  No name.
-2. Flags: progression beyond measurement variability, slope intervals,
-   projected threshold crossings and phenotype conversion, as the trend
-   engine words them (:func:`tracker.engines.review.trend_table`).
+2. Flags, one table row per measure: progression beyond measurement
+   variability, slope intervals, last change against the least significant
+   change, projected threshold crossings, as the trend engine words them
+   (:func:`tracker.engines.review.trend_table`), and phenotype conversion.
 3. The recall proposal (:func:`tracker.engines.schedule.propose_recall` via
    the ``tracker recall`` helpers): status, due date, interval, rule set,
    rule, reasons and source.
@@ -16,18 +17,27 @@ beyond layout and number formatting):
    person of 16 or over: the figure with its inputs, bands, validated range and
    caution, or the refusal with its reasons and no figure.
 5. Charts over age of the key measures (:data:`KEY_MEASURES`, those with a
-   value): the studies as dots, the fitted straight line with its 95%
-   confidence band (:func:`tracker.engines.trend_band.mean_line_band` on the
-   trend engine's fit), the normal range (lower and upper limit at each study,
-   as the review engine gives them) shaded, and the guideline's diagnostic
-   threshold (maximal wall thickness, adults, in mm) as a dashed line.
-6. One table per modality: every measure at every study, value in the
-   catalogue unit, the normal limit or z-score of that study, and the
-   judgement (H above, L below the normal limit, C meets the guideline's
-   wall-thickness criterion).  Wide series are split into several tables.
-7. Segmental strain of the latest study with segment values: a 17-segment
-   polar map (:mod:`tracker.outputs.polar_map`) with its legend.
-8. Notes and the source of every normal limit and criterion used.
+   value), every study drawn: the studies as dots, the fitted straight line
+   with its 95% confidence band (:func:`tracker.engines.trend_band.mean_line_band`
+   on the trend engine's fit), the normal range (lower and upper limit at each
+   study, as the review engine gives them) shaded, and the guideline's
+   diagnostic threshold (maximal wall thickness, adults, in mm) as a dashed
+   line.  Segmental strain of the latest study with segment values sits in the
+   same grid as a 17-segment polar map (:mod:`tracker.outputs.polar_map`) with
+   its legend, the text about it under the charts.
+6. One table per modality: each measure at the first study and the latest
+   ones (:func:`table_columns`, at most :data:`MAX_STUDY_COLUMNS` columns), a
+   line saying how many studies between them are not listed (every one is in
+   the charts and in ``tracker person``); value in the catalogue unit, the
+   normal limit once per row when it is the same at every listed study (else
+   under each value), the z-score beside the value, and the judgement (H
+   above, L below the normal limit, C meets the guideline's wall-thickness
+   criterion).
+7. Notes and the source of every normal limit and criterion used.
+
+The layout aims at two A4 pages for one relative's whole trajectory (a long
+yearly series with a CMR and a strain map included); only pathological counts
+(dozens of flagged measures, very long reasons) run on to a third page.
 
 Every page carries the cautions (decision support only, the treating
 clinician decides, follow local protocols and the current guideline), the
@@ -78,15 +88,22 @@ ROW_ORDER = (
     "lvot_provoked", "mv_e", "mv_a", "e_prime_septal", "e_prime_lateral", "tr_vmax",
     "mwt_cmr", "lvmi_cmr", "lvef_cmr", "lge_pct", "ecv",
 )  # fmt: skip
-MAX_STUDY_COLUMNS = 8
+#: Study columns of a modality table: the first study and the latest ones (the rest are in the charts).
+MAX_STUDY_COLUMNS = 6
+#: Cells in a row of the chart grid: 3, or 4 when more than 6 cells are needed (the polar map takes 2).
 CHARTS_PER_ROW = 3
+CHART_HEIGHT_MM = 41
+#: Diameter of the polar map in points (value and segment number stay legible at 7 and 5 pt).
+POLAR_DIAMETER = 128.0
 
 _TEXT = ParagraphStyle("tj_text", fontName="Helvetica", fontSize=8.5, leading=10.5)
 _SMALL = ParagraphStyle("tj_small", parent=_TEXT, fontSize=7, leading=8.5)
 _FLAG = ParagraphStyle("tj_flag", parent=_TEXT, fontSize=8, leading=9.6)
-_TINY = ParagraphStyle("tj_tiny", parent=_TEXT, fontSize=6.3, leading=7.6)
+_TINY = ParagraphStyle("tj_tiny", parent=_TEXT, fontSize=6.1, leading=7.2)
 _CELL = ParagraphStyle("tj_cell", parent=_TEXT, fontSize=7, leading=8.2)
 _CELL_HEAD = ParagraphStyle("tj_cell_head", parent=_CELL, fontName="Helvetica-Bold")
+_FCELL = ParagraphStyle("tj_fcell", parent=_CELL, fontSize=6.7, leading=7.8)
+_FCELL_HEAD = ParagraphStyle("tj_fcell_head", parent=_FCELL, fontName="Helvetica-Bold")
 _TITLE = ParagraphStyle("tj_title", parent=_TEXT, fontName="Helvetica-Bold", fontSize=14, leading=17, spaceAfter=2)
 _SECTION = ParagraphStyle("tj_section", parent=_TEXT, fontName="Helvetica-Bold", fontSize=10, leading=12.5,
                           spaceBefore=6, spaceAfter=2)  # fmt: skip
@@ -104,11 +121,13 @@ _THRESHOLD = colors.HexColor("#A3161A")
 
 @dataclass(frozen=True)
 class Cell:
-    """One value in a table: ``value`` in the catalogue unit, ``limit`` text ("6-9", "z 0.33"), judgement marks."""
+    """One value in a table: ``value`` in the catalogue unit, ``limit`` the normal-limit text ("6-9", ">= 7"),
+    judgement ``marks`` and the z-score of that study (None without one)."""
 
     value: float
     limit: str = ""
     marks: str = ""
+    z: float | None = None
 
 
 @dataclass(frozen=True)
@@ -128,6 +147,43 @@ class ModalityTable:
     dates: tuple[str, ...]
     ages: tuple[float | None, ...]
     rows: tuple[TableRow, ...]
+
+
+@dataclass(frozen=True)
+class FlagRow:
+    """One trended measure, in the trend engine's words (:func:`tracker.engines.review.trend_table`).
+
+    ``n`` studies in the fitted ``window``; ``flag``: the reasons, or "no flag"; ``flagged``: whether there
+    is a reason; ``slope`` and ``z_slope``: per year with their 95% CI; ``change``: last change against the
+    least significant change; ``projection``: of the diagnostic threshold crossing."""
+
+    measure: str
+    n: int
+    window: str
+    flag: str
+    flagged: bool = False
+    slope: str = ""
+    z_slope: str = ""
+    change: str = ""
+    projection: str = ""
+
+    @property
+    def text(self) -> str:
+        """The row as one line (the ``--json`` output)."""
+        parts = [f"{self.measure} ({self.n} studies, {self.window}): {self.flag}"]
+        named = (("slope ", self.slope), ("z slope ", self.z_slope), ("last change ", self.change),
+                 ("projection: ", self.projection))  # fmt: skip
+        parts += [f"{k}{v}" for k, v in named if v]
+        return "; ".join(parts)
+
+
+#: Short forms used in the flags table (the trend engine's window and variability words).
+_SHORT_WINDOW = {"all studies": "all", "studies from 18 y": "from 18 y", "all studies (under 18 y)": "all, under 18 y"}
+
+
+def _short_change(text: str) -> str:
+    """'-0.60 mm; LSC 3.88 mm (placeholder): within measurement variability' -> '...: within'."""
+    return text.replace(" measurement variability", "").replace("; no LSC for this measure", "; no LSC known")
 
 
 @dataclass(frozen=True)
@@ -179,7 +235,7 @@ class TrajectoryDocument:
     clinic: str
     as_of: dt.date
     generated: dt.date
-    flags: tuple[str, ...]
+    flags: tuple[FlagRow, ...]
     conversion: str
     recall: Mapping[str, object]
     risk: RiskSection
@@ -336,28 +392,52 @@ def chart_drawing(c: Chart, width: float, height: float) -> Drawing:
 
 
 CHART_LEGEND = (
-    "Charts: dots = studies (open dots are not in the fitted window: values under 18 y change with growth); "
-    "blue line = fitted straight-line trend with its 95% confidence band (of the mean line, not of the next "
-    "study); green = normal range at each study (lower and upper limit as given by the review); red dashed = "
-    "diagnostic threshold of the guideline for this person (maximal wall thickness, adults)."
+    "Charts, every study: dots = studies (open: not in the fitted window, values under 18 y change with growth); "
+    "blue line = fitted straight-line trend with the 95% confidence band of the mean line (not of the next study); "
+    "green = normal range at each study (limits as given by the review); red dashed = diagnostic threshold of the "
+    "guideline for this person (maximal wall thickness, adults)."
 )
 
 
-def _charts_block(charts: Sequence[Chart]) -> list:
-    if not charts:
+def _map_cell(s: StrainMap, width: float) -> list:
+    """The polar map with its title, as the content of a chart-grid cell ``width`` points wide."""
+    legend = width >= POLAR_DIAMETER + 28 + polar_map.LEGEND_WIDTH
+    drawing = polar_map.polar_map_drawing(s.values, diameter=POLAR_DIAMETER, legend=legend)
+    title = ParagraphStyle("tj_map_title", parent=_CELL_HEAD, fontSize=7.5, leading=9)
+    return [_p(f"Segmental peak longitudinal strain, echo {s.study_date} (%)", title), drawing]
+
+
+def _charts_block(charts: Sequence[Chart], strain: StrainMap | None = None) -> list:
+    """The chart grid: one cell per chart, the polar map (when given) two cells wide at the end.
+
+    Three cells a row, four when more than six are needed, so six charts and the map fill two rows."""
+    if not charts and strain is None:
         return [_p("No key measure has a value.", _TEXT)]
-    per_row = CHARTS_PER_ROW
-    w = WIDTH / per_row - 3
-    h = 48 * mm
-    cells = [chart_drawing(c, w, h) for c in charts]
-    rows = [cells[i:i + per_row] for i in range(0, len(cells), per_row)]
-    rows = [r + [""] * (per_row - len(r)) for r in rows]
+    n_cells = len(charts) + (2 if strain is not None else 0)
+    per_row = CHARTS_PER_ROW if n_cells <= 2 * CHARTS_PER_ROW else CHARTS_PER_ROW + 1
+    cell_w = WIDTH / per_row
+    h = CHART_HEIGHT_MM * mm
+    items: list[tuple[object, int]] = [(chart_drawing(c, cell_w - 3, h), 1) for c in charts]
+    if strain is not None:
+        items.append((_map_cell(strain, 2 * cell_w - 4), 2))
+    rows: list[list[tuple[object, int]]] = [[]]
+    for item in items:
+        if sum(span for _, span in rows[-1]) + item[1] > per_row:
+            rows.append([])
+        rows[-1].append(item)
     out: list = []
     for r in rows:
-        t = Table([r], colWidths=[WIDTH / per_row] * per_row)
-        t.setStyle(TableStyle([("LEFTPADDING", (0, 0), (-1, -1), 0), ("RIGHTPADDING", (0, 0), (-1, -1), 4),
-                               ("TOPPADDING", (0, 0), (-1, -1), 2), ("BOTTOMPADDING", (0, 0), (-1, -1), 2),
-                               ("VALIGN", (0, 0), (-1, -1), "TOP")]))  # fmt: skip
+        data: list = []
+        spans = []
+        for content, span in r:
+            if span == 2:
+                spans.append(("SPAN", (len(data), 0), (len(data) + 1, 0)))
+            data += [content] + [""] * (span - 1)
+        data += [""] * (per_row - len(data))
+        t = Table([data], colWidths=[cell_w] * per_row)
+        t.setStyle(TableStyle([("LEFTPADDING", (0, 0), (-1, -1), 0), ("RIGHTPADDING", (0, 0), (-1, -1), 3),
+                               ("TOPPADDING", (0, 0), (-1, -1), 1), ("BOTTOMPADDING", (0, 0), (-1, -1), 1),
+                               ("VALIGN", (0, 0), (-1, -1), "TOP"), *spans]))  # fmt: skip
         out.append(t)
     return out
 
@@ -365,65 +445,81 @@ def _charts_block(charts: Sequence[Chart]) -> list:
 # --------------------------------------------------------------------------- tables
 
 
-def _chunks(n: int, size: int) -> list[range]:
-    """Split n columns into as few as possible near-equal chunks of at most ``size``."""
-    if n == 0:
-        return []
-    k = math.ceil(n / size)
-    base, extra = divmod(n, k)
-    out, start = [], 0
-    for i in range(k):
-        step = base + (1 if i < extra else 0)
-        out.append(range(start, start + step))
-        start += step
-    return out
+def table_columns(n: int, size: int = MAX_STUDY_COLUMNS) -> list[int]:
+    """The study columns listed out of ``n`` (oldest first): all when they fit, else the first study
+    (the baseline) and the latest ``size - 1``."""
+    if n <= size:
+        return list(range(n))
+    return [0] + list(range(n - (size - 1), n))
 
 
-def _modality_tables(t: ModalityTable) -> list:
-    out: list = []
-    parts = _chunks(len(t.dates), MAX_STUDY_COLUMNS)
-    name_w, unit_w = 30 * mm, 11 * mm
-    for k, cols in enumerate(parts):
-        col_w = min((WIDTH - name_w - unit_w) / len(cols), 24 * mm)
-        head = [_p("measure", _CELL_HEAD), _p("unit", _CELL_HEAD)]
+def _cell_text(c: Cell, with_limit: bool) -> str:
+    text = escape(number(c.value)) + (f" <b>{c.marks}</b>" if c.marks else "")
+    if c.z is not None and math.isfinite(c.z):
+        text += f" <font size=6 color='#555555'>z {c.z:.2f}</font>"
+    if with_limit and c.limit and (c.z is None or not math.isfinite(c.z)):  # a z-scored value is judged by its z
+        text += f"<br/><font size=6 color='#555555'>{escape(c.limit)}</font>"
+    return text
+
+
+def _modality_tables(t: ModalityTable, person: str) -> list:
+    n = len(t.dates)
+    cols = table_columns(n)
+    gap = n > len(cols)
+    name_w, unit_w, limit_w = 31 * mm, 10 * mm, 19 * mm
+    col_w = min((WIDTH - name_w - unit_w - limit_w) / max(len(cols), 1), 24 * mm)
+    head = [_p("measure", _CELL_HEAD), _p("unit", _CELL_HEAD), _p("normal limit (latest)", _CELL_HEAD)]
+    for k, i in enumerate(cols):
+        age = "" if t.ages[i] is None else f"age {t.ages[i]:.1f}"
+        first = ", first" if gap and k == 0 else ""
+        head.append(Paragraph(f"<b>{t.dates[i]}</b><br/>{age}{first}", _CELL))
+    data = [head]
+    hidden: list[str] = []
+    for r in t.rows:
+        shown = [r.cells[i] for i in cols if r.cells[i] is not None]
+        if not shown:
+            if any(c is not None for c in r.cells):
+                hidden.append(r.measure)
+            continue
+        limit = shown[-1].limit  # that of the latest study listed
+        name = f"<b>{escape(r.measure)}</b>" + ("*" if r.derived else "")
+        row = [Paragraph(name, _CELL), _p(UNIT_TEXT.get(r.unit, r.unit), _CELL), _p(limit, _CELL)]
         for i in cols:
-            age = "" if t.ages[i] is None else f"age {t.ages[i]:.1f}"
-            head.append(Paragraph(f"<b>{t.dates[i]}</b><br/>{age}", _CELL))
-        data = [head]
-        for r in t.rows:
-            if all(r.cells[i] is None for i in cols):
-                continue
-            name = f"<b>{escape(r.measure)}</b>" + ("*" if r.derived else "")
-            row = [Paragraph(name, _CELL), _p(UNIT_TEXT.get(r.unit, r.unit), _CELL)]
-            for i in cols:
-                c = r.cells[i]
-                if c is None:
-                    row.append("")
-                    continue
-                mark = f" <b>{c.marks}</b>" if c.marks else ""
-                lim = f"<br/><font size=6 color='#555555'>{escape(c.limit)}</font>" if c.limit else ""
-                row.append(Paragraph(escape(number(c.value)) + mark + lim, _CELL))
-            data.append(row)
-        tbl = Table(data, colWidths=[name_w, unit_w] + [col_w] * len(cols), repeatRows=1, hAlign="LEFT")
-        tbl.setStyle(
-            TableStyle(
-                [
-                    ("VALIGN", (0, 0), (-1, -1), "TOP"),
-                    ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#E4E4E4")),
-                    ("ROWBACKGROUNDS", (0, 1), (-1, -1), [colors.white, colors.HexColor("#F5F5F5")]),
-                    ("LINEBELOW", (0, 0), (-1, -1), 0.25, colors.HexColor("#BBBBBB")),
-                    ("BOX", (0, 0), (-1, -1), 0.5, colors.HexColor("#888888")),
-                    ("LEFTPADDING", (0, 0), (-1, -1), 3),
-                    ("RIGHTPADDING", (0, 0), (-1, -1), 3),
-                    ("TOPPADDING", (0, 0), (-1, -1), 1),
-                    ("BOTTOMPADDING", (0, 0), (-1, -1), 1),
-                ]
-            )
-        )
-        part = f" (part {k + 1} of {len(parts)})" if len(parts) > 1 else ""
-        out.append(CondPageBreak(35 * mm))
-        out.append(_p(f"{t.modality.upper()} values by study{part}", _SECTION))
-        out.append(tbl)
+            c = r.cells[i]
+            row.append("" if c is None else Paragraph(_cell_text(c, c.limit != limit), _CELL))
+        data.append(row)
+    style = [
+        ("VALIGN", (0, 0), (-1, -1), "TOP"),
+        ("FONTSIZE", (0, 0), (-1, -1), _CELL.fontSize),  # empty cells: no taller default font
+        ("LEADING", (0, 0), (-1, -1), _CELL.leading),
+        ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#E4E4E4")),
+        ("ROWBACKGROUNDS", (0, 1), (-1, -1), [colors.white, colors.HexColor("#F5F5F5")]),
+        ("LINEBELOW", (0, 0), (-1, -1), 0.25, colors.HexColor("#BBBBBB")),
+        ("BOX", (0, 0), (-1, -1), 0.5, colors.HexColor("#888888")),
+        ("LINEAFTER", (2, 0), (2, -1), 0.5, colors.HexColor("#888888")),
+        ("LEFTPADDING", (0, 0), (-1, -1), 3),
+        ("RIGHTPADDING", (0, 0), (-1, -1), 2),
+        ("TOPPADDING", (0, 0), (-1, -1), 0.6),
+        ("BOTTOMPADDING", (0, 0), (-1, -1), 0.6),
+    ]
+    if gap:  # a heavier line after the first study: the studies between are not listed
+        style.append(("LINEAFTER", (3, 0), (3, -1), 1.4, colors.HexColor("#555555")))
+    tbl = Table(data, colWidths=[name_w, unit_w, limit_w] + [col_w] * len(cols), repeatRows=1, hAlign="LEFT")
+    tbl.setStyle(TableStyle(style))
+    mod = t.modality.upper() if t.modality in ("echo", "cmr", "ecg") else t.modality
+    if gap:
+        title = f"{mod} values: first study and the latest {len(cols) - 1} of {n}"
+        missing = t.dates[1:cols[1]]
+        line = (f"Not listed: {len(missing)} {mod} studies, {missing[0]} to {missing[-1]}. Their key measures are in "
+                f"the charts; every value of every study is in `tracker person {person}`.")  # fmt: skip
+    else:
+        title, line = f"{mod} values by study ({n})", ""
+    if hidden:
+        line += (" " if line else "") + "Measured only at studies not listed: " + ", ".join(hidden) + "."
+    out: list = [CondPageBreak(28 * mm), _p(title, _SECTION)]
+    if line:
+        out.append(_p(line, _SMALL))
+    out.append(tbl)
     return out
 
 
@@ -468,10 +564,35 @@ def _identity_block(doc: TrajectoryDocument) -> list:
 
 def _flags_block(doc: TrajectoryDocument) -> list:
     out = [_p("Trends and flags (beyond measurement variability, projections, conversion)", _SECTION)]
-    lines = list(doc.flags) or ["No measure is flagged."]
-    for ln in lines:
-        out.append(_p(f"- {ln}", _FLAG))
+    if not doc.flags:
+        out.append(_p("No measure has two or more studies: nothing to trend.", _TEXT))
+    else:
+        head = ["measure", "studies", "flag; projection of the threshold crossing", "slope per year (95% CI)",
+                "last change against the least significant change, LSC"]  # fmt: skip
+        data = [[_p(h, _FCELL_HEAD) for h in head]]
+        for f in doc.flags:
+            flag = f"<b>{escape(f.flag)}</b>" if f.flagged else escape(f.flag)
+            if f.projection:
+                flag += f"; projection: {escape(f.projection)}"
+            slope = escape(f.slope) + (f"<br/>{escape(f.z_slope)}" if f.z_slope else "")
+            studies = f"{f.n}, {_SHORT_WINDOW.get(f.window, f.window)}"
+            data.append([Paragraph(f"<b>{escape(f.measure)}</b>", _FCELL), _p(studies, _FCELL),
+                         Paragraph(flag, _FCELL), Paragraph(slope, _FCELL),
+                         _p(_short_change(f.change), _FCELL)])  # fmt: skip
+        widths = [20 * mm, 15 * mm, 55 * mm, 36 * mm]
+        t = Table(data, colWidths=widths + [WIDTH - sum(widths)], repeatRows=1, hAlign="LEFT")
+        t.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"),
+                               ("FONTSIZE", (0, 0), (-1, -1), _FCELL.fontSize),
+                               ("LEADING", (0, 0), (-1, -1), _FCELL.leading),
+                               ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#E4E4E4")),
+                               ("LINEBELOW", (0, 0), (-1, -1), 0.25, colors.HexColor("#BBBBBB")),
+                               ("BOX", (0, 0), (-1, -1), 0.5, colors.HexColor("#888888")),
+                               ("LEFTPADDING", (0, 0), (-1, -1), 3), ("RIGHTPADDING", (0, 0), (-1, -1), 2),
+                               ("TOPPADDING", (0, 0), (-1, -1), 0.6),
+                               ("BOTTOMPADDING", (0, 0), (-1, -1), 0.6)]))  # fmt: skip
+        out.append(t)
     if doc.conversion:
+        out.append(Spacer(1, 2))
         out.append(_p(doc.conversion, _TEXT))
     return out
 
@@ -489,15 +610,16 @@ def _recall_block(doc: TrajectoryDocument) -> list:
         head += f", policy {r['policy']}"
     if r.get("rule_id"):
         head += f"; rule {r['rule_id']}"
-    out.append(_p(head + ".", _TEXT))
+    head += "."
     if r.get("needs_text"):
-        out.append(_p(f"Visit needs: {r['needs_text']}.", _TEXT))
+        head += f" Visit needs: {r['needs_text']}."
+    out.append(_p(head, _TEXT))
     if r.get("reason"):
         out.append(_p(f"Reasons: {r['reason']}", _TEXT))
-    if r.get("source"):
-        out.append(_p(f"Source: {r['source']}", _SMALL))
-    for n in r.get("notes_shown", ()) or ():
-        out.append(_p(f"Note: {n}", _SMALL))
+    small = [f"Source: {r['source']}"] if r.get("source") else []
+    small += [f"Note: {n}" for n in r.get("notes_shown", ()) or ()]
+    if small:
+        out.append(_p(" ".join(x if x.endswith(".") else x + "." for x in small), _SMALL))
     return out
 
 
@@ -510,65 +632,95 @@ def _risk_block(doc: TrajectoryDocument) -> list:
         out.append(_p(b, _SMALL))
     for reason in k.reasons:
         out.append(_p(f"- {reason}", _SMALL))
+    tail = []
     if k.validated_ranges:
-        out.append(_p(k.validated_ranges + " The model does not apply outside this range.", _SMALL))
+        tail.append(k.validated_ranges + " The model does not apply outside this range.")
     if k.caution:
-        out.append(_p(k.caution, _SMALL))
+        tail.append(k.caution)
+    if tail:
+        out.append(_p(" ".join(tail), _SMALL))
     return out
 
 
-def _strain_block(doc: TrajectoryDocument) -> list:
-    out: list = [_p("Segmental longitudinal strain (17-segment polar map)", _SECTION)]
+STRAIN_LAYOUT = (
+    "Layout: AHA standardized 17-segment model (Cerqueira et al., Circulation 2002;105:539-42): basal 1-6, mid "
+    "7-12, apical 13-16, apex 17; 1 basal anterior at the top, then counter-clockwise (septum left, lateral right)."
+)
+
+
+def _strain_text(doc: TrajectoryDocument) -> str:
+    """The words about the polar map (they follow the chart legend), or the sentence saying why there is none."""
     if doc.strain is None:
-        out.append(_p(doc.strain_note or "No segmental strain values recorded.", _TEXT))
-        return out
+        return "Segmental strain: " + (doc.strain_note or "No segmental strain values recorded.")
     s = doc.strain
-    drawing = polar_map.polar_map_drawing(s.values, diameter=60 * mm)
-    text = [_p(f"Echo {s.study_date}: peak longitudinal strain per segment, % (negative = shortening).", _TEXT)]
-    text += [_p(x, _SMALL) for x in s.indices]
-    text.append(_p("Layout: AHA standardized 17-segment model (Cerqueira et al., Circulation 2002;105:539-42): "
-                   "basal 1-6, mid 7-12, apical 13-16, apex 17; segment 1 basal anterior at the top, then "
-                   "counter-clockwise anteroseptal, inferoseptal, inferior, inferolateral, anterolateral "
-                   "(septum left, lateral wall right).", _SMALL))  # fmt: skip
-    text.append(_p(polar_map.SCALE_TEXT, _SMALL))
+    parts = [f"Polar map. Echo {s.study_date}: peak longitudinal strain per segment, % (negative = shortening)."]
+    if s.indices:
+        parts.append("Indices of that study: " + "; ".join(s.indices) + ".")
     if doc.strain_note:
-        text.append(_p(doc.strain_note, _SMALL))
-    t = Table([[drawing, text]], colWidths=[drawing.width + 4, WIDTH - drawing.width - 4])
-    t.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"), ("LEFTPADDING", (0, 0), (-1, -1), 0)]))
-    out.append(t)
-    return [KeepTogether(out)]
+        parts.append(doc.strain_note)
+    parts += [STRAIN_LAYOUT, polar_map.SCALE_TEXT]
+    return " ".join(parts)
+
+
+TABLE_LEGEND = (
+    "Tables: value in the catalogue unit, z = z-score; normal limit of the latest study listed, and under a value "
+    "its own study's limit where that differs (a z-scored value is judged by its z); H above, L below the normal "
+    "limit (for GLS, stored negative: the magnitude of shortening, as the review judges it); C meets the guideline's "
+    "wall-thickness criterion; * computed by the tool. Echo and CMR are separate series, never pooled."
+)
+
+
+def split_source(text: str) -> tuple[str, str]:
+    """(citation, detail) of a source text "citation; detail [tag]"; ("", text) for a formula or a text
+    without a separate citation."""
+    head, sep, rest = text.partition("; ")
+    if not sep or text.startswith("computed:"):
+        return "", text
+    return head, rest
+
+
+def _sources_block(doc: TrajectoryDocument) -> list:
+    """Notes, then each cited work once (numbered), then every measure with its name and, per source, the
+    reference number and what was taken from it (with its confidence tag)."""
+    labels = {r.measure: r.label for t in doc.tables for r in t.rows}
+    if not (doc.notes or doc.sources or labels):
+        return []
+    out: list = [_p("Notes, measures and sources", _SECTION)]
+    out += [_p(n, _TINY) for n in doc.notes]
+    per_measure: dict[str, list[tuple[str, str]]] = {m: [] for m in labels}
+    for measure, text in doc.sources:
+        per_measure.setdefault(measure, []).append(split_source(text))
+    refs: dict[str, int] = {}  # numbered in the order printed
+    entries = []
+    for m, parts in per_measure.items():
+        details = [f"({refs.setdefault(c, len(refs) + 1)}) {d}" if c else d for c, d in parts]
+        name = f"<b>{escape(m)}</b>" + (f" {escape(labels[m])}" if labels.get(m) else "")
+        entries.append(name + (": " + escape("; ".join(details)) if details else "") + ".")
+    if entries:
+        out.append(Paragraph("Measures (name; source of the limit, criterion or formula): " + " ".join(entries), _TINY))
+    if refs:
+        out.append(_p("References: " + " ".join(f"({n}) {c}." for c, n in refs.items()), _TINY))
+    return out
 
 
 def build_story(doc: TrajectoryDocument) -> list:
-    """The flowables: identity, flags, recall, risk, charts, tables, strain map, notes and sources."""
+    """The flowables: identity, flags, recall, risk, charts and strain map, tables, notes and sources."""
+    person = str(doc.identity["person"])
     story: list = _identity_block(doc)
     story += _flags_block(doc)
     story += _recall_block(doc)
     story += _risk_block(doc)
-    story.append(CondPageBreak(70 * mm))
-    story.append(_p("Key measures over age", _SECTION))
-    story.append(_p(CHART_LEGEND, _SMALL))
-    story += _charts_block(doc.charts)
-    story.append(_p("Tables: value in the catalogue unit; under it the normal limit of that study (or the "
-                    "z-score); H above, L below the normal limit; C meets the guideline's wall-thickness "
-                    "criterion (for GLS, stored negative, H and L refer to the magnitude of shortening, as the "
-                    "review judges it); * computed by the tool. Measure names are listed at the end. Echo and CMR are "
-                    "separate series, never pooled.", _SMALL))  # fmt: skip
+    heading = "Key measures over age" + (" and segmental strain" if doc.strain is not None else "")
+    grid = _charts_block(doc.charts, doc.strain)
+    story.append(KeepTogether([_p(heading, _SECTION), grid[0]]))
+    story += grid[1:]
+    story.append(_p(CHART_LEGEND + " " + _strain_text(doc), _SMALL))
+    if doc.tables:
+        story.append(Spacer(1, 3))
+        story.append(_p(TABLE_LEGEND, _SMALL))
     for t in doc.tables:
-        story += _modality_tables(t)
-    story += _strain_block(doc)
-    if doc.notes or doc.sources:
-        story.append(_p("Notes, measures and sources", _SECTION))
-    for n in doc.notes:
-        story.append(_p(n, _TINY))
-    names = [f"{r.measure} {r.label}" for t in doc.tables for r in t.rows if r.label]
-    if names:
-        story.append(_p("Measures: " + "; ".join(dict.fromkeys(names)) + ".", _TINY))
-    grouped: dict[str, list[str]] = {}
-    for measure, src in doc.sources:
-        grouped.setdefault(src, []).append(measure)
-    for src, measures in grouped.items():
-        story.append(_p(f"{', '.join(measures)}: {src}", _TINY))
+        story += _modality_tables(t, person)
+    story += _sources_block(doc)
     return story
 
 
