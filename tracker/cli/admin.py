@@ -10,7 +10,7 @@ import typer
 from tracker.cli.common import engine_for, DbOption, JsonOption, open_store, print_json, print_table
 from tracker.store import migrate
 from tracker.store import repository as repo
-from tracker.store.database import locate, make_engine, reading
+from tracker.store.database import locate, make_engine, reading, writing
 
 
 def init(db: DbOption = None, json_out: JsonOption = False) -> None:
@@ -79,7 +79,7 @@ def schema(db: DbOption = None, json_out: JsonOption = False) -> None:
 def check(db: DbOption = None, json_out: JsonOption = False) -> None:
     """Check the database: file integrity, schema revision, orphan rows, and consistency of the
     records (pedigree cycles, dates out of order, values outside plausible ranges, placeholders
-    with clinical data). Exit code 1 when anything is found.
+    with clinical data, at-risk relatives with no recall). Exit code 1 when anything is found.
 
     Example: tracker check --json
     """
@@ -100,6 +100,7 @@ def check(db: DbOption = None, json_out: JsonOption = False) -> None:
             findings += dc.date_findings(people, studies, assessments, results)
             findings += dc.range_findings(studies, repo.load_measures(conn))
             findings += dc.placeholder_findings(people, studies, assessments, results)
+            findings += _recall_findings(people, repo.load_variants(conn), results, assessments, studies)
     result = {"database": location.describe(), "ok": not findings,
               "findings": [f.as_dict() for f in findings]}  # fmt: skip
     if json_out:
@@ -111,6 +112,16 @@ def check(db: DbOption = None, json_out: JsonOption = False) -> None:
         typer.echo(f"{location.describe()}: no problems found")
     if findings:
         raise typer.Exit(1)
+
+
+def _recall_findings(people, variants, results, assessments, studies):
+    """At-risk living relatives with no recall proposal (for example no date of birth recorded)."""
+    from tracker.domain.consistency import Finding
+    from tracker.engines import family_state as fs
+
+    states = fs.build_family_states(people, variants, results, assessments, studies)
+    return [Finding("recall", f"person {p}", f"is at risk and has no recall: {why}")
+            for st in states.values() for p, why in fs.unscheduled_at_risk(st, people)]  # fmt: skip
 
 
 def backup_(
@@ -149,10 +160,22 @@ def restore_(
 
     location = locate(db)
     info = backup.restore(location, backup_file, force=force)
+    _audit_restore(db, info)
     if json_out:
         print_json({"database": location.describe(), "restored_from": info.file, "revision": info.revision})
     else:
         typer.echo(f"{location.describe()}: restored from {info.file} (schema revision {info.revision})")
+
+
+def _audit_restore(db: str | None, info) -> None:
+    """Note the restore in the restored database's own audit trail (when it has one)."""
+    from tracker.store import audit
+
+    engine = engine_for(db)
+    with writing(engine) as conn:
+        if migrate.current_revision(conn) == migrate.head_revision():
+            audit.record(conn, action="restore", table="database", what=f"restored from backup {info.file}",
+                         after={"backup": str(info.file), "revision": info.revision})  # fmt: skip
 
 
 def register(app: typer.Typer) -> None:

@@ -7,7 +7,7 @@ import sys
 import typer
 
 from tracker import __version__
-from tracker.cli import admin, families, recall, reports, review
+from tracker.cli import admin, audit, edits, families, recall, reports, review
 from tracker.cli.common import dispose_engines
 from tracker.errors import UserError
 from tracker.io.reading import InputRejected
@@ -45,6 +45,8 @@ admin.register(app)
 families.register(app)
 review.register(app)
 recall.register(app)
+edits.register(app)
+audit.register(app)
 reports.register(app)
 
 
@@ -117,7 +119,7 @@ def _store_message(exc: Exception) -> str | None:
         return None
     text = str(exc.orig) if getattr(exc, "orig", None) is not None else str(exc)
     low = text.lower()
-    if "locked" in low or "busy" in low:
+    if "locked" in low or "busy" in low or "lock timeout" in low:
         return "the database is busy (another user is writing); nothing was written: try again"
     if "readonly" in low or "read-only" in low:
         return "the database is read-only; nothing was written"

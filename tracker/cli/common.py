@@ -34,6 +34,10 @@ SettingsOption = Annotated[
         show_default=False,
     ),
 ]
+UserOption = Annotated[
+    str | None,
+    typer.Option("--user", help="Who makes the change, for the audit trail (default: the OS user).", show_default=False),
+]
 JsonOption = Annotated[bool, typer.Option("--json", help="Print JSON (stable keys) instead of a table.")]
 
 out = Console(highlight=False, soft_wrap=True)

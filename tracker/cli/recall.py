@@ -11,7 +11,6 @@ SQLAlchemy Core inside one transaction.
 from __future__ import annotations
 
 import datetime as dt
-import getpass
 import math
 from dataclasses import dataclass
 from enum import Enum
@@ -37,6 +36,7 @@ from tracker.errors import UserError
 from tracker.outputs import ics, worklist_csv
 from tracker.rules import available_rule_sets, load_rule_set
 from tracker.settings import Settings, load_settings
+from tracker.store import audit
 from tracker.store import repository as repo
 from tracker.store.database import reading, writing
 from tracker.store.models import Family, ImpactItem, Person, Variant, VariantClassification
@@ -336,7 +336,7 @@ def reclassify(
     if not reason.strip():
         raise UserError("--reason must not be empty")
     _settings, rule_set, policy = _recall_rules(settings, guideline)
-    who = user or getpass.getuser()
+    who = audit.actor(user)
     engine = open_store(db)
     out: list[dict] = []
     try:
@@ -398,6 +398,10 @@ def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on
         insert(VariantClassification).returning(VariantClassification.id),
         dict(variant_id=variant_id, classified_on=on, acmg_class=new_class, reason=reason),
     ).scalar_one()
+    audit.record(conn, action="reclassify", table="variant_classification", row_id=cid, family=v.family,
+                 what=f"{v.gene} {v.key} classified {new_class} on {on.isoformat()}",
+                 before={"acmg_class": v.current_class, "classified_on": v.classified_on},
+                 after={"acmg_class": new_class, "classified_on": on}, reason=reason, user=who)  # fmt: skip
     person_ids = dict(conn.execute(select(Person.code, Person.id).where(Person.family_id == select(Family.id).where(
         Family.code == v.family).scalar_subquery())).all())  # fmt: skip
     now = dt.datetime.now(dt.timezone.utc).replace(tzinfo=None, microsecond=0)
@@ -411,6 +415,9 @@ def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on
                 status_before=it.status_before, status_after=it.status_after, created_at=now, created_by=who,
             ),
         ).scalar_one()  # fmt: skip
+        audit.record(conn, action="reclassify", table="impact_item", row_id=iid, family=v.family, person=it.person,
+                     what=f"task {iid}: {it.change}", after={"change": it.change, "status_before": it.status_before,
+                     "status_after": it.status_after}, reason=reason, user=who)  # fmt: skip
         rows.append({
             "id": iid, "person": it.person, "change": it.change, "what_changes": it.what_changes,
             "action": it.action, "source": it.source, "status_before": it.status_before,
@@ -534,7 +541,8 @@ def tasks_done(
         raise UserError("--note must not be empty")
     engine = open_store(db)
     with writing(engine) as conn:
-        row = conn.execute(select(ImpactItem.id, ImpactItem.done_on).where(ImpactItem.id == task_id)).first()
+        row = conn.execute(select(ImpactItem.id, ImpactItem.done_on, ImpactItem.person_id, ImpactItem.change)
+                           .where(ImpactItem.id == task_id)).first()  # fmt: skip
         if row is None:
             raise UserError(f"no task {task_id}")
         if row.done_on is not None:
@@ -542,9 +550,14 @@ def tasks_done(
         conn.execute(
             update(ImpactItem)
             .where(ImpactItem.id == task_id, ImpactItem.done_on.is_(None))
-            .values(done_on=dt.date.today(), done_by=user or getpass.getuser(), done_note=note.strip())
+            .values(done_on=dt.date.today(), done_by=audit.actor(user), done_note=note.strip())
         )
         done = _task_dict(conn.execute(_task_query().where(ImpactItem.id == task_id)).one())
+        audit.record(conn, action="task_done", table="impact_item", row_id=task_id, family=done["family"],
+                     person=done["person"], what=f"task {task_id} done: {row.change}",
+                     before={"done_on": None, "done_by": None, "done_note": None},
+                     after={"done_on": done["done_on"], "done_by": done["done_by"], "done_note": done["done_note"]},
+                     user=user)  # fmt: skip
     if json_out:
         print_json(done)
     else:

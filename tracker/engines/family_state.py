@@ -666,3 +666,24 @@ def task_items(items: Iterable, state: FamilyState) -> tuple[list, list[str]]:
         who = ", ".join(dict.fromkeys(left))
         notes.append(f"no tasks for placeholders or deceased members ({who}): the family-level task covers the record")
     return kept, notes
+
+
+def unscheduled_at_risk(state: FamilyState, people: pd.DataFrame) -> list[tuple[str, str]]:
+    """At-risk living relatives whom the scheduler could not give a recall, with the reason.
+
+    At risk: any genotype status but ``non_carrier`` / ``not_at_risk``.  Placeholders,
+    deceased people and people who declined contact are never recalled on purpose
+    and are not listed.  Used by ``tracker check``.
+    """
+    rows = people.set_index("person")
+    out = []
+    for p, why in sorted(state.not_scheduled.items()):
+        if p not in rows.index or _flag(rows.at[p, "placeholder"]):
+            continue
+        if _text(rows.at[p, "vital_status"]) == "deceased" or _text(rows.at[p, "contact_status"]) == "declined":
+            continue
+        status = state.genotypes[p].status if p in state.genotypes else "at_risk_untested"
+        if status in ("non_carrier", "not_at_risk"):
+            continue
+        out.append((p, why))
+    return out

@@ -15,6 +15,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterator
+from urllib.parse import quote
 
 from sqlalchemy import Connection, Engine, create_engine, event, text
 from sqlalchemy.engine import make_url
@@ -81,10 +82,30 @@ def make_engine(location: Location, *, create: bool = False) -> Engine:
                     "(or `tracker demo`) first, or give --db"
                 )
             _make_private(location.sqlite_path)
-        engine = create_engine(location.url, connect_args={"timeout": BUSY_TIMEOUT_MS / 1000})
+        url = _read_only_url(location.sqlite_path) or location.url
+        engine = create_engine(url, connect_args={"timeout": BUSY_TIMEOUT_MS / 1000})
         _configure_sqlite(engine)
         return engine
     return create_engine(location.url, pool_pre_ping=True)
+
+
+def _read_only_url(path: Path) -> str | None:
+    """A read-only URL for a file this process cannot write, else None.
+
+    SQLite in WAL mode writes ``-wal`` and ``-shm`` files beside the database even
+    to read it.  A file that cannot be written (permissions, a read-only mount) is
+    opened with ``mode=ro``, so that reading works and every write fails with
+    "read-only"; on a read-only filesystem, where no ``-shm`` can be made, it is
+    also opened ``immutable`` (safe only when no ``-wal`` file holds pending pages).
+    """
+    if os.access(path, os.W_OK) and os.access(path.parent, os.W_OK):
+        return None
+    params = "mode=ro"
+    read_only_fs = bool(os.statvfs(path.parent).f_flag & os.ST_RDONLY)
+    wal = path.with_name(path.name + "-wal")
+    if read_only_fs and not (wal.exists() and wal.stat().st_size > 0):
+        params += "&immutable=1"
+    return f"sqlite:///file:{quote(str(path.resolve()))}?{params}&uri=true"
 
 
 def _configure_sqlite(engine: Engine) -> None:
@@ -111,15 +132,37 @@ def _configure_sqlite(engine: Engine) -> None:
 def writing(engine: Engine) -> Iterator[Connection]:
     """One write transaction: committed on success, rolled back on any error.
 
-    On SQLite the write lock is taken at the start (``BEGIN IMMEDIATE``), so a
-    second writer waits up to the busy timeout and then fails cleanly before
-    it has read anything it might overwrite.
+    The write lock is taken at the start (SQLite: ``BEGIN IMMEDIATE``;
+    PostgreSQL: an advisory lock, :func:`_take_write_lock`), so a second writer
+    waits up to the busy timeout and then fails cleanly before it has read
+    anything it might overwrite.
     """
     with engine.connect() as conn:
         if engine.dialect.name == "sqlite":
             conn = conn.execution_options(sqlite_begin="IMMEDIATE")
         with conn.begin():
+            if engine.dialect.name == "postgresql":
+                _take_write_lock(conn)
             yield conn
+
+
+# The PostgreSQL advisory lock every writer of this tool takes: one per schema (a server may
+# hold several stores, for example test schemas, and they must not block each other).
+WRITE_LOCK_KEY_SQL = "hashtext('tracker-write:' || current_schema())"
+
+
+def _take_write_lock(conn: Connection) -> None:
+    """Make PostgreSQL writers behave like SQLite's: one at a time, waiting up to the busy timeout.
+
+    Every write transaction takes the same transaction-scoped advisory lock first
+    (one per schema: :data:`WRITE_LOCK_KEY_SQL`),
+    so two commands never interleave their check-then-write steps (an import's
+    comparison with the stored rows, an edit's before values); a writer that cannot
+    get it within ``BUSY_TIMEOUT_MS`` fails with "lock timeout" before it has
+    written anything.  Readers are never blocked.
+    """
+    conn.exec_driver_sql(f"SET LOCAL lock_timeout = '{BUSY_TIMEOUT_MS}ms'")
+    conn.exec_driver_sql(f"SELECT pg_advisory_xact_lock({WRITE_LOCK_KEY_SQL})")
 
 
 @contextmanager

@@ -56,10 +56,13 @@ def upgrade(engine: Engine, target: str = "head") -> tuple[str | None, str]:
 
 def downgrade(engine: Engine, target: str) -> tuple[str | None, str | None]:
     """Downgrade to ``target`` (``"base"`` for an empty database) in one transaction."""
-    with writing(engine) as conn:
-        before = current_revision(conn)
-        command.downgrade(alembic_config(conn), target)
-        after = current_revision(conn)
+    try:
+        with writing(engine) as conn:
+            before = current_revision(conn)
+            command.downgrade(alembic_config(conn), target)
+            after = current_revision(conn)
+    except RuntimeError as exc:  # a revision refusing to drop data it cannot keep (nothing was changed)
+        raise UserError(str(exc)) from None
     return before, after
 
 

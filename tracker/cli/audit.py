@@ -1,0 +1,69 @@
+"""`tracker audit`: who changed what, when, and the values before and after."""
+
+from __future__ import annotations
+
+import json
+from typing import Annotated
+
+import typer
+
+from tracker.cli.common import DbOption, JsonOption, open_store, print_json, print_table
+from tracker.domain.dates import parse_date
+from tracker.errors import UserError
+from tracker.store import audit
+from tracker.store.database import reading
+
+
+def _day(text: str | None, option: str):
+    if text is None:
+        return None
+    try:
+        return parse_date(text)
+    except ValueError:
+        raise UserError(f"{option}: {text!r} is not an ISO 8601 date (YYYY-MM-DD)") from None
+
+
+def _short(values) -> str:
+    if not values:
+        return ""
+    return json.dumps(values, sort_keys=True, ensure_ascii=False, default=str)
+
+
+def audit_(
+    person: Annotated[str | None, typer.Option("--person", help="Only entries about this person code.")] = None,
+    family: Annotated[str | None, typer.Option("--family", help="Only entries about this family code.")] = None,
+    since: Annotated[str | None, typer.Option("--from", help="From this day (YYYY-MM-DD, UTC), inclusive.")] = None,
+    until: Annotated[str | None, typer.Option("--to", help="To this day (YYYY-MM-DD, UTC), inclusive.")] = None,
+    action: Annotated[str | None, typer.Option("--action", help=f"Only one kind: {', '.join(audit.ACTIONS)}.")] = None,
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """Show the audit trail (append-only): every import, correction, removal, reclassification and task
+    done, with who, when (UTC), the values before and after, and the reason.
+
+    Example: tracker audit --family HV01 --from 2026-11-01
+    """
+    if action is not None and action not in audit.ACTIONS:
+        raise UserError(f"--action: {action!r} is not one of: {', '.join(audit.ACTIONS)}")
+    start, end = _day(since, "--from"), _day(until, "--to")
+    if start and end and end < start:
+        raise UserError(f"--to {end.isoformat()} is before --from {start.isoformat()}")
+    engine = open_store(db)
+    with reading(engine) as conn:
+        frame = audit.load(conn, person=person, family=family, since=start, until=end, action=action)
+    if json_out:
+        print_json(frame.to_dict("records"))
+        return
+    if frame.empty:
+        typer.echo("no audit entries match")
+        return
+    print_table(
+        f"{len(frame)} audit entries",
+        ["#", "when (UTC)", "who", "action", "what", "before", "after", "reason"],
+        [[r.id, r.at, r.actor, r.action, r.what, _short(r.before), _short(r.after), r.reason or ""]
+         for r in frame.itertuples()],
+    )  # fmt: skip
+
+
+def register(app: typer.Typer) -> None:
+    app.command("audit")(audit_)
