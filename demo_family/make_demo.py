@@ -84,7 +84,7 @@ MEASURES: dict[str, tuple[str, str, int, float, float]] = {
     "la_diam": ("echo", "mm", 1, 18.0, 55.0),
     "lavi": ("echo", "mL/m2", 1, 14.0, 60.0),
     "lvot_rest": ("echo", "mmHg", 0, 0.0, 100.0),  # demo range 0-100 mmHg
-    "lvot_provoked": ("echo", "mmHg", 0, 0.0, 100.0),
+    "lvot_valsalva": ("echo", "mmHg", 0, 0.0, 100.0),  # provoked by the Valsalva manoeuvre
     "mv_e": ("echo", "cm/s", 1, 40.0, 130.0),
     "mv_a": ("echo", "cm/s", 1, 25.0, 100.0),
     "e_prime_septal": ("echo", "cm/s", 1, 5.0, 20.0),  # demo range 5-20 cm/s
@@ -99,7 +99,7 @@ MEASURES: dict[str, tuple[str, str, int, float, float]] = {
 }
 ECHO_ORDER = [
     "mwt_echo", "ivsd", "lvpwd", "lvidd", "lvids", "lvef_echo", "la_diam", "lavi",
-    "lvot_rest", "lvot_provoked", "mv_e", "mv_a", "e_prime_septal", "e_prime_lateral",
+    "lvot_rest", "lvot_valsalva", "mv_e", "mv_a", "e_prime_septal", "e_prime_lateral",
     "tr_vmax", "gls",
 ]
 CMR_ORDER = ["mwt_cmr", "lvmi_cmr", "lvef_cmr", "lge_pct", "ecv"]
@@ -835,7 +835,7 @@ def echo_values(person: Person, prof: Profile, day: dt.date, month: str,
     provoked = None
     if prof.provoked is not None:
         provoked = prof.provoked + float(RNG.normal(0, 8.0))
-        out["lvot_provoked"] = clip(max(provoked, out["lvot_rest"] + 10), 0, 98)
+        out["lvot_valsalva"] = clip(max(provoked, out["lvot_rest"] + 10), 0, 98)
     else:
         RNG.normal()
     if age < 18:
@@ -993,8 +993,25 @@ def build() -> tuple[list[Study], list[dict]]:
                 person=person.person, assessment_date=day.isoformat(), affected_status=status,
                 symptoms=symptoms_at(prof, month), competitive_athlete=yn(athlete),
                 pregnant=yn(pregnant), hypertension=yn(hyper), notes=prof.notes.get(month, ""),
+                **risk_answers(status),
             ))
     return studies, assessments
+
+
+RISK_ANSWER_COLUMNS = ["family_history_scd", "nsvt", "unexplained_syncope", "prior_arrest_or_sustained_vt",
+                       "metabolic_or_syndromic"]  # fmt: skip
+
+
+def risk_answers(status: str) -> dict[str, str]:
+    """The HCM Risk-SCD answers recorded at an assessment: asked once a person is affected.
+
+    Invented: no affected demo person has NSVT, unexplained syncope, a prior arrest or
+    sustained VT, or a metabolic disease or syndrome; no family meets the family-history
+    definition (HV01's sudden death at about 41 was not in a relative known to have HCM).
+    Before diagnosis the questions are not asked (empty = not recorded).
+    """
+    value = "no" if status == "affected" else ""
+    return {c: value for c in RISK_ANSWER_COLUMNS}
 
 
 # ---------------------------------------------------------------------------
@@ -1279,7 +1296,8 @@ def main() -> None:
               [dict(person=g[0], test_date=g[1], test_type=g[2], variant=g[3], result=g[4], lab=LAB,
                     report_reference=g[5]) for g in GENETIC_RESULTS])
     write_csv("assessments.csv", ["person", "assessment_date", "affected_status", "symptoms",
-                                  "competitive_athlete", "pregnant", "hypertension", "notes"], assessments)
+                                  "competitive_athlete", "pregnant", "hypertension", "notes",
+                                  *RISK_ANSWER_COLUMNS], assessments)  # fmt: skip
     study_rows = []
     for s in sorted(studies, key=lambda s: (s.person, s.day, s.modality)):
         base = dict(person=s.person, study_date=s.day.isoformat(), modality=s.modality, site=s.site,

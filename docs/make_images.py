@@ -7,8 +7,8 @@ and renders its first page to PNG with :func:`tracker.outputs.letter_pdf.render_
 * docs/images/letter-example.png   family letter for HV01-IV-5
 * docs/images/pedigree-HV01.png     pedigree of family HV01
 * docs/images/worklist-example.png  recall worklist 2026-12-01 to 2027-03-01, 3 slots a week
-* docs/images/trajectory-example.png  first page of the trajectory report of HV01-III-1 (as of 2026-12-01,
-  with invented answers to the HCM Risk-SCD questions the store does not hold); the demo gives him
+* docs/images/trajectory-example.png  first page of the trajectory report of HV01-III-1 (as of 2026-12-01;
+  the demo's invented assessments record his HCM Risk-SCD answers); the demo gives him
   17-segment strain, so this page shows the polar map beside the charts (the script checks it does)
 * docs/images/trajectory-page2-example.png  second page of the same report (tables, notes and sources)
 
@@ -31,11 +31,6 @@ SETTINGS = ROOT / "demo_family" / "clinic.toml"
 ON = "2026-12-01"
 WINDOW = ("2026-12-01", "2027-03-01")
 TRAJECTORY = "HV01-III-1"  # affected proband: 15 echos, 3 CMRs and 17-segment strain in the demo
-# Invented answers for the demo (the store does not record them): no NSVT, syncope, SCD family history,
-# arrest or metabolic disease; the provoked gradient taken with Valsalva.
-RISK_ANSWERS = ("--scd-family-history", "no", "--nsvt", "no", "--unexplained-syncope", "no",
-                "--prior-arrest-or-sustained-vt", "no", "--metabolic-or-syndromic", "no",
-                "--provoked-gradient", "valsalva")  # fmt: skip
 
 # Used only while `tracker report worklist` is not yet registered in tracker/cli/reports.py.
 _WORKLIST_FALLBACK = (
@@ -81,7 +76,7 @@ def main() -> None:
         _tracker("report", "worklist", "--from", WINDOW[0], "--to", WINDOW[1], "--slots-per-week", "3",
                  "--as-of", ON, "--out", str(out), "--settings", str(SETTINGS), "--db", db)  # fmt: skip
         _tracker("report", "trajectory", TRAJECTORY, "--out", str(out), "--as-of", ON, "--settings", str(SETTINGS),
-                 "--db", db, *RISK_ANSWERS)  # fmt: skip
+                 "--db", db)  # fmt: skip
         _check_map_on_first_page(out / f"trajectory-{TRAJECTORY}.pdf")
         made = {
             "letter-HV01-IV-5.pdf": "letter-example.png",

@@ -46,9 +46,6 @@ AFFECTED = "HV01-IV-2"  # the carrier who converts; affected from 2021
 PROBAND = "HV01-III-1"  # 15 echos, 3 CMRs, 17-segment strain at the 2025 and 2026 echos (demo_family/make_demo.py)
 #: The demo people with the longest series: echo studies 16, 15, 13, 10 and 10 (demo_family/studies.csv).
 LONGEST = (AFFECTED, PROBAND, "HV02-III-1", "HV05-II-1", RELATIVE)
-ANSWERS = ["--scd-family-history", "no", "--nsvt", "no", "--unexplained-syncope", "no",
-           "--prior-arrest-or-sustained-vt", "no", "--metabolic-or-syndromic", "no",
-           "--provoked-gradient", "valsalva"]  # fmt: skip
 STUDY_HEAD = "person,study_date,modality,site,height_cm,weight_kg,measure,value,unit\n"
 STRAIN = [-21.3, -19.8, -17.5, -18.2, -16.4, -20.1, -20.5, -18.9, -13.2, -15.8, -17.0, -19.4, -11.6, -6.2, -9.8,
           -14.5, -3.1]  # fmt: skip
@@ -180,11 +177,11 @@ def _latest_echo(capsys, db) -> tuple[float, dict]:
 
 
 def test_risk_figure_equals_the_risk_engine(demo, capsys):
-    info, pages, _ = _report(capsys, str(demo[1]), AFFECTED, demo[0] / "risk", *ANSWERS)
+    info, pages, _ = _report(capsys, str(demo[1]), AFFECTED, demo[0] / "risk")
     age, v = _latest_echo(capsys, str(demo[1]))
     expected = risk.hcm_risk_scd(
         age_years=age, mwt_mm=v["mwt_echo"], la_diameter_mm=v["la_diam"],
-        lvot_max_mmhg=risk.lvot_max_for_risk_scd(v.get("lvot_rest"), v.get("lvot_provoked")),
+        lvot_max_mmhg=risk.lvot_max_for_risk_scd(v.get("lvot_rest"), v.get("lvot_valsalva")),
         family_history_scd=False, nsvt=False, unexplained_syncope=False, prior_cardiac_arrest_or_sustained_vt=False,
         competitive_athlete=False, metabolic_infiltrative_or_syndromic=False,
     )  # fmt: skip
@@ -196,8 +193,29 @@ def test_risk_figure_equals_the_risk_engine(demo, capsys):
     assert "age 16-115 years" in text and "does not apply outside this range" in text
 
 
+def _without_answer(demo, name: str, answer: str) -> str:
+    """A copy of the demo store in which AFFECTED's ``answer`` was never recorded."""
+    import sqlite3
+
+    copy = demo[0] / f"{name}.sqlite"
+    shutil.copy(demo[1], copy)
+    con = sqlite3.connect(copy)
+    con.execute(f"UPDATE assessment SET {answer} = NULL WHERE person_id = (SELECT id FROM person WHERE code = ?)",
+                (AFFECTED,))  # fmt: skip
+    con.commit()
+    con.close()
+    return str(copy)
+
+
+def test_risk_answers_come_from_the_stored_assessments(demo, capsys):
+    info, pages, _ = _report(capsys, str(demo[1]), AFFECTED, demo[0] / "answers")
+    text = _flat(" ".join(pages))
+    assert "NSVT no" in text and "unexplained syncope no" in text
+    assert "answers as recorded at the assessment of 2026-" in text
+
+
 def test_risk_refused_when_an_answer_is_missing(demo, capsys):
-    info, pages, _ = _report(capsys, str(demo[1]), AFFECTED, demo[0] / "missing")
+    info, pages, _ = _report(capsys, _without_answer(demo, "missing", "nsvt"), AFFECTED, demo[0] / "missing")
     assert info["risk"]["status"] == "refused" and info["risk"]["risk_5y_pct"] is None
     text = _flat(" ".join(pages))
     assert "Not computed" in text and "missing: nsvt" in text
@@ -210,7 +228,7 @@ def test_risk_refused_outside_the_validated_range(demo, capsys):
     rows = "".join(f"{AFFECTED},2026-11-20,echo,{site},181.0,78.0,{m},{v},{u}\n"
                    for m, v, u in (("mwt_echo", 36, "mm"), ("la_diam", 44, "mm"), ("lvot_rest", 6, "mmHg")))
     db = _copy_with(demo, "wall36", rows)
-    info, pages, _ = _report(capsys, db, AFFECTED, demo[0] / "range", *ANSWERS)
+    info, pages, _ = _report(capsys, db, AFFECTED, demo[0] / "range")
     assert info["risk"]["status"] == "refused"
     text = _flat(" ".join(pages))
     assert "outside validated range: mwt_mm = 36 (range 10-35)" in text
@@ -243,7 +261,7 @@ def test_segmental_strain_map_in_the_report(demo, capsys, tmp_path):
 
 @pytest.mark.parametrize("person", LONGEST)
 def test_the_longest_demo_series_fit_on_two_pages(demo, capsys, person):
-    info, pages, _ = _report(capsys, str(demo[1]), person, demo[0] / f"two-{person}", *ANSWERS)
+    info, pages, _ = _report(capsys, str(demo[1]), person, demo[0] / f"two-{person}")
     assert info["pages"] == len(pages) == 2
     for n, page in enumerate(pages, start=1):
         assert f"page {n} of 2" in _flat(page) and "Decision support only" in _flat(page)
@@ -253,7 +271,7 @@ def test_tables_list_first_and_latest_and_charts_keep_every_study(demo, capsys, 
     shown = {}
     write = T.write_trajectory_pdf
     monkeypatch.setattr(T, "write_trajectory_pdf", lambda doc, path: shown.setdefault("doc", doc) and write(doc, path))
-    info, pages, _ = _report(capsys, str(demo[1]), PROBAND, demo[0] / "listing", *ANSWERS)
+    info, pages, _ = _report(capsys, str(demo[1]), PROBAND, demo[0] / "listing")
     code, out, _ = _cli(capsys, "person", PROBAND, "--json", "--db", demo[1])
     assert code == 0
     echo = [s["study_date"] for s in json.loads(out)["studies"] if s["modality"] == "echo" and s["study_date"] <= AS_OF]

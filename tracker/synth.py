@@ -576,7 +576,7 @@ def generate(families: int, seed: int) -> Cohort:
     lp = lvot_p[st_p]
     rest = np.clip(4.0 + lp * (sev > 0.5) + (2.0 + 0.15 * lp) * noise[:, 8], 2.0, 95.0)
     put("lvot_rest", echo_m, rest, 0)
-    put("lvot_provoked", echo_m & provoked[st_p],
+    put("lvot_valsalva", echo_m & provoked[st_p],
         np.clip(np.maximum(np.round(rest) + 10.0, 1.6 * lp * (sev > 0.5) + 12.0 + 8.0 * noise[:, 9]), 0, 160), 0)
     e_vel = np.where(st_age < 18, 95.0, np.maximum(85.0 - 0.4 * (st_age - 25.0), 64.0))
     a_vel = np.where(st_age < 18, 50.0, np.minimum(42.0 + 0.6 * np.maximum(st_age - 25.0, 0.0), 85.0))
@@ -759,6 +759,10 @@ def generate(families: int, seed: int) -> Cohort:
         "hypertension": np.where(hyper_p[e_p] & (e_age >= 45), "yes", "no").astype(object),
         "notes": None,
     })  # fmt: skip
+    # HCM Risk-SCD answers: asked once affected (invented: all "no"); not recorded before.
+    for answer in ("family_history_scd", "nsvt", "unexplained_syncope", "prior_arrest_or_sustained_vt",
+                   "metabolic_or_syndromic"):  # fmt: skip
+        assessments_df[answer] = np.where(status == "affected", "no", None).astype(object)
 
     # ---- studies.csv (long layout), ordered by person, date, modality, measure
     st_code = person_code[fi[st_p], si[st_p]]
@@ -825,7 +829,7 @@ def generate(families: int, seed: int) -> Cohort:
 #: Catalogue unit of every measure the generator writes (migrations 0001 and 0002).
 MEASURE_UNITS = {
     "mwt_echo": "mm", "ivsd": "mm", "lvpwd": "mm", "lvidd": "mm", "lvids": "mm", "lvef_echo": "%",
-    "la_diam": "mm", "lavi": "mL/m2", "lvot_rest": "mmHg", "lvot_provoked": "mmHg", "mv_e": "cm/s",
+    "la_diam": "mm", "lavi": "mL/m2", "lvot_rest": "mmHg", "lvot_valsalva": "mmHg", "mv_e": "cm/s",
     "mv_a": "cm/s", "e_prime_septal": "cm/s", "e_prime_lateral": "cm/s", "tr_vmax": "m/s", "gls": "%",
     "mwt_cmr": "mm", "lvmi_cmr": "g/m2", "lvef_cmr": "%", "lge_pct": "%", "ecv": "%",
     "s_v1": "mm", "r_v5": "mm", "r_v6": "mm", "r_avl": "mm", "s_v3": "mm",

@@ -13,8 +13,10 @@ computes exactly as the other commands do and hands plain data to
 - the recall proposal as ``tracker recall`` (family state, trend modifiers,
   :func:`tracker.engines.schedule.propose_recall`, via :mod:`tracker.cli.recall`);
 - HCM Risk-SCD (:func:`tracker.engines.risk.hcm_risk_scd`) for an affected
-  person, from the latest echo and the clinical answers given as options
-  (the store does not record them); missing answers refuse the figure.
+  person, from the latest echo and the clinical answers recorded with the
+  assessments (family history of SCD, NSVT, unexplained syncope and the
+  exclusions; the latest recorded answer of each); a missing answer refuses
+  the figure.
 
 The file is DIR/trajectory-PERSON.pdf (the code only, never a name).
 """
@@ -25,7 +27,6 @@ import dataclasses
 import datetime as dt
 import math
 import re
-from enum import Enum
 from pathlib import Path
 from typing import Annotated, Any
 
@@ -45,20 +46,6 @@ from tracker.outputs import ics
 from tracker.outputs import trajectory_pdf as T
 from tracker.store import repository as repo
 from tracker.store.database import reading
-
-
-class YesNo(str, Enum):
-    yes = "yes"
-    no = "no"
-
-
-class Provoked(str, Enum):
-    valsalva = "valsalva"
-    standing = "standing"
-
-
-def _yn(help_text: str):
-    return Annotated[YesNo | None, typer.Option(help=help_text + " (for HCM Risk-SCD; not in the store).")]
 
 
 CHART_TITLES = {
@@ -192,12 +179,29 @@ def _conversion(conv: pd.DataFrame) -> str:
     return f"Conversion: criteria not met at {c['n_assessed_studies']} assessed studies."
 
 
-def _bool(v: YesNo | None) -> bool | None:
-    return None if v is None else v == YesNo.yes
+def _answers(assessments: pd.DataFrame | None, person: str) -> tuple[dict[str, bool | None], list[str]]:
+    """The latest recorded answer of each Risk-SCD question (None: never recorded), with its date."""
+    answers: dict[str, bool | None] = {a: None for a in repo.RISK_ANSWERS}
+    answers["competitive_athlete"] = None
+    dates: dict[str, list[str]] = {}
+    if assessments is None or not len(assessments):
+        return answers, []
+    mine = assessments[assessments["person"] == person].sort_values("assessment_date")
+    for name in answers:
+        if name not in mine.columns:
+            continue
+        known = mine[mine[name].notna()]
+        if len(known):
+            answers[name] = bool(known[name].iloc[-1])
+            dates.setdefault(known["assessment_date"].iloc[-1], []).append(name)
+    if len(dates) == 1:
+        return answers, [f"answers as recorded at the assessment of {next(iter(dates))}"]
+    return answers, [f"{', '.join(n.replace('_', ' ') for n in names)} as recorded at the assessment of {d}"
+                     for d, names in sorted(dates.items())]  # fmt: skip
 
 
-def _risk(a: pd.DataFrame, identity: dict, athlete: bool | None, answers: dict[str, YesNo | None],
-          provoked: Provoked | None) -> tuple[T.RiskSection, risk.RiskSCDResult | None]:  # fmt: skip
+def _risk(a: pd.DataFrame, identity: dict, answers: dict[str, bool | None]
+          ) -> tuple[T.RiskSection, risk.RiskSCDResult | None]:  # fmt: skip
     status = identity.get("affected_status")
     if status != "affected":
         return T.RiskSection("not applicable", "Not estimated: HCM Risk-SCD is for patients with HCM, and this person "
@@ -210,22 +214,26 @@ def _risk(a: pd.DataFrame, identity: dict, athlete: bool | None, answers: dict[s
     date = echo["study_date"].max()
     at = a[(a["study_date"] == date) & (a["modality"] == "echo")].set_index("measure")["value"]
     age = float(echo.loc[echo["study_date"] == date, "age_years"].iloc[0])
-    rest, prov = _f(at.get("lvot_rest")), _f(at.get("lvot_provoked"))
+    rest, valsalva, prov = _f(at.get("lvot_rest")), _f(at.get("lvot_valsalva")), _f(at.get("lvot_provoked"))
     notes = []
-    if prov is None or provoked == Provoked.valsalva:
-        lvot = risk.lvot_max_for_risk_scd(rest, prov)
-    elif provoked == Provoked.standing:
-        lvot = risk.lvot_max_for_risk_scd(rest, None)
-        notes.append("provoked gradient taken by standing is not the model's Valsalva input: rest gradient used")
-    else:
+    if valsalva is not None:
+        lvot = risk.lvot_max_for_risk_scd(rest, valsalva)
+    elif prov is not None:
+        # The model's provoked input is the Valsalva gradient; lvot_provoked does not say how it was provoked.
         lvot = None
-        notes.append("the stored provoked LVOT gradient may be Valsalva or standing: give --provoked-gradient")
+        notes.append("the provoked LVOT gradient of this echo (lvot_provoked) does not state the manoeuvre; the model "
+                     "needs the Valsalva gradient: record it as lvot_valsalva")  # fmt: skip
+    else:
+        lvot = risk.lvot_max_for_risk_scd(rest, None)
+        if rest is not None:
+            notes.append("no Valsalva gradient recorded at this echo: the rest gradient is used")
     result = risk.hcm_risk_scd(
         age_years=age, mwt_mm=_f(at.get("mwt_echo")), la_diameter_mm=_f(at.get("la_diam")), lvot_max_mmhg=lvot,
-        family_history_scd=_bool(answers["scd_family_history"]), nsvt=_bool(answers["nsvt"]),
-        unexplained_syncope=_bool(answers["unexplained_syncope"]),
-        prior_cardiac_arrest_or_sustained_vt=_bool(answers["prior_arrest_or_sustained_vt"]),
-        competitive_athlete=athlete, metabolic_infiltrative_or_syndromic=_bool(answers["metabolic_or_syndromic"]),
+        family_history_scd=answers["family_history_scd"], nsvt=answers["nsvt"],
+        unexplained_syncope=answers["unexplained_syncope"],
+        prior_cardiac_arrest_or_sustained_vt=answers["prior_arrest_or_sustained_vt"],
+        competitive_athlete=answers["competitive_athlete"],
+        metabolic_infiltrative_or_syndromic=answers["metabolic_or_syndromic"],
     )  # fmt: skip
 
     def yn(v: object) -> str:
@@ -297,15 +305,6 @@ def trajectory_report(
     as_of: R.AsOfOption = None,
     guideline: R.GuidelineOption = None,
     horizon: RV.HorizonOption = 3.0,
-    scd_family_history: _yn("Family history of sudden cardiac death, as the guideline defines it") = None,
-    nsvt: _yn("Non-sustained ventricular tachycardia") = None,
-    unexplained_syncope: _yn("Unexplained syncope") = None,
-    prior_arrest_or_sustained_vt: _yn("Prior cardiac arrest or sustained ventricular tachycardia") = None,
-    metabolic_or_syndromic: _yn("Metabolic or infiltrative disease, or a syndrome") = None,
-    provoked_gradient: Annotated[
-        Provoked | None,
-        typer.Option(help="How the stored provoked LVOT gradient was taken (Risk-SCD uses Valsalva, never standing)."),
-    ] = None,
     settings: SettingsOption = None,
     db: DbOption = None,
     json_out: JsonOption = False,
@@ -372,13 +371,10 @@ def trajectory_report(
                notes_shown=[n for n in rec["notes"] if n not in rec["reason"]] + [trend_note["note"]])  # fmt: skip
 
     # --- risk
-    latest = assessments[assessments["person"] == person].sort_values("assessment_date") if assessments is not None \
-        and len(assessments) else None  # fmt: skip
-    athlete = bool(latest["competitive_athlete"].iloc[-1]) if latest is not None and len(latest) else None
-    answers = dict(scd_family_history=scd_family_history, nsvt=nsvt, unexplained_syncope=unexplained_syncope,
-                   prior_arrest_or_sustained_vt=prior_arrest_or_sustained_vt,
-                   metabolic_or_syndromic=metabolic_or_syndromic)  # fmt: skip
-    risk_section, risk_result = _risk(a, identity, athlete, answers, provoked_gradient)
+    answers, answered = _answers(assessments, person)
+    risk_section, risk_result = _risk(a, identity, answers)
+    if answered and risk_section.status != "not applicable":
+        risk_section = dataclasses.replace(risk_section, reasons=risk_section.reasons + ("; ".join(answered),))
 
     short = gid.replace("_", " ").upper().replace("AHA ACC", "AHA/ACC")
     strain, strain_note = _strain(m, a) if a is not None else (None, "No segmental strain values recorded.")

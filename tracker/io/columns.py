@@ -62,8 +62,13 @@ class Column:
     """One column of a layout: its name, type, and whether a value is required."""
 
     name: str
-    kind: str  # text, code, date, partial_date, choice, yesno, number, regex
+    kind: str  # text, code, date, partial_date, choice, yesno, answer, number, regex
     required: bool = False
+    # The column may be left out of a file's header (every cell is then empty); for
+    # columns added to a layout later, so that older files still import.
+    header_optional: bool = False
+    # A name or a date of birth: error messages never repeat the cell.
+    private: bool = False
     choices: tuple[str, ...] = ()
     pattern: str = ""
     what: str = ""  # words for the pattern in error messages, e.g. "an HGVS c. change"
@@ -77,8 +82,36 @@ def _no_errors(index) -> pd.Series:
 
 
 def parse(col: Column, cells: pd.Series, today: dt.date) -> Parsed:
-    """Parse one column of stripped text cells according to ``col``."""
-    cells = cells.astype(object).where(cells.notna(), "")
+    """Parse one column of stripped text cells according to ``col``.
+
+    ``cells`` may be text (missing = empty) or categorical text (as
+    :func:`tracker.io.reading.read_table` gives).  Each distinct cell is parsed
+    once and its value and reason are taken back to every row holding it: a
+    long-layout file repeats codes, dates, sites and units on most of its rows.
+    """
+    codes, distinct = _distinct(cells)
+    values, errors = _parse_distinct(col, pd.Series(distinct, dtype=object), today)
+    values = pd.Series(values.to_numpy()[codes], index=cells.index, name=cells.name, dtype=values.dtype)
+    errors = pd.Series(errors.to_numpy(dtype=object)[codes], index=cells.index, name=cells.name, dtype=object)
+    return Parsed(values, errors)
+
+
+def _distinct(cells: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """(position of each cell's text in ``distinct``, the distinct texts); missing counts as ""."""
+    if isinstance(cells.dtype, pd.CategoricalDtype):
+        codes = cells.cat.codes.to_numpy()
+        distinct = cells.cat.categories.to_numpy(dtype=object)
+        if (codes < 0).any():
+            codes = np.where(codes < 0, len(distinct), codes)
+            distinct = np.append(distinct, np.array([""], dtype=object))
+        return codes, distinct
+    text = cells.astype(object).where(cells.notna(), "")
+    codes, distinct = pd.factorize(text.to_numpy(dtype=object))
+    return codes, np.asarray(distinct, dtype=object)
+
+
+def _parse_distinct(col: Column, cells: pd.Series, today: dt.date) -> tuple[pd.Series, pd.Series]:
+    """Values and reasons (None = fine) for a Series of distinct text cells."""
     empty = cells == ""
     errors = _no_errors(cells.index)
     if col.required:
@@ -87,7 +120,18 @@ def parse(col: Column, cells: pd.Series, today: dt.date) -> Parsed:
     values, bad = handler(col, cells, empty, today)
     # Required-but-empty beats a type error; keep the first reason.
     errors = errors.where(errors.notna(), bad)
-    return Parsed(values, errors)
+    if col.private:
+        # Never repeat a name or a date of birth: drop a quoted copy of the cell from the reason.
+        errors = pd.Series([_unquoted(e, c) for e, c in zip(errors, cells)], index=errors.index, dtype=object)
+    return values, errors
+
+
+def _unquoted(reason: str | None, cell: str) -> str | None:
+    if reason is None or not cell:
+        return reason
+    for shown in (repr(cell), repr(cell[:40]), repr(cell[:60]), cell):
+        reason = reason.replace(shown + " ", "the value ").replace(shown, "the value")
+    return reason
 
 
 def _text(col, cells, empty, today):
@@ -165,6 +209,17 @@ def _date(col, cells, empty, today):
     return _dates(cells, allow_year=False, today=today)
 
 
+def _answer(col, cells, empty, today):
+    """yes / no / empty (not recorded) -> True / False / None."""
+    bad = _no_errors(cells.index)
+    lowered = cells.str.lower()
+    ok = lowered.isin(("yes", "no")) | empty
+    bad[~ok] = [f"{v[:40]!r} is not yes, no or empty (not recorded)" for v in cells[~ok]]
+    values = pd.Series([True if v == "yes" else False if v == "no" else None for v in lowered],
+                       index=cells.index, dtype=object)  # fmt: skip
+    return values, bad
+
+
 def _partial_date(col, cells, empty, today):
     return _dates(cells, allow_year=True, today=today)
 
@@ -192,6 +247,7 @@ _HANDLERS = {
     "regex": _regex,
     "choice": _choice,
     "yesno": _yesno,
+    "answer": _answer,
     "date": _date,
     "partial_date": _partial_date,
     "number": _number,

@@ -18,15 +18,17 @@ from typing import Callable
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import Connection, insert, select, update
+from sqlalchemy import Connection, Date, insert, select
 
 from tracker.io import validation
 from tracker.io.columns import partial_to_storage
 from tracker.io.layouts import IMPORT_ORDER, LAYOUTS, Layout
 from tracker.io.reading import InputRejected, Problem, read_table
 from tracker.store import repository as repo
+from tracker.store import audit
 from tracker.store.models import (
     Assessment,
+    Base,
     Family,
     GeneticResult,
     ImportRun,
@@ -59,6 +61,7 @@ class ImportSummary:
 
 
 def context(conn: Connection, today: dt.date) -> validation.Context:
+    """What the checks need from the store, loaded once (``import_folder`` keeps it up to date)."""
     return validation.Context(
         families=repo.load_families(conn),
         people=repo.load_people(conn),
@@ -68,12 +71,15 @@ def context(conn: Connection, today: dt.date) -> validation.Context:
     )
 
 
-def check_file(conn: Connection, kind: str, path: Path, today: dt.date) -> validation.Checked:
+def check_file(
+    conn: Connection, kind: str, path: Path, today: dt.date, ctx: validation.Context | None = None
+) -> validation.Checked:
     """Read and check one file; raise :class:`InputRejected` listing every problem."""
     layout = LAYOUTS[kind]
     cells = read_table(path, layout)
     checked = validation.parse_cells(layout, path.name, cells, today)
-    validation.CHECKS[kind](checked, context(conn, today))
+    del cells
+    validation.CHECKS[kind](checked, ctx if ctx is not None else context(conn, today))
     if checked.problems:
         raise InputRejected(checked.problems)
     return checked
@@ -87,26 +93,51 @@ def import_file(
     today: dt.date | None = None,
     user: str | None = None,
     progress: Progress | None = None,
+    ctx: validation.Context | None = None,
 ) -> ImportSummary:
-    """Check and write one file inside the caller's transaction (roll it back for a dry run)."""
-    today = today or dt.date.today()
-    checked = check_file(conn, kind, path, today)
+    """Check and write one file inside the caller's transaction (roll it back for a dry run).
+
+    ``ctx`` is what the store holds (:func:`context`), loaded by the caller once for
+    several files; it is brought up to date with the rows this file adds.
+    """
+    today = today or (ctx.today if ctx is not None else dt.date.today())
+    ctx = ctx if ctx is not None else context(conn, today)
+    checked = check_file(conn, kind, path, today, ctx)
     writer = _WRITERS[kind]
-    added, already = writer(conn, checked, progress or (lambda n: None))
+    added, already = writer(conn, checked, progress or (lambda n: None), ctx)
     summary = ImportSummary(kind, path.name, len(checked.rows), added, already)
+    _record_run(conn, summary, path, user)
+    return summary
+
+
+def _record_run(conn: Connection, summary: ImportSummary, path: Path, user: str | None) -> None:
+    """The import_run row and the audit entry of one imported file (in the import's transaction)."""
+    kind, added, already = summary.kind, summary.rows_added, summary.rows_already_stored
+    digest = _sha256(path)
     conn.execute(
         insert(ImportRun),
         dict(
             kind=kind,
             file_name=path.name,
-            sha256=hashlib.sha256(path.read_bytes()).hexdigest(),
+            sha256=digest,
             imported_at=dt.datetime.now(dt.timezone.utc).replace(tzinfo=None),
             imported_by=user or getpass.getuser(),
             rows_read=summary.rows_read,
             rows_added=added,
         ),
     )
-    return summary
+    audit.record(conn, action="import", table=kind, user=user,
+                 what=f"imported {path.name}: {added} rows added, {already} already stored",
+                 after={"file": path.name, "sha256": digest, "rows_read": summary.rows_read, "rows_added": added})  # fmt: skip
+
+
+def _sha256(path: Path) -> str:
+    """SHA-256 of a file, read in blocks (an input file can be hundreds of MB)."""
+    h = hashlib.sha256()
+    with path.open("rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
 
 
 def import_folder(conn: Connection, folder: Path, **kw) -> list[ImportSummary]:
@@ -117,7 +148,9 @@ def import_folder(conn: Connection, folder: Path, **kw) -> list[ImportSummary]:
     if not found:
         names = ", ".join(LAYOUTS[k].file_name for k in IMPORT_ORDER)
         raise InputRejected([Problem(folder.name, None, None, f"holds none of the files {names}")])
-    return [import_file(conn, kind, path, **kw) for kind, path in found]
+    today = kw.pop("today", None) or dt.date.today()
+    ctx = context(conn, today)  # loaded once for all the files
+    return [import_file(conn, kind, path, today=today, ctx=ctx, **kw) for kind, path in found]
 
 
 # --------------------------------------------------------------------------- comparing
@@ -127,22 +160,16 @@ def _split(checked: validation.Checked, stored: pd.DataFrame, compare: list[str]
     """Rows not yet stored; rows stored identically are dropped; stored-but-different is refused."""
     rows = checked.rows
     key = list(checked.layout.key)
-    if stored.empty:
+    if stored.empty or rows.empty:
         return rows, 0
-    left = _keyframe(rows, key)
-    right = _keyframe(stored, key)
-    stored_idx = pd.MultiIndex.from_frame(right) if len(key) > 1 else pd.Index(right[key[0]])
-    file_idx = pd.MultiIndex.from_frame(left) if len(key) > 1 else pd.Index(left[key[0]])
-    pos = stored_idx.get_indexer(file_idx)
+    pos = _index(stored, key).get_indexer(_index(rows, key))
     present = pos >= 0
     problems = []
     if present.any():
         mine = rows[present]
         theirs = stored.iloc[pos[present]]
         for col in compare:
-            a = mine[col].to_numpy(dtype=object)
-            b = theirs[col].to_numpy(dtype=object)
-            same = np.array([_same(x, y) for x, y in zip(a, b)], dtype=bool)
+            same = _same(mine[col].to_numpy(dtype=object), theirs[col].to_numpy(dtype=object))
             for r in mine.index[~same]:
                 problems.append(
                     Problem(
@@ -158,103 +185,170 @@ def _split(checked: validation.Checked, stored: pd.DataFrame, compare: list[str]
     return rows[~present], int(present.sum())
 
 
-def _keyframe(frame: pd.DataFrame, key: list[str]) -> pd.DataFrame:
-    return frame[key].astype(object).where(frame[key].notna(), "").reset_index(drop=True)
+def _index(frame: pd.DataFrame, key: list[str]) -> pd.Index:
+    """The key columns of ``frame`` as an index (empty cells as "")."""
+    keys = frame[key].astype(object).where(frame[key].notna(), "").reset_index(drop=True)
+    return pd.MultiIndex.from_frame(keys) if len(key) > 1 else pd.Index(keys[key[0]])
 
 
-def _same(x, y) -> bool:
-    xn = x is None or (isinstance(x, float) and np.isnan(x))
-    yn = y is None or (isinstance(y, float) and np.isnan(y))
-    if xn or yn:
-        return xn and yn
-    return x == y
+def _same(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Elementwise: equal values, or both empty (None/NaN)."""
+    an, bn = pd.isna(a), pd.isna(b)
+    both = ~an & ~bn
+    eq = np.zeros(len(a), dtype=bool)
+    if both.any():
+        eq[both] = np.asarray(a[both] == b[both], dtype=bool)
+    return (an & bn) | eq
 
 
 def _ids(conn: Connection, model, code_col="code") -> dict:
     return dict(conn.execute(select(getattr(model, code_col), model.id)).all())
 
 
-def _none(v):
-    if v is None or (isinstance(v, float) and np.isnan(v)):
-        return None
-    return v
+def _py(column: pd.Series) -> list:
+    """A column as a list of plain Python values, empty (None/NaN) as None."""
+    return column.astype(object).where(column.notna(), None).tolist()
 
 
-def _date(iso):
-    return dt.date.fromisoformat(iso) if isinstance(iso, str) else None
+def _dates(column: pd.Series) -> list:
+    """ISO day text -> datetime.date (None when empty), converted once per distinct text."""
+    memo = {v: dt.date.fromisoformat(v) for v in pd.unique(column.dropna().to_numpy(dtype=object))}
+    return [memo.get(v) if isinstance(v, str) else None for v in column.tolist()]
 
 
-def _records(frame: pd.DataFrame) -> list[dict]:
-    return [{k: _none(v) for k, v in r.items()} for r in frame.to_dict("records")]
+def _append(frame: pd.DataFrame, new: pd.DataFrame, bools: tuple[str, ...] = ()) -> pd.DataFrame:
+    """``frame`` (a ``load_*`` frame of the context) with the rows just written added."""
+    out = pd.concat([frame.astype(object), new[list(frame.columns)].astype(object)], ignore_index=True)
+    for c in bools:
+        out[c] = out[c].astype(bool)
+    return out
+
+
+def _bulk_insert(conn: Connection, table: str, columns: list[str], rows: list[tuple]) -> None:
+    """Insert parameter tuples with the driver's bulk path, inside the caller's transaction.
+
+    PostgreSQL: ``COPY ... FROM STDIN`` (psycopg ``cursor.copy``); SQLite and others:
+    the DB-API ``executemany``.  Dates are given as ISO text, which is how the store's
+    SQLite dates are written and what PostgreSQL reads into a date column.
+    """
+    if not rows:
+        return
+    # Columns left out get what an ORM insert would give them: their Python-side default.
+    table_def = Base.metadata.tables[table]
+    defaults = [c for c in table_def.columns if c.name not in columns and c.default is not None]
+    if any(not c.default.is_scalar for c in defaults):  # a computed default: let SQLAlchemy apply it
+        dates = [i for i, c in enumerate(columns) if isinstance(table_def.c[c].type, Date)]
+        recs = [dict(zip(columns, r)) for r in rows]
+        for rec in recs:
+            for i in dates:
+                v = rec[columns[i]]
+                rec[columns[i]] = dt.date.fromisoformat(v) if isinstance(v, str) else v
+        conn.execute(table_def.insert(), recs)
+        return
+    if defaults:
+        columns = [*columns, *(c.name for c in defaults)]
+        extra = tuple(c.default.arg for c in defaults)
+        rows = [(*r, *extra) for r in rows]
+    names = ", ".join(columns)
+    if conn.dialect.name == "postgresql":
+        with conn.connection.dbapi_connection.cursor() as cur:
+            with cur.copy(f"COPY {table} ({names}) FROM STDIN") as copy:
+                for r in rows:
+                    copy.write_row(r)
+    else:
+        marks = ", ".join(["?" if conn.dialect.paramstyle == "qmark" else "%s"] * len(columns))
+        conn.exec_driver_sql(f"INSERT INTO {table} ({names}) VALUES ({marks})", rows)
+
+
+def _bulk_update(conn: Connection, table: str, columns: list[str], key: str, rows: list[tuple]) -> None:
+    """``UPDATE table SET columns... WHERE key = ...`` for each tuple (values, then key): one executemany."""
+    if not rows:
+        return
+    mark = "?" if conn.dialect.paramstyle == "qmark" else "%s"
+    sets = ", ".join(f"{c} = {mark}" for c in columns)
+    conn.exec_driver_sql(f"UPDATE {table} SET {sets} WHERE {key} = {mark}", rows)
 
 
 # --------------------------------------------------------------------------- writers
 
 
-def _write_families(conn, checked, progress):
-    new, already = _split(checked, repo.load_families(conn), ["condition", "notes"])
+def _write_families(conn, checked, progress, ctx):
+    new, already = _split(checked, ctx.families, ["condition", "notes"])
     if len(new):
         conn.execute(insert(Family), [
-            dict(code=r["family"], condition=r["condition"], notes=r["notes"]) for r in _records(new)
-        ])
+            dict(code=f, condition=c, notes=n) for f, c, n in zip(_py(new["family"]), _py(new["condition"]),
+                                                                 _py(new["notes"]))
+        ])  # fmt: skip
+        ctx.families = _append(ctx.families, new)
     progress(len(checked.rows))
     return len(new), already
 
 
-def _write_people(conn, checked, progress):
+_PERSON_COLUMNS = [
+    "code", "family_id", "given_name", "family_name", "sex_at_birth", "gender_identity", "birth_date",
+    "birth_date_precision", "vital_status", "death_date", "death_date_precision", "is_placeholder", "is_proband",
+    "twin_type", "adoption", "contact_status", "contact_status_date", "notes",
+]  # fmt: skip
+
+
+def _write_people(conn, checked, progress, ctx):
     compare = [c for c in checked.layout.names if c != "person"]
-    new, already = _split(checked, repo.load_people(conn), compare)
+    new, already = _split(checked, ctx.people, compare)
     if len(new):
         fam = _ids(conn, Family)
-        rows = []
-        for r in _records(new):
-            birth, birth_p = partial_to_storage(r["birth_date"])
-            death, death_p = partial_to_storage(r["death_date"])
-            rows.append(dict(
-                code=r["person"], family_id=fam[r["family"]], given_name=r["given_name"],
-                family_name=r["family_name"], sex_at_birth=r["sex_at_birth"],
-                gender_identity=r["gender_identity"], birth_date=birth, birth_date_precision=birth_p,
-                vital_status=r["vital_status"], death_date=death, death_date_precision=death_p,
-                is_placeholder=bool(r["placeholder"]), is_proband=bool(r["proband"]),
-                twin_type=r["twin_type"], adoption=r["adoption"], contact_status=r["contact_status"],
-                contact_status_date=_date(r["contact_status_date"]), notes=r["notes"],
-            ))  # fmt: skip
-        conn.execute(insert(Person), rows)
+        c = {name: _py(new[name]) for name in checked.layout.names}
+        stored_form = {}  # ISO partial date -> (ISO day text as stored, precision)
+        for v in set(c["birth_date"]) | set(c["death_date"]):
+            day, precision = partial_to_storage(v)
+            stored_form[v] = (day.isoformat() if day else None, precision)
+        birth, birth_p = zip(*(stored_form[v] for v in c["birth_date"]))
+        death, death_p = zip(*(stored_form[v] for v in c["death_date"]))
+        cols = [
+            c["person"], [fam[f] for f in c["family"]], c["given_name"], c["family_name"], c["sex_at_birth"],
+            c["gender_identity"], birth, birth_p, c["vital_status"], death, death_p,
+            [bool(v) for v in c["placeholder"]], [bool(v) for v in c["proband"]], c["twin_type"], c["adoption"],
+            c["contact_status"], c["contact_status_date"], c["notes"],
+        ]  # fmt: skip
+        _bulk_insert(conn, "person", _PERSON_COLUMNS, list(zip(*cols)))
+        # Parent and twin links, now that every person has an id: one executemany.
         ids = _ids(conn, Person)
-        for r in _records(new):
-            links = {
-                "mother_id": ids.get(r["mother"]),
-                "father_id": ids.get(r["father"]),
-                "twin_of_id": ids.get(r["twin_of"]),
-            }
-            if any(v is not None for v in links.values()):
-                conn.execute(update(Person).where(Person.id == ids[r["person"]]).values(**links))
+        links = []
+        for person, m, f, t in zip(c["person"], c["mother"], c["father"], c["twin_of"]):
+            link = (ids.get(m), ids.get(f), ids.get(t))
+            if any(v is not None for v in link):
+                links.append((*link, ids[person]))
+        _bulk_update(conn, "person", ["mother_id", "father_id", "twin_of_id"], "id", links)
+        ctx.people = _append(ctx.people, new, bools=("placeholder", "proband"))
     progress(len(checked.rows))
     return len(new), already
 
 
-def _write_variants(conn, checked, progress):
+def _write_variants(conn, checked, progress, ctx):
     compare = ["gene", "hgvs_p", "zygosity", "acmg_class", "reason"]
-    new, already = _split(checked, repo.load_variants(conn), compare)
+    new, already = _split(checked, ctx.variants, compare)
     if len(new):
         fam = _ids(conn, Family)
-        for r in _records(new):
-            fid = fam[r["family"]]
-            vid = conn.execute(
-                select(Variant.id).where(
-                    Variant.family_id == fid, Variant.transcript == r["transcript"], Variant.hgvs_c == r["hgvs_c"]
-                )
-            ).scalar()
-            if vid is None:
-                vid = conn.execute(
-                    insert(Variant).returning(Variant.id),
-                    dict(family_id=fid, gene=r["gene"], transcript=r["transcript"], hgvs_c=r["hgvs_c"],
-                         hgvs_p=r["hgvs_p"], zygosity=r["zygosity"]),
-                ).scalar()
-            conn.execute(insert(VariantClassification), dict(
-                variant_id=vid, classified_on=_date(r["classified_on"]), acmg_class=r["acmg_class"],
-                reason=r["reason"],
-            ))  # fmt: skip
+        c = {name: _py(new[name]) for name in checked.layout.names}
+        keys = [(fam[f], t, h) for f, t, h in zip(c["family"], c["transcript"], c["hgvs_c"])]
+        stmt = select(Variant.family_id, Variant.transcript, Variant.hgvs_c, Variant.id)
+        known = {(f, t, h): i for f, t, h, i in conn.execute(stmt).all()}
+        # Variants not yet stored, in the order they first appear (attributes of that row).
+        first = {}
+        for i, k in enumerate(keys):
+            if k not in known and k not in first:
+                first[k] = i
+        if first:
+            conn.execute(insert(Variant), [
+                dict(family_id=k[0], gene=c["gene"][i], transcript=k[1], hgvs_c=k[2], hgvs_p=c["hgvs_p"][i],
+                     zygosity=c["zygosity"][i])
+                for k, i in first.items()
+            ])  # fmt: skip
+            known = {(f, t, h): i for f, t, h, i in conn.execute(stmt).all()}
+        conn.execute(insert(VariantClassification), [
+            dict(variant_id=known[k], classified_on=d, acmg_class=a, reason=r)
+            for k, d, a, r in zip(keys, _dates(new["classified_on"]), c["acmg_class"], c["reason"])
+        ])  # fmt: skip
+        ctx.variants = _append(ctx.variants, new)
     progress(len(checked.rows))
     return len(new), already
 
@@ -264,43 +358,53 @@ def _variant_ids(conn) -> dict:
     return {(f, f"{t}:{c}"): i for f, t, c, i in conn.execute(stmt).all()}
 
 
-def _write_genetic_results(conn, checked, progress):
+_RESULT_COLUMNS = ["person_id", "test_date", "test_type", "variant_id", "result", "lab", "report_reference"]
+
+
+def _write_genetic_results(conn, checked, progress, ctx):
     compare = ["result", "lab", "report_reference"]
     new, already = _split(checked, repo.load_genetic_results(conn), compare)
     if len(new):
-        people = repo.load_people(conn).set_index("person")["family"]
+        family = ctx.people.set_index("person")["family"]
         ids = _ids(conn, Person)
         variants = _variant_ids(conn)
-        conn.execute(insert(GeneticResult), [
-            dict(person_id=ids[r["person"]], test_date=_date(r["test_date"]), test_type=r["test_type"],
-                 variant_id=variants.get((people[r["person"]], r["variant"])), result=r["result"],
-                 lab=r["lab"], report_reference=r["report_reference"])
-            for r in _records(new)
-        ])  # fmt: skip
+        c = {name: _py(new[name]) for name in checked.layout.names}
+        cols = [
+            [ids[p] for p in c["person"]], c["test_date"], c["test_type"],
+            [variants.get((family[p], v)) for p, v in zip(c["person"], c["variant"])],
+            c["result"], c["lab"], c["report_reference"],
+        ]  # fmt: skip
+        _bulk_insert(conn, "genetic_result", _RESULT_COLUMNS, list(zip(*cols)))
     progress(len(checked.rows))
     return len(new), already
 
 
-def _write_assessments(conn, checked, progress):
-    compare = ["affected_status", "symptoms", "competitive_athlete", "pregnant", "hypertension", "notes"]
+_ASSESSMENT_COLUMNS = ["person_id", "assessment_date", "affected_status", "symptoms", "competitive_athlete",
+                       "pregnant", "hypertension", "notes", *repo.RISK_ANSWERS]  # fmt: skip
+
+
+def _write_assessments(conn, checked, progress, ctx):
+    compare = ["affected_status", "symptoms", "competitive_athlete", "pregnant", "hypertension", "notes",
+               *repo.RISK_ANSWERS]  # fmt: skip
     new, already = _split(checked, repo.load_assessments(conn), compare)
     if len(new):
         ids = _ids(conn, Person)
-        conn.execute(insert(Assessment), [
-            dict(person_id=ids[r["person"]], assessment_date=_date(r["assessment_date"]),
-                 affected_status=r["affected_status"], symptoms=r["symptoms"],
-                 competitive_athlete=bool(r["competitive_athlete"]), pregnant=bool(r["pregnant"]),
-                 hypertension=bool(r["hypertension"]), notes=r["notes"])
-            for r in _records(new)
-        ])  # fmt: skip
+        c = {name: _py(new[name]) for name in checked.layout.names}
+        flags = [[bool(v) for v in c[k]] for k in ("competitive_athlete", "pregnant", "hypertension")]
+        cols = [[ids[p] for p in c["person"]], c["assessment_date"], c["affected_status"], c["symptoms"], *flags,
+                c["notes"], *(c[a] for a in repo.RISK_ANSWERS)]  # fmt: skip
+        _bulk_insert(conn, "assessment", _ASSESSMENT_COLUMNS, list(zip(*cols)))
     progress(len(checked.rows))
     return len(new), already
 
 
-CHUNK = 50_000
+CHUNK = 50_000  # measurement rows per executemany / COPY batch (progress is reported per batch)
+
+_STUDY_COLUMNS = ["person_id", "study_date", "modality", "site", "height_cm", "weight_kg"]
+_VALUE_COLUMNS = ["study_id", "measure_code", "value", "unit", "entered_value", "entered_unit"]
 
 
-def _write_studies(conn, checked, progress):
+def _write_studies(conn, checked, progress, ctx):
     rows = checked.rows
     stored = repo.load_studies(conn)
     skey = ["person", "study_date", "modality"]
@@ -316,45 +420,71 @@ def _write_studies(conn, checked, progress):
     new_studies, _ = _split(study_check, stored_studies, ["site", "height_cm", "weight_kg"])
 
     # Value level: rows with a measure, keyed by study + measure.
-    with_value = rows[rows["measure"].notna()]
+    has_value = rows["measure"].notna()
+    with_value = rows[has_value] if not has_value.all() else rows
     value_check = validation.Checked(checked.layout, checked.file, with_value)
     stored_values = stored[stored["measure"].notna()]
     new_values, already_values = _split(value_check, stored_values, ["value", "unit"])
-    study_rows_only = rows[rows["measure"].isna()]
-    stored_keys = set(map(tuple, stored_studies[skey].to_numpy()))
-    already_empty = sum(tuple(k) in stored_keys for k in study_rows_only[skey].to_numpy())
+    study_rows_only = rows[~has_value]
+    already_empty = 0
+    if len(study_rows_only) and len(stored_studies):
+        already_empty = int(_index(study_rows_only, skey).isin(_index(stored_studies, skey)).sum())
+    del stored, stored_values, with_value
 
-    ids = _ids(conn, Person)
+    person_ids = pd.Series(_ids(conn, Person), dtype="int64")
     if len(new_studies):
-        recs = [
-            dict(person_id=ids[r["person"]], study_date=_date(r["study_date"]), modality=r["modality"],
-                 site=r["site"], height_cm=r["height_cm"], weight_kg=r["weight_kg"])
-            for r in _records(new_studies[skey + ["site", "height_cm", "weight_kg"]])
-        ]  # fmt: skip
-        for i in range(0, len(recs), CHUNK):
-            conn.execute(insert(Study), recs[i : i + CHUNK])
+        s = new_studies
+        cols = [person_ids.reindex(s["person"].to_numpy(dtype=object)).tolist(), _py(s["study_date"]),
+                _py(s["modality"]), _py(s["site"]), _py(s["height_cm"]), _py(s["weight_kg"])]  # fmt: skip
+        _bulk_insert(conn, "study", _STUDY_COLUMNS, list(zip(*cols)))
     if len(new_values):
-        study_ids = {
-            (p, d.isoformat(), m): i
-            for p, d, m, i in conn.execute(
-                select(Person.code, Study.study_date, Study.modality, Study.id).join(Person)
-            ).all()
-        }
-        sid = [study_ids[k] for k in zip(new_values["person"], new_values["study_date"], new_values["modality"])]
-        frame = pd.DataFrame({
-            "study_id": sid,
-            "measure_code": new_values["measure"].to_numpy(),
-            "value": new_values["_value"].to_numpy(dtype=float),
-            "unit": new_values["_unit"].to_numpy(),
-            "entered_value": new_values["value"].to_numpy(dtype=float),
-            "entered_unit": new_values["_entered_unit"].to_numpy(),
-        })  # fmt: skip
-        recs = frame.to_dict("records")
-        for i in range(0, len(recs), CHUNK):
-            conn.execute(insert(Measurement), recs[i : i + CHUNK])
-            progress(min(CHUNK, len(recs) - i))
+        study_id = _study_ids(conn, new_values, person_ids)
+        cols = [
+            study_id,
+            new_values["measure"].to_numpy(dtype=object),
+            new_values["_value"].to_numpy(dtype=float),
+            new_values["_unit"].to_numpy(dtype=object),
+            new_values["value"].to_numpy(dtype=float),
+            new_values["_entered_unit"].to_numpy(dtype=object),
+        ]
+        for i in range(0, len(new_values), CHUNK):
+            part = [c[i : i + CHUNK].tolist() for c in cols]
+            _bulk_insert(conn, "measurement", _VALUE_COLUMNS, list(zip(*part)))
+            progress(min(CHUNK, len(new_values) - i))
     added = len(new_values) + (len(study_rows_only) - already_empty)
     return added, already_values + already_empty
+
+
+def _study_ids(conn: Connection, values: pd.DataFrame, person_ids: pd.Series) -> np.ndarray:
+    """The stored study id of each value row (person, study_date, modality): one SELECT, one index lookup.
+
+    The three key columns become one integer per study (the person id, then codes
+    for the file's dates and modalities), so the lookup is on integers.
+    """
+    stmt = select(Study.id, Study.person_id, Study.study_date, Study.modality).where(Study.removed_at.is_(None))
+    found = list(zip(*conn.execute(stmt).all())) or [(), (), (), ()]
+    study_id, person_id, study_date, modality = (np.array(c, dtype=object) for c in found)
+    iso = {d: d.isoformat() for d in pd.unique(study_date)}
+    study_date = np.array([iso[d] for d in study_date], dtype=object)
+
+    dates = pd.Index(pd.unique(values["study_date"].to_numpy(dtype=object)))
+    modalities = pd.Index(pd.unique(values["modality"].to_numpy(dtype=object)))
+
+    def key(person, date, mod):
+        return (np.asarray(person, dtype=np.int64) * len(dates) + dates.get_indexer(date)) * len(modalities) + (
+            modalities.get_indexer(mod))
+
+    # Only stored studies on one of the file's dates and modalities can be looked up.
+    mine = (dates.get_indexer(study_date) >= 0) & (modalities.get_indexer(modality) >= 0)
+    stored_keys = pd.Index(key(person_id[mine], study_date[mine], modality[mine]))
+    if not stored_keys.is_unique:
+        raise RuntimeError("two stored studies share person, date and modality")
+    wanted = key(person_ids.reindex(values["person"].to_numpy(dtype=object)).to_numpy(),
+                 values["study_date"].to_numpy(dtype=object), values["modality"].to_numpy(dtype=object))  # fmt: skip
+    pos = stored_keys.get_indexer(wanted)
+    if (pos < 0).any():
+        raise RuntimeError("a study just written was not found")
+    return study_id[mine].astype(np.int64)[pos]
 
 
 _WRITERS = {

@@ -102,6 +102,9 @@ KEPT: dict[str, dict[str, str]] = {
     "assessments": {
         "person": PERSON, "assessment_date": DATE, "affected_status": KEEP,
         "competitive_athlete": KEEP, "pregnant": KEEP, "hypertension": KEEP,
+        # HCM Risk-SCD answers: yes / no / empty, a controlled vocabulary
+        "family_history_scd": KEEP, "nsvt": KEEP, "unexplained_syncope": KEEP,
+        "prior_arrest_or_sustained_vt": KEEP, "metabolic_or_syndromic": KEEP,
     },
     "studies": {
         "person": PERSON, "study_date": DATE, "modality": KEEP, "site": SITE, "height_cm": KEEP,

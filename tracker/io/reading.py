@@ -12,11 +12,13 @@ import re
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from tracker.io.layouts import Layout
 
 MAX_FILE_BYTES = 2 * 1024**3  # 2 GiB; larger files are refused before reading
+HEADER_PREFIX = 1 << 16  # characters first tried for reading the header record
 
 
 @dataclass(frozen=True)
@@ -71,19 +73,110 @@ def read_table(path: Path, layout: Layout) -> pd.DataFrame:
         raise InputRejected([Problem(name, None, None, "file is empty (no header row)")])
 
     # Blank lines at the very end of a file are not records.
-    text = re.sub(r"(?:\r?\n[ \t]*)+\Z", "\n", text)
+    # (The pattern can only match inside the trailing run of whitespace, so only that run is searched,
+    # and the text is copied only when it changes: a file can be hundreds of MB.)
+    del raw
+    end = len(text)
+    while end and text[end - 1] in " \t\r\n":
+        end -= 1
+    tail = re.sub(r"(?:\r?\n[ \t]*)+\Z", "\n", text[end:])
+    if tail != text[end:]:
+        text = text[:end] + tail
     try:
-        header = next(csv.reader(io.StringIO(text, newline=""), strict=True))
+        header = _first_record(text)
     except csv.Error as exc:
         raise InputRejected([Problem(name, 1, None, f"is not well-formed CSV ({exc})")]) from None
     header = [h.strip() for h in header]
     _check_header(name, header, layout)
 
-    frame = _parse_records(name, text, len(header))
+    frame = _read_fast(text, len(header))
+    if frame is None:
+        # Not certainly well-formed: the csv module finds and names the row at fault (or,
+        # for an unusual but valid file, reads it).
+        frame = _parse_records(name, text, len(header))
+        frame = frame.astype("category")
     frame.columns = header
-    frame = frame.apply(lambda s: s.str.strip())
+    frame = frame.apply(_strip)
     frame.index = pd.RangeIndex(2, 2 + len(frame))
+    for c in layout.names:
+        if c not in frame.columns:  # a header-optional column left out: every cell empty
+            frame[c] = pd.Categorical([""] * len(frame))
     return frame[layout.names]
+
+
+def _first_record(text: str) -> list[str]:
+    """The header record, as ``csv`` (strict) reads it from the whole text.
+
+    Read from a prefix of the text when that surely gives the same record (the
+    reader stopped before the prefix's last line): reading a whole large file
+    through ``io.StringIO`` would hold four bytes per character.
+    """
+    size = HEADER_PREFIX
+    while size < len(text):
+        part = text[:size]
+        reader = csv.reader(io.StringIO(part, newline=""), strict=True)
+        try:
+            record = next(reader)
+            if reader.line_num < len(io.StringIO(part, newline="").readlines()):
+                return record
+        except (csv.Error, StopIteration):
+            pass  # perhaps only the cut; the whole text decides
+        size *= 4
+    return next(csv.reader(io.StringIO(text, newline=""), strict=True))
+
+
+def _strip(column: pd.Series) -> pd.Series:
+    """A categorical text column with its categories stripped (merging those that become equal)."""
+    cats = column.cat.categories.to_numpy(dtype=object)
+    stripped = np.array([c.strip() for c in cats], dtype=object)
+    if (stripped == cats).all():
+        return column
+    codes, uniques = pd.factorize(stripped)
+    old = column.cat.codes.to_numpy()
+    new = np.where(old < 0, -1, codes[old])
+    return pd.Series(pd.Categorical.from_codes(new, pd.Index(uniques, dtype=object)), index=column.index,
+                     name=column.name)  # fmt: skip
+
+
+# A quoted field that starts and ends at field boundaries, with "" for a quote inside it.
+_QUOTED_FIELD = re.compile(r'(?:(?<=,)|(?<=\n)|\A)"(?:[^"]|"")*"(?=,|\r?\n|\Z)')
+
+
+def _read_fast(text: str, width: int) -> pd.DataFrame | None:
+    """All records after the header as categorical text, read by pandas' C parser.
+
+    Returns None unless the file is certainly read exactly as the ``csv`` module
+    (strict) reads it with every record of ``width`` fields: then the caller falls
+    back to :func:`_parse_records`.  The conditions: no bare carriage return; every
+    quote belongs to a well-formed quoted field; the C parser saw no record with
+    too many fields; and the field separators outside quoted fields number exactly
+    ``width - 1`` per record (so no record is short and no line is blank).
+    """
+    if text.count("\r") != text.count("\r\n"):
+        return None
+    outside = text
+    if '"' in text:
+        outside = _QUOTED_FIELD.sub("", text)
+        if '"' in outside:
+            return None
+    records = outside.count("\n") + (0 if outside.endswith("\n") else 1)
+    if outside.count(",") != records * (width - 1):
+        return None
+    try:
+        frame = pd.read_csv(  # bytes, not io.StringIO: that would hold four bytes per character
+            io.BytesIO(text.encode("utf-8")), encoding="utf-8", header=None, names=range(width), index_col=False,
+            dtype="category", keep_default_na=False, na_filter=False, skip_blank_lines=False, engine="c",
+        )  # fmt: skip
+    except (pd.errors.ParserError, ValueError):
+        return None
+    if len(frame) != records:
+        return None
+    for c in frame.columns:
+        cats = frame[c].cat.categories
+        if len(cats) and cats.str.len().max() > csv.field_size_limit():
+            return None  # the csv module refuses such a field; let it say so
+    frame = frame.iloc[1:]
+    return frame.reset_index(drop=True)
 
 
 def _check_header(name: str, header: list[str], layout: Layout) -> None:
@@ -101,7 +194,8 @@ def _check_header(name: str, header: list[str], layout: Layout) -> None:
             problems.append(Problem(name, 1, h, "column appears twice in the header"))
         seen.add(h)
     unknown = [h for h in header if h not in expected]
-    missing = [c for c in expected if c not in header]
+    optional = {c.name for c in layout.columns if c.header_optional}
+    missing = [c for c in expected if c not in header and c not in optional]
     for h in unknown:
         label = h if h else "(empty)"
         problems.append(

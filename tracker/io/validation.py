@@ -105,6 +105,27 @@ def _earliest(iso):
     return pd.Timestamp(p.earliest()) if p else pd.NaT
 
 
+def _each_distinct(values: pd.Series, fn) -> pd.Series:
+    """``values.map(fn)`` with ``fn`` called once per distinct value (missing values give NaN/NaT)."""
+    codes, distinct = pd.factorize(values.to_numpy(dtype=object))
+    out = pd.Series([fn(v) for v in distinct], dtype=object)
+    if len(out) and all(isinstance(x, pd.Timestamp) or x is pd.NaT for x in out):
+        out = pd.to_datetime(out)
+    taken = out.reindex(codes).to_numpy() if len(out) else np.full(len(codes), np.nan, dtype=object)
+    return pd.Series(taken, index=values.index, dtype=taken.dtype)
+
+
+def _iso_days(values: pd.Series) -> pd.Series:
+    """ISO day text -> Timestamp (NaT when empty or not a day), converted once per distinct text."""
+    codes, distinct = pd.factorize(values.to_numpy(dtype=object))
+    parsed = pd.to_datetime(pd.Series(distinct, dtype=object), format="%Y-%m-%d", errors="coerce")
+    if not len(parsed):
+        return pd.Series(pd.NaT, index=values.index, dtype="datetime64[ns]")
+    taken = parsed.to_numpy()[np.where(codes < 0, 0, codes)]
+    taken[codes < 0] = np.datetime64("NaT")
+    return pd.Series(taken, index=values.index)
+
+
 # --------------------------------------------------------------------------- families
 
 
@@ -143,15 +164,15 @@ def check_people(c: Checked, ctx: Context) -> None:
         bad_sex[known] = (sex == wrong_sex).to_numpy()
         c.add(bad_sex, link, f"{word} is recorded with sex at birth {wrong_sex}")
         # A child born before a parent.
-        child_latest = rows["birth_date"][known].map(_latest)
-        parent_earliest = ref[known].map(everyone["birth_date"]).map(_earliest)
+        child_latest = _each_distinct(rows["birth_date"][known], _latest)
+        parent_earliest = _each_distinct(ref[known].map(everyone["birth_date"]), _earliest)
         before = pd.Series(False, index=rows.index)
         before[known] = (child_latest < parent_earliest).to_numpy()
         c.add(before, "birth_date", f"is before the birth of the {word}")
 
     deceased = rows["vital_status"] == "deceased"
     c.add(rows["death_date"].notna() & ~deceased, "death_date", "is given but vital_status is not deceased")
-    death_before_birth = rows["death_date"].map(_latest) < rows["birth_date"].map(_earliest)
+    death_before_birth = _each_distinct(rows["death_date"], _latest) < _each_distinct(rows["birth_date"], _earliest)
     c.add(death_before_birth, "death_date", "is before the date of birth")
 
     twin = rows["twin_of"]
@@ -240,10 +261,11 @@ def check_variants(c: Checked, ctx: Context) -> None:
     vkey = ["family", "transcript", "hgvs_c"]
     attrs = ["gene", "hgvs_p", "zygosity"]
     both = pd.concat([ctx.variants.assign(_row=0), rows.assign(_row=rows.index)], ignore_index=True)
+    # Position of the first row (stored rows come first) of each variant.
+    group = both.groupby(vkey, dropna=False, sort=False).ngroup().to_numpy()
+    first_pos = pd.Series(np.arange(len(both))).groupby(group).transform("min").to_numpy()
     for attr in attrs:
-        first = both.groupby(vkey, dropna=False)[attr].transform(
-            lambda s: s.iloc[0] if len(s) else None
-        )
+        first = pd.Series(both[attr].to_numpy(dtype=object)[first_pos], index=both.index, dtype=object)
         differs = (both[attr].fillna("") != first.fillna("")) & (both["_row"] > 0)
         for r in both["_row"][differs]:
             c.note(int(r), attr, "differs from another row (or the stored record) of the same variant")
@@ -256,23 +278,27 @@ def _person_checks(c: Checked, ctx: Context, date_col: str) -> pd.DataFrame:
     """Person must exist and not be a placeholder; the date within their life. Returns their records."""
     rows = c.rows
     people = ctx.people.set_index("person")
-    given = rows["person"].notna()
-    unknown = given & ~rows["person"].isin(people.index)
-    c.add(unknown, "person", [f"person {p!r} is not in the database (import people first)" for p in rows["person"][unknown]])
+    # Where each row's person is in the people frame (-1: none): one lookup, then array takes.
+    pos = people.index.get_indexer(rows["person"].to_numpy(dtype=object)) if len(people) else (
+        np.full(len(rows), -1, dtype=np.intp))
+    given = rows["person"].notna().to_numpy()
+    unknown = given & (pos < 0)
+    c.add(pd.Series(unknown, index=rows.index), "person",
+          [f"person {p!r} is not in the database (import people first)" for p in rows["person"][unknown]])
     known = given & ~unknown
-    placeholder = pd.Series(False, index=rows.index)
-    placeholder[known] = rows["person"][known].map(people["placeholder"]).astype(bool).to_numpy()
-    c.add(placeholder, "person", "is a placeholder member (placeholders carry no clinical data)")
-    when = pd.to_datetime(rows[date_col], format="%Y-%m-%d", errors="coerce")
-    # Parse each person's dates once, then look them up for every row (files may hold millions).
-    births = rows["person"][known].map(people["birth_date"].map(_earliest))
-    deaths = rows["person"][known].map(people["death_date"].map(_latest))
-    before = pd.Series(False, index=rows.index)
-    before[known] = (when[known] < births).to_numpy()
-    c.add(before, date_col, "is before the person's date of birth")
-    after = pd.Series(False, index=rows.index)
-    after[known] = (when[known] > deaths).to_numpy()
-    c.add(after, date_col, "is after the person's date of death")
+    at = np.where(known, pos, 0)
+    placeholder = known & people["placeholder"].to_numpy(dtype=bool)[at] if len(people) else known
+    c.add(pd.Series(placeholder, index=rows.index), "person",
+          "is a placeholder member (placeholders carry no clinical data)")
+    when = _iso_days(rows[date_col]).to_numpy()
+    # Each person's dates parsed once (per person, not per row; files may hold millions of rows).
+    if len(people):
+        births = pd.to_datetime(_each_distinct(people["birth_date"], _earliest)).to_numpy()[at]
+        deaths = pd.to_datetime(_each_distinct(people["death_date"], _latest)).to_numpy()[at]
+        c.add(pd.Series(known & (when < births), index=rows.index), date_col,
+              "is before the person's date of birth")
+        c.add(pd.Series(known & (when > deaths), index=rows.index), date_col,
+              "is after the person's date of death")
     return people
 
 
@@ -314,10 +340,12 @@ def check_studies(c: Checked, ctx: Context) -> None:
 
     # The study-level cells must agree on every row of one study.
     skey = ["person", "study_date", "modality"]
+    study = rows.groupby(skey, dropna=False, sort=False).ngroup()
     for col in ("site", "height_cm", "weight_kg"):
         filled = rows[col].astype(object).where(rows[col].notna(), "")
-        first = filled.groupby([rows[k] for k in skey], dropna=False).transform("first")
-        c.add(filled != first, col, "differs between rows of the same study")
+        codes = pd.Series(pd.factorize(filled.to_numpy(dtype=object))[0], index=rows.index)
+        first = codes.groupby(study).transform("first")
+        c.add(codes != first, col, "differs between rows of the same study")
 
     measure = rows["measure"]
     has_measure = measure.notna()
@@ -339,14 +367,18 @@ def check_studies(c: Checked, ctx: Context) -> None:
           [f"{m} is a {mod} measure, not {rm}" for m, mod, rm in
            zip(measure[wrong_modality], cat["modality"][wrong_modality], rows["modality"][wrong_modality])])
 
-    entered_unit = rows["unit"].map(lambda u: units.normalise_unit(u) if isinstance(u, str) else None)
+    entered_unit = _each_distinct(rows["unit"], lambda u: units.normalise_unit(u) if isinstance(u, str) else None)
+    entered_unit = entered_unit.astype(object).where(entered_unit.notna(), None)
     unit_unknown = known & rows["unit"].notna() & entered_unit.isna()
     c.add(unit_unknown, "unit", [f"{u!r} is not a known unit" for u in rows["unit"][unit_unknown]])
     factor = pd.Series(np.nan, index=rows.index)
     ok_unit = known & entered_unit.notna()
-    factor[ok_unit] = [
-        units.conversion_factor(cu, eu) or np.nan for cu, eu in zip(cat["unit"][ok_unit], entered_unit[ok_unit])
-    ]
+    # One conversion factor per distinct (catalogue unit, entered unit) pair.
+    cu_codes, cu_distinct = pd.factorize(cat["unit"][ok_unit].to_numpy(dtype=object))
+    eu_codes, eu_distinct = pd.factorize(entered_unit[ok_unit].to_numpy(dtype=object))
+    table = np.array([[units.conversion_factor(cu, eu) or np.nan for eu in eu_distinct] for cu in cu_distinct],
+                     dtype=float).reshape(len(cu_distinct), len(eu_distinct))  # fmt: skip
+    factor[ok_unit] = table[cu_codes, eu_codes]
     wrong_unit = ok_unit & factor.isna()
     c.add(wrong_unit, "unit",
           [f"{u} cannot be converted to {cu}, the unit of {m}" for u, cu, m in

@@ -31,6 +31,7 @@ CATALOGUE_UNITS: dict[str, str] = {
     "lavi": "mL/m2",
     "lvot_rest": "mmHg",
     "lvot_provoked": "mmHg",
+    "lvot_valsalva": "mmHg",
     "mv_e": "cm/s",
     "mv_a": "cm/s",
     "e_prime_septal": "cm/s",

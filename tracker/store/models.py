@@ -87,6 +87,9 @@ class Person(Base):
     contact_status: Mapped[str | None] = mapped_column(String(20))
     contact_status_date: Mapped[dt.date | None] = mapped_column(Date)
     notes: Mapped[str | None] = mapped_column(Text)
+    removed_at: Mapped[dt.datetime | None] = mapped_column(DateTime)
+    removed_by: Mapped[str | None] = mapped_column(String(100))
+    removed_reason: Mapped[str | None] = mapped_column(Text)
 
 
 class Assessment(Base):
@@ -107,6 +110,12 @@ class Assessment(Base):
     pregnant: Mapped[bool] = mapped_column(Boolean, default=False)
     hypertension: Mapped[bool] = mapped_column(Boolean, default=False)
     notes: Mapped[str | None] = mapped_column(Text)
+    # HCM Risk-SCD answers (migration 0005): True, False, or None = not recorded.
+    family_history_scd: Mapped[bool | None] = mapped_column(Boolean)
+    nsvt: Mapped[bool | None] = mapped_column(Boolean)
+    unexplained_syncope: Mapped[bool | None] = mapped_column(Boolean)
+    prior_arrest_or_sustained_vt: Mapped[bool | None] = mapped_column(Boolean)
+    metabolic_or_syndromic: Mapped[bool | None] = mapped_column(Boolean)
 
 
 class Variant(Base):
@@ -204,6 +213,9 @@ class Study(Base):
     site: Mapped[str | None] = mapped_column(String(200))
     height_cm: Mapped[float | None] = mapped_column(Float)
     weight_kg: Mapped[float | None] = mapped_column(Float)
+    removed_at: Mapped[dt.datetime | None] = mapped_column(DateTime)
+    removed_by: Mapped[str | None] = mapped_column(String(100))
+    removed_reason: Mapped[str | None] = mapped_column(Text)
 
 
 class Measurement(Base):
@@ -287,3 +299,28 @@ class ImpactItem(Base):
     done_on: Mapped[dt.date | None] = mapped_column(Date)
     done_by: Mapped[str | None] = mapped_column(String(100))
     done_note: Mapped[str | None] = mapped_column(Text)
+
+
+class AuditEntry(Base):
+    """One write to the store: who, when, what, for whom, the values before and after, why.
+
+    Append-only: a database trigger (migration 0004) refuses every UPDATE and
+    DELETE of this table, on SQLite and on PostgreSQL.  ``before`` and ``after``
+    are JSON objects (text); an import is one entry per file (name, SHA-256 and
+    counts), because imported rows are never changed except by audited edits.
+    """
+
+    __tablename__ = "audit_entry"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    at: Mapped[dt.datetime] = mapped_column(DateTime, index=True)
+    actor: Mapped[str] = mapped_column(String(100))
+    action: Mapped[str] = mapped_column(String(30))
+    table_name: Mapped[str] = mapped_column(String(40))
+    row_id: Mapped[int | None] = mapped_column(Integer)
+    family_code: Mapped[str | None] = mapped_column(String(40), index=True)
+    person_code: Mapped[str | None] = mapped_column(String(40), index=True)
+    what: Mapped[str] = mapped_column(Text)
+    before: Mapped[str | None] = mapped_column(Text)
+    after: Mapped[str | None] = mapped_column(Text)
+    reason: Mapped[str | None] = mapped_column(Text)

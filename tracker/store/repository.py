@@ -1,5 +1,8 @@
 """Reading the store into DataFrames that use codes, not row ids.
 
+People and studies that were removed (soft delete, see :mod:`tracker.store.edits`)
+are left out of every frame, and so are the records of a removed person.
+
 Each ``load_*`` function returns the records of one kind in the clean form of
 its CSV layout (see :mod:`tracker.io.layouts`): the same columns, dates as ISO
 text, numbers as floats, yes/no as booleans, empty as None/NaN.  The importer
@@ -9,8 +12,9 @@ the engines read them.
 
 from __future__ import annotations
 
+import numpy as np
 import pandas as pd
-from sqlalchemy import Connection, select
+from sqlalchemy import Connection, String, select, type_coerce
 from sqlalchemy.orm import aliased
 
 from tracker.io.columns import partial_from_storage
@@ -71,6 +75,7 @@ def load_people(conn: Connection) -> pd.DataFrame:
         .outerjoin(mother, Person.mother_id == mother.id)
         .outerjoin(father, Person.father_id == father.id)
         .outerjoin(twin, Person.twin_of_id == twin.id)
+        .where(Person.removed_at.is_(None))
         .order_by(Person.code)
     )
     cols = [
@@ -135,6 +140,7 @@ def load_genetic_results(conn: Connection) -> pd.DataFrame:
         )
         .join(Person, GeneticResult.person_id == Person.id)
         .outerjoin(Variant, GeneticResult.variant_id == Variant.id)
+        .where(Person.removed_at.is_(None))
         .order_by(Person.code, GeneticResult.test_date, GeneticResult.test_type)
     )
     cols = ["person", "test_date", "test_type", "_tx", "_c", "result", "lab", "report_reference"]
@@ -142,6 +148,11 @@ def load_genetic_results(conn: Connection) -> pd.DataFrame:
     df["test_date"] = _iso(df["test_date"])
     df["variant"] = [f"{t}:{c}" if t is not None else None for t, c in zip(df["_tx"], df["_c"])]
     return df[["person", "test_date", "test_type", "variant", "result", "lab", "report_reference"]]
+
+
+# HCM Risk-SCD answers of an assessment: True, False or None (not recorded).
+RISK_ANSWERS = ("family_history_scd", "nsvt", "unexplained_syncope", "prior_arrest_or_sustained_vt",
+                "metabolic_or_syndromic")  # fmt: skip
 
 
 def load_assessments(conn: Connection) -> pd.DataFrame:
@@ -155,12 +166,14 @@ def load_assessments(conn: Connection) -> pd.DataFrame:
             Assessment.pregnant,
             Assessment.hypertension,
             Assessment.notes,
+            *(getattr(Assessment, a) for a in RISK_ANSWERS),
         )
         .join(Person, Assessment.person_id == Person.id)
+        .where(Person.removed_at.is_(None))
         .order_by(Person.code, Assessment.assessment_date)
     )
     cols = ["person", "assessment_date", "affected_status", "symptoms", "competitive_athlete",
-            "pregnant", "hypertension", "notes"]  # fmt: skip
+            "pregnant", "hypertension", "notes", *RISK_ANSWERS]  # fmt: skip
     df = _frame(conn, stmt, cols)
     df["assessment_date"] = _iso(df["assessment_date"])
     for c in ("competitive_athlete", "pregnant", "hypertension"):
@@ -173,13 +186,21 @@ def load_studies(conn: Connection, *, entered: bool = True) -> pd.DataFrame:
 
     With ``entered`` the value and unit are as entered (the CSV layout);
     otherwise they are in the catalogue unit.
+
+    Columns: person, study_date (ISO text), modality, site, measure, unit as
+    text (None when empty); height_cm, weight_kg, value as float64 (NaN when
+    empty).  The rows are read in batches into integer codes and float arrays,
+    so each distinct text is one Python string shared by all its rows (a
+    cohort's millions of values cost a few machine words each, not a tuple of
+    objects each).
     """
     value = Measurement.entered_value if entered else Measurement.value
     unit = Measurement.entered_unit if entered else Measurement.unit
     stmt = (
         select(
             Person.code,
-            Study.study_date,
+            # Read as the driver gives it (ISO text on SQLite, a date on PostgreSQL), once per date.
+            type_coerce(Study.study_date, String),
             Study.modality,
             Study.site,
             Study.height_cm,
@@ -190,15 +211,47 @@ def load_studies(conn: Connection, *, entered: bool = True) -> pd.DataFrame:
         )
         .join(Person, Study.person_id == Person.id)
         .outerjoin(Measurement, Measurement.study_id == Study.id)
+        .where(Study.removed_at.is_(None), Person.removed_at.is_(None))
         .order_by(Person.code, Study.study_date, Study.modality, Measurement.measure_code)
     )
-    cols = ["person", "study_date", "modality", "site", "height_cm", "weight_kg", "measure",
-            "value", "unit"]  # fmt: skip
-    df = _frame(conn, stmt, cols)
-    df["study_date"] = _iso(df["study_date"])
-    for c in ("height_cm", "weight_kg", "value"):
-        df[c] = pd.to_numeric(df[c], errors="coerce").astype(float)
-    return df
+    return _typed_frame(conn, stmt, _STUDY_TEXT, _STUDY_NUMBERS)
+
+
+_STUDY_TEXT = ["person", "study_date", "modality", "site", "measure", "unit"]
+_STUDY_NUMBERS = ["height_cm", "weight_kg", "value"]
+_STUDY_ORDER = ["person", "study_date", "modality", "site", "height_cm", "weight_kg", "measure", "value", "unit"]
+_BATCH = 50_000
+
+
+def _typed_frame(conn: Connection, stmt, text: list[str], numbers: list[str]) -> pd.DataFrame:
+    """Run ``stmt`` (columns in ``_STUDY_ORDER``) batch by batch into text codes and float arrays."""
+    position = {c: i for i, c in enumerate(_STUDY_ORDER)}
+    codes: dict[str, list[np.ndarray]] = {c: [] for c in text}
+    seen: dict[str, dict] = {c: {} for c in text}  # distinct value -> code, per text column
+    floats: dict[str, list[np.ndarray]] = {c: [] for c in numbers}
+    result = conn.execute(stmt.execution_options(yield_per=_BATCH))
+    for batch in result.partitions():
+        columns = list(zip(*batch))
+        for c in text:
+            local, distinct = pd.factorize(np.array(columns[position[c]], dtype=object))
+            book = seen[c]
+            to_global = np.array([book.setdefault(v, len(book)) for v in distinct] + [-1], dtype=np.int64)
+            codes[c].append(to_global[local])  # local -1 (NULL) takes the last entry: -1
+        for c in numbers:
+            floats[c].append(np.array(columns[position[c]], dtype=float))
+    out = {}
+    for c in text:
+        book = seen[c]
+        if c == "study_date":  # ISO text whatever the driver returned
+            distinct = [v if isinstance(v, str) else v.isoformat() for v in book]
+        else:
+            distinct = list(book)
+        lookup = np.array(distinct + [None], dtype=object)
+        taken = np.concatenate(codes[c]) if codes[c] else np.zeros(0, dtype=np.int64)
+        out[c] = lookup[taken]  # -1 -> None
+    for c in numbers:
+        out[c] = np.concatenate(floats[c]) if floats[c] else np.zeros(0, dtype=float)
+    return pd.DataFrame({c: pd.Series(out[c], dtype=object if c in text else float) for c in _STUDY_ORDER})
 
 
 def load_measures(conn: Connection) -> pd.DataFrame:
