@@ -82,6 +82,9 @@ def test_edit_person_keeps_the_old_value_in_the_audit_trail(loaded_db, run):
     e = trail[0]
     assert (e["actor"], e["action"], e["table"], e["family"]) == ("nurse.a", "edit", "person", "FAM-T1")
     assert e["before"]["contact_status"] == "not_contacted" and e["reason"] == "phoned; declines screening"
+    table = run("audit", "--person", "T1-07", db=loaded_db)
+    assert table.code == 0 and "1 audit entries" in table.out and "nurse.a" in table.out
+    assert "not_contacted" in table.out and "declined" in table.out
     # Only the person row and the audit trail changed.
     after = dump(loaded_db)
     assert {t for t in after if after[t] != before[t]} == {"person", "audit_entry"}

@@ -23,10 +23,20 @@ def _day(text: str | None, option: str):
         raise UserError(f"{option}: {text!r} is not an ISO 8601 date (YYYY-MM-DD)") from None
 
 
-def _short(values) -> str:
-    if not values:
+def _change(action: str, before: dict | None, after: dict | None) -> str:
+    """The changed fields as "field: before -> after" (an import's counts are in its "what")."""
+    if action in ("import", "restore"):
         return ""
-    return json.dumps(values, sort_keys=True, ensure_ascii=False, default=str)
+    before, after = before or {}, after or {}
+    parts = []
+    for k in sorted(set(before) | set(after)):
+        if before.get(k) != after.get(k) or k not in before:
+            parts.append(f"{k}: {_cell(before.get(k))} -> {_cell(after.get(k))}" if before else f"{k}: {_cell(after.get(k))}")
+    return "; ".join(parts)
+
+
+def _cell(v) -> str:
+    return "(empty)" if v is None else json.dumps(v, ensure_ascii=False) if not isinstance(v, str) else v
 
 
 def audit_(
@@ -58,9 +68,9 @@ def audit_(
         typer.echo("no audit entries match")
         return
     print_table(
-        f"{len(frame)} audit entries",
-        ["#", "when (UTC)", "who", "action", "what", "before", "after", "reason"],
-        [[r.id, r.at, r.actor, r.action, r.what, _short(r.before), _short(r.after), r.reason or ""]
+        f"{len(frame)} audit entries (--json gives every value before and after)",
+        ["#", "when (UTC)", "who", "action", "what", "change", "reason"],
+        [[r.id, r.at, r.actor, r.action, r.what, _change(r.action, r.before, r.after), r.reason or ""]
          for r in frame.itertuples()],
     )  # fmt: skip
 
