@@ -78,7 +78,9 @@ def print_table(title: str | None, columns: list[str], rows: list[list[Any]]) ->
     for i, c in enumerate(columns):
         # Codes, dates and numbers are never cut or wrapped; only long text wraps.
         short = all(len(r[i]) <= 20 for r in cells) if cells else True
-        table.add_column(c, no_wrap=short, min_width=max(len(c), max((len(r[i]) for r in cells), default=0)) if short else None)
+        # Long text folds (never cut with an ellipsis), so a narrow terminal loses nothing.
+        table.add_column(c, no_wrap=short, overflow="fold",
+                         min_width=max(len(c), max((len(r[i]) for r in cells), default=0)) if short else None)  # fmt: skip
     for r in cells:
         table.add_row(*r)
     out.print(table)
