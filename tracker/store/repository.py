@@ -229,8 +229,10 @@ def _typed_frame(conn: Connection, stmt, text: list[str], numbers: list[str]) ->
     codes: dict[str, list[np.ndarray]] = {c: [] for c in text}
     seen: dict[str, dict] = {c: {} for c in text}  # distinct value -> code, per text column
     floats: dict[str, list[np.ndarray]] = {c: [] for c in numbers}
-    result = conn.execute(stmt.execution_options(yield_per=_BATCH))
-    for batch in result.partitions():
+    # A client-side cursor, fetched in batches: a server-side one (yield_per) makes PostgreSQL pick a
+    # fast-start plan for the ordered join, which is far slower for the whole result.
+    result = conn.execute(stmt)
+    for batch in result.partitions(_BATCH):
         columns = list(zip(*batch))
         for c in text:
             local, distinct = pd.factorize(np.array(columns[position[c]], dtype=object))
