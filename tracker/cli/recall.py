@@ -152,7 +152,8 @@ def _with_trends(
         frame, guideline=rule_set_id, relative_of_affected=relatives, genotype_positive=positive,
         clinic_repeatability=settings.repeatability or None,
     )  # fmt: skip
-    return {f: fs.apply_trends(s, t) for f, s in states.items()}, {
+    trends_of = fs.by_family(t, dict(zip(frames.people["person"], frames.people["family"])))
+    return {f: fs.apply_trends(s, trends_of.get(f)) for f, s in states.items()}, {
         "applied": True,
         "note": f"trend modifiers from the measurement trends ({rule_set_id} thresholds): progression beyond "
         "measurement variability and projected threshold crossing shorten the interval",

@@ -560,19 +560,45 @@ def build_family_states(
     reclassification_pending: Iterable[str] = (),
     as_of: dt.date | None = None,
 ) -> dict[str, FamilyState]:
-    """:func:`build_family_state` for every family in ``people`` (family code order)."""
+    """:func:`build_family_state` for every family in ``people`` (family code order).
+
+    Each frame is split by family once, so the work grows with the cohort, not with its square.
+    """
     pending = tuple(reclassification_pending)
     if as_of is not None:
         variants = records_up_to(variants, "classified_on", as_of)
         results = records_up_to(results, "test_date", as_of)
         assessments = records_up_to(assessments, "assessment_date", as_of)
         studies = records_up_to(studies, "study_date", as_of)
+    family_of = dict(zip(people["person"], people["family"]))
+    members = by_family(people, family_of)
+    parts = {name: by_family(frame, family_of) for name, frame in
+             (("variants", variants), ("results", results), ("assessments", assessments), ("studies", studies),
+              ("trends", trends))}  # fmt: skip
+    frames = {"variants": variants, "results": results, "assessments": assessments, "studies": studies,
+              "trends": trends}  # fmt: skip
+
+    def part(name: str, fam: str):
+        frame = frames[name]
+        if frame is None:
+            return None
+        return parts[name].get(fam, frame.iloc[:0])
+
     return {
         fam: build_family_state(
-            fam, people, variants, results, assessments, studies, trends=trends, reclassification_pending=pending
-        )
-        for fam in sorted(set(people["family"]))
+            fam, members[fam], part("variants", fam), part("results", fam), part("assessments", fam),
+            part("studies", fam), trends=part("trends", fam), reclassification_pending=pending,
+        )  # fmt: skip
+        for fam in sorted(members)
     }
+
+
+def by_family(frame: pd.DataFrame | None, family_of: Mapping[str, str]) -> dict[str, pd.DataFrame]:
+    """``frame`` split by family: its own ``family`` column, else the family of its ``person``."""
+    if frame is None or not len(frame):
+        return {}
+    key = frame["family"] if "family" in frame.columns else frame["person"].map(family_of)
+    return {fam: group for fam, group in frame.groupby(key, sort=False)}
 
 
 def records_up_to(frame: pd.DataFrame | None, column: str, on: dt.date) -> pd.DataFrame | None:
