@@ -120,6 +120,9 @@ def _family_state(frames: _Frames, family: str, as_of: dt.date | None) -> fs.Fam
 # --------------------------------------------------------------------------- trend modifiers
 
 
+TREND_CHUNK_PEOPLE = 2_000  # people per batch of the trend engine in _with_trends (memory, not results)
+
+
 def _with_trends(
     frames: _Frames, states: dict[str, fs.FamilyState], rule_set_id: str, settings: Settings, as_of: dt.date
 ) -> tuple[dict[str, fs.FamilyState], dict]:
@@ -145,13 +148,19 @@ def _with_trends(
     studies = fs.records_up_to(frames.studies[frames.studies["person"].isin(codes)], "study_date", as_of)
     if studies is None or not studies["value"].notna().any():
         return states, {"applied": True, "note": "trend modifiers: no measured values to trend"}
-    frame = build(frames.people, studies)
     relatives = set().union(*(fs.first_degree_of_affected(s) for s in states.values()))
     positive = set().union(*(fs.genotype_positive(s) for s in states.values()))
-    t = flags(
-        frame, guideline=rule_set_id, relative_of_affected=relatives, genotype_positive=positive,
-        clinic_repeatability=settings.repeatability or None,
-    )  # fmt: skip
+    # Trends are per person: computed a few thousand people at a time, so that memory stays
+    # bounded on a registry-sized cohort (the results are the same as in one go).
+    people = pd.unique(studies["person"].to_numpy(dtype=object))
+    parts = []
+    for i in range(0, len(people), TREND_CHUNK_PEOPLE):
+        chunk = studies[studies["person"].isin(set(people[i : i + TREND_CHUNK_PEOPLE]))]
+        parts.append(flags(
+            build(frames.people, chunk), guideline=rule_set_id, relative_of_affected=relatives,
+            genotype_positive=positive, clinic_repeatability=settings.repeatability or None,
+        ))  # fmt: skip
+    t = pd.concat(parts, ignore_index=True)
     trends_of = fs.by_family(t, dict(zip(frames.people["person"], frames.people["family"])))
     return {f: fs.apply_trends(s, trends_of.get(f)) for f, s in states.items()}, {
         "applied": True,
