@@ -21,7 +21,6 @@ name.  Pure apart from writing the file it is given.
 
 from __future__ import annotations
 
-import re
 from pathlib import Path
 from xml.sax.saxutils import escape
 
@@ -43,6 +42,7 @@ from reportlab.platypus import (
 
 from tracker.errors import UserError
 from tracker.outputs.letter import Letter
+from tracker.outputs.pdf_pages import paragraph
 
 MARGIN_MM = 20
 FOOTER_MM = 24
@@ -60,32 +60,27 @@ _CLINIC_NAME = ParagraphStyle("clinic_name", parent=_CLINIC, fontName="Helvetica
 _FOOTER = ParagraphStyle("footer", parent=_BODY, fontSize=8.5, leading=10.5, textColor=colors.HexColor("#333333"))
 
 
-def _p(text: str, style: ParagraphStyle) -> Paragraph:
-    """A paragraph of plain text (markup characters escaped; runs of 2+ spaces kept as a gap)."""
-    return Paragraph(re.sub(r" {2,}", lambda m: "&nbsp;" * len(m.group(0)), escape(text)), style)
-
-
 def _clinic_block(letter: Letter) -> list:
     c = letter.plan.clinic
-    out = [_p(c.name, _CLINIC_NAME)]
+    out = [paragraph(c.name, _CLINIC_NAME)]
     for line in c.address.splitlines():
         if line.strip():
-            out.append(_p(line.strip(), _CLINIC))
+            out.append(paragraph(line.strip(), _CLINIC))
     if c.phone:
-        out.append(_p(f"Phone: {c.phone}", _CLINIC))
+        out.append(paragraph(f"Phone: {c.phone}", _CLINIC))
     if c.email:
-        out.append(_p(c.email, _CLINIC))
+        out.append(paragraph(c.email, _CLINIC))
     return out
 
 
 def _recipient_block(letter: Letter) -> list:
     plan = letter.plan
-    out = [_p("Private and confidential", _SMALL)]
+    out = [paragraph("Private and confidential", _SMALL)]
     if plan.flags.get("child"):
-        out.append(_p("To the parent or guardian of", _SMALL))
+        out.append(paragraph("To the parent or guardian of", _SMALL))
     if plan.recipient_name:
-        out.append(_p(plan.recipient_name, _SMALL))
-    out.append(_p(f"Our reference: {plan.person}", _SMALL))
+        out.append(paragraph(plan.recipient_name, _SMALL))
+    out.append(paragraph(f"Our reference: {plan.person}", _SMALL))
     return out
 
 
@@ -98,7 +93,7 @@ def _body(letter: Letter) -> list:
         if items:
             flow.append(
                 ListFlowable(
-                    [ListItem(_p(t, _ITEM), leftIndent=14) for t in items],
+                    [ListItem(paragraph(t, _ITEM), leftIndent=14) for t in items],
                     bulletType="bullet", start="\u2022", leftIndent=14, bulletFontSize=10, spaceAfter=6,
                 )  # fmt: skip
             )
@@ -106,7 +101,7 @@ def _body(letter: Letter) -> list:
 
     def flush_details() -> None:
         if details:
-            box = Table([[_p(t, _DETAIL)] for t in details], colWidths=[A4[0] - 2 * MARGIN_MM * mm])
+            box = Table([[paragraph(t, _DETAIL)] for t in details], colWidths=[A4[0] - 2 * MARGIN_MM * mm])
             box.setStyle(
                 TableStyle(
                     [
@@ -131,10 +126,10 @@ def _body(letter: Letter) -> list:
             flush_details()
         group = b.group
         if b.kind == "heading":
-            pending_heading = _p(b.text, _HEAD)
+            pending_heading = paragraph(b.text, _HEAD)
             continue
         if b.kind == "paragraph":
-            para = _p(b.text, _BODY)
+            para = paragraph(b.text, _BODY)
             flow.append(KeepTogether([pending_heading, para]) if pending_heading else para)
         elif b.kind == "item":
             if pending_heading:
@@ -154,10 +149,10 @@ def _body(letter: Letter) -> list:
 
 def _signature(letter: Letter) -> list:
     c = letter.plan.clinic
-    block = [Spacer(1, 6), _p(letter.filled.closing, _BODY), Spacer(1, 22), _p(c.signatory, _BODY)]
+    block = [Spacer(1, 6), paragraph(letter.filled.closing, _BODY), Spacer(1, 22), paragraph(c.signatory, _BODY)]
     if c.signatory_role:
-        block.append(_p(c.signatory_role, _SMALL))
-    block.append(_p(c.name, _SMALL))
+        block.append(paragraph(c.signatory_role, _SMALL))
+    block.append(paragraph(c.name, _SMALL))
     return [KeepTogether(block)]
 
 
@@ -173,10 +168,10 @@ def build_story(letter: Letter) -> list:
     story: list = [
         head,
         Spacer(1, 8),
-        _p(f"Date: {letter.plan.on.isoformat()}", ParagraphStyle("date", parent=_SMALL, alignment=TA_RIGHT)),
+        paragraph(f"Date: {letter.plan.on.isoformat()}", ParagraphStyle("date", parent=_SMALL, alignment=TA_RIGHT)),
         Spacer(1, 10),
-        _p(letter.filled.subject, _SUBJECT),
-        _p(letter.filled.greeting, _BODY),
+        paragraph(letter.filled.subject, _SUBJECT),
+        paragraph(letter.filled.greeting, _BODY),
     ]
     story += _body(letter)
     story += _signature(letter)

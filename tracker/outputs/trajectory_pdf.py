@@ -52,7 +52,6 @@ from __future__ import annotations
 
 import datetime as dt
 import math
-import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -63,10 +62,10 @@ from reportlab.lib import colors
 from reportlab.lib.pagesizes import A4
 from reportlab.lib.styles import ParagraphStyle
 from reportlab.lib.units import mm
-from reportlab.pdfgen import canvas as rl_canvas
 from reportlab.platypus import CondPageBreak, KeepTogether, Paragraph, SimpleDocTemplate, Spacer, Table, TableStyle
 
 from tracker.outputs import polar_map
+from tracker.outputs.pdf_pages import numbered_canvas, paragraph
 
 PAGE = A4
 MARGIN_MM = 15
@@ -293,10 +292,6 @@ def marks(assessment: str | None, meets_criteria: object) -> str:
     return out
 
 
-def _p(text: str, style: ParagraphStyle) -> Paragraph:
-    return Paragraph(re.sub(r" {2,}", lambda m: "&nbsp;" * len(m.group(0)), escape(text)), style)
-
-
 # --------------------------------------------------------------------------- charts
 
 
@@ -404,7 +399,7 @@ def _map_cell(s: StrainMap, width: float) -> list:
     legend = width >= POLAR_DIAMETER + 28 + polar_map.LEGEND_WIDTH
     drawing = polar_map.polar_map_drawing(s.values, diameter=POLAR_DIAMETER, legend=legend)
     title = ParagraphStyle("tj_map_title", parent=_CELL_HEAD, fontSize=7.5, leading=9)
-    return [_p(f"Segmental peak longitudinal strain, echo {s.study_date} (%)", title), drawing]
+    return [paragraph(f"Segmental peak longitudinal strain, echo {s.study_date} (%)", title), drawing]
 
 
 def _charts_block(charts: Sequence[Chart], strain: StrainMap | None = None) -> list:
@@ -412,7 +407,7 @@ def _charts_block(charts: Sequence[Chart], strain: StrainMap | None = None) -> l
 
     Three cells a row, four when more than six are needed, so six charts and the map fill two rows."""
     if not charts and strain is None:
-        return [_p("No key measure has a value.", _TEXT)]
+        return [paragraph("No key measure has a value.", _TEXT)]
     n_cells = len(charts) + (2 if strain is not None else 0)
     per_row = CHARTS_PER_ROW if n_cells <= 2 * CHARTS_PER_ROW else CHARTS_PER_ROW + 1
     cell_w = WIDTH / per_row
@@ -468,7 +463,7 @@ def _modality_tables(t: ModalityTable, person: str) -> list:
     gap = n > len(cols)
     name_w, unit_w, limit_w = 31 * mm, 10 * mm, 19 * mm
     col_w = min((WIDTH - name_w - unit_w - limit_w) / max(len(cols), 1), 24 * mm)
-    head = [_p("measure", _CELL_HEAD), _p("unit", _CELL_HEAD), _p("normal limit (latest)", _CELL_HEAD)]
+    head = [paragraph("measure", _CELL_HEAD), paragraph("unit", _CELL_HEAD), paragraph("normal limit (latest)", _CELL_HEAD)]
     for k, i in enumerate(cols):
         age = "" if t.ages[i] is None else f"age {t.ages[i]:.1f}"
         first = ", first" if gap and k == 0 else ""
@@ -483,7 +478,7 @@ def _modality_tables(t: ModalityTable, person: str) -> list:
             continue
         limit = shown[-1].limit  # that of the latest study listed
         name = f"<b>{escape(r.measure)}</b>" + ("*" if r.derived else "")
-        row = [Paragraph(name, _CELL), _p(UNIT_TEXT.get(r.unit, r.unit), _CELL), _p(limit, _CELL)]
+        row = [Paragraph(name, _CELL), paragraph(UNIT_TEXT.get(r.unit, r.unit), _CELL), paragraph(limit, _CELL)]
         for i in cols:
             c = r.cells[i]
             row.append("" if c is None else Paragraph(_cell_text(c, c.limit != limit), _CELL))
@@ -516,9 +511,9 @@ def _modality_tables(t: ModalityTable, person: str) -> list:
         title, line = f"{mod} values by study ({n})", ""
     if hidden:
         line += (" " if line else "") + "Measured only at studies not listed: " + ", ".join(hidden) + "."
-    out: list = [CondPageBreak(28 * mm), _p(title, _SECTION)]
+    out: list = [CondPageBreak(28 * mm), paragraph(title, _SECTION)]
     if line:
-        out.append(_p(line, _SMALL))
+        out.append(paragraph(line, _SMALL))
     out.append(tbl)
     return out
 
@@ -548,14 +543,14 @@ def _identity_block(doc: TrajectoryDocument) -> list:
         ("Phenotype", affected + (f"; first-degree relative of affected {rel}" if rel else "")),
         ("Guideline", doc.guideline),
     ]
-    t = Table([[_p(k, _CELL_HEAD), _p(v, _TEXT)] for k, v in rows], colWidths=[22 * mm, WIDTH - 22 * mm])
+    t = Table([[paragraph(k, _CELL_HEAD), paragraph(v, _TEXT)] for k, v in rows], colWidths=[22 * mm, WIDTH - 22 * mm])
     t.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"), ("LEFTPADDING", (0, 0), (-1, -1), 3),
                            ("TOPPADDING", (0, 0), (-1, -1), 1), ("BOTTOMPADDING", (0, 0), (-1, -1), 1),
                            ("BOX", (0, 0), (-1, -1), 0.5, colors.HexColor("#888888")),
                            ("BACKGROUND", (0, 0), (0, -1), colors.HexColor("#EEEEEE"))]))  # fmt: skip
     return [
-        _p(f"Trajectory report {i['person']}", _TITLE),
-        _p(f"{doc.clinic}. Data as of {doc.as_of.isoformat()}; generated {doc.generated.isoformat()}. "
+        paragraph(f"Trajectory report {i['person']}", _TITLE),
+        paragraph(f"{doc.clinic}. Data as of {doc.as_of.isoformat()}; generated {doc.generated.isoformat()}. "
            "Person code only; look the person up in the record.", _SMALL),  # fmt: skip
         Spacer(1, 4),
         t,
@@ -563,22 +558,22 @@ def _identity_block(doc: TrajectoryDocument) -> list:
 
 
 def _flags_block(doc: TrajectoryDocument) -> list:
-    out = [_p("Trends and flags (beyond measurement variability, projections, conversion)", _SECTION)]
+    out = [paragraph("Trends and flags (beyond measurement variability, projections, conversion)", _SECTION)]
     if not doc.flags:
-        out.append(_p("No measure has two or more studies: nothing to trend.", _TEXT))
+        out.append(paragraph("No measure has two or more studies: nothing to trend.", _TEXT))
     else:
         head = ["measure", "studies", "flag; projection of the threshold crossing", "slope per year (95% CI)",
                 "last change against the least significant change, LSC"]  # fmt: skip
-        data = [[_p(h, _FCELL_HEAD) for h in head]]
+        data = [[paragraph(h, _FCELL_HEAD) for h in head]]
         for f in doc.flags:
             flag = f"<b>{escape(f.flag)}</b>" if f.flagged else escape(f.flag)
             if f.projection:
                 flag += f"; projection: {escape(f.projection)}"
             slope = escape(f.slope) + (f"<br/>{escape(f.z_slope)}" if f.z_slope else "")
             studies = f"{f.n}, {_SHORT_WINDOW.get(f.window, f.window)}"
-            data.append([Paragraph(f"<b>{escape(f.measure)}</b>", _FCELL), _p(studies, _FCELL),
+            data.append([Paragraph(f"<b>{escape(f.measure)}</b>", _FCELL), paragraph(studies, _FCELL),
                          Paragraph(flag, _FCELL), Paragraph(slope, _FCELL),
-                         _p(_short_change(f.change), _FCELL)])  # fmt: skip
+                         paragraph(_short_change(f.change), _FCELL)])  # fmt: skip
         widths = [20 * mm, 15 * mm, 55 * mm, 36 * mm]
         t = Table(data, colWidths=widths + [WIDTH - sum(widths)], repeatRows=1, hAlign="LEFT")
         t.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"),
@@ -593,13 +588,13 @@ def _flags_block(doc: TrajectoryDocument) -> list:
         out.append(t)
     if doc.conversion:
         out.append(Spacer(1, 2))
-        out.append(_p(doc.conversion, _TEXT))
+        out.append(paragraph(doc.conversion, _TEXT))
     return out
 
 
 def _recall_block(doc: TrajectoryDocument) -> list:
     r = doc.recall
-    out = [_p("Recall proposal", _SECTION)]
+    out = [paragraph("Recall proposal", _SECTION)]
     head = f"Status {r.get('status')}"
     if r.get("due"):
         head += f"; next due {r['due']}"
@@ -613,32 +608,32 @@ def _recall_block(doc: TrajectoryDocument) -> list:
     head += "."
     if r.get("needs_text"):
         head += f" Visit needs: {r['needs_text']}."
-    out.append(_p(head, _TEXT))
+    out.append(paragraph(head, _TEXT))
     if r.get("reason"):
-        out.append(_p(f"Reasons: {r['reason']}", _TEXT))
+        out.append(paragraph(f"Reasons: {r['reason']}", _TEXT))
     small = [f"Source: {r['source']}"] if r.get("source") else []
     small += [f"Note: {n}" for n in r.get("notes_shown", ()) or ()]
     if small:
-        out.append(_p(" ".join(x if x.endswith(".") else x + "." for x in small), _SMALL))
+        out.append(paragraph(" ".join(x if x.endswith(".") else x + "." for x in small), _SMALL))
     return out
 
 
 def _risk_block(doc: TrajectoryDocument) -> list:
     k = doc.risk
-    out = [_p("Sudden cardiac death risk (HCM Risk-SCD)", _SECTION), _p(k.headline, _TEXT)]
+    out = [paragraph("Sudden cardiac death risk (HCM Risk-SCD)", _SECTION), paragraph(k.headline, _TEXT)]
     if k.inputs:
-        out.append(_p("Inputs: " + "; ".join(k.inputs) + ".", _SMALL))
+        out.append(paragraph("Inputs: " + "; ".join(k.inputs) + ".", _SMALL))
     for b in k.bands:
-        out.append(_p(b, _SMALL))
+        out.append(paragraph(b, _SMALL))
     for reason in k.reasons:
-        out.append(_p(f"- {reason}", _SMALL))
+        out.append(paragraph(f"- {reason}", _SMALL))
     tail = []
     if k.validated_ranges:
         tail.append(k.validated_ranges + " The model does not apply outside this range.")
     if k.caution:
         tail.append(k.caution)
     if tail:
-        out.append(_p(" ".join(tail), _SMALL))
+        out.append(paragraph(" ".join(tail), _SMALL))
     return out
 
 
@@ -685,8 +680,8 @@ def _sources_block(doc: TrajectoryDocument) -> list:
     labels = {r.measure: r.label for t in doc.tables for r in t.rows}
     if not (doc.notes or doc.sources or labels):
         return []
-    out: list = [_p("Notes, measures and sources", _SECTION)]
-    out += [_p(n, _TINY) for n in doc.notes]
+    out: list = [paragraph("Notes, measures and sources", _SECTION)]
+    out += [paragraph(n, _TINY) for n in doc.notes]
     per_measure: dict[str, list[tuple[str, str]]] = {m: [] for m in labels}
     for measure, text in doc.sources:
         per_measure.setdefault(measure, []).append(split_source(text))
@@ -699,7 +694,7 @@ def _sources_block(doc: TrajectoryDocument) -> list:
     if entries:
         out.append(Paragraph("Measures (name; source of the limit, criterion or formula): " + " ".join(entries), _TINY))
     if refs:
-        out.append(_p("References: " + " ".join(f"({n}) {c}." for c, n in refs.items()), _TINY))
+        out.append(paragraph("References: " + " ".join(f"({n}) {c}." for c, n in refs.items()), _TINY))
     return out
 
 
@@ -712,52 +707,16 @@ def build_story(doc: TrajectoryDocument) -> list:
     story += _risk_block(doc)
     heading = "Key measures over age" + (" and segmental strain" if doc.strain is not None else "")
     grid = _charts_block(doc.charts, doc.strain)
-    story.append(KeepTogether([_p(heading, _SECTION), grid[0]]))
+    story.append(KeepTogether([paragraph(heading, _SECTION), grid[0]]))
     story += grid[1:]
-    story.append(_p(CHART_LEGEND + " " + _strain_text(doc), _SMALL))
+    story.append(paragraph(CHART_LEGEND + " " + _strain_text(doc), _SMALL))
     if doc.tables:
         story.append(Spacer(1, 3))
-        story.append(_p(TABLE_LEGEND, _SMALL))
+        story.append(paragraph(TABLE_LEGEND, _SMALL))
     for t in doc.tables:
         story += _modality_tables(t, person)
     story += _sources_block(doc)
     return story
-
-
-def _numbered_canvas(footer_lines: list[str], person: str, generated: dt.date):
-    """A canvas class that draws the footer with 'page N of M' once the page count is known."""
-
-    class _Canvas(rl_canvas.Canvas):
-        def __init__(self, *args, **kwargs):
-            super().__init__(*args, **kwargs)
-            self._pages: list[dict] = []
-
-        def showPage(self):  # noqa: N802 - reportlab API
-            self._pages.append(dict(self.__dict__))
-            self._startPage()
-
-        def save(self):
-            total = len(self._pages)
-            for state in self._pages:
-                self.__dict__.update(state)
-                self._footer(total)
-                super().showPage()
-            super().save()
-
-        def _footer(self, total: int) -> None:
-            self.saveState()
-            top = FOOTER_MM * mm - 3 * mm
-            self.setStrokeColor(colors.HexColor("#999999"))
-            self.setLineWidth(0.5)
-            self.line(MARGIN_MM * mm, top, PAGE[0] - MARGIN_MM * mm, top)
-            text = (" ".join(footer_lines) + f"  Trajectory report {person}; generated {generated.isoformat()}; "
-                    f"page {self._pageNumber} of {total}.")  # fmt: skip
-            note = _p(text, _FOOTER)
-            _, h = note.wrap(WIDTH, FOOTER_MM * mm)
-            note.drawOn(self, MARGIN_MM * mm, top - 1.5 * mm - h)
-            self.restoreState()
-
-    return _Canvas
 
 
 def write_trajectory_pdf(doc: TrajectoryDocument, path: str | Path) -> Path:
@@ -777,5 +736,7 @@ def write_trajectory_pdf(doc: TrajectoryDocument, path: str | Path) -> Path:
         subject="Serial measurements, trends, recall and risk of one person (person code only)",
         creator="hcm-family-tracker",
     )
-    pdf.build(build_story(doc), canvasmaker=_numbered_canvas(footer, person, doc.generated))
+    pdf.build(build_story(doc), canvasmaker=numbered_canvas(PAGE, MARGIN_MM, FOOTER_MM, _FOOTER, lambda n, total: " ".join(footer)
+                                               + f"  Trajectory report {person}; generated {doc.generated.isoformat()}; "
+                                               f"page {n} of {total}."))  # fmt: skip
     return path

@@ -20,19 +20,17 @@ public; common practice).  Fonts are the PDF standard Helvetica faces
 from __future__ import annotations
 
 import datetime as dt
-import re
 from dataclasses import dataclass, field
 from pathlib import Path
-from xml.sax.saxutils import escape
 
 from reportlab.lib import colors
 from reportlab.lib.pagesizes import A4, landscape
 from reportlab.lib.styles import ParagraphStyle
 from reportlab.lib.units import mm
-from reportlab.pdfgen import canvas as rl_canvas
-from reportlab.platypus import Paragraph, SimpleDocTemplate, Spacer, Table, TableStyle
+from reportlab.platypus import SimpleDocTemplate, Spacer, Table, TableStyle
 
 from tracker.outputs.ics import needs_words
+from tracker.outputs.pdf_pages import numbered_canvas, paragraph
 
 PAGE = landscape(A4)
 MARGIN_MM = 14
@@ -97,10 +95,6 @@ def line_from_row(row: dict) -> WorklistLine:
     )  # fmt: skip
 
 
-def _p(text: str, style: ParagraphStyle) -> Paragraph:
-    return Paragraph(re.sub(r" {2,}", lambda m: "&nbsp;" * len(m.group(0)), escape(text)), style)
-
-
 def overdue_text(days: int | None) -> str:
     """'123' when overdue, 'due in 64 d' when not yet due, '0' on the day, '' when unknown."""
     if days is None:
@@ -128,12 +122,12 @@ def _table(lines: tuple[WorklistLine, ...], booked: bool, width: float) -> Table
     fixed_mm = [30, 22, 22, 48] + ([30] if booked else [])
     reason_w = width - sum(fixed_mm) * mm
     widths = [w * mm for w in fixed_mm[:4]] + [reason_w] + ([fixed_mm[4] * mm] if booked else [])
-    data = [[_p(h, _HEAD_CELL) for h in heads]]
+    data = [[paragraph(h, _HEAD_CELL) for h in heads]]
     for ln in lines:
-        row = [_p(ln.person, _TEXT), _p(ln.due or "", _TEXT), _p(overdue_text(ln.days_overdue), _TEXT),
-               _p(_needs_text(ln), _TEXT), _p(ln.reason, _TEXT)]  # fmt: skip
+        row = [paragraph(ln.person, _TEXT), paragraph(ln.due or "", _TEXT), paragraph(overdue_text(ln.days_overdue), _TEXT),
+               paragraph(_needs_text(ln), _TEXT), paragraph(ln.reason, _TEXT)]  # fmt: skip
         if booked:
-            row.append(_p(_booked_text(ln), _TEXT))
+            row.append(paragraph(_booked_text(ln), _TEXT))
         data.append(row)
     t = Table(data, colWidths=widths, repeatRows=1)
     t.setStyle(
@@ -159,60 +153,24 @@ def build_story(doc: WorklistDocument) -> list:
     width = PAGE[0] - 2 * MARGIN_MM * mm
     slots = f", {doc.slots_per_week} slots a week" if doc.slots_per_week is not None else ""
     story: list = [
-        _p(f"Recall worklist: {doc.clinic}", _TITLE),
-        _p(f"Window {doc.window_from.isoformat()} to {doc.window_to.isoformat()}{slots}. "
+        paragraph(f"Recall worklist: {doc.clinic}", _TITLE),
+        paragraph(f"Window {doc.window_from.isoformat()} to {doc.window_to.isoformat()}{slots}. "
            f"Rule set: {doc.rule_set}; interval policy: {doc.policy}.", _META),  # fmt: skip
-        _p(f"Plan as of {doc.as_of.isoformat()}; printed {doc.printed.isoformat()}. "
+        paragraph(f"Plan as of {doc.as_of.isoformat()}; printed {doc.printed.isoformat()}. "
            "Person codes only; look the person up in the record.", _META),  # fmt: skip
         Spacer(1, 4),
     ]
     booked = doc.slots_per_week is not None
-    story.append(_p(f"Family screening: due or overdue by {doc.window_to.isoformat()}, most urgent first "
+    story.append(paragraph(f"Family screening: due or overdue by {doc.window_to.isoformat()}, most urgent first "
                     f"({len(doc.screening)})", _SECTION))  # fmt: skip
-    story.append(_table(doc.screening, booked, width) if doc.screening else _p("None.", _TEXT))
+    story.append(_table(doc.screening, booked, width) if doc.screening else paragraph("None.", _TEXT))
     if doc.affected:
-        story.append(_p(f"Affected members: follow-up interval ({len(doc.affected)})", _SECTION))
+        story.append(paragraph(f"Affected members: follow-up interval ({len(doc.affected)})", _SECTION))
         story.append(_table(doc.affected, False, width))
     for n in doc.notes:
         story.append(Spacer(1, 3))
-        story.append(_p(f"Note: {n}", _TEXT))
+        story.append(paragraph(f"Note: {n}", _TEXT))
     return story
-
-
-def _numbered_canvas(footer_lines: list[str], printed: dt.date):
-    """A canvas class that draws the footer with 'page N of M' once the page count is known."""
-
-    class _Canvas(rl_canvas.Canvas):
-        def __init__(self, *args, **kwargs):
-            super().__init__(*args, **kwargs)
-            self._pages: list[dict] = []
-
-        def showPage(self):  # noqa: N802 - reportlab API
-            self._pages.append(dict(self.__dict__))
-            self._startPage()
-
-        def save(self):
-            total = len(self._pages)
-            for state in self._pages:
-                self.__dict__.update(state)
-                self._footer(total)
-                super().showPage()
-            super().save()
-
-        def _footer(self, total: int) -> None:
-            self.saveState()
-            width = PAGE[0] - 2 * MARGIN_MM * mm
-            top = FOOTER_MM * mm - 3 * mm
-            self.setStrokeColor(colors.HexColor("#999999"))
-            self.setLineWidth(0.5)
-            self.line(MARGIN_MM * mm, top, PAGE[0] - MARGIN_MM * mm, top)
-            text = " ".join(footer_lines) + f"  Printed {printed.isoformat()}, page {self._pageNumber} of {total}."
-            note = _p(text, _FOOTER)
-            _, h = note.wrap(width, FOOTER_MM * mm)
-            note.drawOn(self, MARGIN_MM * mm, top - 1.5 * mm - h)
-            self.restoreState()
-
-    return _Canvas
 
 
 def write_worklist_pdf(doc: WorklistDocument, path: str | Path) -> Path:
@@ -231,5 +189,6 @@ def write_worklist_pdf(doc: WorklistDocument, path: str | Path) -> Path:
         subject="Recall worklist (person codes only)",
         creator="hcm-family-tracker",
     )
-    pdf.build(build_story(doc), canvasmaker=_numbered_canvas(footer, doc.printed))
+    pdf.build(build_story(doc), canvasmaker=numbered_canvas(PAGE, MARGIN_MM, FOOTER_MM, _FOOTER, lambda n, total: " ".join(footer)
+                                               + f"  Printed {doc.printed.isoformat()}, page {n} of {total}."))  # fmt: skip
     return path
