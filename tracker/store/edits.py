@@ -63,6 +63,15 @@ def _reason(reason: str) -> str:
     return reason
 
 
+def _check_fields(changes: dict[str, str], fields: dict, what: str) -> None:
+    """At least one change, and only fields that ``what`` (e.g. "a person") has."""
+    if not changes:
+        raise UserError("--set: give at least one FIELD=VALUE")
+    unknown = sorted(set(changes) - set(fields))
+    if unknown:
+        raise UserError(f"--set {unknown[0]}: not a field of {what}; one of: {', '.join(fields)}")
+
+
 def _cell(field: str, column, text: str, today: dt.date):
     """The clean value of one CSV cell, or a one-line error naming the field."""
     parsed = parse(column, pd.Series([text.strip()]), today)
@@ -134,11 +143,7 @@ def edit_person(conn: Connection, code: str, changes: dict[str, str], *, reason:
     """Set fields of one person (CSV field names and cells); returns the audited change."""
     reason = _reason(reason)
     today = today or dt.date.today()
-    if not changes:
-        raise UserError("--set: give at least one FIELD=VALUE")
-    unknown = sorted(set(changes) - set(PERSON_FIELDS))
-    if unknown:
-        raise UserError(f"--set {unknown[0]}: not a field of a person; one of: {', '.join(PERSON_FIELDS)}")
+    _check_fields(changes, PERSON_FIELDS, "a person")
     row = _person_row(conn, code)
     family = row.family
     checks_before = _findings(conn, family)
@@ -218,11 +223,7 @@ def edit_study(conn: Connection, person: str, study_date: str, modality: str, ch
     """Set the date, site, height or weight of one study; returns the audited change."""
     reason = _reason(reason)
     today = today or dt.date.today()
-    if not changes:
-        raise UserError("--set: give at least one FIELD=VALUE")
-    unknown = sorted(set(changes) - set(STUDY_FIELDS))
-    if unknown:
-        raise UserError(f"--set {unknown[0]}: not a field of a study; one of: {', '.join(STUDY_FIELDS)}")
+    _check_fields(changes, STUDY_FIELDS, "a study")
     prow, srow, label = _study_row(conn, person, study_date, modality)
     checks_before = _findings(conn, prow.family)
     old = _study_fields(conn, srow.id)
@@ -304,11 +305,7 @@ def edit_assessment(conn: Connection, person: str, assessment_date: str, changes
     """Set fields of one assessment (status, symptoms, flags, the HCM Risk-SCD answers, notes)."""
     reason = _reason(reason)
     today = today or dt.date.today()
-    if not changes:
-        raise UserError("--set: give at least one FIELD=VALUE")
-    unknown = sorted(set(changes) - set(ASSESSMENT_FIELDS))
-    if unknown:
-        raise UserError(f"--set {unknown[0]}: not a field of an assessment; one of: {', '.join(ASSESSMENT_FIELDS)}")
+    _check_fields(changes, ASSESSMENT_FIELDS, "an assessment")
     prow = _person_row(conn, person)
     try:
         day = dt.date.fromisoformat(assessment_date)
