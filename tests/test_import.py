@@ -141,3 +141,38 @@ def test_a_file_with_many_mistakes_lists_each(loaded_db, run, tmp_path):
     assert lines[0].startswith("error: studies.csv:2: column 'value'")
     assert lines[1].startswith("error: studies.csv:3: column 'unit'")
     assert lines[-1] == "error: 2 problems; nothing was written"
+
+
+def test_values_land_on_their_study_whether_stored_before_or_new(loaded_db, run, tmp_path):
+    # A later file adds a value to a study stored by the first import (T1-06, 2022-05-03 echo)
+    # and two new studies: every value must sit on the study of its own row.
+    head = "person,study_date,modality,site,height_cm,weight_kg,measure,value,unit\n"
+    f = tmp_path / "studies.csv"
+    f.write_text(head + "T1-06,2022-05-03,echo,Invented Vale Hospital,165,52,lvpwd,9.0,mm\n"
+                 "T1-06,2025-05-04,echo,,,,mwt_echo,12.5,mm\n"
+                 "T1-06,2025-05-04,echo,,,,ivsd,12.5,mm\n"
+                 "T1-06,2025-06-01,cmr,,,,mwt_cmr,13.0,mm\n", encoding="utf-8")  # fmt: skip
+    r = run("import", "studies", f, db=loaded_db)
+    assert r.code == 0, r
+    from sqlalchemy import select
+
+    from tracker.store.database import locate, make_engine
+    from tracker.store.models import Measurement, Person, Study
+
+    engine = make_engine(locate(loaded_db))
+    with engine.connect() as conn:
+        got = set(conn.execute(
+            select(Person.code, Study.study_date, Study.modality, Measurement.measure_code, Measurement.value)
+            .join(Study, Study.person_id == Person.id).join(Measurement, Measurement.study_id == Study.id)
+            .where(Person.code == "T1-06")).all())  # fmt: skip
+        n_studies = len(conn.execute(select(Study.id).join(Person).where(Person.code == "T1-06")).all())
+    engine.dispose()
+    import datetime as dt
+
+    assert ("T1-06", dt.date(2022, 5, 3), "echo", "lvpwd", 9.0) in got
+    assert ("T1-06", dt.date(2025, 5, 4), "echo", "mwt_echo", 12.5) in got
+    assert ("T1-06", dt.date(2025, 5, 4), "echo", "ivsd", 12.5) in got
+    assert ("T1-06", dt.date(2022, 5, 3), "echo", "mwt_echo", 9.6) in got  # stored before, untouched
+    assert ("T1-06", dt.date(2025, 6, 1), "cmr", "mwt_cmr", 13.0) in got
+    assert len(got) == 4 + 1 + 3  # T1-06's four stored values and the four new ones
+    assert n_studies == 6  # four stored before, two new

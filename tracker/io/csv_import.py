@@ -432,13 +432,15 @@ def _write_studies(conn, checked, progress, ctx):
     del stored, stored_values, with_value
 
     person_ids = pd.Series(_ids(conn, Person), dtype="int64")
-    if len(new_studies):
-        s = new_studies
-        cols = [person_ids.reindex(s["person"].to_numpy(dtype=object)).tolist(), _py(s["study_date"]),
-                _py(s["modality"]), _py(s["site"]), _py(s["height_cm"]), _py(s["weight_kg"])]  # fmt: skip
-        _bulk_insert(conn, "study", _STUDY_COLUMNS, list(zip(*cols)))
+    s = new_studies
+    written = (_reserve_ids(conn, "study", len(s)), person_ids.reindex(s["person"].to_numpy(dtype=object)).to_numpy(),
+               s["study_date"].to_numpy(dtype=object), s["modality"].to_numpy(dtype=object))  # fmt: skip
+    if len(s):
+        cols = [written[0].tolist(), written[1].tolist(), _py(s["study_date"]), _py(s["modality"]), _py(s["site"]),
+                _py(s["height_cm"]), _py(s["weight_kg"])]  # fmt: skip
+        _bulk_insert(conn, "study", ["id", *_STUDY_COLUMNS], list(zip(*cols)))
     if len(new_values):
-        study_id = _study_ids(conn, new_values, person_ids)
+        study_id = _study_ids(conn, new_values, person_ids, written)
         cols = [
             study_id,
             new_values["measure"].to_numpy(dtype=object),
@@ -455,18 +457,31 @@ def _write_studies(conn, checked, progress, ctx):
     return added, already_values + already_empty
 
 
-def _study_ids(conn: Connection, values: pd.DataFrame, person_ids: pd.Series) -> np.ndarray:
-    """The stored study id of each value row (person, study_date, modality): one SELECT, one index lookup.
+def _reserve_ids(conn: Connection, table: str, n: int) -> np.ndarray:
+    """``n`` new primary keys for ``table``, taken inside the import's write transaction.
 
-    The three key columns become one integer per study (the person id, then codes
-    for the file's dates and modalities), so the lookup is on integers.
+    SQLite: the ids after the largest stored one (the transaction holds the write lock,
+    so no other writer can take them). PostgreSQL: ``n`` values of the id column's sequence.
     """
-    stmt = select(Study.id, Study.person_id, Study.study_date, Study.modality).where(Study.removed_at.is_(None))
-    found = list(zip(*conn.execute(stmt).all())) or [(), (), (), ()]
-    study_id, person_id, study_date, modality = (np.array(c, dtype=object) for c in found)
-    iso = {d: d.isoformat() for d in pd.unique(study_date)}
-    study_date = np.array([iso[d] for d in study_date], dtype=object)
+    if n == 0:
+        return np.empty(0, dtype=np.int64)
+    if conn.dialect.name == "postgresql":
+        got = conn.exec_driver_sql(
+            f"SELECT nextval(pg_get_serial_sequence('{table}', 'id')) FROM generate_series(1, {int(n)})"
+        ).scalars().all()
+        return np.array(got, dtype=np.int64)
+    top = conn.exec_driver_sql(f"SELECT coalesce(max(id), 0) FROM {table}").scalar_one()
+    return np.arange(top + 1, top + 1 + n, dtype=np.int64)
 
+
+def _study_ids(conn: Connection, values: pd.DataFrame, person_ids: pd.Series, written: tuple) -> np.ndarray:
+    """The study id of each value row (person, study_date, modality).
+
+    ``written`` holds the studies this import just wrote (ids, person ids, ISO dates,
+    modalities); rows of a study stored before are looked up with one SELECT. The
+    three key columns become one integer per study (the person id, then codes for
+    the file's dates and modalities), so the lookup is on integers.
+    """
     dates = pd.Index(pd.unique(values["study_date"].to_numpy(dtype=object)))
     modalities = pd.Index(pd.unique(values["modality"].to_numpy(dtype=object)))
 
@@ -474,17 +489,31 @@ def _study_ids(conn: Connection, values: pd.DataFrame, person_ids: pd.Series) ->
         return (np.asarray(person, dtype=np.int64) * len(dates) + dates.get_indexer(date)) * len(modalities) + (
             modalities.get_indexer(mod))
 
-    # Only stored studies on one of the file's dates and modalities can be looked up.
-    mine = (dates.get_indexer(study_date) >= 0) & (modalities.get_indexer(modality) >= 0)
-    stored_keys = pd.Index(key(person_id[mine], study_date[mine], modality[mine]))
-    if not stored_keys.is_unique:
-        raise RuntimeError("two stored studies share person, date and modality")
+    def lookup(study_id, person_id, study_date, modality, wanted):
+        # Only studies on one of the file's dates and modalities can be looked up.
+        mine = (dates.get_indexer(study_date) >= 0) & (modalities.get_indexer(modality) >= 0)
+        keys = pd.Index(key(person_id[mine], study_date[mine], modality[mine]))
+        if not len(keys):
+            return np.full(len(wanted), -1, dtype=np.int64)
+        if not keys.is_unique:
+            raise RuntimeError("two studies share person, date and modality")
+        pos = keys.get_indexer(wanted)
+        return np.where(pos >= 0, np.asarray(study_id, dtype=np.int64)[mine][np.maximum(pos, 0)], -1)
+
     wanted = key(person_ids.reindex(values["person"].to_numpy(dtype=object)).to_numpy(),
                  values["study_date"].to_numpy(dtype=object), values["modality"].to_numpy(dtype=object))  # fmt: skip
-    pos = stored_keys.get_indexer(wanted)
-    if (pos < 0).any():
-        raise RuntimeError("a study just written was not found")
-    return study_id[mine].astype(np.int64)[pos]
+    out = lookup(*written, wanted)
+    before = out < 0
+    if before.any():  # values added to studies stored by an earlier import
+        stmt = select(Study.id, Study.person_id, Study.study_date, Study.modality).where(Study.removed_at.is_(None))
+        found = list(zip(*conn.execute(stmt).all())) or [(), (), (), ()]
+        study_id, person_id, study_date, modality = (np.array(c, dtype=object) for c in found)
+        iso = {d: d.isoformat() for d in pd.unique(study_date)}
+        study_date = np.array([iso[d] for d in study_date], dtype=object)
+        out[before] = lookup(study_id, person_id, study_date, modality, wanted[before])
+        if (out < 0).any():
+            raise RuntimeError("a study just written was not found")
+    return out
 
 
 _WRITERS = {
