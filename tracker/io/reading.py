@@ -69,7 +69,7 @@ def read_table(path: Path, layout: Layout) -> pd.DataFrame:
         ) from None
     if "\x00" in text:
         raise InputRejected([Problem(name, None, None, "contains NUL bytes: not a text CSV file")])
-    if not text.strip():
+    if not text or text.isspace():  # (not text.strip(): that copies the whole text)
         raise InputRejected([Problem(name, None, None, "file is empty (no header row)")])
 
     # Blank lines at the very end of a file are not records.
