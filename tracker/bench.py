@@ -98,9 +98,13 @@ class Run:
 
 @dataclass(frozen=True)
 class Step:
+    """One measurement. ``uses``: the shared frames (``Run.frames``) it reads; a frame that no
+    step still to run uses is dropped, so the memory figures are the tool's, not leftovers."""
+
     name: str
     description: str
     run: Callable[[Run], dict]
+    uses: tuple[str, ...] = ()
 
 
 def _timed(fn, *a, **kw):
@@ -652,12 +656,13 @@ STEPS: list[Step] = [
     Step("import", "import the whole cohort (all six files, one transaction)", step_import),
     Step("raw_insert", "plain DB-API executemany of the same rows into the same schema", step_raw_insert),
     Step("read", "read the measurement table alone, and the studies through the repository", step_read),
-    Step("trends", "whole-cohort trend engine on every (person, measure) series", step_trends),
-    Step("statsmodels", "statsmodels OLS series by series on a sample", step_statsmodels),
+    Step("trends", "whole-cohort trend engine on every (person, measure) series", step_trends,
+         uses=("studies", "people")),
+    Step("statsmodels", "statsmodels OLS series by series on a sample", step_statsmodels, uses=("long", "ols")),
     Step("worklist", "the nurse's worklist for a one-year window, on 1/10 of the cohort and on all of it",
-         step_worklist),
+         step_worklist, uses=("recall", "recall_load_s")),
     Step("reclassification", "reclassification impact for the variant of the largest family, 1/10 vs all",
-         step_reclassification),
+         step_reclassification, uses=("recall", "recall_load_s")),
     Step("memory", "peak resident memory of the process", step_memory),
 ]
 
@@ -739,6 +744,9 @@ def main(argv: list[str] | None = None) -> int:
             t0 = time.perf_counter()
             figures = step.run(r)
             figures["step_s"] = time.perf_counter() - t0
+            still = {u for later in STEPS[STEPS.index(step) + 1 :] if later.name in wanted for u in later.uses}
+            for name in [k for k in r.frames if k not in still]:
+                del r.frames[name]
             gc.collect()  # what a step leaves behind unreferenced is freed before the next one
             figures["peak_rss_mb_so_far"] = _rss_mb()
             r.figures[step.name] = figures
