@@ -33,3 +33,24 @@ def test_parsing_distinct_cells_equals_parsing_each_cell(col, values, categorica
         one = parse(col, pd.Series([v], index=[i], dtype=object), TODAY)
         assert _same(whole.values[i], one.values[i]), (col.name, v)
         assert whole.errors[i] == one.errors[i], (col.name, v)
+
+
+# Cells as the parsers give them: text, None, NaN, "", numbers (a float equal to an int counts as equal).
+CELLS = ["T1-01", "T1-02", None, float("nan"), "", 165.0, 165, 52.5, "echo"]
+
+
+@settings(max_examples=300)
+@given(rows=st.lists(st.tuples(*[st.sampled_from(CELLS)] * 3), min_size=1, max_size=40))
+def test_row_keys_group_rows_as_pandas_does(rows):
+    from tracker.io.validation import row_keys
+
+    frame = pd.DataFrame(rows, columns=["a", "b", "c"], dtype=object)
+    cols = ["a", "b", "c"]
+    # Empty and "" the same (as the duplicate check reads keys): pandas on the cells filled with "".
+    filled = frame.astype(object).where(frame.notna(), "")
+    keys = row_keys(frame, cols)
+    assert list(pd.Series(keys).duplicated()) == list(filled.duplicated())
+    assert list(pd.factorize(keys)[0]) == list(filled.groupby(cols, sort=False).ngroup())
+    # Empty and "" apart (as the study grouping reads keys): pandas' own grouping, empty cells as one group.
+    apart = row_keys(frame, cols, blank_is_empty=False)
+    assert list(pd.factorize(apart)[0]) == list(frame.groupby(cols, dropna=False, sort=False).ngroup())

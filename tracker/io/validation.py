@@ -78,12 +78,46 @@ def parse_cells(layout: Layout, file: str, cells: pd.DataFrame, today: dt.date) 
     return checked
 
 
+def _cell_codes(values: pd.Series, blank_is_empty: bool = True) -> tuple[np.ndarray, int]:
+    """(a code per cell, how many codes): equal cells get equal codes, 0 for an empty cell.
+
+    ``blank_is_empty``: a "" cell counts as empty too (else it has a code of its own).
+    """
+    codes, uniques = pd.factorize(values.to_numpy(dtype=object))  # empty (None/NaN): -1
+    codes = codes.astype(np.int64) + 1
+    if blank_is_empty and len(uniques):
+        blank = np.flatnonzero(np.asarray([u == "" for u in uniques], dtype=bool))
+        if len(blank):
+            codes[codes == blank[0] + 1] = 0
+    return codes, len(uniques) + 1
+
+
+def row_keys(frame: pd.DataFrame, columns: list[str], blank_is_empty: bool = True) -> np.ndarray | None:
+    """One integer per row, equal for rows whose ``columns`` hold equal cells (see :func:`_cell_codes`).
+
+    None if the combinations do not fit in 63 bits (then compare the cells themselves).
+    """
+    key = np.zeros(len(frame), dtype=np.int64)
+    span = 1
+    for col in columns:
+        codes, n = _cell_codes(frame[col], blank_is_empty)
+        if span > (1 << 62) // n:
+            return None
+        key = key * n + codes
+        span *= n
+    return key
+
+
 def check_duplicates(c: Checked) -> None:
-    """The same key twice in one file."""
+    """The same key twice in one file (empty cells and "" count as the same)."""
     key = list(c.layout.key)
-    frame = c.rows[key].astype(object).where(c.rows[key].notna(), "")
-    dup = frame.duplicated(keep="first")
+    keys = row_keys(c.rows, key)
+    if keys is not None:
+        dup = pd.Series(keys, index=c.rows.index).duplicated(keep="first")
+    else:
+        dup = c.rows[key].astype(object).where(c.rows[key].notna(), "").duplicated(keep="first")
     if dup.any():
+        frame = c.rows[key].astype(object).where(c.rows[key].notna(), "")
         first = {}
         for r, k in zip(frame.index, map(tuple, frame.to_numpy())):
             first.setdefault(k, r)
@@ -340,12 +374,14 @@ def check_studies(c: Checked, ctx: Context) -> None:
 
     # The study-level cells must agree on every row of one study.
     skey = ["person", "study_date", "modality"]
-    study = rows.groupby(skey, dropna=False, sort=False).ngroup()
+    keys = row_keys(rows, skey, blank_is_empty=False)
+    if keys is None:
+        keys = rows.groupby(skey, dropna=False, sort=False).ngroup().to_numpy()
+    study = pd.factorize(keys)[0]  # 0, 1, ... in order of first appearance
+    first_row = pd.Series(study).drop_duplicates().index.to_numpy()[study]  # each row's study's first row
     for col in ("site", "height_cm", "weight_kg"):
-        filled = rows[col].astype(object).where(rows[col].notna(), "")
-        codes = pd.Series(pd.factorize(filled.to_numpy(dtype=object))[0], index=rows.index)
-        first = codes.groupby(study).transform("first")
-        c.add(codes != first, col, "differs between rows of the same study")
+        codes, _ = _cell_codes(rows[col])
+        c.add(pd.Series(codes != codes[first_row], index=rows.index), col, "differs between rows of the same study")
 
     measure = rows["measure"]
     has_measure = measure.notna()
