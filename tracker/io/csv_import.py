@@ -20,6 +20,7 @@ import numpy as np
 import pandas as pd
 from sqlalchemy import Connection, Date, insert, select
 
+from tracker.gcpause import gc_paused
 from tracker.io import validation
 from tracker.io.columns import partial_to_storage
 from tracker.io.layouts import IMPORT_ORDER, LAYOUTS, Layout
@@ -101,10 +102,11 @@ def import_file(
     several files; it is brought up to date with the rows this file adds.
     """
     today = today or (ctx.today if ctx is not None else dt.date.today())
-    ctx = ctx if ctx is not None else context(conn, today)
-    checked = check_file(conn, kind, path, today, ctx)
-    writer = _WRITERS[kind]
-    added, already = writer(conn, checked, progress or (lambda n: None), ctx)
+    with gc_paused():  # millions of short-lived cells and tuples, no cycles (see tracker.gcpause)
+        ctx = ctx if ctx is not None else context(conn, today)
+        checked = check_file(conn, kind, path, today, ctx)
+        writer = _WRITERS[kind]
+        added, already = writer(conn, checked, progress or (lambda n: None), ctx)
     summary = ImportSummary(kind, path.name, len(checked.rows), added, already)
     _record_run(conn, summary, path, user)
     return summary

@@ -17,6 +17,7 @@ import pandas as pd
 from sqlalchemy import Connection, String, select, type_coerce
 from sqlalchemy.orm import aliased
 
+from tracker.gcpause import gc_paused
 from tracker.io.columns import partial_from_storage
 from tracker.store.models import (
     Assessment,
@@ -231,16 +232,17 @@ def _typed_frame(conn: Connection, stmt, text: list[str], numbers: list[str]) ->
     floats: dict[str, list[np.ndarray]] = {c: [] for c in numbers}
     # A client-side cursor, fetched in batches: a server-side one (yield_per) makes PostgreSQL pick a
     # fast-start plan for the ordered join, which is far slower for the whole result.
-    result = conn.execute(stmt)
-    for batch in result.partitions(_BATCH):
-        columns = list(zip(*batch))
-        for c in text:
-            local, distinct = pd.factorize(np.array(columns[position[c]], dtype=object))
-            book = seen[c]
-            to_global = np.array([book.setdefault(v, len(book)) for v in distinct] + [-1], dtype=np.int64)
-            codes[c].append(to_global[local])  # local -1 (NULL) takes the last entry: -1
-        for c in numbers:
-            floats[c].append(np.array(columns[position[c]], dtype=float))
+    with gc_paused():  # millions of row tuples, no cycles (see tracker.gcpause)
+        result = conn.execute(stmt)
+        for batch in result.partitions(_BATCH):
+            columns = list(zip(*batch))
+            for c in text:
+                local, distinct = pd.factorize(np.array(columns[position[c]], dtype=object))
+                book = seen[c]
+                to_global = np.array([book.setdefault(v, len(book)) for v in distinct] + [-1], dtype=np.int64)
+                codes[c].append(to_global[local])  # local -1 (NULL) takes the last entry: -1
+            for c in numbers:
+                floats[c].append(np.array(columns[position[c]], dtype=float))
     out = {}
     for c in text:
         book = seen[c]
