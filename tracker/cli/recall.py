@@ -160,9 +160,7 @@ def _with_trends(
             build(frames.people, chunk), guideline=rule_set_id, relative_of_affected=relatives,
             genotype_positive=positive, clinic_repeatability=settings.repeatability or None,
         ))  # fmt: skip
-    t = pd.concat(parts, ignore_index=True)
-    trends_of = fs.by_family(t, dict(zip(frames.people["person"], frames.people["family"])))
-    return {f: fs.apply_trends(s, trends_of.get(f)) for f, s in states.items()}, {
+    return fs.apply_trends_to_states(states, pd.concat(parts, ignore_index=True)), {
         "applied": True,
         "note": f"trend modifiers from the measurement trends ({rule_set_id} thresholds): progression beyond "
         "measurement variability and projected threshold crossing shorten the interval",

@@ -100,7 +100,7 @@ from fractions import Fraction
 import numpy as np
 import pandas as pd
 
-from tracker.domain.pedigree import Pedigree, _blank  # one definition of an empty cell
+from tracker.domain.pedigree import Pedigree, _blank, frame_records  # one definition of an empty cell and of a row
 
 ACMG_CLASSES = (
     "pathogenic",
@@ -276,7 +276,7 @@ def _read_results(ped: Pedigree, results: pd.DataFrame | None, variant: str | No
     for col in ("person", "result"):
         if col not in results.columns:
             raise ValueError(f"the results frame needs a {col!r} column")
-    for row in results.to_dict("records"):
+    for row in frame_records(results):
         person = None if _blank(row.get("person")) else str(row["person"]).strip()
         if person is None or person not in ped:
             continue

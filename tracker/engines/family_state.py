@@ -75,11 +75,12 @@ import re
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field, replace
 
+import numpy as np
 import pandas as pd
 
 from tracker.domain.dates import PartialDate, age_at, parse_partial_date
 from tracker.domain.genetics import ACMG_CLASSES, ACTIONABLE_CLASSES, FamilyGenotypes, genotype_statuses
-from tracker.domain.pedigree import Pedigree
+from tracker.domain.pedigree import Pedigree, column_values, frame_records
 from tracker.engines.schedule import PersonState, Policy, Proposal, propose_recall
 from tracker.rules.model import RuleSet
 
@@ -230,6 +231,32 @@ def _partial(v: object) -> PartialDate | None:
     return parse_partial_date(str(v))
 
 
+def _dates(values: Iterable[object]) -> list[dt.date | None]:
+    """:func:`_date` of each value; each distinct value is parsed once (a column repeats its dates)."""
+    seen: dict[object, dt.date | None] = {}
+    out = []
+    for v in values:
+        try:
+            d = seen[v]
+        except KeyError:
+            d = seen[v] = _date(v)
+        except TypeError:  # unhashable cell
+            d = _date(v)
+        out.append(d)
+    return out
+
+
+def _column(frame: pd.DataFrame, name: str) -> list:
+    """``frame[name]`` as ``to_dict("records")`` values, or all None when the column is absent
+    (what ``row.get(name)`` gives on those records)."""
+    return column_values(frame[name]) if name in frame.columns else [None] * len(frame)
+
+
+def _is(v: object, text: str) -> bool:
+    """``v == text`` for a cell that may be missing (NaN, None, pd.NA) or not text."""
+    return isinstance(v, str) and v == text
+
+
 def _max_date(*dates: dt.date | None) -> dt.date | None:
     present = [d for d in dates if d is not None]
     return max(present) if present else None
@@ -246,27 +273,44 @@ def symptom_phrases(text: object) -> frozenset[str]:
 
 
 def family_variants(variants: pd.DataFrame) -> dict[str, tuple[VariantInfo, ...]]:
-    """Family code -> its variants with class history (oldest first), from ``load_variants``."""
-    out: dict[str, list[VariantInfo]] = {}
+    """Family code -> its variants with class history (oldest first), from ``load_variants``.
+
+    Rows are sorted by family, transcript, c. change and date (stable: rows of one date keep their
+    order); rows missing the family, transcript or c. change are left out.
+    """
     if variants is None or variants.empty:
         return {}
-    frame = variants.assign(on_date=[_date(v) for v in variants["classified_on"]]).sort_values(
+    frame = variants.assign(on_date=_dates(variants["classified_on"])).sort_values(
         ["family", "transcript", "hgvs_c", "on_date"], kind="stable"
     )
-    for (fam, tx, c), rows in frame.groupby(["family", "transcript", "hgvs_c"], sort=True):
-        first = rows.iloc[0]
-        history = tuple(
-            Classification(r.on_date, r.acmg_class, None if _blank(r.reason) else str(r.reason))
-            for r in rows.itertuples()
-        )
-        out.setdefault(fam, []).append(
-            VariantInfo(
-                family=fam, key=f"{tx}:{c}", gene=first["gene"], transcript=tx, hgvs_c=c,
-                hgvs_p=None if _blank(first["hgvs_p"]) else first["hgvs_p"], zygosity=first["zygosity"],
-                history=history,
-            )
-        )  # fmt: skip
+    cols = {c: frame[c].tolist() for c in
+            ("family", "transcript", "hgvs_c", "gene", "hgvs_p", "zygosity", "acmg_class", "on_date", "reason")}  # fmt: skip
+    keys = list(zip(cols["family"], cols["transcript"], cols["hgvs_c"]))
+    out: dict[str, list[VariantInfo]] = {}
+    start = 0
+    while start < len(keys):
+        end = start + 1
+        while end < len(keys) and keys[end] == keys[start]:
+            end += 1
+        fam, tx, c = keys[start]
+        if not (_blank(fam) or _blank(tx) or _blank(c)):
+            out.setdefault(fam, []).append(_variant_info(fam, tx, c, cols, start, end))
+        start = end
     return {k: tuple(v) for k, v in out.items()}
+
+
+def _variant_info(fam: str, tx: str, c: str, cols: Mapping[str, list], start: int, end: int) -> VariantInfo:
+    """The variant of the sorted rows ``start:end`` of ``cols`` (one family, transcript and c. change)."""
+    history = tuple(
+        Classification(cols["on_date"][i], cols["acmg_class"][i],
+                       None if _blank(cols["reason"][i]) else str(cols["reason"][i]))
+        for i in range(start, end)
+    )  # fmt: skip
+    hgvs_p = cols["hgvs_p"][start]
+    return VariantInfo(
+        family=fam, key=f"{tx}:{c}", gene=cols["gene"][start], transcript=tx, hgvs_c=c,
+        hgvs_p=None if _blank(hgvs_p) else hgvs_p, zygosity=cols["zygosity"][start], history=history,
+    )  # fmt: skip
 
 
 def primary_variant(variants: Iterable[VariantInfo]) -> VariantInfo | None:
@@ -286,60 +330,89 @@ def person_facts(
     studies: pd.DataFrame,
     results: pd.DataFrame,
 ) -> dict[str, PersonFacts]:
-    """Latest affected status, flags, new symptoms, last visit and last contact for each person."""
+    """Latest affected status, flags, new symptoms, last visit and last contact for each person.
+
+    Each person's facts come from their own rows only, so one call for the whole cohort gives
+    every family's facts.
+    """
     codes = list(people)
     wanted = set(codes)
-    by_person: dict[str, list[dict]] = {}
-    if assessments is not None and len(assessments):
-        a = assessments[assessments["person"].isin(wanted)]
-        for r in a.to_dict("records"):
-            r["_on"] = _date(r["assessment_date"])
-            by_person.setdefault(r["person"], []).append(r)
-    visits: dict[str, dt.date] = {}
-    contacts: dict[str, dt.date] = {}
-    studied: set[str] = set()
-    if studies is not None and len(studies):
-        s = studies[studies["person"].isin(wanted)]
-        for p, d, m in zip(s["person"], s["study_date"], s["modality"]):
-            studied.add(p)
-            d = _date(d)
-            contacts[p] = _max_date(contacts.get(p), d)
-            if m in VISIT_MODALITIES:
-                visits[p] = _max_date(visits.get(p), d)
+    by_person = _assessments_by_person(assessments, wanted)
+    studied, visits, contacts = _study_dates(studies, wanted)
     tested: set[str] = set()
     if results is not None and len(results):
         g = results[results["person"].isin(wanted)]
-        for p, d in zip(g["person"], g["test_date"]):
+        for p, d in zip(g["person"].tolist(), _dates(g["test_date"].tolist())):
             tested.add(p)
-            contacts[p] = _max_date(contacts.get(p), _date(d))
-    out: dict[str, PersonFacts] = {}
-    for p in codes:
-        rows = sorted(by_person.get(p, []), key=lambda r: r["_on"])
-        latest = rows[-1] if rows else None
-        prev = rows[-2] if len(rows) > 1 else None
-        first_aff = next((r["_on"] for r in rows if r["affected_status"] == "affected"), None)
-        if latest is not None:
-            new = symptom_phrases(latest.get("symptoms")) - (symptom_phrases(prev.get("symptoms")) if prev else frozenset())
-            athlete = _flag(latest.get("competitive_athlete"))
-            started = athlete and prev is not None and not _flag(prev.get("competitive_athlete"))
-            contact = _max_date(contacts.get(p), latest["_on"])
-        else:
-            new, athlete, started, contact = frozenset(), False, False, contacts.get(p)
-        out[p] = PersonFacts(
-            person=p,
-            affected_status=latest["affected_status"] if latest else None,
-            assessed_on=latest["_on"] if latest else None,
-            first_affected_on=first_aff,
-            athlete=athlete,
-            pregnant=_flag(latest.get("pregnant")) if latest else False,
-            new_symptoms=tuple(sorted(new)),
-            started_sport=started,
-            last_visit=visits.get(p),
-            last_contact=contact,
-            tested=p in tested,
-            studied=p in studied,
-        )
-    return out
+            contacts[p] = _max_date(contacts.get(p), d)
+    return {
+        p: _person_fact(p, by_person.get(p, []), visits.get(p), contacts.get(p), p in tested, p in studied)
+        for p in codes
+    }
+
+
+_ASSESSMENT_FIELDS = ("person", "affected_status", "symptoms", "competitive_athlete", "pregnant")
+
+
+def _assessments_by_person(assessments: pd.DataFrame | None, wanted: set[str]) -> dict[str, list[dict]]:
+    """Person -> their assessment rows (the fields used here, as records, with the date in ``_on``)."""
+    by_person: dict[str, list[dict]] = {}
+    if assessments is None or not len(assessments):
+        return by_person
+    a = assessments[assessments["person"].isin(wanted)]
+    cols = [_column(a, c) for c in _ASSESSMENT_FIELDS] + [_dates(_column(a, "assessment_date"))]
+    for values in zip(*cols):
+        r = dict(zip(_ASSESSMENT_FIELDS + ("_on",), values))
+        by_person.setdefault(r["person"], []).append(r)
+    return by_person
+
+
+def _study_dates(
+    studies: pd.DataFrame | None, wanted: set[str]
+) -> tuple[set[str], dict[str, dt.date], dict[str, dt.date]]:
+    """(people with a study, person -> last visit, person -> last study of any kind)."""
+    visits: dict[str, dt.date] = {}
+    contacts: dict[str, dt.date] = {}
+    studied: set[str] = set()
+    if studies is None or not len(studies):
+        return studied, visits, contacts
+    s = studies[studies["person"].isin(wanted)]
+    # one row per study (a study has a row per measure): the same sets and latest dates
+    s = s[["person", "study_date", "modality"]].drop_duplicates()
+    for p, d, m in zip(s["person"].tolist(), _dates(s["study_date"].tolist()), s["modality"].tolist()):
+        studied.add(p)
+        contacts[p] = _max_date(contacts.get(p), d)
+        if m in VISIT_MODALITIES:
+            visits[p] = _max_date(visits.get(p), d)
+    return studied, visits, contacts
+
+
+def _person_fact(
+    p: str, rows: list[dict], last_visit: dt.date | None, contact: dt.date | None, tested: bool, studied: bool
+) -> PersonFacts:
+    """One person's facts from their assessment rows and their latest visit and contact."""
+    rows = sorted(rows, key=lambda r: r["_on"])
+    latest = rows[-1] if rows else None
+    prev = rows[-2] if len(rows) > 1 else None
+    first_aff = next((r["_on"] for r in rows if r["affected_status"] == "affected"), None)
+    if latest is None:
+        return PersonFacts(person=p, last_visit=last_visit, last_contact=contact, tested=tested, studied=studied)
+    new = symptom_phrases(latest["symptoms"]) - (symptom_phrases(prev["symptoms"]) if prev else frozenset())
+    athlete = _flag(latest["competitive_athlete"])
+    return PersonFacts(
+        person=p,
+        affected_status=latest["affected_status"],
+        assessed_on=latest["_on"],
+        first_affected_on=first_aff,
+        athlete=athlete,
+        pregnant=_flag(latest["pregnant"]),
+        new_symptoms=tuple(sorted(new)),
+        started_sport=athlete and prev is not None and not _flag(prev["competitive_athlete"]),
+        last_visit=last_visit,
+        last_contact=_max_date(contact, latest["_on"]),
+        tested=tested,
+        studied=studied,
+    )
 
 
 # --------------------------------------------------------------------------- family features
@@ -352,6 +425,16 @@ def family_features(
     results: pd.DataFrame,
 ) -> tuple[frozenset[str], dict[str, str]]:
     """The derived family features and, for each, why (see the module docstring)."""
+    return _family_features(frame_records(people), facts, variant, results)
+
+
+def _family_features(
+    members: list[dict],
+    facts: Mapping[str, PersonFacts],
+    variant: VariantInfo | None,
+    results: pd.DataFrame,
+) -> tuple[frozenset[str], dict[str, str]]:
+    """:func:`family_features` from the members' rows (as records)."""
     reasons: dict[str, str] = {}
     if variant is not None and variant.current_class in ACTIONABLE_CLASSES:
         reasons["plp_variant"] = (
@@ -363,7 +446,7 @@ def family_features(
         reasons["familial_disease"] = f"{len(affected)} affected members: {', '.join(affected)}"
     elif len(affected) == 1:
         reasons["isolated_case"] = f"one affected member: {affected[0]}"
-    births = {r["person"]: _partial(r["birth_date"]) for r in people.to_dict("records")}
+    births = {r["person"]: _partial(r["birth_date"]) for r in members}
     early = []
     for p in affected:
         b, on = births.get(p), facts[p].first_affected_on
@@ -375,16 +458,20 @@ def family_features(
         reasons["early_onset"] = f"affected before {EARLY_ONSET_AGE_YEARS} y: " + ", ".join(early)
     sudden = [
         r["person"]
-        for r in people.to_dict("records")
+        for r in members
         if _text(r.get("vital_status")) == "deceased" and not _blank(r.get("notes")) and "sudden" in str(r["notes"]).lower()
     ]
     if sudden:
         reasons["sudden_death"] = "deceased member with a sudden death recorded in the notes: " + ", ".join(sudden)
     if variant is None and results is not None and len(results):
-        nvf = results[(results["test_type"] == "diagnostic_panel") & (results["result"] == "no_variant_found")]
-        if len(nvf):
+        nvf = {
+            p for p, test, result in zip(results["person"].tolist(), results["test_type"].tolist(),
+                                         results["result"].tolist())
+            if _is(test, "diagnostic_panel") and _is(result, "no_variant_found")
+        }  # fmt: skip
+        if nvf:
             reasons["genotype_negative_family"] = (
-                "no variant recorded; diagnostic panel found no variant in " + ", ".join(sorted(set(nvf["person"])))
+                "no variant recorded; diagnostic panel found no variant in " + ", ".join(sorted(nvf))
             )
     return frozenset(reasons), reasons
 
@@ -414,19 +501,26 @@ def genotype_for_schedule(
     return "uncertain" if variant_class == "uncertain_significance" else "at_risk_untested"
 
 
-def _clean_links(people: pd.DataFrame) -> tuple[pd.DataFrame, list[str]]:
-    """Drop parent/twin links to people outside the frame (another family), with a note."""
-    codes = set(people["person"])
+def _clean_links(members: list[dict]) -> tuple[list[dict], list[str]]:
+    """Drop parent/twin links to people outside ``members`` (another family), with a note.
+
+    ``members``: the family's rows (as records); a row is copied only when a link is dropped.
+    """
+    codes = {r["person"] for r in members}
     notes = []
-    frame = people.copy()
+    dropped: dict[int, list[str]] = {}
     for col in ("mother", "father", "twin_of"):
-        if col not in frame.columns:
-            continue
-        outside = frame[col].notna() & ~frame[col].isin(codes)
-        for p, q in zip(frame.loc[outside, "person"], frame.loc[outside, col]):
-            notes.append(f"{p}: {col} {q} is recorded in another family: link not used here")
-        frame.loc[outside, col] = None
-    return frame, notes
+        for i, r in enumerate(members):
+            q = r.get(col)
+            if q is not None and not pd.isna(q) and q not in codes:
+                notes.append(f"{r['person']}: {col} {q} is recorded in another family: link not used here")
+                dropped.setdefault(i, []).append(col)
+    if not dropped:
+        return members, notes
+    rows = list(members)
+    for i, cols in dropped.items():
+        rows[i] = {**rows[i], **dict.fromkeys(cols)}
+    return rows, notes
 
 
 def build_family_state(
@@ -459,13 +553,36 @@ def build_family_state(
         results = records_up_to(results, "test_date", as_of)
         assessments = records_up_to(assessments, "assessment_date", as_of)
         studies = records_up_to(studies, "study_date", as_of)
-    members, notes = _clean_links(members.reset_index(drop=True))
-    ped = Pedigree(members)
-    codes = list(members["person"])
-    fam_results = results[results["person"].isin(codes)] if results is not None and len(results) else pd.DataFrame(
-        columns=["person", "test_date", "test_type", "variant", "result"]
+    rows, notes = _clean_links(frame_records(members))
+    ped = Pedigree.from_rows(rows)
+    codes = [r["person"] for r in rows]
+    fam_results = (
+        results[results["person"].isin(codes)] if results is not None and len(results) else _no_results()
     )
     vs = family_variants(variants[variants["family"] == family]).get(family, ()) if len(variants) else ()
+    facts = person_facts(codes, assessments, studies, fam_results)
+    state = _family_state(family, rows, ped, notes, vs, fam_results, facts, frozenset(reclassification_pending))
+    return apply_trends(state, trends)
+
+
+def _no_results() -> pd.DataFrame:
+    """The results frame of a family with no genetic result recorded."""
+    return pd.DataFrame(columns=["person", "test_date", "test_type", "variant", "result"])
+
+
+def _family_state(
+    family: str,
+    members: list[dict],
+    ped: Pedigree,
+    notes: list[str],
+    vs: tuple[VariantInfo, ...],
+    fam_results: pd.DataFrame,
+    facts: Mapping[str, PersonFacts],
+    pending: frozenset[str],
+) -> FamilyState:
+    """The state of one family from its members' rows (as records, links cleaned), pedigree,
+    variants, genetic results and people's facts (no trend modifiers)."""
+    notes = list(notes)
     variant = primary_variant(vs)
     if len(vs) > 1:
         notes.append(
@@ -474,26 +591,24 @@ def build_family_state(
         )
     vclass = variant.current_class if variant else None
     genotypes = genotype_statuses(ped, fam_results, vclass, variant.key if variant else None)
-    facts = person_facts(codes, assessments, studies, fam_results)
-    features, feature_reasons = family_features(members, facts, variant, fam_results)
+    features, feature_reasons = _family_features(members, facts, variant, fam_results)
 
     # eligible since: when the family became known to the clinic
     first_dates = [f.first_affected_on for f in facts.values()]
     first_dates += [v.history[0].classified_on for v in vs]
-    first_dates += [_date(d) for d in fam_results["test_date"]] if len(fam_results) else []
+    first_dates += _dates(fam_results["test_date"].tolist()) if len(fam_results) else []
     present = [d for d in first_dates if d is not None]
     eligible_since = min(present) if present else None
 
     anchors = [p for p, f in facts.items() if f.affected_status == "affected"]
     if not anchors:
-        anchors = [p for p, flag in zip(members["person"], members["proband"]) if _flag(flag)]
+        anchors = [r["person"] for r in members if _flag(r["proband"])]
     blood = _blood_at_risk(ped, anchors)
-    pending = set(reclassification_pending)
     changed_on = variant.class_changed_on if variant else None
 
     states: dict[str, PersonState] = {}
     not_scheduled: dict[str, str] = {}
-    for r in members.to_dict("records"):
+    for r in members:
         p = r["person"]
         if _flag(r.get("placeholder")):
             not_scheduled[p] = "placeholder (drawn only to connect the pedigree): never scheduled"
@@ -530,7 +645,7 @@ def build_family_state(
             variant_classified_on=variant.classified_on if variant else None,
         )
     seen = frozenset(p for p, f in facts.items() if f.tested or f.studied)
-    state = FamilyState(
+    return FamilyState(
         family=family,
         pedigree=ped,
         variant=variant,
@@ -546,7 +661,6 @@ def build_family_state(
         results=fam_results,
         notes=tuple(notes) + tuple(genotypes.notes),
     )
-    return apply_trends(state, trends)
 
 
 def build_family_states(
@@ -560,37 +674,42 @@ def build_family_states(
     reclassification_pending: Iterable[str] = (),
     as_of: dt.date | None = None,
 ) -> dict[str, FamilyState]:
-    """:func:`build_family_state` for every family in ``people`` (family code order).
+    """:func:`build_family_state` for every family in ``people`` (family code order), with the same results.
 
-    Each frame is split by family once, so the work grows with the cohort, not with its square.
+    What does not depend on the family is computed once for the cohort: the dates, each
+    family's variants, every person's facts and the trend rows; the people and genetic
+    results are split by family once.  The work grows with the cohort, not with its square.
     """
-    pending = tuple(reclassification_pending)
+    pending = frozenset(reclassification_pending)
     if as_of is not None:
         variants = records_up_to(variants, "classified_on", as_of)
         results = records_up_to(results, "test_date", as_of)
         assessments = records_up_to(assessments, "assessment_date", as_of)
         studies = records_up_to(studies, "study_date", as_of)
     family_of = dict(zip(people["person"], people["family"]))
-    members = by_family(people, family_of)
-    parts = {name: by_family(frame, family_of) for name, frame in
-             (("variants", variants), ("results", results), ("assessments", assessments), ("studies", studies),
-              ("trends", trends))}  # fmt: skip
-    frames = {"variants": variants, "results": results, "assessments": assessments, "studies": studies,
-              "trends": trends}  # fmt: skip
+    members_of = _rows_by_family(people)
+    results_of = by_family(results, family_of)
+    variants_of = family_variants(variants) if variants is not None else {}
+    facts_of = person_facts(people["person"].tolist(), assessments, studies, results)
+    trend_rows = _trend_rows(trends)
+    out = {}
+    for fam in sorted(members_of):
+        members, notes = _clean_links(members_of[fam])
+        ped = Pedigree.from_rows(members)
+        facts = {r["person"]: facts_of[r["person"]] for r in members}
+        fam_results = results_of[fam] if fam in results_of else _no_results()
+        state = _family_state(fam, members, ped, notes, variants_of.get(fam, ()), fam_results, facts, pending)
+        out[fam] = _trends_of_members(state, trend_rows)
+    return out
 
-    def part(name: str, fam: str):
-        frame = frames[name]
-        if frame is None:
-            return None
-        return parts[name].get(fam, frame.iloc[:0])
 
-    return {
-        fam: build_family_state(
-            fam, members[fam], part("variants", fam), part("results", fam), part("assessments", fam),
-            part("studies", fam), trends=part("trends", fam), reclassification_pending=pending,
-        )  # fmt: skip
-        for fam in sorted(members)
-    }
+def _rows_by_family(people: pd.DataFrame) -> dict[str, list[dict]]:
+    """Family code -> its members' rows (as records, in frame order); rows without a family are left out."""
+    out: dict[str, list[dict]] = {}
+    for r in frame_records(people):
+        if not _blank(r["family"]):
+            out.setdefault(r["family"], []).append(r)
+    return out
 
 
 def by_family(frame: pd.DataFrame | None, family_of: Mapping[str, str]) -> dict[str, pd.DataFrame]:
@@ -605,7 +724,8 @@ def records_up_to(frame: pd.DataFrame | None, column: str, on: dt.date) -> pd.Da
     """Rows of ``frame`` whose ISO date in ``column`` is on or before ``on``."""
     if frame is None or frame.empty:
         return frame
-    keep = [d is not None and d <= on for d in (_date(v) for v in frame[column])]
+    keep = np.fromiter((d is not None and d <= on for d in _dates(frame[column].tolist())), dtype=bool,
+                       count=len(frame))  # fmt: skip
     return frame[keep]
 
 
@@ -615,7 +735,32 @@ def apply_trends(state: FamilyState, trends: pd.DataFrame | None) -> FamilyState
     (``person, progressing, projected_crossing_age, reasons``); people absent from it keep none."""
     if trends is None or trends.empty:
         return state
-    rows = {r["person"]: r for r in trends.to_dict("records")}
+    return _with_trend_rows(state, _trend_rows(trends))
+
+
+def apply_trends_to_states(states: Mapping[str, FamilyState], trends: pd.DataFrame | None) -> dict[str, FamilyState]:
+    """:func:`apply_trends` for every family of ``states``, each with the rows of its own members
+    in ``trends`` (one frame for the whole cohort); a family with none is left as it is."""
+    rows = _trend_rows(trends)
+    return {fam: _trends_of_members(st, rows) for fam, st in states.items()}
+
+
+def _trend_rows(trends: pd.DataFrame | None) -> dict[str, dict]:
+    """Person -> their row of a trend frame (the last one if several), as records."""
+    if trends is None or trends.empty:
+        return {}
+    return {r["person"]: r for r in frame_records(trends)}
+
+
+def _trends_of_members(state: FamilyState, rows: Mapping[str, Mapping]) -> FamilyState:
+    """:func:`apply_trends` with the rows of the family's members: ``state`` itself when none has one."""
+    if not any(p in rows for p in state.facts):
+        return state
+    return _with_trend_rows(state, rows)
+
+
+def _with_trend_rows(state: FamilyState, rows: Mapping[str, Mapping]) -> FamilyState:
+    """``state`` with the trend modifiers of ``rows`` (person -> trend row, as records)."""
     states = {}
     for p, s in state.states.items():
         t = rows.get(p)

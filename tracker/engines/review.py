@@ -231,7 +231,7 @@ def _derived_rows(base: pd.DataFrame, bsa_formula: str) -> pd.DataFrame:
             ok = np.isfinite(values)
             if ok.any():
                 out.append(pd.DataFrame({"measure": code, "value": values[ok]}, index=w.index[ok]))
-    seg = base[base["measure"].astype(str).str.startswith(_SEGMENT_PREFIXES)]
+    seg = base[base["measure"].isin(_segment_codes(base["measure"]))]
     for key, rows in seg.groupby(keys, sort=False):
         try:
             got = derive_deformation(dict(zip(rows["measure"], rows["value"])))
@@ -244,11 +244,25 @@ def _derived_rows(base: pd.DataFrame, bsa_formula: str) -> pd.DataFrame:
         return base.iloc[:0]
     d = pd.concat(out)
     attrs = studies.drop(columns=["measure", "value", "unit", "derived", "derivation"])
-    d = d.join(attrs).reset_index()
+    d = _join_unique(d, attrs)
     d["unit"] = d["measure"].map(DERIVED_UNITS)
     d["derived"] = True
     d["derivation"] = d["measure"].map(DERIVATIONS).str.replace("{bsa}", bsa_formula, regex=False)
     return d[base.columns]
+
+
+def _segment_codes(measures: pd.Series) -> list:
+    """The distinct measure codes of ``measures`` that are segmental strain codes."""
+    return [c for c in pd.unique(measures.to_numpy(dtype=object)) if str(c).startswith(_SEGMENT_PREFIXES)]
+
+
+def _join_unique(d: pd.DataFrame, attrs: pd.DataFrame) -> pd.DataFrame:
+    """``d.join(attrs).reset_index()`` for ``attrs`` with a unique index holding every key of ``d``
+    (taken by position: much faster than a join on a MultiIndex)."""
+    pos = attrs.index.get_indexer(d.index)
+    if (pos < 0).any():
+        return d.join(attrs).reset_index()
+    return pd.concat([d.reset_index(), attrs.iloc[pos].reset_index(drop=True)], axis=1)
 
 
 def build_measurements(people: pd.DataFrame, studies: pd.DataFrame, *, bsa_formula: str = "mosteller") -> pd.DataFrame:
@@ -302,7 +316,7 @@ def _criteria(a: pd.DataFrame, guideline: str, relatives: Collection[str], posit
     """Wall-thickness criteria for the mwt_* rows of ``a`` (columns of the result)."""
     n = len(a)
     cols = {
-        "meets_criteria": pd.array([pd.NA] * n, dtype="boolean"),
+        "meets_criteria": pd.arrays.BooleanArray(np.zeros(n, dtype=bool), np.ones(n, dtype=bool)),  # all NA
         "threshold": np.full(n, np.nan),
         "threshold_unit": np.full(n, None, dtype=object),
         "comparison": np.full(n, None, dtype=object),
@@ -353,20 +367,36 @@ _VOLTAGE_SOURCES = {
 def _ecg_voltage_criteria(a: pd.DataFrame, child: np.ndarray) -> None:
     """ECG voltage criteria for LV hypertrophy on adults' computed voltages (in place).
 
-    Both criteria were defined in adults; children get "no reference".
+    Both criteria were defined in adults; children get "no reference".  Each row is judged by
+    :func:`tracker.engines.derived.sokolow_lyon_criterion` or
+    :func:`~tracker.engines.derived.cornell_criterion`; the columns are written once per criterion.
     """
+    measure = a["measure"].to_numpy(dtype=object)
     for code, source in _VOLTAGE_SOURCES.items():
-        rows = (a["measure"] == code).to_numpy() & ~child
-        for i in np.flatnonzero(rows):
-            v = float(a.at[i, "value"])
-            met = (dv.sokolow_lyon_criterion(v) if code == dv.SOKOLOW_LYON
-                   else dv.cornell_criterion(v, str(a.at[i, "sex"])))  # fmt: skip
-            if met is None:
-                continue
-            a.at[i, "assessment"] = "above normal limits" if met else "within normal limits"
-            a.at[i, "flag"] = "LV hypertrophy voltage criterion met" if met else None
-            a.at[i, "source"] = source
-            a.at[i, "note"] = "ECG voltage criterion (adults)"
+        rows = np.flatnonzero((measure == code) & ~child)
+        if not len(rows):
+            continue
+        values = a["value"].to_numpy(dtype=float)[rows].tolist()
+        if code == dv.SOKOLOW_LYON:
+            met = [dv.sokolow_lyon_criterion(v) for v in values]
+        else:
+            sexes = a["sex"].to_numpy(dtype=object)[rows].tolist()
+            met = [dv.cornell_criterion(v, str(sex)) for v, sex in zip(values, sexes)]
+        judged = np.array([m is not None for m in met], dtype=bool)
+        if not judged.any():
+            continue
+        at = np.zeros(len(a), dtype=bool)
+        at[rows[judged]] = True
+        hit = [m for m in met if m is not None]
+        _set_objects(a, at, "assessment", ["above normal limits" if m else "within normal limits" for m in hit])
+        _set_objects(a, at, "flag", ["LV hypertrophy voltage criterion met" if m else None for m in hit])
+        _set_objects(a, at, "source", [source] * len(hit))
+        _set_objects(a, at, "note", ["ECG voltage criterion (adults)"] * len(hit))
+
+
+def _set_objects(a: pd.DataFrame, at: np.ndarray, column: str, values: list) -> None:
+    """``a.loc[at, column] = values`` for an object column, keeping it an object column."""
+    a.loc[at, column] = np.array(values, dtype=object)
 
 
 def assess_measurements(
@@ -395,7 +425,7 @@ def assess_measurements(
     guideline_id, criteria_source, criteria_note, and caution.  A CMR wall
     thickness in a child has no z-score and is not assessable by the child rule.
     """
-    a = frame.copy().reset_index(drop=True)
+    a = frame.reset_index(drop=True)  # a new frame: ``frame`` is never changed (copy on write)
     child = (a["age_years"] < ADULT_FROM_YEARS).to_numpy()
     limits_bsa = a["bsa_m2"].to_numpy(dtype=float).copy()
     if child.any():
@@ -430,7 +460,8 @@ def assess_measurements(
     for c, v in _criteria(a, guideline, relative_of_affected, genotype_positive).items():
         a[c] = v
     a["guideline_id"] = guideline
-    a["caution"] = np.where(a["measure"].isin(DIAGNOSTIC_MEASURES), CRITERIA_CAUTION, CAUTION)
+    diagnostic = a["measure"].isin(DIAGNOSTIC_MEASURES).to_numpy()
+    a["caution"] = np.where(diagnostic, np.array(CRITERIA_CAUTION, dtype=object), CAUTION)  # objects: no wide text array
     return a
 
 
@@ -667,9 +698,12 @@ def _flag(t: pd.DataFrame, flags: pd.DataFrame, horizon: float) -> None:
 
 def _join(out: np.ndarray, mask: np.ndarray, text) -> np.ndarray:
     """Append ``text`` (a string or an array) to ``out`` where ``mask``, joined by "; "."""
-    text = np.broadcast_to(np.asarray(text, dtype=object), out.shape)
-    joined = np.where(out == "", text, out + "; " + text)
-    return np.where(mask, joined, out)
+    at = np.flatnonzero(mask)
+    joined = out.copy()
+    if len(at):
+        old, new = out[at], np.broadcast_to(np.asarray(text, dtype=object), out.shape)[at]
+        joined[at] = np.where(old == "", new, old + "; " + new)
+    return joined
 
 
 def _reasons(t: pd.DataFrame, horizon: float) -> np.ndarray:
@@ -701,8 +735,10 @@ def _reasons(t: pd.DataFrame, horizon: float) -> np.ndarray:
     review_flag = t["review_flag"].to_numpy(dtype=bool)
     out = _join(out, review_flag & diag, "review: met criteria earlier but not at the latest study")
     first = t["first_met_measures"].astype(object).fillna("").astype(str).to_numpy(dtype=object)
-    met_here = np.array([m in f.split(", ") for m, f in zip(t["measure"], first)], dtype=bool) if n else first == ""
-    conv = t["converted"].to_numpy(dtype=bool) & ~review_flag & met_here
+    conv = t["converted"].to_numpy(dtype=bool) & ~review_flag
+    at = np.flatnonzero(conv)  # of these, the measures that met criteria on the conversion date
+    measure = t["measure"].to_numpy(dtype=object)
+    conv[at] = [m in f.split(", ") for m, f in zip(measure[at], first[at])]
     if conv.any():
         dates = np.full(n, "", dtype=object)
         dates[conv] = [f"met criteria from {d}" for d in t.loc[conv, "conversion_date"]]
