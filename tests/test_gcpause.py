@@ -1,4 +1,5 @@
-"""gc_paused: the cyclic collector is off inside, and back as it was after (also on error, also nested)."""
+"""gc_paused: the cyclic collector is off inside, and back as it was after (also on error, also nested);
+the bulk paths (import, studies read, worklist) use it."""
 
 from __future__ import annotations
 
@@ -74,5 +75,16 @@ def test_the_import_and_the_studies_read_run_with_the_collector_paused(monkeypat
     entered.clear()
     with reading(engine) as conn:
         studies = repository.load_studies(conn)
+        assert "read" in entered and len(studies) == 13
+        # The worklist's family states and trends are built with the collector paused as well.
+        import datetime as dt
+
+        from tracker.cli import recall
+
+        monkeypatch.setattr(recall, "gc_paused", recorder("worklist"))
+        frames = recall._load(conn)
+        conf, rule_set, policy = recall._recall_rules(None, None)
+        day = dt.date(2026, 12, 1)
+        recall.due_proposals(frames, conf, rule_set, policy, day, day + dt.timedelta(days=364), day)
     engine.dispose()
-    assert "read" in entered and len(studies) == 13
+    assert "worklist" in entered

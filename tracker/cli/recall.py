@@ -22,6 +22,7 @@ import typer
 from sqlalchemy import Connection, insert, select, update
 
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json, print_table
+from tracker.gcpause import gc_paused
 from tracker.domain.dates import parse_date
 from tracker.domain.genetics import ACMG_CLASSES
 from tracker.domain.genetics import CAUTION as GENOTYPE_CAUTION
@@ -713,13 +714,15 @@ def due_proposals(frames, conf, rule_set, policy, start: dt.date, end: dt.date, 
     """Proposals due or overdue by ``end``: (screening, affected, family of each person, trend note,
     every proposal).
 
-    Shared by ``tracker worklist`` and ``tracker report worklist``.
+    Shared by ``tracker worklist`` and ``tracker report worklist``.  The cyclic garbage
+    collector is paused while every family's state is built (see :mod:`tracker.gcpause`).
     """
-    states = fs.build_family_states(
-        frames.people, frames.variants, frames.results, frames.assessments, frames.studies,
-        reclassification_pending=frames.pending, as_of=on,
-    )  # fmt: skip
-    states, trend = _with_trends(frames, states, rule_set.id, conf, on)
+    with gc_paused():
+        states = fs.build_family_states(
+            frames.people, frames.variants, frames.results, frames.assessments, frames.studies,
+            reclassification_pending=frames.pending, as_of=on,
+        )  # fmt: skip
+        states, trend = _with_trends(frames, states, rule_set.id, conf, on)
     proposals: list[Proposal] = []
     family_of: dict[str, str] = {}
     affected: set[str] = set()
