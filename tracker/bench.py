@@ -36,7 +36,8 @@ statsmodels statsmodels OLS fitted series by series on a random sample of
 worklist    what ``tracker worklist`` computes for a one-year window (due and
             overdue people, booking into weekly slots) on frames loaded from the
             store as the command loads them, on every tenth family (1x) and on
-            the whole cohort (10x; at most ``--worklist-max-families``); growth ratio
+            the whole cohort (10x; at most ``--worklist-max-families`` if given);
+            best of 2 at each size; growth ratio
 reclassification
             what ``tracker reclassify --dry-run`` computes for the variant of the
             largest single-variant family (impact on each relative, tasks), with
@@ -586,13 +587,14 @@ def step_worklist(r: Run) -> dict:
     on = dt.date.today()
     start, end = on, on + dt.timedelta(days=364)
     whole = frames
-    if len(frames.families) > r.args.worklist_max_families:  # the engine is slow at scale: time a part
+    cap = r.args.worklist_max_families
+    if cap and len(frames.families) > cap:  # time a part of a larger cohort
         codes = sorted(frames.families["family"])
-        step = -(-len(codes) // r.args.worklist_max_families)
+        step = -(-len(codes) // cap)
         whole = _subset(frames, set(codes[::step]))
     small = _subset(whole, _tenth(whole))
     (due_1x, aff_1x), t_1x = _best_of(2, _worklist, small, conf, rule_set, policy, start, end, on)
-    (due_10x, aff_10x), t_10x = _best_of(1, _worklist, whole, conf, rule_set, policy, start, end, on)
+    (due_10x, aff_10x), t_10x = _best_of(2, _worklist, whole, conf, rule_set, policy, start, end, on)
     n_1x, n_10x = len(small.families), len(whole.families)
     return {
         "window": f"{start.isoformat()} to {end.isoformat()}", "rule_set": rule_set.id, "policy": policy.point,
@@ -712,9 +714,9 @@ def parse_args(argv: list[str] | None = None) -> argparse.Namespace:
     p.add_argument("--steps", default=None, help="comma-separated step names to run (default: all, in order)")
     p.add_argument("--json", default=None, help="also write every figure to this JSON file")
     p.add_argument("--profile-import", default=None, help="cProfile the import step into this file and print the top")
-    p.add_argument("--worklist-max-families", type=int, default=1000,
+    p.add_argument("--worklist-max-families", type=int, default=None,
                    help="worklist step: time at most this many families as the 10x cohort (every k-th family; "
-                   "default 1000), and a tenth of them as the 1x cohort")
+                   "default: the whole cohort), and a tenth of them as the 1x cohort")
     p.add_argument("--keep", action="store_true", help="keep the PostgreSQL schema (and the temp folder)")
     p.add_argument("--existing-db", default=None,
                    help="run the read/trends/statsmodels steps on this database instead of importing "
