@@ -17,6 +17,7 @@ from enum import Enum
 from pathlib import Path
 from typing import Annotated, Any
 
+import numpy as np
 import pandas as pd
 import typer
 from sqlalchemy import Connection, insert, select, update
@@ -153,19 +154,33 @@ def _with_trends(
     positive = set().union(*(fs.genotype_positive(s) for s in states.values()))
     # Trends are per person: computed a few thousand people at a time, so that memory stays
     # bounded on a registry-sized cohort (the results are the same as in one go).
-    people = pd.unique(studies["person"].to_numpy(dtype=object))
+    # Each row is given its batch number once (people in order of first appearance), so a batch
+    # is a slice of one stable sort, not a scan of the whole cohort per batch.
+    person_no, people = pd.factorize(studies["person"].to_numpy(dtype=object))
+    in_batch = _batches(person_no // TREND_CHUNK_PEOPLE)
+    listed = pd.Index(people).get_indexer(frames.people["person"].to_numpy(dtype=object))
+    members = _batches(np.where(listed >= 0, listed // TREND_CHUNK_PEOPLE, -1))
     parts = []
-    for i in range(0, len(people), TREND_CHUNK_PEOPLE):
-        chunk = studies[studies["person"].isin(set(people[i : i + TREND_CHUNK_PEOPLE]))]
+    for b in range(-(-len(people) // TREND_CHUNK_PEOPLE)):
+        chunk = studies.iloc[in_batch.get(b, [])]
         parts.append(flags(
-            build(frames.people, chunk), guideline=rule_set_id, relative_of_affected=relatives,
-            genotype_positive=positive, clinic_repeatability=settings.repeatability or None,
+            build(frames.people.iloc[members.get(b, [])], chunk), guideline=rule_set_id,
+            relative_of_affected=relatives, genotype_positive=positive,
+            clinic_repeatability=settings.repeatability or None,
         ))  # fmt: skip
     return fs.apply_trends_to_states(states, pd.concat(parts, ignore_index=True)), {
         "applied": True,
         "note": f"trend modifiers from the measurement trends ({rule_set_id} thresholds): progression beyond "
         "measurement variability and projected threshold crossing shorten the interval",
     }
+
+
+def _batches(batch: np.ndarray) -> dict[int, np.ndarray]:
+    """Batch number -> positions of its rows, in their original order (negative numbers: no batch)."""
+    order = np.argsort(batch, kind="stable")
+    keys, starts = np.unique(batch[order], return_index=True)
+    ends = np.append(starts[1:], len(order))
+    return {int(k): order[a:e] for k, a, e in zip(keys, starts, ends) if k >= 0}
 
 
 # --------------------------------------------------------------------------- cascade
