@@ -231,7 +231,7 @@ def _typed_frame(conn: Connection, stmt, text: list[str], numbers: list[str]) ->
     seen: dict[str, dict] = {c: {} for c in text}  # distinct value -> code, per text column
     floats: dict[str, list[np.ndarray]] = {c: [] for c in numbers}
     # PostgreSQL: a server-side cursor, so that the client holds one batch, not the whole result
-    # (psycopg's client-side cursor held 1.6 GB for 3.2 million rows). A cursor makes the planner
+    # (a client-side cursor took the peak from 1.1 to 1.9 GB for 3.2 million rows). A cursor makes the planner
     # favour a fast start (cursor_tuple_fraction 0.1), which was far slower for the whole ordered
     # join; the setting says the whole result is wanted (SET LOCAL: this transaction only).
     # SQLite reads row by row in either case.
