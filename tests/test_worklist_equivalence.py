@@ -20,7 +20,7 @@ import pandas as pd
 import pytest
 
 from tracker import synth
-from tracker.domain.pedigree import frame_records
+from tracker.domain.records import frame_records
 from tracker.engines import family_state as fs
 from tracker.engines import review
 

@@ -100,7 +100,8 @@ from fractions import Fraction
 import numpy as np
 import pandas as pd
 
-from tracker.domain.pedigree import Pedigree, _blank, frame_records  # one definition of an empty cell and of a row
+from tracker.domain.pedigree import Pedigree, _blank  # one definition of an empty cell
+from tracker.domain.records import frame_records
 
 ACMG_CLASSES = (
     "pathogenic",

@@ -80,7 +80,8 @@ import pandas as pd
 
 from tracker.domain.dates import PartialDate, age_at, parse_partial_date
 from tracker.domain.genetics import ACMG_CLASSES, ACTIONABLE_CLASSES, FamilyGenotypes, genotype_statuses
-from tracker.domain.pedigree import Pedigree, column_values, frame_records
+from tracker.domain.pedigree import Pedigree
+from tracker.domain.records import column_values, frame_records
 from tracker.engines.schedule import PersonState, Policy, Proposal, propose_recall
 from tracker.rules.model import RuleSet
 
