@@ -89,7 +89,19 @@ def _check_report(report: dict) -> None:
 
 
 def test_whole_benchmark_runs_on_a_tiny_cohort_on_sqlite(tmp_path):
-    _check_report(_run_whole_bench(tmp_path))
+    import sqlite3
+
+    report = _run_whole_bench(tmp_path, "--keep")
+    _check_report(report)
+    # the raw baseline stored every row the import wrote, table by table
+    work = tmp_path / "work"
+    imported, raw = sqlite3.connect(work / "bench.sqlite"), sqlite3.connect(work / "raw_all.sqlite")
+    tables = report["figures"]["raw_insert"]["tables"].split(", ")
+    counts = {t: imported.execute(f"SELECT count(*) FROM {t}").fetchone()[0] for t in tables}
+    assert {t: raw.execute(f"SELECT count(*) FROM {t}").fetchone()[0] for t in tables} == counts
+    assert sum(counts.values()) == report["figures"]["raw_insert"]["rows"]
+    linked = "SELECT count(*) FROM person WHERE mother_id IS NOT NULL"
+    assert raw.execute(linked).fetchone()[0] == imported.execute(linked).fetchone()[0] > 0
 
 
 @pytest.mark.skipif(not PG_URL, reason=f"{PG_ENV} is not set")
