@@ -298,10 +298,10 @@ def _insert_all(r: Run, cur, mark: str, tables, copy: bool = False) -> tuple[flo
     for table, columns in tables:
         names = ", ".join(columns)
         links = []
+        at = [columns.index(c) for c in _LINKS] if table == "person" else []
+        pid = columns.index("id")
         for rows in _chunks(r, table, columns):
-            if table == "person":
-                at = [columns.index(c) for c in _LINKS]
-                pid = columns.index("id")
+            if at:
                 links += [(*(row[i] for i in at), row[pid]) for row in rows if any(row[i] is not None for i in at)]
                 rows = [tuple(None if i in at else v for i, v in enumerate(row)) for row in rows]
             t0 = time.perf_counter()
