@@ -109,3 +109,27 @@ def test_whole_benchmark_runs_on_a_tiny_cohort_on_postgresql(tmp_path):
     report = _run_whole_bench(tmp_path, "--db", PG_URL)
     _check_report(report)
     assert report["figures"]["raw_insert"]["all_tables_copy_s"] > 0
+
+
+def test_release_drops_a_frame_mid_step_only_when_no_later_step_of_the_run_reads_it():
+    import argparse
+    from pathlib import Path
+
+    def run(steps):
+        r = bench.Run(args=argparse.Namespace(), workdir=Path("."), wanted=tuple(steps))
+        r.frames.update(studies="S", people="P", long="L", recall="R")
+        return r
+
+    # statsmodels reads "long"; nothing after trends reads "studies" or "people".
+    r = run(["read", "trends", "statsmodels"])
+    r.release("trends", "studies", "people", "long")
+    assert sorted(r.frames) == ["long", "recall"]
+    # The worklist step reads "recall": still wanted after the trend step, so it is kept.
+    r = run(["read", "trends", "worklist"])
+    assert "recall" in r.still_used("trends")
+    r.release("trends", "recall")
+    assert "recall" in r.frames
+    # A later step not in this run does not keep a frame.
+    r = run(["read", "trends"])
+    r.release("trends", "recall")
+    assert "recall" not in r.frames
