@@ -490,3 +490,32 @@ def test_unknown_family_is_a_user_error(engine, tmp_path):
     with reading(engine) as conn, pytest.raises(UserError, match="XX99"):
         export_fhir(conn, "XX99", tmp_path / "x.json")
     assert not (tmp_path / "x.json").exists()
+
+
+def test_export_with_fhir_writes_the_same_bundle_as_export_fhir(demo_db, tmp_path, capsys):
+    # `tracker export --fhir FAMILY` is the same command as `tracker export-fhir FAMILY`:
+    # the two files are byte-identical (resource ids are stable across exports).
+    a, b = tmp_path / "a.json", tmp_path / "b.json"
+    assert main(["export", "--fhir", "HV02", "--out", str(a), "--db", demo_db, "--json"]) == 0
+    summary = json.loads(capsys.readouterr().out)
+    assert main(["export-fhir", "HV02", "--out", str(b), "--db", demo_db]) == 0
+    assert a.read_bytes() == b.read_bytes()
+    assert summary["family"] == "HV02" and summary["entries"] == len(Bundle.model_validate_json(a.read_text()).entry)
+    assert not summary["names_included"]
+
+
+@pytest.mark.parametrize("extra", [["people"], ["--pseudonymise"], ["--min-cell", "3"]])
+def test_export_with_fhir_refuses_csv_options_and_writes_nothing(demo_db, tmp_path, capsys, extra):
+    out = tmp_path / "x.json"
+    assert main(["export", *extra, "--fhir", "HV02", "--out", str(out), "--db", demo_db]) == 1
+    err = capsys.readouterr().err
+    assert err.startswith("error: --fhir") and err.count("\n") == 1
+    assert not out.exists()
+
+
+def test_export_names_option_without_fhir_is_refused(demo_db, tmp_path, capsys):
+    out = tmp_path / "people.csv"
+    assert main(["export", "people", "--include-names", "--out", str(out), "--db", demo_db]) == 1
+    assert "need --fhir" in capsys.readouterr().err and not out.exists()
+    assert main(["export", "--out", str(out), "--db", demo_db]) == 1
+    assert "--fhir FAMILY" in capsys.readouterr().err

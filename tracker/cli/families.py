@@ -114,8 +114,22 @@ DatesMode = Enum("DatesMode", {m: m for m in pseudonymise.DATE_MODES}, type=str)
 
 
 def export_(
-    kind: Annotated[ExportKind, typer.Argument(help="What to export; `all` writes every layout file.")],
-    out: Annotated[Path, typer.Option("--out", "-o", help="CSV file (or folder for `all`).")],
+    kind: Annotated[
+        ExportKind | None, typer.Argument(help="What to export; `all` writes every layout file (not with --fhir).")
+    ] = None,
+    out: Annotated[Path, typer.Option("--out", "-o", help="CSV file (folder for `all`; JSON file for --fhir).")] = ...,
+    fhir_family: Annotated[
+        str | None,
+        typer.Option("--fhir", metavar="FAMILY", help="Write this family as an HL7 FHIR R4B Bundle (JSON) instead "
+                     "of CSV: the same as `tracker export-fhir FAMILY`."),
+    ] = None,
+    include_names: Annotated[
+        bool, typer.Option("--include-names", help="With --fhir: put given and family names in the file.")
+    ] = False,
+    claim_profiles: Annotated[
+        bool, typer.Option("--claim-profiles", help="With --fhir: set meta.profile to the Genomics Reporting IG "
+                           "profiles (not checked with the HL7 validator).")
+    ] = False,
     pseudonymise_: Annotated[
         bool,
         typer.Option(
@@ -146,7 +160,21 @@ def export_(
     Example: tracker export studies --out studies.csv
 
     Example: tracker export all --out extract/ --pseudonymise --dates shift --settings clinic.toml
+
+    Example: tracker export --fhir HV01 --out HV01.fhir.json
     """
+    if fhir_family is not None:
+        if kind is not None or pseudonymise_ or dates is not None or min_cell is not None:
+            raise UserError("--fhir writes one family's FHIR Bundle: give no CSV kind, --pseudonymise, --dates or --min-cell")
+        from tracker.cli.export_fhir import export_fhir_command
+
+        export_fhir_command(fhir_family, out, include_names=include_names, claim_profiles=claim_profiles,
+                            db=db, json_out=json_out)  # fmt: skip
+        return
+    if kind is None:
+        raise UserError("say what to export: a layout name, `all`, or --fhir FAMILY")
+    if include_names or claim_profiles:
+        raise UserError("--include-names and --claim-profiles need --fhir")
     kind = kind.value
     if pseudonymise_:
         _export_pseudonymised(kind, out, dates.value if dates else "ages", min_cell, settings, db, json_out)
