@@ -155,7 +155,8 @@ def export_(
 ) -> None:
     """Write stored records in the import layout (import -> export -> import is exact).
 
-    With --pseudonymise, write a pseudonymised research extract to a folder.
+    With --pseudonymise, write a pseudonymised research extract to a folder. With
+    --fhir FAMILY, write that family as an HL7 FHIR R4B Bundle (as `tracker export-fhir`).
 
     Example: tracker export studies --out studies.csv
 
