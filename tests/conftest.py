@@ -12,9 +12,15 @@ import uuid
 from pathlib import Path
 
 import pytest
+from hypothesis import settings as hypothesis_settings
 from sqlalchemy import create_engine, inspect, text
 
 from tracker.cli.app import main
+
+# Property tests check results, never speed: no per-example deadline, so a busy machine
+# cannot fail them (speed targets live in the benchmark, tracker/bench.py).
+hypothesis_settings.register_profile("no_deadline", deadline=None)
+hypothesis_settings.load_profile("no_deadline")
 
 PG_ENV = "TRACKER_TEST_POSTGRES_URL"
 PG_URL = os.environ.get(PG_ENV)
