@@ -56,6 +56,18 @@ AHA_ACC_2020_ROWS = {
     "aha24.affected.scd_risk": ("AHA 2024 §7.2 Table 7: SCD risk assessment every 1-2 y", 0, None, (12, 24), "V"),
 }
 
+AHA_ACC_2024_ROWS = {
+    "aha24.child.carrier": ("AHA 2024 §6.9 G+P- children and adolescents: 1-2 y", 0, 18, (12, 24), "V2"),
+    "aha24.child.at_risk_variant_or_early_onset": ("AHA 2024 table, children of G+ or early-onset families: 1-2 y", 0, 18, (12, 24), "V2"),
+    "aha24.child.at_risk_other": ("AHA 2024 table, children of other families: 2-3 y, no later than puberty", 0, 18, (24, 36), "V2"),
+    "aha24.adult.carrier": ("AHA 2024 §6.9 G+P- adults: 3-5 y", 18, None, (36, 60), "V2"),
+    "aha24.adult.at_risk": ("AHA 2024 table, adults at risk (no P/LP variant): 3-5 y", 18, None, (36, 60), "V2"),
+    "aha24.adult.at_risk_variant": ("AHA 2024 table, untested adults in a P/LP family: 3-5 y", 18, None, (36, 60), "V2"),
+    "aha24.borderline": ("borderline/uncertain phenotype: closer review 6-12 months (no 2024 number; common practice)", 0, None, (6, 12), "common_practice"),
+    "aha24.release.non_carrier": ("AHA 2024 §6.8 rec 13 genotype-negative: no ongoing screening (3: No Benefit)", 0, None, "release", "V2"),
+    "aha24.affected.scd_risk": ("AHA 2024 Table 7: SCD risk assessment every 1-2 y", 0, None, (12, 24), "V"),
+}
+
 ESC_2014_ROWS = {
     "esc14.child_under10.family_features": ("ESC 2014 < 10 y only with malignant/early-onset family history", 0, 10, (12, 24), "M"),
     "esc14.child_under10.athlete": ("ESC 2014 < 10 y with competitive sport", 0, 10, (12, 24), "M"),
@@ -67,7 +79,12 @@ ESC_2014_ROWS = {
     "esc14.affected.risk_scd": ("ESC 2014 SCD risk re-assessed every 1-2 y", 0, None, (12, 24), "M"),
 }
 
-ROWS = {"esc_2023": ESC_2023_ROWS, "aha_acc_2020": AHA_ACC_2020_ROWS, "esc_2014": ESC_2014_ROWS}
+ROWS = {
+    "esc_2023": ESC_2023_ROWS,
+    "aha_acc_2020": AHA_ACC_2020_ROWS,
+    "aha_acc_2024": AHA_ACC_2024_ROWS,
+    "esc_2014": ESC_2014_ROWS,
+}
 
 
 def _raw(rule_set_id: str) -> dict:
@@ -76,7 +93,7 @@ def _raw(rule_set_id: str) -> dict:
 
 
 def test_shipped_rule_sets_are_listed():
-    assert set(available_rule_sets()) == {"aha_acc_2020", "esc_2014", "esc_2023"}
+    assert set(available_rule_sets()) == {"aha_acc_2020", "aha_acc_2024", "esc_2014", "esc_2023"}
     summaries = {s.id: s for s in list_rule_sets()}
     assert summaries["esc_2023"].year == 2023 and summaries["aha_acc_2020"].year == 2020
     # ESC 2014 is kept only as an [M] rule set: no rule may claim verification.
