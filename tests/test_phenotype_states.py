@@ -148,6 +148,15 @@ def test_model_refuses_sport_permission_for_borderline_without_label():
     assert any("sport" in e and "borderline" in e for e in err.value.errors), err.value.errors
 
 
+def test_model_refuses_a_trigger_that_permits_sport():
+    """Triggers apply to every phenotype, borderline included: none may clear competitive sport."""
+    data = copy.deepcopy(_raw("esc_2023"))
+    data["triggers"]["started_competitive_sport"]["text"] = "Started competitive sport: may take part in all competitive sport."
+    with pytest.raises(RuleSetError) as err:
+        build_rule_set(data, origin="test")
+    assert any("trigger started_competitive_sport" in e and "sport" in e for e in err.value.errors)
+
+
 def test_model_refuses_a_screening_row_mixing_negative_and_borderline():
     data = copy.deepcopy(_raw("esc_2023"))
     row = next(r for r in data["rules"] if r["id"] == "esc23.adult.at_risk_single_case.to60")

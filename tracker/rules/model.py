@@ -561,6 +561,13 @@ def build_rule_set(data: Mapping[str, Any], origin: str = "<data>") -> RuleSet:
         )
 
     errors.extend(check_phenotype_states(rules, advice))
+    for kind, items in (("trigger", triggers), ("modifier", modifiers)):
+        for code, item in items.items():
+            if SPORT_PERMISSION_WORDING.search(item.text):
+                errors.append(
+                    f"{kind} {code}: applies to every phenotype, so its text may not permit competitive sport "
+                    "(sport advice is for phenotype-negative rows only)"
+                )
 
     child_adult = data.get("child_adult_age", 18)
     if not isinstance(child_adult, int) or child_adult <= 0:
