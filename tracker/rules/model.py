@@ -42,7 +42,7 @@ GENOTYPES: dict[str, str] = {
 }
 
 PHENOTYPES: dict[str, str] = {
-    "negative": "does not meet the diagnostic criteria of the rule set's guideline",
+    "negative": "clearly negative: does not meet the diagnostic criteria and is not borderline or uncertain",
     "positive": "meets the diagnostic criteria (affected)",
     "borderline": (
         "borderline or uncertain: a non-diagnostic abnormality (e.g. adult wall 13-14 mm without supporting "
