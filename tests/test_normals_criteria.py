@@ -70,7 +70,7 @@ def test_result_names_guideline_and_caution():
     assert "2020 AHA/ACC" in r.guideline and "[V2]" in r.source
     assert "clinician decides" in r.caution and "local protocols" in r.caution and "current guideline" in r.caution
     assert "[V]" in wall_thickness_criterion(ESC, age_years=40, mwt_mm=16).source
-    assert set(RULE_SETS) == {ESC, AHA}
+    assert set(RULE_SETS) == {ESC, AHA, "aha_acc_2024"}
 
 
 def test_frame_matches_scalar():

@@ -37,6 +37,7 @@ ESC_2023_ROWS = {
     "esc23.adult.at_risk_single_case.to60": ("ESC 2023 single-case family: no number (safer default 1-3 y)", 18, 60, (12, 36), "common_practice"),
     "esc23.adult.at_risk_single_case.from60": ("ESC 2023 single-case family: no number (safer default 3-5 y)", 60, None, (36, 60), "common_practice"),
     "esc23.carrier.competitive_sport": ("ESC 2023 §8.1.3 G+P- in competitive sport: annual", 0, None, (12, 12), "V"),
+    "esc23.borderline": ("borderline/uncertain phenotype: closer review 6-12 months (ESC 2023 §7.1.1 closer review [V]; number common practice)", 0, None, (6, 12), "common_practice"),
     "esc23.release.non_carrier": ("ESC 2023 genotype-negative relatives: discharge (I C)", 0, None, "release", "V"),
     "esc23.release.stop_at_50": ("ESC 2023 stop at >= 50 y, isolated genetically negative informative family", 50, None, "release", "V"),
     "esc23.affected.risk_scd": ("ESC 2023 HCM Risk-SCD every 1-2 y, >= 16 y (I B)", 16, None, (12, 24), "V"),
@@ -50,8 +51,21 @@ AHA_ACC_2020_ROWS = {
     "aha20.adult.carrier": ("AHA/ACC 2020 table, adults: 3-5 y (2024 G+P- text: 3-5 y)", 18, None, (36, 60), "V2"),
     "aha20.adult.at_risk": ("AHA/ACC 2020 table, adults at risk (untested): 3-5 y", 18, None, (36, 60), "V2"),
     "aha20.adult.at_risk_variant": ("AHA/ACC 2020 table, adults at risk (untested, P/LP family): 3-5 y", 18, None, (36, 60), "V2"),
+    "aha20.borderline": ("borderline/uncertain phenotype: closer review 6-12 months (no AHA/ACC 2020 number; common practice)", 0, None, (6, 12), "common_practice"),
     "aha20.release.non_carrier": ("AHA/ACC genotype-negative: no ongoing screening (3: No Benefit)", 0, None, "release", "M"),
     "aha24.affected.scd_risk": ("AHA 2024 §7.2 Table 7: SCD risk assessment every 1-2 y", 0, None, (12, 24), "V"),
+}
+
+AHA_ACC_2024_ROWS = {
+    "aha24.child.carrier": ("AHA 2024 §6.9 G+P- children and adolescents: 1-2 y", 0, 18, (12, 24), "V2"),
+    "aha24.child.at_risk_variant_or_early_onset": ("AHA 2024 table, children of G+ or early-onset families: 1-2 y", 0, 18, (12, 24), "V2"),
+    "aha24.child.at_risk_other": ("AHA 2024 table, children of other families: 2-3 y, no later than puberty", 0, 18, (24, 36), "V2"),
+    "aha24.adult.carrier": ("AHA 2024 §6.9 G+P- adults: 3-5 y", 18, None, (36, 60), "V2"),
+    "aha24.adult.at_risk": ("AHA 2024 table, adults at risk (no P/LP variant): 3-5 y", 18, None, (36, 60), "V2"),
+    "aha24.adult.at_risk_variant": ("AHA 2024 table, untested adults in a P/LP family: 3-5 y", 18, None, (36, 60), "V2"),
+    "aha24.borderline": ("borderline/uncertain phenotype: closer review 6-12 months (no 2024 number; common practice)", 0, None, (6, 12), "common_practice"),
+    "aha24.release.non_carrier": ("AHA 2024 §6.8 rec 13 genotype-negative: no ongoing screening (3: No Benefit)", 0, None, "release", "V2"),
+    "aha24.affected.scd_risk": ("AHA 2024 Table 7: SCD risk assessment every 1-2 y", 0, None, (12, 24), "V"),
 }
 
 ESC_2014_ROWS = {
@@ -60,11 +74,17 @@ ESC_2014_ROWS = {
     "esc14.age10to20": ("ESC 2014 every 1-2 y from 10 to 20 y", 10, 20, (12, 24), "M"),
     "esc14.adult": ("ESC 2014 adults every 2-5 y", 20, None, (24, 60), "M"),
     "esc14.adult.non_diagnostic": ("ESC 2014 adults with non-diagnostic abnormalities: 6-12 months", 20, None, (6, 12), "M"),
+    "esc14.child.borderline": ("borderline/uncertain phenotype under 20 y: 6-12 months (ESC 2014 adult row extended; common practice)", 0, 20, (6, 12), "common_practice"),
     "esc14.release.non_carrier": ("ESC 2014 genotype-negative: discharge (IIa C)", 0, None, "release", "M"),
     "esc14.affected.risk_scd": ("ESC 2014 SCD risk re-assessed every 1-2 y", 0, None, (12, 24), "M"),
 }
 
-ROWS = {"esc_2023": ESC_2023_ROWS, "aha_acc_2020": AHA_ACC_2020_ROWS, "esc_2014": ESC_2014_ROWS}
+ROWS = {
+    "esc_2023": ESC_2023_ROWS,
+    "aha_acc_2020": AHA_ACC_2020_ROWS,
+    "aha_acc_2024": AHA_ACC_2024_ROWS,
+    "esc_2014": ESC_2014_ROWS,
+}
 
 
 def _raw(rule_set_id: str) -> dict:
@@ -73,7 +93,7 @@ def _raw(rule_set_id: str) -> dict:
 
 
 def test_shipped_rule_sets_are_listed():
-    assert set(available_rule_sets()) == {"aha_acc_2020", "esc_2014", "esc_2023"}
+    assert set(available_rule_sets()) == {"aha_acc_2020", "aha_acc_2024", "esc_2014", "esc_2023"}
     summaries = {s.id: s for s in list_rule_sets()}
     assert summaries["esc_2023"].year == 2023 and summaries["aha_acc_2020"].year == 2020
     # ESC 2014 is kept only as an [M] rule set: no rule may claim verification.

@@ -228,8 +228,9 @@ def test_projected_crossing_within_interval_shortens():
 
 
 def test_borderline_phenotype_shortens():
-    """Borderline imaging caps at 12 months (common practice); ESC 2014 adult non-diagnostic 6-12 months [M] governs."""
-    assert plan(person(30, phenotype="borderline"), AHA, "shortest").interval_months == 12
+    """Borderline state rows: 6-12 months (common practice); ESC 2014 adult non-diagnostic 6-12 months [M] governs."""
+    p = plan(person(30, phenotype="borderline"), AHA, "shortest")
+    assert p.rule_id == "aha20.borderline" and p.interval_months == 6
     p = plan(person(30, phenotype="borderline", genotype="carrier", family_features=PLP), ESC14, "shortest")
     assert p.rule_id == "esc14.adult.non_diagnostic" and p.interval_months == 6
 

@@ -112,6 +112,27 @@ RULE_SETS: dict[str, RuleSet] = {
             "[M, from memory, verify]; AHA 2024: unless the variant is downgraded [V2]"
         ),
     ),
+    "aha_acc_2024": RuleSet(
+        guideline="aha_acc_2024",
+        title="2024 AHA/ACC/AMSSM/HRS/PACES/SCMR HCM guideline",
+        min_age_years=None,
+        full_age_years=None,
+        early_onset_exception=False,
+        testing_source=(
+            "AHA/ACC 2024 §6.8 rec 6: cascade genetic testing of first-degree relatives when the "
+            "proband has a P/LP variant (1 B-NR); screening, genetic or clinical, can begin at any "
+            "age (key point 3), with expert counselling and shared decisions (rec 4, 1 B-NR) [V]"
+        ),
+        screening_source=(
+            "AHA/ACC 2024 §6.8 rec 6: clinical screening (ECG + 2D echo) of all first-degree "
+            "relatives (1 B-NR) [V]; more distant at-risk relatives by judgement [M, from memory, verify]"
+        ),
+        release_source=(
+            "AHA/ACC 2024 §6.8 rec 13: no ongoing clinical screening of genotype-negative relatives "
+            "(3: No Benefit) [V2], unless the variant is downgraded [V2]; reconfirm the variant's "
+            "pathogenicity every 2-3 y (key point 3) [V]"
+        ),
+    ),
     "esc_2023": RuleSet(
         guideline="esc_2023",
         title="2023 ESC Guidelines for the management of cardiomyopathies",
@@ -307,7 +328,7 @@ def _vital_notes(ped: Pedigree, person: str) -> tuple[str, ...]:
 
 def _testing_recommendation(rules: RuleSet, age: AgeOnDate, birth: PartialDate | None, early_onset: bool):
     """(eligible, recommendation words, eligible_from)."""
-    if rules.guideline == "aha_acc_2020":
+    if rules.guideline in ("aha_acc_2020", "aha_acc_2024"):
         return True, "recommended, any age (1 B-NR)", None
     if rules.guideline == "esc_2023":
         if age.years is None:

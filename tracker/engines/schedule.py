@@ -43,6 +43,10 @@ Conventions (documented here because the proposal depends on them)
   in a family without the ``plp_variant`` feature (e.g. after a downgrade to
   VUS/LB/B) is scheduled as genotype unknown (``uncertain``), and a
   genotype-negative result then does not release.
+* **Borderline or uncertain phenotype** is its own state: the rule set's
+  borderline rows apply (closer review, CMR to clarify), never its
+  phenotype-negative rows, and the proposal carries
+  :data:`BORDERLINE_CAUTION` (no sport clearance; specialist review).
 * Deceased people are never scheduled; ``declined`` gives status
   ``not_recalled``; ``lost_to_follow_up`` is flagged; affected members
   (phenotype ``positive``) get the rule set's affected follow-up rules.
@@ -89,6 +93,11 @@ AFFECTED_CAUTION = (
 )
 LOST_CAUTION = "Lost to follow-up: the proposal stands but the person cannot be reached; try re-contact (local protocol)."
 NO_RULE_CAUTION = "No rule in this rule set covers this person: the clinician decides the follow-up."
+BORDERLINE_CAUTION = (
+    "Borderline or uncertain phenotype: this person is not phenotype-negative. The proposal gives no "
+    "clearance for competitive sport; sport decisions are deferred to review by a cardiomyopathy "
+    "specialist, and contrast CMR may clarify the phenotype."
+)
 
 
 # --------------------------------------------------------------------- inputs
@@ -579,7 +588,13 @@ def propose_recall(person: PersonState, rule_set: RuleSet, policy: Policy, today
         ctx.flag("affected")
         ctx.notes.append("affected: out of family screening; affected follow-up rules apply")
         ctx.cautions.append(AFFECTED_CAUTION)
-    elif ctx.genotype == "not_at_risk":
+    elif s.phenotype == "borderline":
+        # Its own state: never scheduled or advised as phenotype-negative (rule sets refuse such rows).
+        ctx.notes.append(
+            "phenotype borderline or uncertain: the rule set's borderline rows apply, not its phenotype-negative rows"
+        )
+        ctx.cautions.append(BORDERLINE_CAUTION)
+    if not affected and ctx.genotype == "not_at_risk":
         ctx.notes.append("not at risk: outside family screening")
         return _proposal(ctx, "not_scheduled", None, None, None, None)
     ctx.rules = rule_set.select("affected" if affected else "screening", "recall")

@@ -37,6 +37,7 @@ from tracker.rules.model import (
     Trigger,
     build_rule_set,
     check_age_bands,
+    check_phenotype_states,
 )
 
 __all__ = [
@@ -61,6 +62,7 @@ __all__ = [
     "available_rule_sets",
     "build_rule_set",
     "check_age_bands",
+    "check_phenotype_states",
     "list_rule_sets",
     "load_rule_set",
     "load_rule_set_file",

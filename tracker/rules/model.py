@@ -13,13 +13,20 @@ incomplete or inconsistent:
 * age bands are whole years, ``[min_age, max_age)``, and two rules with the same
   conditions apart from age must not have overlapping bands;
 * every code (genotype, phenotype, family feature, visit need, trigger) is one
-  of the vocabularies below.
+  of the vocabularies below;
+* phenotype states are kept apart (:func:`check_phenotype_states`): a rule or
+  advice item whose text says phenotype-negative (``phenotype negative``,
+  ``G+P-``, ``without the phenotype``) must accept phenotype ``negative``
+  only; text that permits competitive sport likewise; and a screening rule
+  may not accept both ``negative`` and ``borderline`` (the borderline state
+  has rows of its own).
 
 Pure: no file access here (see :mod:`tracker.rules` for loading).
 """
 
 from __future__ import annotations
 
+import re
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -35,9 +42,13 @@ GENOTYPES: dict[str, str] = {
 }
 
 PHENOTYPES: dict[str, str] = {
-    "negative": "does not meet the diagnostic criteria of the rule set's guideline",
+    "negative": "clearly negative: does not meet the diagnostic criteria and is not borderline or uncertain",
     "positive": "meets the diagnostic criteria (affected)",
-    "borderline": "non-diagnostic abnormality (e.g. adult wall 13-14 mm without supporting features, child z near threshold)",
+    "borderline": (
+        "borderline or uncertain: a non-diagnostic abnormality (e.g. adult wall 13-14 mm without supporting "
+        "features, child z near threshold) or affected status recorded as uncertain; neither phenotype-negative "
+        "nor affected, with rows of its own"
+    ),
 }
 
 FAMILY_FEATURES: dict[str, str] = {
@@ -448,6 +459,46 @@ def check_age_bands(rules: Iterable[Rule]) -> list[str]:
     return errors
 
 
+# Wording that says a row is for phenotype-negative people, and wording that permits competitive sport.
+NEGATIVE_PHENOTYPE_WORDING = re.compile(
+    r"(?<!not )phenotype[- ]negative|\bG\+\s*/?\s*P-|\bG\+P\u2212|without the phenotype|no phenotype", re.IGNORECASE
+)
+SPORT_PERMISSION_WORDING = re.compile(
+    r"all competitive sport|any (?:competitive )?sport|any intensity|may (?:take part|participate|compete)",
+    re.IGNORECASE,
+)
+
+
+def check_phenotype_states(rules: Iterable[Rule], advice: Iterable[Advice] = ()) -> list[str]:
+    """Problems where a row's wording and its phenotype conditions disagree.
+
+    * text saying phenotype-negative, but the row also accepts another phenotype;
+    * text permitting competitive sport, but the row accepts a phenotype other than negative;
+    * a screening rule accepting both ``negative`` and ``borderline`` (each state has its own rows).
+    """
+    errors = []
+    items = [("rule", r.id, r.text, r.conditions, r.group) for r in rules]
+    items += [("advice", a.id, a.text, a.conditions, None) for a in advice]
+    for kind, rid, text, cond, group in items:
+        others = sorted(cond.phenotype - {"negative"})
+        if NEGATIVE_PHENOTYPE_WORDING.search(text) and others:
+            errors.append(
+                f"{kind} {rid}: its text says phenotype-negative but it also accepts phenotype "
+                f"{', '.join(others)}; give that state its own rows"
+            )
+        elif SPORT_PERMISSION_WORDING.search(text) and others:
+            errors.append(
+                f"{kind} {rid}: its text permits competitive sport but it accepts phenotype "
+                f"{', '.join(others)}; sport advice is for phenotype-negative people only"
+            )
+        if group == "screening" and {"negative", "borderline"} <= cond.phenotype:
+            errors.append(
+                f"{kind} {rid}: accepts both phenotype negative and borderline; the borderline state has "
+                "its own rows"
+            )
+    return errors
+
+
 def build_rule_set(data: Mapping[str, Any], origin: str = "<data>") -> RuleSet:
     """Validate parsed rule-set data and return a :class:`RuleSet`.
 
@@ -508,6 +559,15 @@ def build_rule_set(data: Mapping[str, Any], origin: str = "<data>") -> RuleSet:
         advice.append(
             Advice(str(a["id"]), str(a["text"]), _conditions(a.get("when"), errors, where), _source(a.get("source"), errors, where))
         )
+
+    errors.extend(check_phenotype_states(rules, advice))
+    for kind, items in (("trigger", triggers), ("modifier", modifiers)):
+        for code, item in items.items():
+            if SPORT_PERMISSION_WORDING.search(item.text):
+                errors.append(
+                    f"{kind} {code}: applies to every phenotype, so its text may not permit competitive sport "
+                    "(sport advice is for phenotype-negative rows only)"
+                )
 
     child_adult = data.get("child_adult_age", 18)
     if not isinstance(child_adult, int) or child_adult <= 0:
