@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import copy
+import re
 import tomllib
 from importlib import resources
 
@@ -45,15 +46,15 @@ ESC_2023_ROWS = {
 }
 
 AHA_ACC_2020_ROWS = {
-    "aha20.child.carrier": ("AHA/ACC 2020 table, children G+ families: 1-2 y (2024 G+P- text: 1-2 y)", 0, 18, (12, 24), "V2"),
+    "aha20.child.carrier": ("AHA/ACC 2020 table, children G+ families: 1-2 y (2020 §6.9 G+P-: 1-2 y [M])", 0, 18, (12, 24), "V2"),
     "aha20.child.at_risk_variant_or_early_onset": ("AHA/ACC 2020 table, children G+ or early-onset families: 1-2 y", 0, 18, (12, 24), "V2"),
     "aha20.child.at_risk_other": ("AHA/ACC 2020 table, children of other families: 2-3 y", 0, 18, (24, 36), "V2"),
-    "aha20.adult.carrier": ("AHA/ACC 2020 table, adults: 3-5 y (2024 G+P- text: 3-5 y)", 18, None, (36, 60), "V2"),
+    "aha20.adult.carrier": ("AHA/ACC 2020 table, adults: 3-5 y (2020 §6.9 G+P-: 3-5 y [M])", 18, None, (36, 60), "V2"),
     "aha20.adult.at_risk": ("AHA/ACC 2020 table, adults at risk (untested): 3-5 y", 18, None, (36, 60), "V2"),
     "aha20.adult.at_risk_variant": ("AHA/ACC 2020 table, adults at risk (untested, P/LP family): 3-5 y", 18, None, (36, 60), "V2"),
     "aha20.borderline": ("borderline/uncertain phenotype: closer review 6-12 months (no AHA/ACC 2020 number; common practice)", 0, None, (6, 12), "common_practice"),
-    "aha20.release.non_carrier": ("AHA/ACC genotype-negative: no ongoing screening (3: No Benefit)", 0, None, "release", "M"),
-    "aha24.affected.scd_risk": ("AHA 2024 §7.2 Table 7: SCD risk assessment every 1-2 y", 0, None, (12, 24), "V"),
+    "aha20.release.non_carrier": ("AHA/ACC 2020 §6.8 rec 13 genotype-negative: no ongoing screening (3: No Benefit)", 0, None, "release", "M"),
+    "aha20.affected.scd_risk": ("AHA/ACC 2020 §7.1 SCD risk assessment at the initial evaluation, then every 1-2 y", 0, None, (12, 24), "M"),
 }
 
 AHA_ACC_2024_ROWS = {
@@ -172,6 +173,126 @@ def test_aha_has_no_stop_rule():
     """AHA/ACC: no stop age (from memory, verify); only ESC 2023 allows stopping."""
     rs = load_rule_set("aha_acc_2020")
     assert [r.id for r in rs.rules if r.action == "release"] == ["aha20.release.non_carrier"]
+
+
+# ------------------------------------------------------------------ one guideline per rule set
+
+# A year (1900-2099) in free text; ids such as ``esc_2023`` do not match.
+YEAR = re.compile(r"\b(?:19|20)\d{2}\b")
+
+
+def _sources_and_texts(rs):
+    """(where, source, [free texts]) for every rule, advice item, modifier and trigger."""
+    out = [(f"rule {r.id}", r.source, [r.text, r.caution]) for r in rs.rules]
+    out += [(f"advice {a.id}", a.source, [a.text]) for a in rs.advice]
+    out += [(f"modifier {c}", m.source, [m.text]) for c, m in rs.modifiers.items()]
+    out += [(f"trigger {c}", t.source, [t.text]) for c, t in rs.triggers.items()]
+    return out
+
+
+@pytest.mark.parametrize("rule_set_id", sorted(ROWS))
+def test_every_row_cites_only_its_own_guideline(rule_set_id):
+    """Guidelines are never blended: every source names the rule set's own guideline and year (or is common
+    practice), and no title, citation, text, caution, section or note names another year."""
+    rs = load_rule_set(rule_set_id)
+    assert set(available_rule_sets()) == set(ROWS)  # a new rule set gets this check too
+    foreign = []
+    for name in ("title", "citation", "verification"):
+        foreign += [f"header {name}: {y}" for y in YEAR.findall(getattr(rs, name)) if int(y) != rs.year]
+    for where, src, texts in _sources_and_texts(rs):
+        if src.tag != "common_practice":
+            assert (src.guideline, src.year) == (rs.guideline, rs.year), where
+        else:
+            assert src.year in (None, rs.year), where
+        for text in texts + [src.section, src.note]:
+            foreign += [f"{where}: {y}" for y in YEAR.findall(text) if int(y) != rs.year]
+    assert foreign == [], foreign
+
+
+@pytest.mark.parametrize("rule_set_id", sorted(ROWS))
+def test_rule_file_names_no_other_year_outside_cross_references(rule_set_id):
+    """Comments included: a line naming another year must be an explicit cross-reference."""
+    rs = load_rule_set(rule_set_id)
+    text = (resources.files("tracker.rules") / f"{rule_set_id}.toml").read_text(encoding="utf-8")
+    bad = [
+        (n, line)
+        for n, line in enumerate(text.splitlines(), 1)
+        if any(int(y) != rs.year for y in YEAR.findall(line)) and not re.search(r"cross[-_]reference", line, re.I)
+    ]
+    assert bad == [], bad
+
+
+@pytest.mark.parametrize("rule_set_id", sorted(ROWS))
+def test_row_ids_carry_the_rule_set_prefix(rule_set_id):
+    """Row ids name their own guideline and year (e.g. aha20.* in aha_acc_2020): no row moved in from another set."""
+    rs = load_rule_set(rule_set_id)
+    prefix = {"aha_acc_2020": "aha20.", "aha_acc_2024": "aha24.", "esc_2014": "esc14.", "esc_2023": "esc23."}[rule_set_id]
+    ids = [r.id for r in rs.rules] + [a.id for a in rs.advice]
+    assert [i for i in ids if not i.startswith(prefix)] == []
+
+
+def test_aha_2020_keeps_the_2020_positions():
+    """AHA/ACC 2020 alone: the affected row and the release rest on the 2020 text ([M], verify), never on the
+    later guideline; the return after a downgrade stays as a caution (common practice)."""
+    rs = load_rule_set("aha_acc_2020")
+    assert rs.title == "2020 AHA/ACC HCM guideline" and "e558-e631" in rs.citation
+    affected = rs.rule("aha20.affected.scd_risk")
+    assert (affected.source.guideline, affected.source.year, affected.source.tag) == ("AHA/ACC", 2020, "M")
+    assert affected.interval_months == (12, 24)
+    release = rs.rule("aha20.release.non_carrier")
+    assert release.source.year == 2020 and "rec 13" in release.source.section
+    assert "downgraded" in release.caution and "common practice" in release.caution
+    for code in ("pregnancy", "variant_reclassified"):
+        assert (rs.triggers[code].source.guideline, rs.triggers[code].source.year) == ("AHA/ACC", 2020), code
+
+
+def _with(data: dict, path: tuple, value) -> dict:
+    data = copy.deepcopy(data)
+    node = data
+    for key in path[:-1]:
+        node = node[key] if not isinstance(key, tuple) else next(r for r in node if r["id"] == key[1])
+    node[path[-1]] = value
+    return data
+
+
+@pytest.mark.parametrize(
+    "path,value,fragment",
+    [
+        (("rules", ("id", "aha20.adult.carrier"), "source", "year"), 2024, "rule aha20.adult.carrier: source year 2024"),
+        (
+            ("rules", ("id", "aha20.adult.carrier"), "source", "guideline"),
+            "AHA/ACC/AMSSM/HRS/PACES/SCMR",
+            "rule aha20.adult.carrier: source guideline",
+        ),
+        (
+            ("rules", ("id", "aha20.adult.carrier"), "source", "section"),
+            "adults 3-5 y; same in the 2024 text",
+            "rule aha20.adult.carrier: source section names year 2024",
+        ),
+        (
+            ("rules", ("id", "aha20.release.non_carrier"), "caution"),
+            "Return if the variant is downgraded (2024 text).",
+            "rule aha20.release.non_carrier: caution names year 2024",
+        ),
+        (("title",), "2020 AHA/ACC HCM guideline (with the 2024 text)", "header: title names year 2024"),
+        (("triggers", "pregnancy", "source", "year"), 2024, "trigger pregnancy: source year 2024"),
+        (("modifiers", "progression", "source", "section"), "the 2024 text", "modifier progression: source section"),
+    ],
+)
+def test_another_guideline_year_is_refused(path, value, fragment):
+    _expect_error(_with(_raw("aha_acc_2020"), path, value), fragment)
+
+
+def test_cross_reference_field_is_allowed_and_shown():
+    """A study cited for context goes in cross_reference: loaded, and shown in the source label."""
+    data = _with(
+        _raw("aha_acc_2020"),
+        ("rules", ("id", "aha20.adult.carrier"), "source", "cross_reference"),
+        "invented study, 2019",
+    )
+    rule = build_rule_set(data, origin="test").rule("aha20.adult.carrier")
+    assert rule.source.cross_reference == "invented study, 2019"
+    assert "cross-reference: invented study, 2019" in rule.source.label
 
 
 # ------------------------------------------------------------------ validation

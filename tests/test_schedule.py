@@ -1,7 +1,7 @@
 """Recall proposals against guideline rows, age-band edges, modifiers, triggers and statuses.
 
 Guideline rows are named beside each check (ESC 2023 = 2023 ESC cardiomyopathy
-guideline; AHA/ACC 2020 = 2020 AHA/ACC HCM guideline with the 2024 G+P- text;
+guideline; AHA/ACC 2020 = 2020 AHA/ACC HCM guideline alone;
 ESC 2014 = 2014 ESC HCM guideline, every value from memory, verify).
 All people are invented.
 """
@@ -292,7 +292,7 @@ def test_not_at_risk_is_not_scheduled():
     "rs,rule_id,row",
     [
         (ESC23, "esc23.release.non_carrier", "ESC 2023 genotype-negative: discharge with advice to return (I C) [V]"),
-        (AHA, "aha20.release.non_carrier", "AHA/ACC genotype-negative: no ongoing screening [M]; 2024 downgrade exception [V2]"),
+        (AHA, "aha20.release.non_carrier", "AHA/ACC 2020 genotype-negative: no ongoing screening [M]; return after a downgrade (common practice)"),
         (ESC14, "esc14.release.non_carrier", "ESC 2014 genotype-negative: discharge (IIa C) [M]"),
     ],
 )
@@ -362,9 +362,10 @@ def test_affected_without_visit_or_diagnosis_date_is_due_today():
 
 
 def test_affected_aha_scd_risk_every_1_to_2_years():
-    """AHA 2024 §7.2 / Table 7: SCD risk assessment at the first visit, then every 1-2 y [V]."""
+    """AHA/ACC 2020 §7.1: SCD risk assessment at the initial evaluation, then every 1-2 y [M, from memory, verify]."""
     p = plan(person(40, phenotype="positive"), AHA, "longest")
-    assert p.rule_id == "aha24.affected.scd_risk" and p.interval_months == 24
+    assert p.rule_id == "aha20.affected.scd_risk" and p.interval_months == 24
+    assert "verify" in p.flags
 
 
 # -------------------------------------------------------------- never seen

@@ -9,12 +9,18 @@ and the people with any study or genetic test on record.
 
 Each guideline is its own rule set (never blended):
 
-``aha_acc_2020``      2020 AHA/ACC HCM guideline, restated in the 2024
-                      AHA/ACC/AMSSM/HRS/PACES/SCMR guideline: all first-degree
-                      relatives are offered clinical screening (ECG + echo)
-                      and cascade testing when the proband has a P/LP variant
-                      (1 B-NR); genetic or clinical screening can start at any
-                      age, with expert counselling and shared decisions [V].
+``aha_acc_2020``      2020 AHA/ACC HCM guideline (Ommen et al., Circulation
+                      2020): all first-degree relatives are offered clinical
+                      screening (ECG + echo) and cascade testing when the
+                      proband has a P/LP variant (section 6.8 rec 6, 1 B-NR);
+                      screening can start at any age, with expert counselling
+                      and shared decisions [M, from memory, verify].
+``aha_acc_2024``      2024 AHA/ACC/AMSSM/HRS/PACES/SCMR HCM guideline (Ommen et
+                      al., J Am Coll Cardiol 2024): the same offer to
+                      first-degree relatives (section 6.8 rec 6, 1 B-NR);
+                      screening can begin at any age (key point 3) [V];
+                      genotype-negative relatives leave clinical screening
+                      unless the variant is downgraded (rec 13) [V2].
 ``esc_2023``          2023 ESC cardiomyopathy guidelines: first-degree relatives
                       screened with ECG and imaging, cascade testing where a
                       disease-causing variant is known; no minimum age for

@@ -10,6 +10,8 @@ set per guideline (data file ``data/hcm_criteria.toml``); never blended.
   >= 15 mm; 13-14 mm diagnostic in family members or genotype-positive
   people; child z > 2.5 without, z > 2 with family history or a positive
   genetic test.
+- ``aha_acc_2024``: 2024 AHA/ACC/AMSSM/HRS/PACES/SCMR HCM guideline (Ommen et
+  al.) [V2]: the same thresholds as 2020, kept as a rule set of its own.
 
 Engineering choices: the child rule applies under 18 y (the age of the
 paediatric z-score sets; neither guideline text in the project's notes gives

@@ -38,6 +38,7 @@ from tracker.rules.model import (
     build_rule_set,
     check_age_bands,
     check_phenotype_states,
+    check_single_guideline,
 )
 
 __all__ = [
@@ -63,6 +64,7 @@ __all__ = [
     "build_rule_set",
     "check_age_bands",
     "check_phenotype_states",
+    "check_single_guideline",
     "list_rule_sets",
     "load_rule_set",
     "load_rule_set_file",

@@ -14,6 +14,11 @@ incomplete or inconsistent:
   conditions apart from age must not have overlapping bands;
 * every code (genotype, phenotype, family feature, visit need, trigger) is one
   of the vocabularies below;
+* one guideline per rule set (:func:`check_single_guideline`): every source
+  names the rule set's own guideline and year (or common practice), and no
+  title, citation, text, caution, section or note names another year; a study
+  or another document cited only for context goes in the source's separate
+  ``cross_reference`` field, shown as such;
 * phenotype states are kept apart (:func:`check_phenotype_states`): a rule or
   advice item whose text says phenotype-negative (``phenotype negative``,
   ``G+P-``, ``without the phenotype``) must accept phenotype ``negative``
@@ -122,17 +127,19 @@ class Source:
     section: str
     tag: str
     note: str = ""
+    cross_reference: str = ""  # a study or other document cited for context only, not the rule's basis
 
     @property
     def label(self) -> str:
         """Short text for display, e.g. ``ESC 2023, §6.11 [V]``."""
+        xref = f" (cross-reference: {self.cross_reference})" if self.cross_reference else ""
         if self.tag == "common_practice":
-            return _TAG_TEXT[self.tag] + (f" ({self.section})" if self.section else "")
+            return _TAG_TEXT[self.tag] + (f" ({self.section})" if self.section else "") + xref
         head = self.guideline if self.year is None or str(self.year) in self.guideline else f"{self.guideline} {self.year}"
         parts = [head]
         if self.section:
             parts.append(self.section)
-        return ", ".join(parts) + " " + _TAG_TEXT[self.tag]
+        return ", ".join(parts) + " " + _TAG_TEXT[self.tag] + xref
 
     @property
     def needs_verification(self) -> bool:
@@ -322,7 +329,18 @@ def _source(data: Any, errors: list[str], where: str) -> Source:
             year = None
         if not section:
             errors.append(f"{where}: source has no section/table")
-    return Source(str(guideline), year if isinstance(year, int) else None, str(section), tag, str(data.get("note", "")))
+    xref = data.get("cross_reference", "")
+    if not isinstance(xref, str):
+        errors.append(f"{where}: cross_reference must be text")
+        xref = ""
+    return Source(
+        str(guideline),
+        year if isinstance(year, int) else None,
+        str(section),
+        tag,
+        str(data.get("note", "")),
+        xref,
+    )
 
 
 def _conditions(data: Any, errors: list[str], where: str) -> Conditions:
@@ -499,6 +517,63 @@ def check_phenotype_states(rules: Iterable[Rule], advice: Iterable[Advice] = ())
     return errors
 
 
+# A year (1900-2099) written in free text; rule-set ids such as ``esc_2023`` do not match.
+YEAR_WORDING = re.compile(r"\b(?:19|20)\d{2}\b")
+
+
+def check_single_guideline(rule_set: RuleSet) -> list[str]:
+    """Problems where a rule set draws on a guideline other than its own.
+
+    * a source that is not common practice must name the rule set's guideline
+      and year; a common-practice source may carry no year, or the rule set's;
+    * the title, citation, verification text, and every rule, caution, advice,
+      modifier and trigger text, source section and note may name no year
+      other than the rule set's.  Studies or other documents cited for context
+      belong in a source's ``cross_reference`` field, which is not checked.
+    """
+    errors: list[str] = []
+    own = rule_set.year
+
+    def years(where: str, field_name: str, text: str) -> None:
+        other = sorted({m for m in YEAR_WORDING.findall(text) if int(m) != own})
+        if other:
+            errors.append(
+                f"{where}: {field_name} names year {', '.join(other)}, not this rule set's {own}; "
+                "each guideline is its own rule set (put a study cited for context in cross_reference)"
+            )
+
+    def source(where: str, src: Source) -> None:
+        if src.tag != "common_practice":
+            if src.year != own:
+                errors.append(f"{where}: source year {src.year} is not this rule set's year {own}")
+            if src.guideline != rule_set.guideline:
+                errors.append(
+                    f"{where}: source guideline {src.guideline!r} is not this rule set's {rule_set.guideline!r}"
+                )
+        elif src.year is not None and src.year != own:
+            errors.append(f"{where}: source year {src.year} is not this rule set's year {own}")
+        years(where, "source section", src.section)
+        years(where, "source note", src.note)
+
+    for name in ("title", "citation", "verification"):
+        years("header", name, getattr(rule_set, name))
+    for r in rule_set.rules:
+        where = f"rule {r.id}"
+        years(where, "text", r.text)
+        years(where, "caution", r.caution)
+        source(where, r.source)
+    for a in rule_set.advice:
+        where = f"advice {a.id}"
+        years(where, "text", a.text)
+        source(where, a.source)
+    for kind, items in (("modifier", rule_set.modifiers), ("trigger", rule_set.triggers)):
+        for code, item in items.items():
+            where = f"{kind} {code}"
+            years(where, "text", item.text)
+            source(where, item.source)
+    return errors
+
+
 def build_rule_set(data: Mapping[str, Any], origin: str = "<data>") -> RuleSet:
     """Validate parsed rule-set data and return a :class:`RuleSet`.
 
@@ -576,7 +651,7 @@ def build_rule_set(data: Mapping[str, Any], origin: str = "<data>") -> RuleSet:
 
     if errors:
         raise RuleSetError(origin, errors)
-    return RuleSet(
+    rule_set = RuleSet(
         id=str(data["id"]),
         title=str(data["title"]),
         guideline=str(data["guideline"]),
@@ -589,3 +664,7 @@ def build_rule_set(data: Mapping[str, Any], origin: str = "<data>") -> RuleSet:
         advice=tuple(advice),
         child_adult_age=child_adult,
     )
+    errors.extend(check_single_guideline(rule_set))
+    if errors:
+        raise RuleSetError(origin, errors)
+    return rule_set
