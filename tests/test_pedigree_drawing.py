@@ -378,10 +378,18 @@ def _resembles(token: str, code: str) -> bool:
 @pytest.mark.parametrize("family", DEMO_FAMILIES + tuple(INVENTED))
 @pytest.mark.parametrize("names", [False, True])
 def test_no_printed_label_resembles_another_persons_code(frames, family, names, tmp_path):
-    from tracker.outputs.pedigree_drawing import drawing_marks
-
     ped, marks, layout, pdf = _drawing(frames, family, tmp_path, names)
     codes = list(ped.people)
+    # on the whole page: every token that looks like a code is a code (warnings may name a person again)
+    tokens = re.split(r"[\s,;()]+", _text(pdf))
+    for code in codes:
+        near = [t for t in tokens if _resembles(t, code)]
+        assert code in near and set(near) == {code}, (code, near)
+    for p in codes:  # the code is always printed (names only add to it)
+        assert p in marks[p].lines
+    # under each symbol: nothing that looks like another person's code
+    from tracker.outputs.pedigree_drawing import drawing_marks
+
     for mk in drawing_marks(layout, marks):
         if mk.text is None:
             continue
@@ -389,13 +397,6 @@ def test_no_printed_label_resembles_another_persons_code(frames, family, names, 
             for code in codes:
                 if code != mk.person and _resembles(token, code):
                     raise AssertionError(f"{token!r} printed for {mk.person} looks like {code}")
-    # on the whole page: every token that looks like a code is a code, printed once, under its owner
-    tokens = re.split(r"[\s,;()]+", _text(pdf))
-    for code in codes:
-        near = [t for t in tokens if _resembles(t, code)]
-        assert code in near and set(near) == {code}, (code, near)  # warnings may name a person again
-    for p in codes:  # the code is always printed (names only add to it)
-        assert p in marks[p].lines
 
 
 def _independent_overlaps(marks_list) -> list[str]:
