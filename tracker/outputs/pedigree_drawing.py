@@ -11,31 +11,45 @@ section 1 [V] unless marked):
   convention) and, where a gender identity is recorded, it is printed under
   the symbol together with the sex assigned at birth (e.g. "gender: woman,
   AMAB").  This choice is stated in the legend.
-* **Affected** (latest assessment ``affected``) filled; **unaffected** open;
-  ``?`` inside an open symbol when the latest assessment is ``uncertain``, or
-  when a blood relative of the proband has never been assessed (affection
-  unknown; a married-in or adopted-in relative never assessed is drawn open).
+* **Affected** (latest assessment ``affected``) filled; otherwise open.
   Only clinical affection fills a symbol: a genotype-positive relative with a
-  normal echo is not shaded [V].
-* **Deceased**: diagonal slash.  **Proband**: arrow at the lower left with
-  "P".
-* **Carriers** (2008 marks): a vertical line through the symbol for a
+  normal echo is not shaded [V].  ``?`` inside an open symbol means
+  "affection unknown" [V] and is used for one thing only: a person **at risk**
+  who has never been evaluated.  At risk: with a pathogenic or likely
+  pathogenic family variant, anyone whose genotype is carrier, at risk or
+  uncertain (tested or inferred non-carriers and relatives outside the
+  variant's line are not); without one, blood relatives of an affected person
+  or of the proband.  A married-in or adopted-in relative who is not at risk
+  and was never evaluated is drawn open with no evaluation text.
+* **Evaluations** (2008: ``E`` defined in the legend, ``E1``, ``E2`` for
+  several, result in parentheses, ``u`` uninformative [V]): ``E1`` = the
+  latest clinical cardiac evaluation: ``E1+`` affected, ``E1-`` not
+  affected, ``E1u`` equivocal (phenotype uncertain; open symbol, no ``?``),
+  year in parentheses.  ``E2`` = the genetic test for the family variant:
+  ``E2+ (MYBPC3 c.1504C>T)`` carrier, ``E2-`` non-carrier, ``E2u``
+  inconclusive, ``E2- (panel: no variant found)``; a variant that is not
+  pathogenic or likely pathogenic carries its class (``, VUS``).
+* **Deceased**: diagonal slash; under the symbol ``d.`` with the age at death
+  (the person field ``death_age``, else worked out from the dates, ``~`` when
+  approximate), the year, and the cause (``death_cause``) when recorded:
+  ``d. 41 y (1979), sudden``.  **Proband**: arrow at the lower left with "P".
+* **Carriers** (2008 marks): a vertical line inside the symbol for a
   presymptomatic carrier (tested carrier, or monozygotic co-twin of one, not
   affected) of a pathogenic or likely pathogenic variant; a dot in the centre
   for an obligate carrier (inferred, untested) who is not affected.  The 2022
   revision changed how carrier status is shown; its new marks were not
   re-read for this project (from memory, verify), so the test result is
   always printed as text as well (standards.md 1a).
-* **Evaluation text** (2008): ``E`` is the genetic test for the family
-  variant: ``E+ (MYBPC3 c.1504C>T)`` carrier, ``E- (...)`` non-carrier,
-  ``Eu (...)`` uninformative (inconclusive); a panel that found no variant:
-  ``E- (panel: no variant found)``.  A variant that is not pathogenic or
-  likely pathogenic carries its class: ``E+ (TNNI3 c.508C>T, VUS)``.
-* **Text under a symbol**, in the standard order: birth year or death (age
-  at death), evaluation, individual number (``II-3``); above them the
-  person code (or the name, only with ``names=True``), and any gender
-  identity.  **Placeholders** (drawn only to connect the pedigree) are
-  ordinary symbols with no clinical text: code and number only.
+* **Every mark legible on its own** (:func:`symbol_marks`): the carrier line
+  stops short of the outline (it never runs on from a line of descent); a
+  ``?`` beside a carrier mark moves to the left half; the slash is broken
+  where it would cross the dot, the ``?`` or the carrier line, stops above
+  the text, and shows white across a filled symbol.
+* **Text under a symbol**: the name (only with ``names=True``), the person
+  code (always: the identifier every other output uses; generation-position
+  numbers such as ``II-3`` are not printed because they read like person
+  codes), birth year, death, gender identity, evaluations.
+  **Placeholders** (drawn only to connect the pedigree) show their code only.
 * Generations in Roman numerals at the left; a legend of every symbol used;
   the family code, the date drawn (ISO 8601) and "Drawn by tracker".
 

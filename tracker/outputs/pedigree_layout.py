@@ -44,7 +44,13 @@ docs/reference/standards.md section 1b):
   no adoptive parents recorded is drawn apart with a warning.
 * **Numbering**: individuals are numbered 1, 2, 3... left to right in each
   generation; generations are numbered I, II, III... from the top (label
-  ``II-3``).  Numbers are layout positions, not person codes.
+  ``II-3``).  Numbers are layout positions, not person codes; the drawing
+  does not print them (they read like person codes).
+* **Partners clear of sibship lines**: siblings with partners stand at the
+  ends of their sibship, partners on the outer side, so that no partner
+  stands under a sibship line (a change of birth order is noted); where more
+  siblings have partners than there are ends, a note names who stands under
+  the line.
 * The side on which a partner stands is the layout's choice (the 2022 revision
   dropped "male partner on the left" [V]); the default puts a partner to the
   right of the blood relative.
