@@ -516,3 +516,11 @@ def test_cause_and_age_of_death_under_a_deceased_symbol():
     bare = people.drop(columns=["death_cause", "death_age"])
     m2 = pedigree_marks(Pedigree(bare), bare)
     assert "d. ~50 y (1970)" in m2["CR9-III-1"].lines
+
+
+def test_a_change_of_birth_order_is_written_on_the_page(frames, tmp_path):
+    # HV03: the proband (born 1958) has a partner, so he stands at the end of his sibship, after his
+    # younger sister (born 1961); the page says why the siblings are not in birth order
+    d = write_pedigree_pdf(tmp_path / "p.pdf", "HV03", drawn_on=DRAWN, **frames)
+    text = " ".join(_text(d.path).split())
+    assert "Layout notes: children of HV03-I-2 and HV03-I-1 are not all in birth order" in text

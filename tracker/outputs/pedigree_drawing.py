@@ -907,10 +907,12 @@ def draw_pedigree(
     warn = list(layout.warnings)
     if warn:
         foot.append("Layout warnings: " + " | ".join(warn))
+    if layout.notes:  # e.g. siblings out of birth order so that partners stand clear of a sibship line
+        foot.append("Layout notes: " + " | ".join(layout.notes))
     lines: list[str] = []
     for f in foot:
         lines += _wrap_words(f, FONT, 7, W - 2 * MARGIN)
-    for line in lines[:5]:
+    for line in lines[:6]:
         c.drawString(MARGIN, fy, line)
         fy -= 8.5
     return [w.replace("\n", " ") for _, w in entries]

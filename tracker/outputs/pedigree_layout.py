@@ -793,40 +793,38 @@ class _Orderer:
 
     def _partnered_to_ends(self, items: list, fixed: list[bool], ends: str) -> list:
         """Move siblings who have partners to the free ends of the sibship, so that no partner
-        stands under the sibship line (a birth-order change is noted by the layout).  Items
-        already placed at an end for another reason (``fixed``) stay."""
-        if len(items) < 2:
+        stands under the sibship line.  Items already placed at an end for another reason
+        (``fixed``) stay; siblings with a recorded partner come before those with only an
+        unrecorded one; among equals, those already at an end stay; the others keep their
+        birth order (a change is noted by the layout).  ``ends``: the ends of the sibship these
+        items hold ('both', 'left', 'right')."""
+        n = len(items)
+        if n < 2:
             return items
-        items = list(items)
-        fixed = list(fixed)
-        lo = 1 if ends in ("left", "both") else 0
-        hi = len(items) - 1 if ends in ("right", "both") else len(items)
 
         def partnered(item) -> int:  # 2: a recorded partner; 1: only an unrecorded one (a short line)
             return max((2 if any(not t.startswith("~") for t in self.s.chains[cc] if t not in arr) else
                         1 if len(self.s.chains[cc]) > 1 else 0) for cc, arr in item)
 
-        for side in ("left", "right"):
-            if ends not in (side, "both"):
-                continue
-            e = 0 if side == "left" else len(items) - 1
-            if fixed[e]:
-                continue
-            middle = [i for i in range(lo, hi) if i != e and not fixed[i] and partnered(items[i]) > partnered(items[e])]
-            if not middle:
-                continue
-            best = max(partnered(items[i]) for i in middle)
-            middle = [i for i in middle if partnered(items[i]) == best]
-            i = middle[0] if side == "left" else middle[-1]
-            it = items.pop(i)
-            fixed.pop(i)
-            if side == "left":
-                items.insert(0, it)
-                fixed.insert(0, True)
-            else:
-                items.append(it)
-                fixed.append(True)
-        return items
+        slots = [e for side, e in (("left", 0), ("right", n - 1)) if ends in (side, "both") and not fixed[e]]
+        weights = [partnered(it) for it in items]
+        cands = [i for i in range(n) if weights[i] > 0 and not fixed[i]]
+        if not slots or not cands:
+            return items
+        chosen = sorted(cands, key=lambda i: (-weights[i], i not in slots, i))[: len(slots)]
+        chosen.sort()
+        if len(chosen) == len(slots):
+            place = dict(zip(sorted(slots), chosen))
+        else:  # one sibling for two free ends: the nearer end
+            i = chosen[0]
+            place = {min(slots, key=lambda e: abs(e - i)): i}
+        if all(e == i for e, i in place.items()):
+            return items
+        left = place.get(0) if 0 in place else None
+        right = place.get(n - 1) if (n - 1) in place and n - 1 != 0 else None
+        middle = [it for k, it in enumerate(items) if k not in (left, right)]
+        out = ([items[left]] if left is not None else []) + middle + ([items[right]] if right is not None else [])
+        return out
 
     def _down(self, uid: str, allowed: str) -> _Built:
         s = self.s
