@@ -524,3 +524,12 @@ def test_a_change_of_birth_order_is_written_on_the_page(frames, tmp_path):
     d = write_pedigree_pdf(tmp_path / "p.pdf", "HV03", drawn_on=DRAWN, **frames)
     text = " ".join(_text(d.path).split())
     assert "Layout notes: children of HV03-I-2 and HV03-I-1 are not all in birth order" in text
+
+
+def test_long_layout_warnings_and_notes_are_printed_in_full(tmp_path):
+    # the consanguineous invented family has long warnings and notes: none is cut off
+    d = write_pedigree_pdf(tmp_path / "p.pdf", "CR9", drawn_on=DRAWN, **crowded_family())
+    text = " ".join(_text(d.path).split())
+    assert d.warnings and d.notes
+    for words in (*d.warnings, *d.notes):
+        assert " ".join(words.split()) in text

@@ -819,7 +819,19 @@ def draw_pedigree(
         c.setFont(FONT, 9)
         c.drawString(MARGIN, top - 26, subtitle)
     header_bottom = top - 36
-    footer_top = MARGIN + 44
+    foot = [
+        f"Family {family}. Drawn {drawn_on.isoformat()} by tracker. "
+        + ("Names shown on request; handle as identifiable." if names else "Person codes only; no names."),
+        CAUTION,
+    ]
+    if layout.warnings:
+        foot.append("Layout warnings: " + " | ".join(layout.warnings))
+    if layout.notes:  # e.g. siblings out of birth order so that partners stand clear of a sibship line
+        foot.append("Layout notes: " + " | ".join(layout.notes))
+    foot_lines: list[str] = []
+    for f in foot:
+        foot_lines += _wrap_words(f, FONT, 7, W - 2 * MARGIN)
+    footer_top = MARGIN + 10 + 8.5 * max(len(foot_lines), 4)
 
     # legend panel
     lx = W - MARGIN - LEGEND_WIDTH
@@ -896,23 +908,10 @@ def draw_pedigree(
             yl = pp.label_box.y0 + (i + 0.8) * LABEL_LINE
             c.drawCentredString(pg.x(pp.x), pg.y(yl), line)
 
-    # footer
+    # footer (every line of it: the pedigree area gives way when there are many)
     c.setFont(FONT, 7)
-    fy = MARGIN + 34
-    foot = [
-        f"Family {family}. Drawn {drawn_on.isoformat()} by tracker. "
-        + ("Names shown on request; handle as identifiable." if names else "Person codes only; no names."),
-        CAUTION,
-    ]
-    warn = list(layout.warnings)
-    if warn:
-        foot.append("Layout warnings: " + " | ".join(warn))
-    if layout.notes:  # e.g. siblings out of birth order so that partners stand clear of a sibship line
-        foot.append("Layout notes: " + " | ".join(layout.notes))
-    lines: list[str] = []
-    for f in foot:
-        lines += _wrap_words(f, FONT, 7, W - 2 * MARGIN)
-    for line in lines[:6]:
+    fy = footer_top - 10
+    for line in foot_lines:
         c.drawString(MARGIN, fy, line)
         fy -= 8.5
     return [w.replace("\n", " ") for _, w in entries]
