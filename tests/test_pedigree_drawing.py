@@ -343,6 +343,17 @@ def many_siblings_family() -> dict:
 INVENTED = {"CR9": crowded_family, "MS": many_siblings_family}
 
 
+def test_a_carrier_never_evaluated_is_not_drawn_as_clinically_unaffected():
+    # the presymptomatic-carrier line means "clinically unaffected at this time" (2008): a tested
+    # carrier who was never evaluated shows "?" and the E2+ text, not the line
+    fr = many_siblings_family()
+    people = fr["people"]
+    m = pedigree_marks(Pedigree(people), people, fr["genetic_results"], fr["assessments"], fr["variants"])
+    assert m["MS-20"].affection == "unknown" and m["MS-20"].carrier_mark is None
+    assert "E2+ (MYBPC3 c.1504C>T)" in m["MS-20"].lines
+    assert m["MS-24"].affection == "affected" and m["MS-24"].carrier_mark is None
+
+
 def _family_frames(frames, family):
     if family in INVENTED:
         return INVENTED[family]()

@@ -34,8 +34,9 @@ section 1 [V] unless marked):
   approximate), the year, and the cause (``death_cause``) when recorded:
   ``d. 41 y (1979), sudden``.  **Proband**: arrow at the lower left with "P".
 * **Carriers** (2008 marks): a vertical line inside the symbol for a
-  presymptomatic carrier (tested carrier, or monozygotic co-twin of one, not
-  affected) of a pathogenic or likely pathogenic variant; a dot in the centre
+  presymptomatic carrier (tested carrier, or monozygotic co-twin of one,
+  evaluated and not affected) of a pathogenic or likely pathogenic variant (a
+  carrier never evaluated shows ``?`` and the ``E2+`` text instead); a dot in the centre
   for an obligate carrier (inferred, untested) who is not affected.  The 2022
   revision changed how carrier status is shown; its new marks were not
   re-read for this project (from memory, verify), so the test result is
@@ -351,7 +352,10 @@ def pedigree_marks(
                 lines.append(f"{E1_SIGN.get(seen[0], 'E1?')}{when}")
             lines += _evaluation_lines(fam_results, p, all_variants)
             if actionable and st.status == "carrier" and aff != "affected":
-                mark = "obligate" if st.basis == "obligate" else "presymptomatic"
+                if st.basis == "obligate":
+                    mark = "obligate"
+                elif aff != "unknown":  # "presymptomatic" says clinically unaffected: only after an evaluation
+                    mark = "presymptomatic"
             if st.basis == "obligate":
                 lines.append("obligate carrier")
             elif st.basis == "mz_co_twin":
