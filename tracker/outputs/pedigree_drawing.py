@@ -11,31 +11,46 @@ section 1 [V] unless marked):
   convention) and, where a gender identity is recorded, it is printed under
   the symbol together with the sex assigned at birth (e.g. "gender: woman,
   AMAB").  This choice is stated in the legend.
-* **Affected** (latest assessment ``affected``) filled; **unaffected** open;
-  ``?`` inside an open symbol when the latest assessment is ``uncertain``, or
-  when a blood relative of the proband has never been assessed (affection
-  unknown; a married-in or adopted-in relative never assessed is drawn open).
+* **Affected** (latest assessment ``affected``) filled; otherwise open.
   Only clinical affection fills a symbol: a genotype-positive relative with a
-  normal echo is not shaded [V].
-* **Deceased**: diagonal slash.  **Proband**: arrow at the lower left with
-  "P".
-* **Carriers** (2008 marks): a vertical line through the symbol for a
-  presymptomatic carrier (tested carrier, or monozygotic co-twin of one, not
-  affected) of a pathogenic or likely pathogenic variant; a dot in the centre
+  normal echo is not shaded [V].  ``?`` inside an open symbol means
+  "affection unknown" [V] and is used for one thing only: a person **at risk**
+  who has never been evaluated.  At risk: with a pathogenic or likely
+  pathogenic family variant, anyone whose genotype is carrier, at risk or
+  uncertain (tested or inferred non-carriers and relatives outside the
+  variant's line are not); without one, blood relatives of an affected person
+  or of the proband.  A married-in or adopted-in relative who is not at risk
+  and was never evaluated is drawn open with no evaluation text.
+* **Evaluations** (2008: ``E`` defined in the legend, ``E1``, ``E2`` for
+  several, result in parentheses, ``u`` uninformative [V]): ``E1`` = the
+  latest clinical cardiac evaluation: ``E1+`` affected, ``E1-`` not
+  affected, ``E1u`` equivocal (phenotype uncertain; open symbol, no ``?``),
+  year in parentheses.  ``E2`` = the genetic test for the family variant:
+  ``E2+ (MYBPC3 c.1504C>T)`` carrier, ``E2-`` non-carrier, ``E2u``
+  inconclusive, ``E2- (panel: no variant found)``; a variant that is not
+  pathogenic or likely pathogenic carries its class (``, VUS``).
+* **Deceased**: diagonal slash; under the symbol ``d.`` with the age at death
+  (the person field ``death_age``, else worked out from the dates, ``~`` when
+  approximate), the year, and the cause (``death_cause``) when recorded:
+  ``d. 41 y (1979), sudden``.  **Proband**: arrow at the lower left with "P".
+* **Carriers** (2008 marks): a vertical line inside the symbol for a
+  presymptomatic carrier (tested carrier, or monozygotic co-twin of one,
+  evaluated and not affected) of a pathogenic or likely pathogenic variant (a
+  carrier never evaluated shows ``?`` and the ``E2+`` text instead); a dot in the centre
   for an obligate carrier (inferred, untested) who is not affected.  The 2022
   revision changed how carrier status is shown; its new marks were not
   re-read for this project (from memory, verify), so the test result is
   always printed as text as well (standards.md 1a).
-* **Evaluation text** (2008): ``E`` is the genetic test for the family
-  variant: ``E+ (MYBPC3 c.1504C>T)`` carrier, ``E- (...)`` non-carrier,
-  ``Eu (...)`` uninformative (inconclusive); a panel that found no variant:
-  ``E- (panel: no variant found)``.  A variant that is not pathogenic or
-  likely pathogenic carries its class: ``E+ (TNNI3 c.508C>T, VUS)``.
-* **Text under a symbol**, in the standard order: birth year or death (age
-  at death), evaluation, individual number (``II-3``); above them the
-  person code (or the name, only with ``names=True``), and any gender
-  identity.  **Placeholders** (drawn only to connect the pedigree) are
-  ordinary symbols with no clinical text: code and number only.
+* **Every mark legible on its own** (:func:`symbol_marks`): the carrier line
+  stops short of the outline (it never runs on from a line of descent); a
+  ``?`` beside a carrier mark moves to the left half; the slash is broken
+  where it would cross the dot, the ``?`` or the carrier line, stops above
+  the text, and shows white across a filled symbol.
+* **Text under a symbol**: the name (only with ``names=True``), the person
+  code (always: the identifier every other output uses; generation-position
+  numbers such as ``II-3`` are not printed because they read like person
+  codes), birth year, death, gender identity, evaluations.
+  **Placeholders** (drawn only to connect the pedigree) show their code only.
 * Generations in Roman numerals at the left; a legend of every symbol used;
   the family code, the date drawn (ISO 8601) and "Drawn by tracker".
 
@@ -63,7 +78,7 @@ from reportlab.pdfgen import canvas
 from tracker.domain.dates import PartialDate, completed_years, parse_partial_date
 from tracker.domain.genetics import ACTIONABLE_CLASSES, genotype_statuses
 from tracker.domain.pedigree import Pedigree, _blank  # one definition of an empty cell
-from tracker.outputs.pedigree_layout import PedigreeLayout, PlacedPerson, layout_pedigree, roman
+from tracker.outputs.pedigree_layout import Box, PedigreeLayout, PlacedPerson, layout_pedigree, roman
 
 FONT = "Helvetica"
 FONT_BOLD = "Helvetica-Bold"
@@ -98,11 +113,13 @@ CAUTION = (
 class PersonMarks:
     """What is drawn for one person.
 
-    ``shape``: 'square', 'circle', 'diamond'.  ``affection``: 'affected',
-    'unaffected', 'uncertain' (shown '?').  ``carrier_mark``:
-    'presymptomatic' (vertical line), 'obligate' (dot) or None.  ``lines``:
-    the text under the symbol, top to bottom, without the individual number
-    (added from the layout)."""
+    ``shape``: 'square', 'circle', 'diamond'.  ``affection``: 'affected'
+    (filled), 'unaffected' (open: latest evaluation normal, or not at risk and
+    never evaluated), 'uncertain' (open; latest evaluation equivocal, written
+    ``E1u``) or 'unknown' (``?`` inside: at risk and never evaluated).
+    ``carrier_mark``: 'presymptomatic' (vertical line), 'obligate' (dot) or
+    None.  ``lines``: the text under the symbol, top to bottom (the person
+    code is always one of them)."""
 
     person: str
     shape: str
@@ -113,6 +130,7 @@ class PersonMarks:
     adopted: str | None
     carrier_mark: str | None
     lines: tuple[str, ...]
+    at_risk: bool = False
 
 
 @dataclass(frozen=True)
@@ -176,40 +194,70 @@ def family_variant(variants: pd.DataFrame | None, family: str) -> FamilyVariant 
     return min(found, key=lambda v: order.index(v.acmg_class) if v.acmg_class in order else len(order))
 
 
-def _latest_affection(assessments: pd.DataFrame | None, people: set[str]) -> dict[str, str]:
+def _latest_assessment(assessments: pd.DataFrame | None, people: set[str]) -> dict[str, tuple[str, str | None]]:
+    """Person -> (affected status, ISO date) of the latest clinical assessment."""
     if assessments is None or len(assessments) == 0:
         return {}
     a = assessments[assessments["person"].isin(people)]
     a = a.sort_values(["person", "assessment_date"], kind="stable")
     out = {}
     for p, grp in a.groupby("person", sort=False):
-        status = _text(grp.iloc[-1]["affected_status"])
+        last = grp.iloc[-1]
+        status = _text(last["affected_status"])
         if status:
-            out[p] = status
+            out[p] = (status, _text(last.get("assessment_date")))
     return out
 
 
-def _life_line(row: Mapping) -> str | None:
+# Cause of death as recorded (person field ``death_cause``) -> words under the symbol.
+DEATH_CAUSE_TEXT = {
+    "sudden": "sudden",
+    "cardiac_non_sudden": "cardiac, not sudden",
+    "non_cardiac": "non-cardiac",
+    "unknown": "cause unknown",
+}
+
+
+def _death_age(row: Mapping, birth: PartialDate | None, death: PartialDate | None) -> str | None:
+    """'41 y' from the recorded age at death; '~41 y' when only worked out from partial dates."""
+    recorded = row.get("death_age")
+    if not _blank(recorded):
+        return f"{int(float(recorded))} y"
+    if birth and death:
+        exact = birth.precision == "day" and death.precision == "day"
+        years = completed_years(birth.value, death.value) if exact else death.year - birth.year
+        return f"{'' if exact else '~'}{years} y"
+    return None
+
+
+def _life_lines(row: Mapping) -> list[str]:
+    """Birth year; for the deceased 'd. 41 y (1979), sudden' (nomenclature: "d." with the age at
+    death, cause after it)."""
     birth = _partial(row.get("birth_date"))
     death = _partial(row.get("death_date"))
     status = _text(row.get("vital_status")) or "unknown"
+    lines = [f"b. {birth.year}"] if birth else []
     if status != "deceased":
-        return f"b. {birth.year}" if birth else None
-    parts = [f"b. {birth.year}"] if birth else []
-    if death:
-        age = ""
-        if birth:
-            exact = birth.precision == "day" and death.precision == "day"
-            years = completed_years(birth.value, death.value) if exact else death.year - birth.year
-            age = f" ({'' if exact else '~'}{years} y)"
-        parts.append(f"d. {death.year}{age}")
-    else:
-        parts.append("deceased")
-    return ", ".join(parts)
+        return lines
+    age = _death_age(row, birth, death)
+    text = "d. " + (age or (str(death.year) if death else "age unknown"))
+    if age and death:
+        text += f" ({death.year})"
+    cause = _text(row.get("death_cause"))
+    if cause:
+        text += f", {DEATH_CAUSE_TEXT.get(cause, cause.replace('_', ' '))}"
+    lines.append(text)
+    return lines
+
+
+# Evaluation key (2008 recommendations: E defined in the legend, E1, E2 ... for several, result in
+# parentheses, "u" = uninformative [V]).  E1 = clinical cardiac evaluation, E2 = genetic test.
+E1_SIGN = {"affected": "E1+", "unaffected": "E1-", "uncertain": "E1u"}
+E2_SIGN = {"carrier": "E2+", "non_carrier": "E2-", "inconclusive": "E2u"}
 
 
 def _evaluation_lines(results: pd.DataFrame | None, person: str, variants: Mapping[str, FamilyVariant]) -> list[str]:
-    """E lines for the person's genetic results, latest first (at most two)."""
+    """E2 lines for the person's genetic results, latest first (at most two)."""
     if results is None or len(results) == 0:
         return []
     rows = results[results["person"] == person].sort_values("test_date", kind="stable")
@@ -222,15 +270,27 @@ def _evaluation_lines(results: pd.DataFrame | None, person: str, variants: Mappi
             continue
         seen.add((result, key))
         if result == "no_variant_found":
-            lines.append("E- (panel: no variant found)")
+            lines.append("E2- (panel: no variant found)")
             continue
         v = variants.get(key) if key else None
         what = f"{v.gene} {v.hgvs_c}" if v else (key.split(":", 1)[-1] if key else "variant")
         if v is not None and v.acmg_class and not v.actionable:
             what += f", {_CLASS_SHORT.get(v.acmg_class, v.acmg_class)}"
-        sign = {"carrier": "E+", "non_carrier": "E-", "inconclusive": "Eu"}.get(result or "", "E?")
-        lines.append(f"{sign} ({what})")
+        lines.append(f"{E2_SIGN.get(result or '', 'E2?')} ({what})")
     return lines[:2]
+
+
+def _at_risk(pedigree: Pedigree, person: str, status, actionable: bool, affected: set[str],
+             proband: str | None) -> bool:
+    """Could this person have the family's condition?  With a pathogenic or likely pathogenic
+    family variant: everyone whose genotype is carrier, at risk or uncertain (a tested or
+    inferred non-carrier, or a relative outside the variant's line, is not).  Without one:
+    blood relatives of an affected person or of the proband."""
+    if actionable and status.basis not in ("conflict", "too_complex", "unexplained"):
+        return status.status not in ("non_carrier", "not_at_risk")
+    if person in affected or person == proband:
+        return True
+    return any(pedigree.kinship(person, q) > 0 for q in (*affected, *([proband] if proband else [])) if q != person)
 
 
 def pedigree_marks(
@@ -243,7 +303,8 @@ def pedigree_marks(
     family: str | None = None,
     names: bool = False,
 ) -> dict[str, PersonMarks]:
-    """What to draw for each person of ``pedigree`` (frames as the store loaders return them)."""
+    """What to draw for each person of ``pedigree`` (frames as the store loaders return them;
+    the people frame's ``death_cause`` and ``death_age`` columns are read when present)."""
     rows = {r["person"]: r for r in people.to_dict("records") if r["person"] in pedigree}
     codes = set(rows)
     fam = family or next((_text(r.get("family")) for r in rows.values()), None)
@@ -252,47 +313,55 @@ def pedigree_marks(
     fam_results = None
     if genetic_results is not None and len(genetic_results):
         fam_results = genetic_results[genetic_results["person"].isin(codes)]
-    affection = _latest_affection(assessments, codes)
+    latest = _latest_assessment(assessments, codes)
     statuses = genotype_statuses(
         pedigree, fam_results, fam_variant.acmg_class if fam_variant else None,
         fam_variant.key if fam_variant else None,
     )
+    actionable = fam_variant is not None and fam_variant.actionable
     proband = next((p for p in pedigree.people if pedigree.member(p).proband), None)
+    affected = {p for p, (a, _) in latest.items() if a == "affected" and p in pedigree}
     out: dict[str, PersonMarks] = {}
     for p in pedigree.people:
         m = pedigree.member(p)
         row = rows.get(p, {})
         shape = {"male": "square", "female": "circle"}.get(m.sex_at_birth, "diamond")
-        blood = proband is not None and (p == proband or pedigree.kinship(proband, p) > 0)
-        aff = affection.get(p)
-        if aff is None:
-            aff = "uncertain" if (blood and not m.placeholder) else "unaffected"
+        st = statuses[p]
+        at_risk = not m.placeholder and _at_risk(pedigree, p, st, actionable, affected, proband)
+        seen = latest.get(p)
         if m.placeholder:
             aff = "unaffected"
-        ident = p
+        elif seen is None:
+            aff = "unknown" if at_risk else "unaffected"
+        else:
+            aff = seen[0]
+        lines: list[str] = []
         if names:
             full = " ".join(x for x in (_text(row.get("given_name")), _text(row.get("family_name"))) if x)
-            ident = full or p
-        lines = [ident]
+            if full:
+                lines.append(full)
+        lines.append(p)  # the person code: the identifier every other output uses
         mark = None
         if not m.placeholder:
-            life = _life_line(row)
-            if life:
-                lines.append(life)
+            lines += _life_lines(row)
             gender = _text(row.get("gender_identity"))
             if gender:
                 lines.append(f"gender: {gender}, {_SEX_AT_BIRTH_TEXT[m.sex_at_birth]}")
+            if seen is not None:
+                when = f" ({seen[1][:4]})" if seen[1] else ""
+                lines.append(f"{E1_SIGN.get(seen[0], 'E1?')}{when}")
             lines += _evaluation_lines(fam_results, p, all_variants)
-            st = statuses[p]
-            actionable = fam_variant is not None and fam_variant.actionable
             if actionable and st.status == "carrier" and aff != "affected":
-                mark = "obligate" if st.basis == "obligate" else "presymptomatic"
+                if st.basis == "obligate":
+                    mark = "obligate"
+                elif aff != "unknown":  # "presymptomatic" says clinically unaffected: only after an evaluation
+                    mark = "presymptomatic"
             if st.basis == "obligate":
                 lines.append("obligate carrier")
             elif st.basis == "mz_co_twin":
                 lines.append(f"{'carrier' if st.status == 'carrier' else 'non-carrier'} (MZ co-twin's result)")
         out[p] = PersonMarks(p, shape, aff, m.vital_status == "deceased", m.proband, m.placeholder,
-                             m.adoption, mark, tuple(lines))
+                             m.adoption, mark, tuple(lines), at_risk)
     return out
 
 
@@ -301,18 +370,171 @@ def pedigree_marks(
 # ---------------------------------------------------------------------------
 
 
-def _label_lines(marks: PersonMarks, number: str | None) -> list[str]:
-    return list(marks.lines) + ([number] if number else [])
+def _label_lines(marks: PersonMarks) -> list[str]:
+    return list(marks.lines)
 
 
 def label_sizes(marks: Mapping[str, PersonMarks]) -> dict[str, tuple[float, float]]:
-    """Width and height of each text block in symbol widths (the number line is
-    reserved with a width for ``XIV-99``)."""
+    """Width and height of each text block in symbol widths."""
     out = {}
-    num_w = stringWidth("XIV-99", FONT, LABEL_FONT)
     for p, m in marks.items():
-        widths = [stringWidth(t, FONT, LABEL_FONT) for t in m.lines] + [num_w]
-        out[p] = (max(widths) + 0.1, (len(m.lines) + 1) * LABEL_LINE)
+        widths = [stringWidth(t, FONT, LABEL_FONT) for t in m.lines] or [0.0]
+        out[p] = (max(widths) + 0.1, max(len(m.lines), 1) * LABEL_LINE)
+    return out
+
+
+# ---------------------------------------------------------------------------
+# where every mark goes (layout units, y downwards): shared by the drawing and its checks
+# ---------------------------------------------------------------------------
+
+# Sizes in symbol widths (drawing choices of this project).
+SLASH_OVER = 0.18  # the deceased slash reaches this far beyond the symbol's top right corner
+SLASH_UNDER = 0.08  # and this far beyond its bottom left corner (less than the gap to the text)
+DOT_RADIUS = 0.09  # obligate carrier dot
+CARRIER_LINE_GAP = 0.1  # gap between the presymptomatic carrier line and the outline, top and bottom
+QUESTION_ALONE = 0.56  # font size of "?" alone in a symbol
+QUESTION_SHARED = 0.34  # font size of "?" beside a carrier mark
+QUESTION_SHIFT = 0.24  # "?" beside a carrier mark sits this far left of the centre
+CLEARANCE = 0.05  # the slash stops this far from any other mark inside the symbol
+CAP = 0.72  # Helvetica cap height, in font sizes
+DESCENT = 0.21  # Helvetica descender depth, in font sizes
+TWIN_QUESTION = 0.3  # font size of the unknown-zygosity "?"
+DOUBLE_OFFSET = 0.07  # half the gap of a double relationship line
+
+
+@dataclass(frozen=True)
+class Mark:
+    """One drawn mark: an area (``box``) or a straight line (``seg`` = x0, y0, x1, y1), layout units,
+    y downwards.  ``meaning`` says what it shows ('symbol', 'carrier_line', 'obligate_dot',
+    'unknown_affection', 'deceased', 'adopted', 'text', 'proband_arrow', 'proband_letter',
+    'twin_zygosity', 'line')."""
+
+    person: str | None
+    meaning: str
+    box: Box | None = None
+    seg: tuple[float, float, float, float] | None = None
+    text: str | None = None
+
+
+def _clip_interval(seg: tuple[float, float, float, float], box: Box) -> tuple[float, float] | None:
+    """Parameter interval of ``seg`` inside the closed ``box`` (Liang-Barsky), or None."""
+    x0, y0, x1, y1 = seg
+    t0, t1 = 0.0, 1.0
+    dx, dy = x1 - x0, y1 - y0
+    for p, q in ((-dx, x0 - box.x0), (dx, box.x1 - x0), (-dy, y0 - box.y0), (dy, box.y1 - y0)):
+        if abs(p) < 1e-15:
+            if q < 0:
+                return None
+            continue
+        r = q / p
+        if p < 0:
+            t0 = max(t0, r)
+        else:
+            t1 = min(t1, r)
+        if t0 > t1:
+            return None
+    return t0, t1
+
+
+def _cut(seg: tuple[float, float, float, float], holes: list[Box]) -> list[tuple[float, float, float, float]]:
+    """The pieces of ``seg`` outside every box of ``holes``."""
+    cuts = sorted(iv for iv in (_clip_interval(seg, b) for b in holes) if iv is not None)
+    x0, y0, x1, y1 = seg
+    pieces, t = [], 0.0
+    for a, b in cuts + [(1.0, 1.0)]:
+        if a - t > 1e-6:
+            pieces.append((x0 + t * (x1 - x0), y0 + t * (y1 - y0), x0 + a * (x1 - x0), y0 + a * (y1 - y0)))
+        t = max(t, b)
+    return pieces
+
+
+def symbol_marks(m: PersonMarks, cx: float, cy: float, size: float) -> list[Mark]:
+    """The symbol of one person and every mark on it, centred at (cx, cy), y downwards.
+
+    Marks inside the symbol never touch each other: the obligate-carrier dot stays in the
+    centre (its standard place), a "?" beside a carrier mark moves to the left half, and the
+    deceased slash is broken where it would cross the dot, the "?" or the carrier line."""
+    h = size / 2
+    who = m.person
+    out = [Mark(who, "symbol", Box(cx - h, cy - h, cx + h, cy + h))]
+    inner: list[Mark] = []
+    if m.carrier_mark == "presymptomatic":
+        g = CARRIER_LINE_GAP * size  # kept off the outline, so it never runs on from a line of descent
+        inner.append(Mark(who, "carrier_line", seg=(cx, cy - h + g, cx, cy + h - g)))
+    elif m.carrier_mark == "obligate":
+        r = DOT_RADIUS * size
+        inner.append(Mark(who, "obligate_dot", Box(cx - r, cy - r, cx + r, cy + r)))
+    if m.affection == "unknown":
+        fs = size * (QUESTION_SHARED if m.carrier_mark else QUESTION_ALONE)
+        w, ht = stringWidth("?", FONT_BOLD, fs), CAP * fs
+        qx = cx - QUESTION_SHIFT * size if m.carrier_mark else cx
+        inner.append(Mark(who, "unknown_affection", Box(qx - w / 2, cy - ht / 2, qx + w / 2, cy + ht / 2), text="?"))
+    out += inner
+    if m.adopted:
+        b, t = size * 0.14, size * 0.1
+        for sgn in (-1, 1):
+            xb = cx + sgn * (h + b)
+            out.append(Mark(who, "adopted", seg=(xb, cy - h, xb, cy + h)))
+            out.append(Mark(who, "adopted", seg=(xb, cy + h, xb - sgn * t, cy + h)))
+            out.append(Mark(who, "adopted", seg=(xb, cy - h, xb - sgn * t, cy - h)))
+    if m.deceased:
+        full = (cx - h - SLASH_UNDER * size, cy + h + SLASH_UNDER * size,
+                cx + h + SLASH_OVER * size, cy - h - SLASH_OVER * size)
+        c = CLEARANCE * size
+        holes = []
+        for k in inner:
+            if k.box is not None:
+                holes.append(Box(k.box.x0 - c, k.box.y0 - c, k.box.x1 + c, k.box.y1 + c))
+            elif k.seg is not None:
+                x0, y0, x1, y1 = k.seg
+                holes.append(Box(min(x0, x1) - c, min(y0, y1) - c, max(x0, x1) + c, max(y0, y1) + c))
+        out += [Mark(who, "deceased", seg=piece) for piece in _cut(full, holes)]
+    return out
+
+
+def text_marks(pp: PlacedPerson, m: PersonMarks) -> list[Mark]:
+    """One box per line of text under the symbol (baseline, cap height and descender)."""
+    out = []
+    for i, line in enumerate(_label_lines(m)):
+        base = pp.label_box.y0 + (i + 0.8) * LABEL_LINE
+        w = stringWidth(line, FONT, LABEL_FONT)
+        out.append(Mark(pp.person, "text", Box(pp.x - w / 2, base - CAP * LABEL_FONT, pp.x + w / 2,
+                                               base + DESCENT * LABEL_FONT), text=line))
+    return out
+
+
+def _arrow_marks(pp: PlacedPerson) -> list[Mark]:
+    tx, ty, hx, hy = pp.arrow
+    s = pp.size
+    fs = 0.34 * s
+    w = stringWidth("P", FONT_BOLD, fs)
+    base = ty + 0.4 * fs
+    return [
+        Mark(pp.person, "proband_arrow", seg=(tx, ty, hx, hy)),
+        Mark(pp.person, "proband_letter", Box(tx - 0.04 * s - w, base - CAP * fs, tx - 0.04 * s, base), text="P"),
+    ]
+
+
+def drawing_marks(layout: PedigreeLayout, marks: Mapping[str, PersonMarks]) -> list[Mark]:
+    """Every mark of the pedigree drawing, in layout units (what :func:`draw_pedigree` draws)."""
+    out: list[Mark] = []
+    for pp in layout.people:
+        m = marks[pp.person]
+        out += symbol_marks(m, pp.x, pp.y, pp.size)
+        out += text_marks(pp, m)
+        if pp.arrow:
+            out += _arrow_marks(pp)
+    for sgm in layout.segments:
+        offs = (-DOUBLE_OFFSET, DOUBLE_OFFSET) if sgm.double else (0.0,)
+        for o in offs:
+            out.append(Mark(None, "line", seg=(sgm.x0, sgm.y0 + o, sgm.x1, sgm.y1 + o)))
+    for t in layout.twins:
+        if t.zygosity == "unknown":
+            fs = TWIN_QUESTION * layout.symbol_size
+            w = stringWidth("?", FONT, fs)
+            base = t.apex_y + 1.15 * fs
+            out.append(Mark(None, "twin_zygosity", Box(t.apex_x - w / 2, base - CAP * fs, t.apex_x + w / 2, base),
+                            text="?"))
     return out
 
 
@@ -372,36 +594,57 @@ def _draw_shape(c: canvas.Canvas, shape: str, cx: float, cy: float, size: float,
         c.drawPath(p, stroke=1, fill=1 if filled else 0)
 
 
+def _shape_path(c: canvas.Canvas, shape: str, cx: float, cy: float, size: float):
+    h = size / 2
+    p = c.beginPath()
+    if shape == "square":
+        p.rect(cx - h, cy - h, size, size)
+    elif shape == "circle":
+        p.circle(cx, cy, h)
+    else:
+        p.moveTo(cx, cy + h)
+        p.lineTo(cx + h, cy)
+        p.lineTo(cx, cy - h)
+        p.lineTo(cx - h, cy)
+        p.close()
+    return p
+
+
 def _draw_symbol(c: canvas.Canvas, m: PersonMarks, cx: float, cy: float, size: float, line_w: float) -> None:
-    """One symbol with its marks, centred at (cx, cy) in points."""
+    """One symbol with its marks, centred at (cx, cy) in points (positions from :func:`symbol_marks`)."""
     c.setLineWidth(line_w)
     c.setStrokeColorRGB(0, 0, 0)
-    shade = 0 if m.affection == "affected" else 1
+    filled = m.affection == "affected"
+    shade = 0 if filled else 1
     c.setFillColorRGB(shade, shade, shade)
     _draw_shape(c, m.shape, cx, cy, size, filled=True)
     c.setFillColorRGB(0, 0, 0)
-    h = size / 2
-    if m.carrier_mark == "presymptomatic":
-        c.line(cx, cy - h, cx, cy + h)
-    elif m.carrier_mark == "obligate":
-        c.circle(cx, cy, size * 0.1, stroke=0, fill=1)
-    if m.affection == "uncertain":
-        with_line = m.carrier_mark == "presymptomatic"
-        fs = size * (0.46 if with_line else 0.62)
-        c.setFont(FONT_BOLD, fs)
-        dx = size * 0.2 if with_line else 0.0
-        c.drawCentredString(cx + dx, cy - fs * 0.35, "?")
-    if m.adopted:
-        b = size * 0.14
-        t = size * 0.1
-        for sgn in (-1, 1):
-            xb = cx + sgn * (h + b)
-            c.line(xb, cy - h, xb, cy + h)
-            c.line(xb, cy + h, xb - sgn * t, cy + h)
-            c.line(xb, cy - h, xb - sgn * t, cy - h)
-    if m.deceased:
-        e = size * 0.18
-        c.line(cx - h - e, cy - h - e, cx + h + e, cy + h + e)
+
+    def line(seg):
+        x0, y0, x1, y1 = seg
+        c.line(cx + x0, cy - y0, cx + x1, cy - y1)
+
+    slash = []
+    for k in symbol_marks(m, 0.0, 0.0, size):
+        if k.meaning in ("carrier_line", "adopted"):
+            line(k.seg)
+        elif k.meaning == "obligate_dot":
+            b = k.box
+            c.circle(cx + (b.x0 + b.x1) / 2, cy - (b.y0 + b.y1) / 2, (b.x1 - b.x0) / 2, stroke=0, fill=1)
+        elif k.meaning == "unknown_affection":
+            b = k.box
+            c.setFont(FONT_BOLD, (b.y1 - b.y0) / CAP)
+            c.drawCentredString(cx + (b.x0 + b.x1) / 2, cy - b.y1, "?")
+        elif k.meaning == "deceased":
+            slash.append(k.seg)
+            line(k.seg)
+    if slash and filled:  # the slash shows white across a filled symbol
+        c.saveState()
+        c.clipPath(_shape_path(c, m.shape, cx, cy, size), stroke=0, fill=0)
+        c.setStrokeColorRGB(1, 1, 1)
+        for seg in slash:
+            line(seg)
+        c.restoreState()
 
 
 def _draw_arrow(c: canvas.Canvas, pg: _Page, pp: PlacedPerson, line_w: float) -> None:
@@ -433,11 +676,14 @@ def _legend_entries(marks: Mapping[str, PersonMarks], layout: PedigreeLayout) ->
     if any(m.affection == "affected" for m in used):
         out.append(("affected", "affected (HCM)"))
     if any(m.affection == "unaffected" for m in used):
-        out.append(("unaffected", "unaffected, or not at risk and not assessed"))
+        out.append(("unaffected", "not affected at the latest evaluation (E1-), or not at risk and never "
+                                  "evaluated (no E1 line)"))
+    if any(m.affection == "unknown" for m in used):
+        out.append(("unknown", "? = at risk and never evaluated: affection unknown"))
     if any(m.affection == "uncertain" for m in used):
-        out.append(("uncertain", "affection uncertain, or blood relative not assessed"))
+        out.append(("uncertain", "open, E1u = evaluated, phenotype uncertain (equivocal result)"))
     if any(m.deceased for m in used):
-        out.append(("deceased", "deceased"))
+        out.append(("deceased", "deceased; d. = age at death (year), cause"))
     if any(m.proband for m in used):
         out.append(("proband", "proband"))
     if any(m.carrier_mark == "presymptomatic" for m in used):
@@ -461,10 +707,13 @@ def _legend_entries(marks: Mapping[str, PersonMarks], layout: PedigreeLayout) ->
     if any(m.adopted == "out" for m in used):
         out.append(("adopted_out", "adopted out"))
     if any(m.placeholder for m in used):
-        out.append(("placeholder", "number only: drawn to connect the pedigree"))
-    if any(line.startswith("E") and "(" in line for m in used for line in m.lines):
-        out.append(("text:E", "E = genetic test for the family variant\nE+ carrier; E- non-carrier; "
-                              "Eu inconclusive"))
+        out.append(("placeholder", "code only: drawn to connect the pedigree"))
+    if any(line.startswith("E1") for m in used for line in m.lines):
+        out.append(("text:E1", "E1 = cardiac evaluation (ECG, echo, CMR), latest, year in brackets: "
+                               "E1+ affected; E1- not affected; E1u uncertain"))
+    if any(line.startswith("E2") for m in used for line in m.lines):
+        out.append(("text:E2", "E2 = genetic test for the family variant:\nE2+ carrier; E2- non-carrier; "
+                               "E2u inconclusive"))
     return out
 
 
@@ -480,8 +729,12 @@ def _draw_legend_icon(c: canvas.Canvas, kind: str, x: float, y: float, s: float,
     cx, cy = x + s, y
     if kind.startswith("shape:"):
         _draw_symbol(c, m(shape=kind.split(":")[1]), cx, cy, s, lw)
-    elif kind in ("affected", "unaffected", "uncertain"):
+    elif kind in ("affected", "unaffected", "unknown"):
         _draw_symbol(c, m(affection=kind), cx, cy, s, lw)
+    elif kind == "uncertain":
+        _draw_symbol(c, m(), cx - s * 0.45, cy, s, lw)
+        c.setFont(FONT, s * 0.55)
+        c.drawString(cx + s * 0.15, cy - s * 0.2, "E1u")
     elif kind == "deceased":
         _draw_symbol(c, m(deceased=True), cx, cy, s, lw)
     elif kind in ("presymptomatic", "obligate"):
@@ -523,9 +776,9 @@ def _draw_legend_icon(c: canvas.Canvas, kind: str, x: float, y: float, s: float,
         _draw_symbol(c, m(adopted="out"), cx, cy, s * 0.8, lw)
     elif kind == "placeholder":
         _draw_symbol(c, m(), cx, cy, s, lw)
-    elif kind == "text:E":
+    elif kind.startswith("text:E"):
         c.setFont(FONT_BOLD, s * 0.7)
-        c.drawCentredString(cx, cy - s * 0.25, "E+")
+        c.drawCentredString(cx, cy - s * 0.25, kind.split(":")[1])
 
 
 def _wrap_words(text: str, font: str, size: float, width: float) -> list[str]:
@@ -570,7 +823,19 @@ def draw_pedigree(
         c.setFont(FONT, 9)
         c.drawString(MARGIN, top - 26, subtitle)
     header_bottom = top - 36
-    footer_top = MARGIN + 44
+    foot = [
+        f"Family {family}. Drawn {drawn_on.isoformat()} by tracker. "
+        + ("Names shown on request; handle as identifiable." if names else "Person codes only; no names."),
+        CAUTION,
+    ]
+    if layout.warnings:
+        foot.append("Layout warnings: " + " | ".join(layout.warnings))
+    if layout.notes:  # e.g. siblings out of birth order so that partners stand clear of a sibship line
+        foot.append("Layout notes: " + " | ".join(layout.notes))
+    foot_lines: list[str] = []
+    for f in foot:
+        foot_lines += _wrap_words(f, FONT, 7, W - 2 * MARGIN)
+    footer_top = MARGIN + 10 + 8.5 * max(len(foot_lines), 4)
 
     # legend panel
     lx = W - MARGIN - LEGEND_WIDTH
@@ -592,8 +857,8 @@ def draw_pedigree(
         "with AMAB/AFAB/UAAB (2022 wording).",
         "Carrier marks follow the 2008 recommendations; the 2022 revision shows carrier status differently, "
         "so the test result is always printed as text.",
-        "Under each symbol: " + ("name" if names else "person code") + "; birth year or death; evaluation; "
-        "individual number (generation-position).",
+        "Under each symbol: " + ("name, " if names else "") + "person code (as in every other tracker "
+        "output); birth year; death; evaluations. Generations are numbered at the left.",
     ]
     c.setFont(FONT, 6.5)
     ly -= 4
@@ -622,7 +887,7 @@ def draw_pedigree(
         if sgm.dashed:
             c.setDash(max(1.5, pg.d(0.12)), max(1.2, pg.d(0.09)))
         if sgm.double:
-            off = pg.d(0.07)
+            off = pg.d(DOUBLE_OFFSET)
             c.line(x0, y0 + off, x1, y1 + off)
             c.line(x0, y0 - off, x1, y1 - off)
         else:
@@ -631,7 +896,7 @@ def draw_pedigree(
             c.setDash()
     for t in layout.twins:
         if t.zygosity == "unknown":
-            fs = pg.d(0.3)
+            fs = pg.d(TWIN_QUESTION * layout.symbol_size)
             c.setFont(FONT, fs)
             c.drawCentredString(pg.x(t.apex_x), pg.y(t.apex_y) - fs * 1.15, "?")
 
@@ -643,25 +908,14 @@ def draw_pedigree(
             _draw_arrow(c, pg, pp, lw)
         c.setFont(FONT, fs)
         c.setFillColorRGB(0, 0, 0)
-        for i, line in enumerate(_label_lines(m, pp.label)):
+        for i, line in enumerate(_label_lines(m)):
             yl = pp.label_box.y0 + (i + 0.8) * LABEL_LINE
             c.drawCentredString(pg.x(pp.x), pg.y(yl), line)
 
-    # footer
+    # footer (every line of it: the pedigree area gives way when there are many)
     c.setFont(FONT, 7)
-    fy = MARGIN + 34
-    foot = [
-        f"Family {family}. Drawn {drawn_on.isoformat()} by tracker. "
-        + ("Names shown on request; handle as identifiable." if names else "Person codes only; no names."),
-        CAUTION,
-    ]
-    warn = list(layout.warnings)
-    if warn:
-        foot.append("Layout warnings: " + " | ".join(warn))
-    lines: list[str] = []
-    for f in foot:
-        lines += _wrap_words(f, FONT, 7, W - 2 * MARGIN)
-    for line in lines[:5]:
+    fy = footer_top - 10
+    for line in foot_lines:
         c.drawString(MARGIN, fy, line)
         fy -= 8.5
     return [w.replace("\n", " ") for _, w in entries]

@@ -44,7 +44,13 @@ docs/reference/standards.md section 1b):
   no adoptive parents recorded is drawn apart with a warning.
 * **Numbering**: individuals are numbered 1, 2, 3... left to right in each
   generation; generations are numbered I, II, III... from the top (label
-  ``II-3``).  Numbers are layout positions, not person codes.
+  ``II-3``).  Numbers are layout positions, not person codes; the drawing
+  does not print them (they read like person codes).
+* **Partners clear of sibship lines**: siblings with partners stand at the
+  ends of their sibship, partners on the outer side, so that no partner
+  stands under a sibship line (a change of birth order is noted); where more
+  siblings have partners than there are ends, a note names who stands under
+  the line.
 * The side on which a partner stands is the layout's choice (the 2022 revision
   dropped "male partner on the left" [V]); the default puts a partner to the
   right of the blood relative.
@@ -598,16 +604,18 @@ class _Orderer:
         return () if p.startswith("~") else self.s.ped.co_twins(p)
 
     # -- chain from above ---------------------------------------------------------
-    def chain_from_above(self, cid: str, uid: str, allowed: str, anchor: str | None) -> _Built:
-        key = ("above", cid, uid, allowed, anchor)
+    def chain_from_above(self, cid: str, uid: str, allowed: str, anchor: str | None, end: str = "both") -> _Built:
+        """``end``: where the chain stands in its sibship ('left', 'right', 'both' = only child,
+        'none' = in the middle); partners go to that outer side, clear of the sibship line."""
+        key = ("above", cid, uid, allowed, anchor, end)
         if key not in self.memo:
-            self.memo[key] = self._chain(cid, uid, allowed, anchor)
+            self.memo[key] = self._chain(cid, uid, allowed, anchor, end)
         return self.memo[key]
 
     def root_chain(self, cid: str) -> _Built:
         return self._chain(cid, None, "both", None)
 
-    def _chain(self, cid: str, uid: str | None, allowed: str, anchor: str | None) -> _Built:
+    def _chain(self, cid: str, uid: str | None, allowed: str, anchor: str | None, end: str = "both") -> _Built:
         s = self.s
         path = s.chains[cid]
         arrivals = {c for c in s.units[uid].children if s.chain_of[c] == cid} if uid else set()
@@ -668,7 +676,11 @@ class _Orderer:
             if (lft and allowed not in ("left", "both")) or (rgt and allowed not in ("right", "both")):
                 issues.append(self._reach_words(reach))
             bad = len(issues)
-            if arrivals:  # default: partners to the right of the blood relative
+            if arrivals and end == "left":  # first of the sibship: partners to the left, off the sibship line
+                default_rank = 0 if hi == len(members) - 1 else 1
+            elif arrivals and end == "right":  # last of the sibship: partners to the right
+                default_rank = 0 if lo == 0 else 1
+            elif arrivals:  # default: partners to the right of the blood relative
                 default_rank = 0 if lo <= len(members) - 1 - hi else 1
             else:
                 default_rank = 1 if flip else 0
@@ -737,10 +749,13 @@ class _Orderer:
             anchors[i] = "both" if left_tw and right_tw else "left" if left_tw else "right" if right_tw else None
         return anchors
 
-    def _order_groups(self, groups: list[tuple[str, list[str]]], uid: str, ends: str) -> list[tuple[str, list[str]]]:
-        """Move children whose blocks reach above their row to the ends.
+    def _order_groups(self, groups: list[tuple[str, list[str]]], uid: str, ends: str,
+                      sib_ends: str = "both") -> list[tuple[str, list[str]]]:
+        """Move children whose blocks reach above their row to the ends, then children with
+        partners to the sibship's remaining ends.
 
-        ``ends``: which ends are free ('both', 'left', 'right', 'none')."""
+        ``ends``: which ends are free to reach above ('both', 'left', 'right', 'none');
+        ``sib_ends``: which ends of the sibship these groups hold ('both', 'left', 'right')."""
         if len(groups) < 2:
             return groups
         # keep twin sets together as one item
@@ -760,7 +775,7 @@ class _Orderer:
 
         flags = [needy(it) for it in items]
         if not any(flags):
-            return groups
+            return [g for it in self._partnered_to_ends(items, flags, sib_ends) for g in it]
         needy_items = [it for it, f in zip(items, flags) if f]
         rest = [it for it, f in zip(items, flags) if not f]
         if len(needy_items) == 1:
@@ -773,7 +788,43 @@ class _Orderer:
             new = [it] + rest if go_left else rest + [it]
         else:
             new = [needy_items[0]] + rest + needy_items[1:]
+        new = self._partnered_to_ends(new, [needy(it) for it in new], sib_ends)
         return [g for it in new for g in it]
+
+    def _partnered_to_ends(self, items: list, fixed: list[bool], ends: str) -> list:
+        """Move siblings who have partners to the free ends of the sibship, so that no partner
+        stands under the sibship line.  Items already placed at an end for another reason
+        (``fixed``) stay; siblings with a recorded partner come before those with only an
+        unrecorded one; among equals, those already at an end stay; the others keep their
+        birth order (a change is noted by the layout).  ``ends``: the ends of the sibship these
+        items hold ('both', 'left', 'right')."""
+        n = len(items)
+        if n < 2:
+            return items
+
+        def partnered(item) -> int:  # 2: a recorded partner; 1: only an unrecorded one (a short line)
+            return max((2 if any(not t.startswith("~") for t in self.s.chains[cc] if t not in arr) else
+                        1 if len(self.s.chains[cc]) > 1 else 0) for cc, arr in item)
+
+        slots = [e for side, e in (("left", 0), ("right", n - 1)) if ends in (side, "both") and not fixed[e]]
+        weights = [partnered(it) for it in items]
+        cands = [i for i in range(n) if weights[i] > 0 and not fixed[i]]
+        if not slots or not cands:
+            return items
+        chosen = sorted(cands, key=lambda i: (-weights[i], i not in slots, i))[: len(slots)]
+        chosen.sort()
+        if len(chosen) == len(slots):
+            place = dict(zip(sorted(slots), chosen))
+        else:  # one sibling for two free ends: the nearer end
+            i = chosen[0]
+            place = {min(slots, key=lambda e: abs(e - i)): i}
+        if all(e == i for e, i in place.items()):
+            return items
+        left = place.get(0) if 0 in place else None
+        right = place.get(n - 1) if (n - 1) in place and n - 1 != 0 else None
+        middle = [it for k, it in enumerate(items) if k not in (left, right)]
+        out = ([items[left]] if left is not None else []) + middle + ([items[right]] if right is not None else [])
+        return out
 
     def _down(self, uid: str, allowed: str) -> _Built:
         s = self.s
@@ -792,7 +843,8 @@ class _Orderer:
                 a = "right" if allowed in ("right", "both") else "none"
             else:
                 a = "none"
-            b = self.chain_from_above(cc, uid, a, anc)
+            end = "both" if k == 1 else "left" if i == 0 else "right" if i == k - 1 else "none"
+            b = self.chain_from_above(cc, uid, a, anc, end)
             issues += b.issues
             reach |= b.reach
             blocks.append(b)
@@ -831,7 +883,7 @@ class _Orderer:
         # a sibling whose block reaches above this row (a partner's family drawn) goes to the outer end
         if len(far) > 1:
             ends = "left" if side == "left" else "right"
-            far = self._order_groups(far, uid, ends)
+            far = self._order_groups(far, uid, ends, ends)
         # the child's own place is next to the rest of the drawing
         ordered = far + near if side == "left" else near + far
         issues: list[str] = []
@@ -844,7 +896,7 @@ class _Orderer:
             anc = None
             if any(x in twins_of_child for x in arr):
                 anc = "right" if side == "left" else "left"
-            b = self.chain_from_above(cc, uid, a, anc)
+            b = self.chain_from_above(cc, uid, a, anc, side if outer else "none")
             issues += b.issues
             w_reach |= b.reach
             blocks.append(b)
@@ -1383,6 +1435,7 @@ def _build(s: _Structure, rows_tokens, xs, labels, sz, warnings, notes) -> Pedig
     bounds = Box(min(xs_all), min(ys_all), max(xs_all), max(ys_all))
     gens = tuple(GenerationRow(r + 1, row_y[r]) for r in range(min(rows), max(rows) + 1))
     notes.extend(_order_notes(s, by_code))
+    notes.extend(_under_sibship_notes(s, by_code))
     layout = PedigreeLayout(tuple(placed), tuple(segs), tuple(twins), gens, bounds, sz, (), ())
     problems = check_layout(layout)
     if problems:
@@ -1402,6 +1455,26 @@ def _zygosity(ped: Pedigree, grp: list[str]) -> str:
     return "dizygotic"
 
 
+def _under_sibship_notes(s: _Structure, by_code: Mapping[str, PlacedPerson]) -> list[str]:
+    """Name anyone whose symbol stands under the sibship line of a sibship they do not belong to
+    (the siblings with partners could not all stand at its ends)."""
+    out = []
+    for u in s.units.values():
+        kids = [c for c in u.children if c in by_code]
+        if len(kids) < 2:
+            continue
+        lo, hi = min(by_code[c].x for c in kids), max(by_code[c].x for c in kids)
+        row = by_code[kids[0]].generation
+        under = sorted((q for q in by_code.values() if q.person not in kids and q.generation == row
+                        and lo + _EPS < q.x < hi - _EPS), key=lambda q: q.x)
+        if under:
+            who = " and ".join(u.real_parents) or "unrecorded parents"
+            out.append(f"{', '.join(q.person for q in under)} {'stands' if len(under) == 1 else 'stand'} under the "
+                       f"sibship line of the children of {who}: their siblings with partners cannot all stand "
+                       "at its ends")
+    return out
+
+
 def _order_notes(s: _Structure, by_code: Mapping[str, PlacedPerson]) -> list[str]:
     out = []
     for u in s.units.values():
@@ -1411,7 +1484,8 @@ def _order_notes(s: _Structure, by_code: Mapping[str, PlacedPerson]) -> list[str
         by_birth = sorted(dated, key=s.birth_key)
         if [s.ped.member(c).birth_date for c in by_x] != [s.ped.member(c).birth_date for c in by_birth]:
             who = " and ".join(u.real_parents) or "unrecorded parents"
-            out.append(f"children of {who} are not all in birth order, so that lines do not cross")
+            out.append(f"children of {who} are not all in birth order, so that lines do not cross and partners "
+                       "stand clear of the sibship line")
     return out
 
 
