@@ -32,7 +32,7 @@ from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
 from tracker.engines.cascade import plan_cascade
 from tracker.engines.reclassification import CAUTION as RECLASSIFICATION_CAUTION
 from tracker.engines.reclassification import impact_of_reclassification
-from tracker.engines.schedule import CAUTIONS, Policy, Proposal, propose_recall
+from tracker.engines.schedule import CAUTIONS, Policy, Proposal, never_screened_text, propose_recall
 from tracker.engines.worklist import book_into_slots, lost_to_follow_up, not_recalled, select_due, week_starts
 from tracker.errors import UserError
 from tracker.outputs import ics, worklist_csv
@@ -612,6 +612,10 @@ def _proposal_dict(p: Proposal, st: fs.FamilyState) -> dict:
         "status": p.status,
         "due": _iso(p.due),
         "days_overdue": p.days_overdue,
+        "never_screened": p.never_screened,
+        "eligible_since": _iso(p.eligible_since),
+        "gap_reason": p.gap_reason,
+        "waiting": never_screened_text(p),
         "interval_months": p.interval_months,
         "routine_due": _iso(p.routine_due),
         "rule_id": p.rule_id,
@@ -648,7 +652,8 @@ def _unscheduled_dict(person: str, st: fs.FamilyState, on: dt.date, rule_set_id:
     why = st.not_scheduled[person]
     return {
         "person": person, "family": st.family, "as_of": on.isoformat(), "rule_set": rule_set_id,
-        "status": "not_scheduled", "due": None, "days_overdue": None, "interval_months": None, "routine_due": None,
+        "status": "not_scheduled", "due": None, "days_overdue": None, "never_screened": False, "eligible_since": None,
+        "gap_reason": None, "waiting": None, "interval_months": None, "routine_due": None,
         "rule_id": None, "needs": [], "consider": [], "reason": why, "source": "", "fired": [], "triggers": [],
         "flags": [], "notes": [why], "state": None, "cautions": list(CAUTIONS),
     }  # fmt: skip
@@ -690,8 +695,13 @@ def recall(
         print_json(result)
         return
     typer.echo(f"{person} ({result['family']}), {result['as_of']}, rule set {rule_set.title}, policy {policy.point}")
-    typer.echo(f"status: {result['status']}" + (f", due {result['due']}" if result["due"] else "")
-               + (f", every {result['interval_months']} months" if result["interval_months"] else ""))  # fmt: skip
+    if result["never_screened"]:
+        typer.echo(f"status: {result['waiting']}" + (f", due {result['due']}" if result["due"] else "")
+                   + (f", every {result['interval_months']} months" if result["interval_months"] else ""))  # fmt: skip
+    else:
+        typer.echo(f"status: {result['status']}" + (f", due {result['due']}" if result["due"] else "")
+                   + (f", {result['days_overdue']} days overdue" if (result["days_overdue"] or 0) > 0 else "")
+                   + (f", every {result['interval_months']} months" if result["interval_months"] else ""))  # fmt: skip
     if result["needs"]:
         typer.echo("visit needs: " + ics.needs_words(result["needs"])
                    + (f" (consider: {ics.needs_words(result['consider'])})" if result["consider"] else ""))  # fmt: skip
