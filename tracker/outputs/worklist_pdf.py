@@ -49,7 +49,7 @@ _HEAD_CELL = ParagraphStyle("wl_head_cell", parent=_TEXT, fontName="Helvetica-Bo
 _TITLE = ParagraphStyle("wl_title", parent=_TEXT, fontName="Helvetica-Bold", fontSize=15, leading=19, spaceAfter=2)
 _META = ParagraphStyle("wl_meta", parent=_TEXT, fontSize=10, leading=13)
 _SECTION = ParagraphStyle("wl_section", parent=_TEXT, fontName="Helvetica-Bold", fontSize=11, leading=14,
-                          spaceBefore=8, spaceAfter=4)  # fmt: skip
+                          spaceBefore=8, spaceAfter=4, keepWithNext=1)  # fmt: skip
 _FOOTER = ParagraphStyle("wl_footer", parent=_TEXT, fontSize=7.5, leading=9.5, textColor=colors.HexColor("#333333"))
 
 
@@ -81,8 +81,12 @@ def flag_words(flags) -> str:
 
 
 def waiting_text(row: dict) -> str:
-    """The never-screened phrase, else the days overdue (see :func:`overdue_text`)."""
-    return row.get("waiting") or overdue_text(row.get("days_overdue"))
+    """The never-screened phrase, else 'declined: not recalled', else the days overdue (see :func:`overdue_text`)."""
+    if row.get("waiting"):
+        return row["waiting"]
+    if row.get("status") == "not_recalled":
+        return "declined: not recalled"
+    return overdue_text(row.get("days_overdue"))
 
 
 def booked_text(row: dict) -> str:
@@ -140,7 +144,8 @@ def line_from_row(row: dict) -> WorklistLine:
         person=row["person"], due=row.get("due"), days_overdue=row.get("days_overdue"),
         needs=tuple(row.get("needs") or ()), consider=tuple(row.get("consider") or ()),
         reason=row.get("reason") or "", booked_week=row.get("booked_week"), late=row.get("late"),
-        waiting=row.get("waiting"), flags=tuple(row.get("flags") or ()),
+        waiting=waiting_text(row) if row.get("waiting") or row.get("status") == "not_recalled" else None,
+        flags=tuple(row.get("flags") or ()),
         gap=GAP_WORDS.get(row.get("contact_status") or "", row.get("contact_status")) if row.get("list") == "contact_gap"
         else None,
     )  # fmt: skip
@@ -182,7 +187,8 @@ def _table(lines: tuple[WorklistLine, ...], booked: bool, width: float, gaps: bo
     for ln in lines:
         row = [paragraph(ln.person, _TEXT)] + ([paragraph(ln.gap or "", _TEXT)] if gaps else []) + [
             paragraph(ln.due or "", _TEXT), paragraph(_waiting(ln), _TEXT),
-            paragraph(_needs_text(ln), _TEXT), paragraph(ln.reason, _TEXT), paragraph(flag_words(ln.flags), _TEXT)]
+            paragraph(_needs_text(ln) if ln.needs or not gaps else "", _TEXT), paragraph(ln.reason, _TEXT),
+            paragraph(flag_words(ln.flags), _TEXT)]
         if booked:
             row.append(paragraph(_booked_text(ln), _TEXT))
         data.append(row)
@@ -206,7 +212,7 @@ def _table(lines: tuple[WorklistLine, ...], booked: bool, width: float, gaps: bo
 
 
 def build_story(doc: WorklistDocument) -> list:
-    """The flowables: header, the screening table, the affected table, notes."""
+    """The flowables: header, the screening table, the affected table, notes, the contact gaps."""
     width = PAGE[0] - 2 * MARGIN_MM * mm
     slots = f", {doc.slots_per_week} slots a week" if doc.slots_per_week is not None else ""
     story: list = [
@@ -227,13 +233,13 @@ def build_story(doc: WorklistDocument) -> list:
     if doc.affected:
         story.append(paragraph(f"Affected members: follow-up interval ({len(doc.affected)})", _SECTION))
         story.append(_table(doc.affected, False, width))
+    for n in doc.notes:
+        story.append(Spacer(1, 3))
+        story.append(paragraph(f"Note: {n}", _TEXT))
     story.append(paragraph(f"Contact gaps: not booked until contact is made ({len(doc.contact_gaps)})", _SECTION))
     story.append(paragraph("Not contacted, lost to follow-up or declined. Contact or re-contact them as the local "
                            "protocol says; book only once they can be reached.", _TEXT))  # fmt: skip
     story.append(_table(doc.contact_gaps, False, width, gaps=True) if doc.contact_gaps else paragraph("None.", _TEXT))
-    for n in doc.notes:
-        story.append(Spacer(1, 3))
-        story.append(paragraph(f"Note: {n}", _TEXT))
     return story
 
 
