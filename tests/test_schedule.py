@@ -501,3 +501,40 @@ def test_add_months_matches_pandas_dateoffset(start, months):
 def test_add_months_clips_month_end():
     assert add_months(dt.date(2024, 1, 31), 1) == dt.date(2024, 2, 29)
     assert add_months(dt.date(2025, 1, 31), 1) == dt.date(2025, 2, 28)
+
+
+# ----------------------------------------------- the rule follows the age at the visit (any invented person)
+
+
+@given(
+    born=st.dates(min_value=dt.date(1935, 1, 1), max_value=dt.date(2025, 12, 31)),
+    seen_after_years=st.one_of(st.none(), st.integers(min_value=0, max_value=70)),
+    identified=st.one_of(st.none(), st.dates(min_value=dt.date(1990, 1, 1), max_value=dt.date(2026, 1, 1))),
+    features=st.sets(st.sampled_from(["plp_variant", "familial_disease", "early_onset", "isolated_case"])),
+    genotype=st.sampled_from(["at_risk_untested", "carrier"]),
+    rs=st.sampled_from([ESC23, AHA, ESC14]),
+    contact=st.sampled_from(["contactable", "not_contacted", "lost_to_follow_up"]),
+)
+def test_governing_rule_covers_the_age_on_the_visit_day(born, seen_after_years, identified, features, genotype, rs,
+                                                         contact):
+    """Whatever the person, the governing rule's age band holds the age on the day the visit is wanted:
+    the due date if still ahead, else today. A never-screened person is never shown as days overdue."""
+    last = None
+    if seen_after_years is not None:
+        last = add_months(born, 12 * seen_after_years)
+        if last >= TODAY:
+            last = None
+    if genotype == "carrier":
+        features = set(features) | {"plp_variant"}
+    p = PersonState("INV1-II-1", PartialDate(born), genotype=genotype, family_features=frozenset(features),
+                    last_visit=last, eligible_since=identified, contact_status=contact)  # fmt: skip
+    prop = propose_recall(p, rs, Policy("midpoint"), TODAY)
+    if prop.rule_id is None or prop.routine_due is None:
+        return
+    visit = max(prop.routine_due, TODAY)
+    rule = rs.rule(prop.rule_id)
+    ages = possible_ages(PartialDate(born), visit)
+    assert any(rule.conditions.matches_age(a) for a in ages), (prop.rule_id, ages, prop.notes)
+    if last is None:
+        assert prop.never_screened and (prop.days_overdue or 0) <= 0 and prop.eligible_since is not None
+        assert prop.gap_reason == contact
