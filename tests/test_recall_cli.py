@@ -418,9 +418,9 @@ def test_recall_never_screened_adult_gets_the_adult_rule_and_plain_words(demo_db
 
 def test_worklist_books_only_reachable_people_once_from_the_next_clinic_day(demo_db, run, tmp_path):
     # Run on Saturday 2026-12-05 for a window from Tuesday 2026-12-01: first bookable day Monday 2026-12-07.
-    csv_path = tmp_path / "w.csv"
+    csv_path, ics_path = tmp_path / "w.csv", tmp_path / "w.ics"
     d = js(run, "worklist", "--from", "2026-12-01", "--to", "2027-03-01", "--slots-per-week", "4", "--as-of",
-           "2026-12-05", "--settings", SETTINGS, "--csv", csv_path, db=demo_db)  # fmt: skip
+           "2026-12-05", "--settings", SETTINGS, "--csv", csv_path, "--ics", ics_path, db=demo_db)  # fmt: skip
     b = d["booking"]
     assert b["first_bookable_day"] == "2026-12-07" and b["weeks"][0]["week_start"] == "2026-12-07"
     booked = [p for w in b["weeks"] for p in w["booked"]]
@@ -435,3 +435,10 @@ def test_worklist_books_only_reachable_people_once_from_the_next_clinic_day(demo
     rows = list(csv.DictReader(csv_path.open(encoding="utf-8")))
     assert {r["person"]: r["gap_reason"] for r in rows if r["list"] == "contact_gap"}.keys() == gaps.keys()
     assert rows[-1]["list"] == "caution"
+    # the calendar: reachable people only, the never-screened said plainly in the description
+    events = [c for c in Calendar.from_ical(ics_path.read_bytes()).walk() if c.name == "VEVENT"]
+    summaries = {str(e["SUMMARY"]).split(":")[0]: str(e["DESCRIPTION"]) for e in events}
+    assert not set(summaries) & set(gaps)
+    for e in d["due"]:
+        if e["never_screened"]:
+            assert summaries[e["person"]].startswith(f"Never screened, eligible since {e['eligible_since']}")
