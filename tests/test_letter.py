@@ -10,6 +10,7 @@ sentence + 11.8 x syllables per word - 15.59.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import itertools
 from fractions import Fraction
@@ -427,3 +428,88 @@ def test_a_hard_letter_is_flagged():
     assert letter.readability.flesch_kincaid_grade > 15
     assert not letter.readability.meets_target
     assert letter.warnings and "above the target" in letter.warnings[0]
+
+
+# --------------------------------------------------------------------------- letter kind
+
+
+D = dt.date
+
+
+@pytest.mark.parametrize(
+    "standing, kind",
+    [
+        (L.Standing(), "first_contact"),  # nothing on record
+        (L.Standing(studied=True, last_visit=D(2024, 5, 1), last_contact=D(2024, 5, 1)), "reminder"),
+        (L.Standing(last_visit=D(2024, 5, 1)), "reminder"),  # in surveillance
+        (L.Standing(tested=True, result_on=D(2025, 2, 1), last_contact=D(2025, 2, 1)), "result"),  # result, no visit
+        (L.Standing(studied=True, tested=True, last_visit=D(2024, 5, 1), result_on=D(2025, 2, 1),
+                    last_contact=D(2025, 2, 1)), "result"),  # result newer than the last visit
+        (L.Standing(studied=True, tested=True, last_visit=D(2025, 5, 1), result_on=D(2025, 2, 1),
+                    last_contact=D(2025, 5, 1)), "reminder"),  # the result was before the last visit
+        (L.Standing(studied=True, last_visit=D(2024, 5, 1), last_contact=D(2024, 5, 1),
+                    reclassified_on=D(2025, 9, 1)), "reclassification"),
+        (L.Standing(studied=True, last_visit=D(2024, 5, 1), last_contact=D(2024, 5, 1),
+                    reclassified_on=D(2023, 9, 1)), "reminder"),  # reclassified before the last contact
+        (L.Standing(reclassified_on=D(2025, 9, 1)), "first_contact"),  # newly at risk, never in screening
+    ],
+)  # fmt: skip
+def test_letter_kind_follows_where_the_person_stands(standing, kind):
+    assert L.choose_letter_kind(standing) == kind
+
+
+def test_nobody_in_screening_gets_a_first_contact_letter():
+    """Invented family QF1: QF1-II-1 (untested, at risk) has had an echo: a reminder, never a first contact."""
+    seen = L.Standing(studied=True, last_visit=D(2025, 3, 1), last_contact=D(2025, 3, 1))
+    plan, _ = _prepare("QF1-II-1", standing=seen)
+    assert plan.letter_kind == "reminder" and plan.default_template == L.KIND_TEMPLATES["reminder"]
+    assert "risk" not in plan.values
+    with pytest.raises(L.LetterRefused) as err:
+        _prepare("QF1-II-1", standing=seen, letter_kind="first_contact")
+    msg = str(err.value)
+    assert "already in screening" in msg and "\n" not in msg and "--kind reminder" in msg
+    first, _ = _prepare("QF1-II-1")  # nothing on record: the first-contact letter with the risk figure
+    assert first.letter_kind == "first_contact" and first.values["risk"]
+
+
+def test_result_and_reclassification_letters_for_a_tested_carrier():
+    """QF1-II-5: predictive test 2021-01-04, carrier. A result letter (the result is never printed);
+    after a reclassification of the family variant, the reclassification letter names the new class."""
+    tested = L.Standing(tested=True, result_on=D(2021, 1, 4), last_contact=D(2021, 1, 4))
+    plan, _ = _prepare("QF1-II-5", standing=tested)
+    assert plan.letter_kind == "result"
+    text = _text(L.compose_letter(plan))
+    assert "Your gene test result is ready" in text and "We do not put gene test results in a letter" in text
+    assert "carrier" not in text.lower()
+    moved = L.Standing(tested=True, result_on=D(2021, 1, 4), last_contact=D(2021, 1, 4), reclassified_on=D(2026, 6, 1))
+    lp = dataclasses.replace(VARIANT, acmg_class="likely_pathogenic", classified_on=D(2026, 6, 1))
+    plan, _ = _prepare("QF1-II-5", variant=lp, standing=moved)
+    assert plan.letter_kind == "reclassification"
+    letter = L.compose_letter(plan)
+    assert "They now call it likely pathogenic." in _text(letter)
+    with pytest.raises(L.LetterRefused, match="never changed"):
+        _prepare("QF1-II-5", standing=tested, letter_kind="reclassification")
+
+
+def test_no_reminder_for_a_released_non_carrier():
+    """QF1-II-6: predictive test non-carrier (released): a result letter may go, a reminder may not."""
+    tested = L.Standing(tested=True, result_on=D(2021, 1, 4), last_contact=D(2021, 1, 4))
+    assert _prepare("QF1-II-6", standing=tested)[0].letter_kind == "result"
+    with pytest.raises(L.LetterRefused, match="not at risk"):
+        _prepare("QF1-II-6", standing=tested, letter_kind="reminder")
+
+
+@pytest.mark.parametrize("kind", sorted(L.KIND_TEMPLATES))
+def test_every_follow_up_template_in_every_variant_meets_the_target(kind):
+    """Same targets as the first-contact letters: Flesch-Kincaid grade <= 7 (Kincaid et al. 1975) and
+    Flesch reading ease >= 60 (Flesch 1948), checked against textstat."""
+    path = L.TEMPLATE_DIR / L.KIND_TEMPLATES[kind]
+    first = path.read_text(encoding="utf-8").splitlines()[:12]
+    assert any("Letter template format 1" in ln for ln in first)
+    t = L.kind_template(kind)
+    for combo in itertools.product([False, True], repeat=len(L.FLAGS)):
+        flags = dict(zip(L.FLAGS, combo))
+        r = _check_against_textstat(L.fill_template(t, VALUES, flags))
+        assert r.flesch_kincaid_grade <= L.TARGET_FK_GRADE == 7.0, (kind, flags, r)
+        assert r.flesch_reading_ease >= 60, (kind, flags, r)
+        assert r.words > 250

@@ -59,7 +59,8 @@ def _probability(db, person):
     return st.genotypes[person].probability
 
 
-# person, family type, extra options
+# person, family type, extra options (people already in screening get a reminder, result or
+# reclassification letter; the others the first-contact letter of their family type)
 DEMO_RELATIVES = [
     ("HV01-IV-5", "plp", ()),  # niece of the proband, father untested (declined)
     ("HV01-IV-5", "plp", ("--via-proband",)),
@@ -81,7 +82,9 @@ def test_every_default_template_meets_the_readability_target(run, demo_db, tmp_p
     d = json.loads(r.out)
     assert {"file", "person", "template", "flesch_reading_ease", "flesch_kincaid_grade", "words"} <= set(d)
     assert d["person"] == person and d["letter_type"] == kind
-    assert d["template"] == L.DEFAULT_TEMPLATES[kind]
+    assert d["letter_kind"] in L.LETTER_KINDS
+    expected = L.DEFAULT_TEMPLATES[kind] if d["letter_kind"] == "first_contact" else L.KIND_TEMPLATES[d["letter_kind"]]
+    assert d["template"] == expected
     # Flesch-Kincaid grade (Kincaid et al. 1975) at or below 7: reading age about 12
     assert d["flesch_kincaid_grade"] <= 7.0 and d["meets_target"] is True
     # Flesch reading ease (Flesch 1948): 60 or more is plain English
@@ -116,11 +119,6 @@ def test_readability_figures_are_textstats_for_the_letter(run, demo_db, tmp_path
     [
         # maternal half-brother of the proband, mother untested: second degree, 1/4 (Wright's r)
         ("HV01-IV-5", "about 1 in 4 (25%)"),
-        # mother of the proband, untested: first degree, 1/2
-        ("HV04-IV-2", "about 1 in 2 (50%)"),
-        # son of the proband's monozygotic co-twin: genetically a child of a carrier, 1/2
-        ("HV02-IV-4", "about 1 in 2 (50%)"),
-        ("HV04-IV-2", "about 1 in 2 (50%)"),
     ],
 )
 def test_risk_figure_equals_the_pedigree_computation(run, demo_db, tmp_path, person, expected):
@@ -128,6 +126,34 @@ def test_risk_figure_equals_the_pedigree_computation(run, demo_db, tmp_path, per
     d = json.loads(r.out)
     assert d["risk"] == L.risk_words(_probability(demo_db, person)) == expected
     assert expected in _pdf_text(d["file"])
+
+
+@pytest.mark.parametrize("person", ["HV04-IV-2", "HV02-IV-4", "HV05-II-3", "HV03-III-1", "HV01-III-3"])
+def test_people_in_screening_get_no_first_contact_letter(run, demo_db, tmp_path, person):
+    """Already in screening (a study, a test or a visit on record): a reminder-type letter, no risk figure,
+    and an explicit first-contact letter is refused in one line."""
+    d = json.loads(_letter(run, demo_db, person, tmp_path, "--json").out)
+    assert d["letter_kind"] in ("reminder", "result", "reclassification") and d["risk"] is None
+    assert f"Letter: {L.KIND_WORDS[d['letter_kind']]}" in _pdf_text(d["file"])
+    r = _letter(run, demo_db, person, tmp_path / "again", "--kind", "first_contact")
+    lines = r.err.strip().splitlines()
+    assert r.code == 1 and r.out == "" and len(lines) == 1 and "already in screening" in lines[0], r
+    assert not (tmp_path / "again").exists() or not list((tmp_path / "again").glob("*.pdf"))
+
+
+def test_letter_kind_override_only_where_it_fits(run, demo_db, tmp_path):
+    # HV01-IV-5: never screened, not contacted: first contact; no reminder or result letter can be forced
+    d = json.loads(_letter(run, demo_db, "HV01-IV-5", tmp_path, "--json").out)
+    assert d["letter_kind"] == "first_contact" and d["letter_kind_words"] == "first contact"
+    assert "Letter: first contact" in _pdf_text(d["file"])
+    for kind, words in (("reminder", "not in screening yet"), ("result", "no genetic test result")):
+        r = _letter(run, demo_db, "HV01-IV-5", tmp_path / kind, "--kind", kind)
+        assert r.code == 1 and len(r.err.strip().splitlines()) == 1 and words in r.err, r
+    r = _letter(run, demo_db, "HV01-IV-5", tmp_path / "bad", "--kind", "hello")
+    assert r.code == 1 and "--kind" in r.err
+    # a carrier in surveillance may be sent a reminder explicitly
+    d = json.loads(_letter(run, demo_db, "HV01-III-3", tmp_path, "--kind", "reminder", "--json").out)
+    assert d["letter_kind"] == "reminder" and d["template"] == L.KIND_TEMPLATES["reminder"]
 
 
 def test_pdf_holds_the_facts_and_renders(run, demo_db, tmp_path):
@@ -189,9 +215,9 @@ def test_child_letter_is_addressed_to_a_parent(run, demo_db, tmp_path):
 
 
 def test_vus_letter_says_no_predictive_testing(run, demo_db, tmp_path):
-    r = _letter(run, demo_db, "HV03-III-1", tmp_path)
+    r = _letter(run, demo_db, "HV03-III-4", tmp_path)  # never screened: the first-contact VUS letter
     assert r.code == 0, r
-    text = _pdf_text(tmp_path / "letter-HV03-III-1.pdf")
+    text = _pdf_text(tmp_path / "letter-HV03-III-4.pdf")
     assert "we do not offer relatives a gene test to predict who will get it" in text
     assert "variant of uncertain significance" in text
     assert "NM_000363.5:c.508C>T p.(Arg170Trp)" in text
@@ -199,8 +225,12 @@ def test_vus_letter_says_no_predictive_testing(run, demo_db, tmp_path):
 
 
 def test_no_variant_letter_is_screening_only(run, demo_db, tmp_path):
-    r = _letter(run, demo_db, "HV05-II-3", tmp_path)
+    # HV05-II-3 is in screening by 2026 (a reminder now); on 2017-08-01 the family was known but she had
+    # nothing on record yet:
+    # the first-contact letter of a family without a variant
+    r = _letter(run, demo_db, "HV05-II-3", tmp_path, "--date", "2017-08-01", "--json")
     assert r.code == 0, r
+    assert json.loads(r.out)["letter_kind"] == "first_contact"
     text = _pdf_text(tmp_path / "letter-HV05-II-3.pdf")
     assert "no gene test we can offer to relatives" in text
     assert "found no disease-causing variant" in text
@@ -217,7 +247,7 @@ def test_no_variant_letter_is_screening_only(run, demo_db, tmp_path):
         ("HV01-IV-3", "not at risk: tested non-carrier"),
         ("HV01-III-2", "not at risk from the family variant"),
         ("HV02-IV-3", "adopted in"),
-        ("HV01-III-3", "already knows their result"),
+        ("HV01-IV-3", "not at risk: tested non-carrier"),  # no reminder for a released non-carrier
         ("HV01-III-1", "affected"),
         ("HV03-IV-1", "not on the clinical screening list"),
         ("NOPE-1", "unknown person"),

@@ -17,6 +17,8 @@ from pathlib import Path
 import pytest
 from icalendar import Calendar
 
+from tracker.outputs import worklist_csv
+
 ROOT = Path(__file__).parent.parent
 SETTINGS = ROOT / "demo_family" / "clinic.toml"
 
@@ -269,7 +271,8 @@ def test_upgrade_vus_to_lp_makes_untested_relatives_eligible(demo_db, run, tmp_p
 
 RECALL_KEYS = {"person", "family", "as_of", "rule_set", "rule_set_title", "policy", "status", "due", "days_overdue",
                "interval_months", "routine_due", "rule_id", "needs", "consider", "reason", "source", "fired",
-               "triggers", "flags", "notes", "state", "cautions", "trend_modifiers"}  # fmt: skip
+               "triggers", "flags", "notes", "state", "cautions", "trend_modifiers", "never_screened", "eligible_since",
+               "gap_reason", "waiting"}  # fmt: skip
 
 
 def test_recall_carrier_child(rc_db, run):
@@ -308,9 +311,11 @@ def test_recall_deceased_and_declined(demo_db, run):
 
 
 WORKLIST_KEYS = {"window", "as_of", "rule_set", "rule_set_title", "policy", "slots_per_week", "due", "affected",
-                 "booking", "not_recalled", "lost_to_follow_up", "trend_modifiers", "files", "cautions"}  # fmt: skip
+                 "booking", "contact_gaps", "not_recalled", "lost_to_follow_up", "trend_modifiers", "files",
+                 "cautions"}  # fmt: skip
 ENTRY_KEYS = {"list", "person", "family", "status", "due", "days_overdue", "interval_months", "rule_id", "needs",
-              "consider", "reason", "source", "triggers", "flags", "booked_week", "late"}  # fmt: skip
+              "consider", "reason", "source", "triggers", "flags", "booked_week", "late", "never_screened",
+              "eligible_since", "gap_reason", "waiting", "contact_status"}  # fmt: skip
 
 
 def test_worklist_capacity_reports_who_cannot_be_seen_by_the_due_date(rc_db, run):
@@ -323,9 +328,9 @@ def test_worklist_capacity_reports_who_cannot_be_seen_by_the_due_date(rc_db, run
     assert due["RC-06"]["due"] == due["RC-07"]["due"] == "2025-06-01"
     weeks = {w["week_start"]: w["booked"] for w in d["booking"]["weeks"]}
     assert weeks == {"2025-05-26": ["RC-06"], "2025-06-02": ["RC-07"]}  # ties broken by person code
-    (late,) = d["booking"]["cannot_be_seen_by_due_date"]
-    assert late == {"person": "RC-07", "due": "2025-06-01", "booked_week": "2025-06-02",
-                    "reason": "no free slot on or before the due date"}  # fmt: skip
+    (late,) = d["booking"]["booked_late"]
+    assert late == {"person": "RC-07", "due": "2025-06-01", "booked_week": "2025-06-02", "days_late": 1}
+    assert d["booking"]["not_booked"] == []
     assert due["RC-07"]["late"] is True and due["RC-06"]["late"] is False
     # the affected proband is listed apart with her follow-up interval, not among screening recalls;
     # the declined sister is listed as not recalled; the deceased grandfather never appears
@@ -351,7 +356,10 @@ def test_worklist_demo_exports_calendar_and_csv(demo_db, run, tmp_path):
     assert d["affected"] and all(e["interval_months"] == 12 for e in d["affected"])
     assert not {e["person"] for e in d["affected"]} & set(persons)
     # most urgent first: days overdue never increase down the list (no triggers in the demo window)
-    overdue = [max(0, e["days_overdue"]) for e in d["due"]]
+    # (a never-screened person waits from the day they became eligible, not "days overdue")
+    as_of = dt.date.fromisoformat(d["as_of"])
+    overdue = [(as_of - dt.date.fromisoformat(e["eligible_since"])).days if e["never_screened"]
+               else max(0, e["days_overdue"]) for e in d["due"]]  # fmt: skip
     assert overdue == sorted(overdue, reverse=True)
     for e in d["due"]:
         assert e["needs"] and e["reason"]
@@ -374,11 +382,63 @@ def test_worklist_demo_exports_calendar_and_csv(demo_db, run, tmp_path):
     assert sorted(str(e["UID"]) for e in again) == uids
 
     rows = list(csv.DictReader(csv_path.open(encoding="utf-8")))
-    assert [r["person"] for r in rows] == [e["person"] for e in entries]
-    assert set(rows[0]) == {"list", "person", "family", "status", "due", "days_overdue", "interval_months", "needs",
-                            "reason", "booked_week", "late"}  # fmt: skip
+    assert set(rows[0]) == set(worklist_csv.COLUMNS)
+    people = [r for r in rows if r["list"] != "caution"]
+    assert [r["person"] for r in people] == [e["person"] for e in entries + d["contact_gaps"]]
+    cautions = [r["reason"] for r in rows if r["list"] == "caution"]
+    assert rows[-len(cautions):] == [r for r in rows if r["list"] == "caution"]  # the caution rows come last
+    assert any("Decision support only" in c for c in cautions) and any("current guideline" in c for c in cautions)
 
 
 def test_worklist_errors(demo_db, run):
     one_line_error(run("worklist", "--from", "2027-01-10", "--to", "2027-01-01", db=demo_db), "--to is before --from")
     one_line_error(run("worklist", "--from", "2027-13-01", "--to", "2027-01-01", db=demo_db), "--from")
+
+
+# --------------------------------------------------------------------------- age on the as-of date, never screened
+
+
+def test_recall_never_screened_adult_gets_the_adult_rule_and_plain_words(demo_db, run):
+    # HV01-IV-5 (invented; 30 y on 2026-12-05, never screened, not contacted): eligible since childhood.
+    # ESC 2023 §6.11: untested adult in a P/LP family, every 1-3 y to 60 [V]; not the child row.
+    d = js(run, "recall", "HV01-IV-5", "--as-of", "2026-12-05", "--settings", SETTINGS, db=demo_db)
+    assert d["rule_id"] == "esc23.adult.at_risk_variant_or_early_onset.to60"
+    assert d["status"] == "due" and d["due"] == "2026-12-05" and d["days_overdue"] == 0
+    assert d["never_screened"] is True and d["gap_reason"] == "not_contacted"
+    assert d["eligible_since"] < "2026-12-05"
+    assert d["waiting"] == f"never screened, eligible since {d['eligible_since']}; due now (not contacted)"
+    r = run("recall", "HV01-IV-5", "--as-of", "2026-12-05", "--settings", SETTINGS, db=demo_db)
+    assert r.code == 0 and f"status: never screened, eligible since {d['eligible_since']}; due now" in r.out
+    assert "days overdue" not in r.out
+    # HV01-IV-4 (28 y, once seen as a child, lost to follow-up): keeps the days overdue, adult rule now
+    d = js(run, "recall", "HV01-IV-4", "--as-of", "2026-12-05", "--settings", SETTINGS, db=demo_db)
+    assert d["never_screened"] is False and d["days_overdue"] > 0
+    assert d["rule_id"].startswith("esc23.adult.") and "band_changed_since_due" in d["flags"]
+
+
+def test_worklist_books_only_reachable_people_once_from_the_next_clinic_day(demo_db, run, tmp_path):
+    # Run on Saturday 2026-12-05 for a window from Tuesday 2026-12-01: first bookable day Monday 2026-12-07.
+    csv_path, ics_path = tmp_path / "w.csv", tmp_path / "w.ics"
+    d = js(run, "worklist", "--from", "2026-12-01", "--to", "2027-03-01", "--slots-per-week", "4", "--as-of",
+           "2026-12-05", "--settings", SETTINGS, "--csv", csv_path, "--ics", ics_path, db=demo_db)  # fmt: skip
+    b = d["booking"]
+    assert b["first_bookable_day"] == "2026-12-07" and b["weeks"][0]["week_start"] == "2026-12-07"
+    booked = [p for w in b["weeks"] for p in w["booked"]]
+    assert len(booked) == len(set(booked))  # each person once
+    gaps = {g["person"]: g["contact_status"] for g in d["contact_gaps"]}
+    assert set(gaps.values()) == {"not_contacted", "lost_to_follow_up", "declined"}
+    assert not set(booked) & set(gaps)  # nobody who cannot be reached is booked
+    assert not {e["person"] for e in d["due"] + d["affected"]} & set(gaps)  # listed once
+    assert all(e["contact_status"] == "contactable" for e in d["due"])
+    never = [g for g in d["contact_gaps"] if g["never_screened"]]
+    assert never and all(g["waiting"].startswith("never screened, eligible since") for g in never)
+    rows = list(csv.DictReader(csv_path.open(encoding="utf-8")))
+    assert {r["person"]: r["gap_reason"] for r in rows if r["list"] == "contact_gap"}.keys() == gaps.keys()
+    assert rows[-1]["list"] == "caution"
+    # the calendar: reachable people only, the never-screened said plainly in the description
+    events = [c for c in Calendar.from_ical(ics_path.read_bytes()).walk() if c.name == "VEVENT"]
+    summaries = {str(e["SUMMARY"]).split(":")[0]: str(e["DESCRIPTION"]) for e in events}
+    assert not set(summaries) & set(gaps)
+    for e in d["due"]:
+        if e["never_screened"]:
+            assert summaries[e["person"]].startswith(f"Never screened, eligible since {e['eligible_since']}")

@@ -29,6 +29,7 @@ from tracker.engines.schedule import (
     add_months,
     interval_point,
     matching_rules,
+    never_screened_text,
     possible_ages,
     propose_recall,
 )
@@ -358,7 +359,8 @@ def test_affected_without_visit_or_diagnosis_date_is_due_today():
     p = plan(person(40, phenotype="positive", last=None), ESC23)
     assert p.due == TODAY and p.status == "due"
     dated = plan(person(40, phenotype="positive", last=None, eligible_since=dt.date(2025, 6, 1)), ESC23)
-    assert dated.due == dt.date(2025, 6, 1) and dated.status == "overdue"
+    assert dated.due == TODAY and dated.status == "due" and dated.days_overdue == 0
+    assert dated.never_screened and dated.eligible_since == dt.date(2025, 6, 1)
 
 
 def test_affected_aha_scd_risk_every_1_to_2_years():
@@ -371,11 +373,78 @@ def test_affected_aha_scd_risk_every_1_to_2_years():
 # -------------------------------------------------------------- never seen
 
 
-def test_never_seen_is_overdue_from_eligibility():
-    """Never-seen at-risk relative: due from the date identified at risk (ESC 2023 screens at any age)."""
+def test_never_seen_is_due_now_and_eligible_since_identification():
+    """Never-seen at-risk relative: eligible since the date identified at risk (ESC 2023 screens at any age);
+    said as "never screened, eligible since D; due now", not as days overdue."""
     p = plan(person(born=dt.date(1990, 3, 1), last=None, family_features=PLP, eligible_since=dt.date(2024, 9, 1)), ESC23)
-    assert p.due == dt.date(2024, 9, 1) and p.status == "overdue"
-    assert p.days_overdue == (TODAY - dt.date(2024, 9, 1)).days and "never_seen" in p.flags
+    assert p.due == TODAY and p.status == "due" and p.days_overdue == 0 and "never_seen" in p.flags
+    assert p.never_screened and p.eligible_since == dt.date(2024, 9, 1) and p.gap_reason == "contactable"
+    assert never_screened_text(p) == "never screened, eligible since 2024-09-01; due now (contactable, no visit yet)"
+
+
+@pytest.mark.parametrize(
+    "contact,gap",
+    [("not_contacted", "not contacted"), ("lost_to_follow_up", "lost to follow-up"), ("declined", "declined")],
+)
+def test_never_screened_carries_the_contact_gap(contact, gap):
+    """The reason behind the gap travels with the proposal (declined: not recalled, still never screened)."""
+    p = plan(person(born=dt.date(1990, 3, 1), last=None, family_features=PLP, contact_status=contact,
+                    eligible_since=dt.date(2024, 9, 1)), ESC23)  # fmt: skip
+    assert p.never_screened and p.gap_reason == contact and p.eligible_since == dt.date(2024, 9, 1)
+    assert never_screened_text(p).endswith(f"({gap})")
+    if contact == "declined":
+        assert p.status == "not_recalled" and p.due is None
+    else:
+        assert p.status == "due" and p.due == TODAY
+
+
+def test_once_seen_keeps_the_overdue_count():
+    """A person seen before keeps "N days overdue" (ESC 2023 §6.11 adult at risk, 1-3 y [V])."""
+    p = plan(person(40, family_features=PLP, last=dt.date(2020, 1, 10)), ESC23, "shortest")
+    assert p.status == "overdue" and p.due == dt.date(2021, 1, 10)
+    assert p.days_overdue == (TODAY - dt.date(2021, 1, 10)).days and not p.never_screened
+    assert never_screened_text(p) is None
+
+
+def test_never_screened_grown_up_child_gets_the_adult_rule():
+    """Invented family: eligible at 8 y (2004), never seen, 30 y today. The rule is that of the age today
+    (ESC 2023 §6.11: adult at risk in a P/LP family, 1-3 y to 60 [V]), not the child rule of 2004."""
+    p = plan(person(born=dt.date(1996, 2, 20), last=None, family_features=PLP, contact_status="not_contacted",
+                    eligible_since=dt.date(2004, 5, 1)), ESC23, "longest")  # fmt: skip
+    assert p.rule_id == "esc23.adult.at_risk_variant_or_early_onset.to60"
+    assert p.interval_months == 36 and p.due == TODAY
+    assert any("esc23.child.at_risk_variant_or_early_onset" in n for n in p.notes)  # says what it was then
+    # AHA/ACC 2020 table [V2]: adult at risk every 3-5 y, children 2-3 y; the adult row today
+    a = plan(person(born=dt.date(1996, 2, 20), last=None, eligible_since=dt.date(2004, 5, 1)), AHA, "longest")
+    assert a.rule_id == "aha20.adult.at_risk" and a.interval_months == 60
+
+
+def test_overdue_once_seen_follows_the_rule_of_the_age_today():
+    """Last seen at 16 (child rule, ESC 2023 §6.11 1-3 y [V]), overdue since 17, 26 today: the visit now
+    follows the adult rule; the due date and the days overdue stay those of the child interval."""
+    born = dt.date(2000, 3, 3)
+    p = plan(person(born=born, last=dt.date(2016, 6, 1), family_features={"familial_disease"}), ESC23, "shortest")
+    assert p.due == dt.date(2017, 6, 1) and p.status == "overdue"
+    assert p.rule_id == "esc23.adult.at_risk_familial.to60" and "band_changed_since_due" in p.flags
+    assert p.days_overdue == (TODAY - dt.date(2017, 6, 1)).days
+
+
+def test_band_change_before_the_visit_is_named():
+    """17 today, next visit after the 18th birthday: the visit follows the adult rule and the note names
+    both rules (ESC 2023 §6.11 children / adults 1-3 y [V]; AHA/ACC 2020 table, child 2-3 y, adult 3-5 y [V2])."""
+    born = dt.date(2008, 9, 1)
+    p = plan(person(born=born, last=dt.date(2025, 12, 1)), AHA, "shortest")
+    assert p.due > dt.date(2026, 9, 1) and p.rule_id == "aha20.adult.at_risk"
+    assert "band_change_before_visit" in p.flags
+    note = next(n for n in p.notes if n.startswith("age band changes before the visit"))
+    assert "aha20.child.at_risk_other" in note and "aha20.adult.at_risk" in note
+
+
+def test_never_screened_child_due_later_says_eligible_from():
+    """ESC 2014 [M]: children from 10 y; a 7-year-old never seen is eligible from the 10th birthday."""
+    p = plan(person(born=dt.date(2018, 4, 2), last=None), ESC14)
+    assert p.due == dt.date(2028, 4, 2) and p.never_screened and p.eligible_since == dt.date(2028, 4, 2)
+    assert never_screened_text(p).startswith("never screened, eligible from 2028-04-02")
 
 
 def test_never_seen_child_due_at_start_age_esc2014():
@@ -383,9 +452,9 @@ def test_never_seen_child_due_at_start_age_esc2014():
     later = plan(person(born=dt.date(2018, 4, 2), last=None), ESC14)
     assert later.due == dt.date(2028, 4, 2) and later.status == "due" and later.days_overdue < 0
     past = plan(person(born=dt.date(2012, 4, 2), last=None), ESC14)
-    assert past.due == dt.date(2022, 4, 2) and past.status == "overdue"
+    assert past.due == TODAY and past.status == "due" and past.eligible_since == dt.date(2022, 4, 2)
     early = plan(person(born=dt.date(2018, 4, 2), last=None, family_features={"early_onset"}), ESC14)
-    assert early.due == dt.date(2018, 4, 2) and early.status == "overdue"
+    assert early.due == TODAY and early.status == "due" and early.eligible_since == dt.date(2018, 4, 2)
 
 
 # ----------------------------------------------------------------- cautions
@@ -434,3 +503,40 @@ def test_add_months_matches_pandas_dateoffset(start, months):
 def test_add_months_clips_month_end():
     assert add_months(dt.date(2024, 1, 31), 1) == dt.date(2024, 2, 29)
     assert add_months(dt.date(2025, 1, 31), 1) == dt.date(2025, 2, 28)
+
+
+# ----------------------------------------------- the rule follows the age at the visit (any invented person)
+
+
+@given(
+    born=st.dates(min_value=dt.date(1935, 1, 1), max_value=dt.date(2025, 12, 31)),
+    seen_after_years=st.one_of(st.none(), st.integers(min_value=0, max_value=70)),
+    identified=st.one_of(st.none(), st.dates(min_value=dt.date(1990, 1, 1), max_value=dt.date(2026, 1, 1))),
+    features=st.sets(st.sampled_from(["plp_variant", "familial_disease", "early_onset", "isolated_case"])),
+    genotype=st.sampled_from(["at_risk_untested", "carrier"]),
+    rs=st.sampled_from([ESC23, AHA, ESC14]),
+    contact=st.sampled_from(["contactable", "not_contacted", "lost_to_follow_up"]),
+)
+def test_governing_rule_covers_the_age_on_the_visit_day(born, seen_after_years, identified, features, genotype, rs,
+                                                         contact):
+    """Whatever the person, the governing rule's age band holds the age on the day the visit is wanted:
+    the due date if still ahead, else today. A never-screened person is never shown as days overdue."""
+    last = None
+    if seen_after_years is not None:
+        last = add_months(born, 12 * seen_after_years)
+        if last >= TODAY:
+            last = None
+    if genotype == "carrier":
+        features = set(features) | {"plp_variant"}
+    p = PersonState("INV1-II-1", PartialDate(born), genotype=genotype, family_features=frozenset(features),
+                    last_visit=last, eligible_since=identified, contact_status=contact)  # fmt: skip
+    prop = propose_recall(p, rs, Policy("midpoint"), TODAY)
+    if prop.rule_id is None or prop.routine_due is None:
+        return
+    visit = max(prop.routine_due, TODAY)
+    rule = rs.rule(prop.rule_id)
+    ages = possible_ages(PartialDate(born), visit)
+    assert any(rule.conditions.matches_age(a) for a in ages), (prop.rule_id, ages, prop.notes)
+    if last is None:
+        assert prop.never_screened and (prop.days_overdue or 0) <= 0 and prop.eligible_since is not None
+        assert prop.gap_reason == contact

@@ -13,6 +13,8 @@ from tracker.domain.dates import PartialDate
 from tracker.engines.schedule import CAUTIONS, PersonState, Policy, Proposal, propose_recall
 from tracker.engines.worklist import (
     book_into_slots,
+    first_bookable_day,
+    plan_bookings,
     lost_to_follow_up,
     not_recalled,
     select_due,
@@ -187,3 +189,62 @@ def test_booking_invariants(items, weeks, slots):
     late = {b.person_code for b in plan.bookings if b.late}
     assert {u.person_code for u in plan.unseen} == unbooked | late
     assert len(plan.bookings) == min(len(ps), weeks * slots)
+
+
+# ------------------------------------------------------- who is booked, when, and once
+
+
+def test_only_reachable_people_are_booked_and_the_rest_are_contact_gaps():
+    """Invented family: the most overdue are not contacted or lost; they are never booked."""
+    rs = load_rule_set("esc_2023")
+    plp = frozenset({"plp_variant"})
+    born = PartialDate(dt.date(1985, 5, 5))
+
+    def st_(code, contact, last):
+        return PersonState(code, born, genotype="carrier", family_features=plp, contact_status=contact, last_visit=last)
+
+    people = [
+        st_("FAM7-II-1", "not_contacted", None),
+        st_("FAM7-II-2", "lost_to_follow_up", dt.date(2015, 3, 1)),
+        st_("FAM7-II-3", "contactable", dt.date(2024, 6, 1)),
+        st_("FAM7-II-4", "declined", None),
+        st_("FAM7-II-5", "contactable", None),
+    ]
+    props = [propose_recall(p, rs, Policy("shortest"), TODAY) for p in people]
+    plan = book_into_slots(props, WEEK1, weeks=2, slots_per_week=3)
+    assert [b.person_code for b in plan.bookings] == ["FAM7-II-5", "FAM7-II-3"]
+    gaps = [(p.person_code, p.contact_status) for p in plan.contact_gaps]
+    assert gaps == [("FAM7-II-1", "not_contacted"), ("FAM7-II-2", "lost_to_follow_up"), ("FAM7-II-4", "declined")]
+    assert not {u.person_code for u in plan.unseen} & {g for g, _ in gaps}
+
+
+def test_a_person_met_twice_is_booked_once():
+    ps = [make("D1", TODAY - dt.timedelta(days=40)), make("D1", TODAY - dt.timedelta(days=40)), make("D2", TODAY)]
+    plan = book_into_slots(ps, WEEK1, weeks=2, slots_per_week=3)
+    assert sorted(b.person_code for b in plan.bookings) == ["D1", "D2"]
+
+
+def test_never_booked_before_the_next_clinic_day():
+    """Run on Saturday 2026-12-05 for a window from Tuesday 2026-12-01: the first week starts Monday 2026-12-07."""
+    sat = dt.date(2026, 12, 5)
+    assert first_bookable_day(dt.date(2026, 12, 1), sat) == dt.date(2026, 12, 7)
+    assert first_bookable_day(dt.date(2026, 12, 9), sat) == dt.date(2026, 12, 9)  # a Wednesday after today
+    ps = [make("W1", dt.date(2026, 11, 1), today=sat), make("W2", dt.date(2026, 12, 2), today=sat)]
+    plan = plan_bookings(ps, dt.date(2026, 12, 1), dt.date(2027, 3, 1), 4, sat)
+    assert plan.window_start == dt.date(2026, 12, 7)
+    assert all(b.week_start >= dt.date(2026, 12, 7) for b in plan.bookings) and len(plan.bookings) == 2
+    assert plan.weeks == 13  # 2026-12-07 ... 2027-03-01
+    over = plan_bookings(ps, dt.date(2026, 11, 1), dt.date(2026, 11, 30), 4, sat)  # window already past
+    assert over.bookings == () and {u.person_code for u in over.unseen} == {"W1", "W2"}
+
+
+def test_never_screened_waiting_counts_from_eligibility():
+    """A never-screened person due now ranks by the days since eligible, beside the once-seen overdue."""
+    rs = load_rule_set("esc_2023")
+    plp = frozenset({"plp_variant"})
+    new = PersonState("FAM8-III-1", PartialDate(dt.date(1990, 1, 1)), family_features=plp,
+                      eligible_since=dt.date(2020, 1, 1))  # fmt: skip
+    seen = PersonState("FAM8-III-2", PartialDate(dt.date(1991, 1, 1)), family_features=plp, last_visit=dt.date(2023, 1, 1))
+    props = [propose_recall(p, rs, Policy("shortest"), TODAY) for p in (seen, new)]
+    assert props[1].days_overdue == 0 and props[1].never_screened
+    assert [p.person_code for p in sort_by_urgency(props)] == ["FAM8-III-1", "FAM8-III-2"]

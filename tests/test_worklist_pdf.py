@@ -94,8 +94,30 @@ def test_pdf_holds_the_same_people_and_due_dates_as_the_worklist_command(made, d
     for r in expected["due"]:
         assert r["booked_week"] in text
     # a known due person of the demo, checked by hand against `tracker worklist`
-    first = expected["due"][0]
+    first = next(r for r in expected["due"] if not r["never_screened"])
     assert re.search(rf"{re.escape(first['person'])} {first['due']} {first['days_overdue']}\b", text)
+    # a never-screened person is said plainly, not as thousands of days overdue
+    never = next(r for r in expected["due"] + expected["contact_gaps"] if r["never_screened"])
+    assert f"{never['person']} " in text and f"eligible since {never['eligible_since']}" in text
+
+
+def test_pdf_lists_the_contact_gaps_and_the_flags(made, demo, run):
+    """Declined, lost to follow-up and never-contacted people are printed in their own section, with flags."""
+    info, _, pages = made
+    text = _flat(" ".join(pages))
+    expected = _expected_rows(run, demo[1])
+    gaps = expected["contact_gaps"]
+    assert {g["contact_status"] for g in gaps} == {"not_contacted", "lost_to_follow_up", "declined"}
+    assert [g["person"] for g in info["contact_gaps"]] == [g["person"] for g in gaps]
+    section = text[text.index("Contact gaps"):]
+    for g in gaps:
+        assert g["person"] in section
+    for words in ("not contacted", "lost to follow-up", "declined", "never screened"):
+        assert words in section
+    assert "Flags" in text and "rule from memory: verify" in text
+    # nobody who cannot be reached is on the screening list, and nobody is listed twice
+    booked = set(info["screening"])
+    assert not booked & {g["person"] for g in gaps} and len(info["screening"]) == len(booked)
 
 
 def test_header_and_caution_on_every_page(made):

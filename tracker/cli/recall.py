@@ -32,10 +32,19 @@ from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
 from tracker.engines.cascade import plan_cascade
 from tracker.engines.reclassification import CAUTION as RECLASSIFICATION_CAUTION
 from tracker.engines.reclassification import impact_of_reclassification
-from tracker.engines.schedule import CAUTIONS, Policy, Proposal, propose_recall
-from tracker.engines.worklist import book_into_slots, lost_to_follow_up, not_recalled, select_due, week_starts
+from tracker.engines.schedule import CAUTIONS, Policy, Proposal, never_screened_text, propose_recall
+from tracker.engines.worklist import (
+    contact_gaps,
+    lost_to_follow_up,
+    not_recalled,
+    plan_bookings,
+    reachable,
+    select_due,
+    week_starts,
+)
 from tracker.errors import UserError
 from tracker.outputs import ics, worklist_csv
+from tracker.outputs.worklist_pdf import GAP_WORDS, booked_text, flag_words, waiting_text
 from tracker.rules import available_rule_sets, load_rule_set
 from tracker.settings import Settings, load_settings
 from tracker.store import audit
@@ -612,6 +621,10 @@ def _proposal_dict(p: Proposal, st: fs.FamilyState) -> dict:
         "status": p.status,
         "due": _iso(p.due),
         "days_overdue": p.days_overdue,
+        "never_screened": p.never_screened,
+        "eligible_since": _iso(p.eligible_since),
+        "gap_reason": p.gap_reason,
+        "waiting": never_screened_text(p),
         "interval_months": p.interval_months,
         "routine_due": _iso(p.routine_due),
         "rule_id": p.rule_id,
@@ -648,7 +661,8 @@ def _unscheduled_dict(person: str, st: fs.FamilyState, on: dt.date, rule_set_id:
     why = st.not_scheduled[person]
     return {
         "person": person, "family": st.family, "as_of": on.isoformat(), "rule_set": rule_set_id,
-        "status": "not_scheduled", "due": None, "days_overdue": None, "interval_months": None, "routine_due": None,
+        "status": "not_scheduled", "due": None, "days_overdue": None, "never_screened": False, "eligible_since": None,
+        "gap_reason": None, "waiting": None, "interval_months": None, "routine_due": None,
         "rule_id": None, "needs": [], "consider": [], "reason": why, "source": "", "fired": [], "triggers": [],
         "flags": [], "notes": [why], "state": None, "cautions": list(CAUTIONS),
     }  # fmt: skip
@@ -690,8 +704,13 @@ def recall(
         print_json(result)
         return
     typer.echo(f"{person} ({result['family']}), {result['as_of']}, rule set {rule_set.title}, policy {policy.point}")
-    typer.echo(f"status: {result['status']}" + (f", due {result['due']}" if result["due"] else "")
-               + (f", every {result['interval_months']} months" if result["interval_months"] else ""))  # fmt: skip
+    if result["never_screened"]:
+        typer.echo(f"status: {result['waiting']}" + (f", due {result['due']}" if result["due"] else "")
+                   + (f", every {result['interval_months']} months" if result["interval_months"] else ""))  # fmt: skip
+    else:
+        typer.echo(f"status: {result['status']}" + (f", due {result['due']}" if result["due"] else "")
+                   + (f", {result['days_overdue']} days overdue" if (result["days_overdue"] or 0) > 0 else "")
+                   + (f", every {result['interval_months']} months" if result["interval_months"] else ""))  # fmt: skip
     if result["needs"]:
         typer.echo("visit needs: " + ics.needs_words(result["needs"])
                    + (f" (consider: {ics.needs_words(result['consider'])})" if result["consider"] else ""))  # fmt: skip
@@ -719,7 +738,10 @@ def _entry(p: Proposal, family: str, lst: str) -> dict:
     reason, source = _reason(p)
     return {
         "list": lst, "person": p.person_code, "family": family, "status": p.status, "due": _iso(p.due),
-        "days_overdue": p.days_overdue, "interval_months": p.interval_months, "rule_id": p.rule_id,
+        "days_overdue": p.days_overdue, "never_screened": p.never_screened, "eligible_since": _iso(p.eligible_since),
+        "gap_reason": p.gap_reason if p.never_screened else (None if p.contact_status == "contactable" else p.contact_status),
+        "waiting": never_screened_text(p), "contact_status": p.contact_status,
+        "interval_months": p.interval_months, "rule_id": p.rule_id,
         "needs": list(p.needs), "consider": list(p.consider), "reason": reason, "source": source,
         "triggers": list(p.triggers), "flags": list(p.flags), "booked_week": None, "late": None,
     }  # fmt: skip
@@ -750,6 +772,54 @@ def due_proposals(frames, conf, rule_set, policy, start: dt.date, end: dt.date, 
     screening_due = select_due([p for p in proposals if p.person_code not in affected], start, end)
     affected_due = select_due([p for p in proposals if p.person_code in affected], start, end)
     return screening_due, affected_due, family_of, trend, proposals
+
+
+def worklist_lists(frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date, slots: int | None) -> dict:
+    """Everything the worklist shows, shared by ``tracker worklist`` and ``tracker report worklist``.
+
+    ``due`` / ``affected``: reachable people due or overdue by ``end``, most
+    urgent first; ``contact_gaps``: people who cannot be booked until contact
+    is made (not contacted, lost to follow-up, declined), each once;
+    ``booking`` (with a weekly capacity): reachable screening people booked
+    from the first bookable day on or after both ``start`` and ``on``.
+    """
+    screening_due, affected_due, family_of, trend, proposals = due_proposals(frames, conf, rule_set, policy, start, end, on)
+    gaps = contact_gaps(screening_due + affected_due + [p for p in proposals if p.status == "not_recalled"])
+    due_rows = [_entry(p, family_of[p.person_code], "screening") for p in screening_due if reachable(p)]
+    affected_rows = [_entry(p, family_of[p.person_code], "affected") for p in affected_due if reachable(p)]
+    gap_rows = [_entry(p, family_of[p.person_code], "contact_gap") for p in gaps]
+    booking = None
+    if slots is not None:
+        plan = plan_bookings([p for p in screening_due if reachable(p)], start, end, slots, on)
+        booked = {b.person_code: b for b in plan.bookings}
+        for r in due_rows:
+            b = booked.get(r["person"])
+            r["booked_week"] = _iso(b.week_start) if b else None
+            r["late"] = (b.late if b else True)
+        booking = {
+            "slots_per_week": slots,
+            "first_bookable_day": plan.window_start.isoformat(),
+            "weeks": [
+                {"week_start": w.isoformat(), "booked": [b.person_code for b in plan.bookings if b.week_start == w],
+                 "free": slots - sum(1 for b in plan.bookings if b.week_start == w)}
+                for w in week_starts(plan.window_start, plan.weeks)
+            ],  # fmt: skip
+            "booked_late": [
+                {"person": b.person_code, "due": b.due.isoformat(), "booked_week": b.week_start.isoformat(),
+                 "days_late": b.days_late}
+                for b in plan.bookings if b.late
+            ],  # fmt: skip
+            "not_booked": [
+                {"person": u.person_code, "due": u.due.isoformat(), "reason": u.reason}
+                for u in plan.unseen if u.week_start is None
+            ],
+        }
+    return {
+        "due": due_rows, "affected": affected_rows, "contact_gaps": gap_rows, "booking": booking, "trend": trend,
+        "not_recalled": [{"person": p.person_code, "family": family_of[p.person_code], "reason": "declined: not recalled"}
+                         for p in not_recalled(proposals)],
+        "lost_to_follow_up": [p.person_code for p in lost_to_follow_up(screening_due + affected_due)],
+    }  # fmt: skip
 
 
 def worklist(
@@ -784,46 +854,20 @@ def worklist(
     engine = open_store(db)
     with reading(engine) as conn:
         frames = _load(conn)
-    screening_due, affected_due, family_of, trend, proposals = due_proposals(frames, conf, rule_set, policy, start, end, on)
-    due_rows = [_entry(p, family_of[p.person_code], "screening") for p in screening_due]
-    affected_rows = [_entry(p, family_of[p.person_code], "affected") for p in affected_due]
-
+    lists = worklist_lists(frames, conf, rule_set, policy, start, end, on, slots)
+    due_rows, affected_rows, gap_rows = lists["due"], lists["affected"], lists["contact_gaps"]
+    booking, trend, declined, lost = lists["booking"], lists["trend"], lists["not_recalled"], lists["lost_to_follow_up"]
     weeks = math.ceil(((end - start).days + 1) / 7)
-    booking = None
-    if slots is not None:
-        plan = book_into_slots(screening_due, start, weeks, slots)
-        booked = {b.person_code: b for b in plan.bookings}
-        unseen = {u.person_code for u in plan.unseen}
-        for r in due_rows:
-            b = booked.get(r["person"])
-            r["booked_week"] = _iso(b.week_start) if b else None
-            r["late"] = r["person"] in unseen
-        booking = {
-            "slots_per_week": slots,
-            "weeks": [
-                {"week_start": w.isoformat(), "booked": [b.person_code for b in plan.bookings if b.week_start == w],
-                 "free": slots - sum(1 for b in plan.bookings if b.week_start == w)}
-                for w in week_starts(start, weeks)
-            ],  # fmt: skip
-            "cannot_be_seen_by_due_date": [
-                {"person": u.person_code, "due": u.due.isoformat(), "booked_week": _iso(u.week_start), "reason": u.reason}
-                for u in plan.unseen
-            ],
-        }
-    declined = [
-        {"person": p.person_code, "family": family_of[p.person_code], "reason": "declined: not recalled"}
-        for p in not_recalled(proposals)
-    ]
-    lost = [p.person_code for p in lost_to_follow_up(screening_due + affected_due)]
 
     files = {"csv": None, "ics": None}
     if csv_out is not None:
-        csv_out.write_text(worklist_csv.worklist_csv(due_rows + affected_rows), encoding="utf-8")
+        csv_out.write_text(worklist_csv.worklist_csv(due_rows + affected_rows + gap_rows, cautions=CAUTIONS),
+                           encoding="utf-8")
         files["csv"] = str(csv_out)
     if ics_out is not None:
         visits = [
             ics.CalendarVisit(r["person"], dt.date.fromisoformat(r["booked_week"] or r["due"]), tuple(r["needs"]),
-                              r["reason"])
+                              f"{r['waiting'][0].upper()}{r['waiting'][1:]}. {r['reason']}" if r["waiting"] else r["reason"])
             for r in due_rows + affected_rows
         ]  # fmt: skip
         ics_out.write_bytes(ics.calendar_bytes(visits, caution=" ".join(CAUTIONS)))
@@ -839,6 +883,7 @@ def worklist(
         "due": due_rows,
         "affected": affected_rows,
         "booking": booking,
+        "contact_gaps": gap_rows,
         "not_recalled": declined,
         "lost_to_follow_up": lost,
         "trend_modifiers": trend,
@@ -853,16 +898,23 @@ def worklist(
     _worklist_table("Family screening: due or overdue, most urgent first", due_rows, booking is not None)
     _worklist_table("Affected members (follow-up interval)", affected_rows, False)
     if booking is not None:
+        typer.echo(f"Booking from {booking['first_bookable_day']} ({slots} slots a week); "
+                   f"{len(booking['booked_late'])} booked after their due date")  # fmt: skip
+        if booking["not_booked"]:
+            print_table(
+                "Not booked: no free slot in the window",
+                ["person", "due", "reason"],
+                [[u["person"], u["due"], u["reason"]] for u in booking["not_booked"]],
+            )
+    if gap_rows:
         print_table(
-            f"Cannot be seen by the due date ({slots} slots a week)",
-            ["person", "due", "booked week", "reason"],
-            [[u["person"], u["due"], u["booked_week"] or "not booked", u["reason"]]
-             for u in booking["cannot_be_seen_by_due_date"]],
+            "Contact gaps: not booked until contact is made",
+            ["person", "gap", "waiting", "due", "needs", "flags"],
+            [[r["person"], GAP_WORDS.get(r["contact_status"], r["contact_status"]), waiting_text(r), r["due"] or "",
+              ics.needs_words(r["needs"]), flag_words(r["flags"])] for r in gap_rows],
         )  # fmt: skip
-    if declined:
-        typer.echo("Declined, not recalled: " + ", ".join(d["person"] for d in declined))
-    if lost:
-        typer.echo("Lost to follow-up (re-contact needed): " + ", ".join(lost))
+    else:
+        typer.echo("Contact gaps: none")
     typer.echo(f"note: {trend['note']}")
     for k, path in files.items():
         if path:
@@ -875,14 +927,14 @@ def _worklist_table(title: str, rows: list[dict], booked: bool) -> None:
     if not rows:
         typer.echo(f"{title}: none")
         return
-    cols = ["person", "status", "due", "days overdue", "every (months)", "needs", "reason"]
+    cols = ["person", "status", "due", "overdue / waiting", "every (months)", "needs", "reason", "flags"]
     if booked:
         cols.append("booked week")
     print_table(
         title,
         cols,
-        [[r["person"], r["status"], r["due"], r["days_overdue"], r["interval_months"], ics.needs_words(r["needs"]),
-          r["reason"]] + ([r["booked_week"] or "not booked"] if booked else []) for r in rows],
+        [[r["person"], r["status"], r["due"], waiting_text(r), r["interval_months"], ics.needs_words(r["needs"]),
+          r["reason"], flag_words(r["flags"])] + ([booked_text(r)] if booked else []) for r in rows],
     )  # fmt: skip
 
 

@@ -39,6 +39,21 @@ def _stored_name(people, person: str) -> str | None:
     return " ".join(parts) or None
 
 
+def _standing(state: fs.FamilyState, person: str) -> L.Standing:
+    """Where ``person`` stands with the clinic, from the family state's facts and results."""
+    f = state.facts.get(person)
+    results = state.results
+    dates = []
+    if results is not None and len(results):
+        mine = results[results["person"] == person]
+        dates = [d for d in fs._dates(mine["test_date"].tolist()) if d is not None] if len(mine) else []
+    return L.Standing(
+        studied=bool(f and f.studied), tested=bool(f and f.tested), last_visit=f.last_visit if f else None,
+        result_on=max(dates) if dates else None, last_contact=f.last_contact if f else None,
+        reclassified_on=state.variant.class_changed_on if state.variant else None,
+    )  # fmt: skip
+
+
 def letter(
     person: Annotated[str, typer.Argument(help="Person code of the relative the letter is for.")],
     out: Annotated[Path, typer.Option("--out", "-o", help="Folder for the PDF (made if missing).")],
@@ -63,6 +78,14 @@ def letter(
             help=f"Cascade rule set: {', '.join(CASCADE_RULE_SETS)} (default: the settings guideline).",
         ),
     ] = None,
+    kind: Annotated[
+        str | None,
+        typer.Option(
+            "--kind",
+            help="Letter kind: first_contact, reminder, result or reclassification (default: chosen from where "
+            "the person stands; refused when it does not fit).",
+        ),
+    ] = None,
     settings: SettingsOption = None,
     db: DbOption = None,
     json_out: JsonOption = False,
@@ -75,6 +98,12 @@ def letter(
     to know, when to seek help sooner, and how to contact the clinic (from
     the settings file). No letter for people who declined contact, deceased
     people, placeholders or people not at risk.
+
+    The letter kind follows where the person stands: first contact (not in
+    screening), reminder (a study, a test or a visit on record), result (a
+    gene test result since the last visit) or reclassification (the family
+    variant's class changed since the last contact). --kind overrides it only
+    where it fits: nobody already in screening gets a first-contact letter.
 
     Prints the Flesch reading ease and Flesch-Kincaid grade of the body text
     (target: grade 7 or lower, a reading age of about 12).
@@ -93,6 +122,8 @@ def letter(
         raise UserError(
             f"no cascade rule set for guideline {gid!r}: give --guideline one of {', '.join(CASCADE_RULE_SETS)}"
         )
+    if kind is not None and kind not in L.LETTER_KINDS:
+        raise UserError(f"--kind: {kind!r} is not one of {', '.join(L.LETTER_KINDS)}")
     own_template = L.read_template(template) if template is not None else None
     engine = open_store(db)
     with reading(engine) as conn:
@@ -108,7 +139,7 @@ def letter(
     plan = L.prepare_letter(
         state.pedigree, state.genotypes, _letter_variant(state.variant), person, on, gid, conf.clinic,
         affected=state.affected, seen=state.seen, early_onset_family="early_onset" in state.features,
-        via_proband=via_proband, recipient_name=recipient_name,
+        via_proband=via_proband, recipient_name=recipient_name, standing=_standing(state, person), letter_kind=kind,
     )  # fmt: skip
     composed = L.compose_letter(plan, own_template)
     notes = list(plan.notes) + list(composed.warnings)
@@ -135,6 +166,8 @@ def letter(
                 "syllable_counter": r.syllable_counter,
                 "not_measured": r.not_measured,
                 "letter_type": plan.kind,
+                "letter_kind": plan.letter_kind,
+                "letter_kind_words": L.KIND_WORDS[plan.letter_kind],
                 "guideline": gid,
                 "risk": plan.values.get("risk"),
                 "notes": notes,
@@ -143,7 +176,8 @@ def letter(
         )
         return
     typer.echo(f"{'replaced' if replaced else 'wrote'} {path}")
-    typer.echo(f"letter: {plan.kind} family, template {template_name}, rule set {gid}"
+    typer.echo(f"letter: {L.KIND_WORDS[plan.letter_kind]} ({plan.letter_kind}), {plan.kind} family, "
+               f"template {template_name}, rule set {gid}"
                + (f", chance of carrying the variant {plan.values['risk']}" if plan.values.get("risk") else ""))  # fmt: skip
     verdict = "meets" if r.meets_target else "ABOVE"
     typer.echo(

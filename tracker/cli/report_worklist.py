@@ -11,7 +11,6 @@ Thin: the rows are computed exactly as the ``tracker worklist`` command does
 from __future__ import annotations
 
 import datetime as dt
-import math
 from pathlib import Path
 from typing import Annotated
 
@@ -20,7 +19,6 @@ import typer
 from tracker.cli import recall as R
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
 from tracker.engines.schedule import CAUTIONS
-from tracker.engines.worklist import book_into_slots
 from tracker.errors import UserError
 from tracker.outputs import worklist_pdf as W
 from tracker.store.database import reading
@@ -28,21 +26,11 @@ from tracker.store.database import reading
 
 def worklist_rows(
     frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date, slots: int | None
-) -> tuple[list[dict], list[dict], dict]:
-    """Screening rows, affected rows and the trend note, as ``tracker worklist`` builds them."""
-    screening_due, affected_due, family_of, trend, _ = R.due_proposals(frames, conf, rule_set, policy, start, end, on)
-    due_rows = [R._entry(p, family_of[p.person_code], "screening") for p in screening_due]
-    affected_rows = [R._entry(p, family_of[p.person_code], "affected") for p in affected_due]
-    if slots is not None:
-        weeks = math.ceil(((end - start).days + 1) / 7)
-        plan = book_into_slots(screening_due, start, weeks, slots)
-        booked = {b.person_code: b for b in plan.bookings}
-        unseen = {u.person_code for u in plan.unseen}
-        for r in due_rows:
-            b = booked.get(r["person"])
-            r["booked_week"] = b.week_start.isoformat() if b else None
-            r["late"] = r["person"] in unseen
-    return due_rows, affected_rows, trend
+) -> tuple[list[dict], list[dict], dict, list[dict], dict | None]:
+    """Screening rows, affected rows, the trend note, the contact gaps and the booking, as ``tracker worklist``
+    builds them (:func:`tracker.cli.recall.worklist_lists`)."""
+    lists = R.worklist_lists(frames, conf, rule_set, policy, start, end, on, slots)
+    return lists["due"], lists["affected"], lists["trend"], lists["contact_gaps"], lists["booking"]
 
 
 def worklist_report(
@@ -60,9 +48,11 @@ def worklist_report(
 ) -> None:
     """Write the printable recall worklist for a window as DIR/worklist-FROM-TO.pdf (A4 landscape).
 
-    One line per visit: person code, due date, days overdue, what the visit
-    needs, the reason and, with a weekly capacity, the booked week. The same
-    people and order as `tracker worklist`. Person codes only, never names.
+    One line per visit: person code, due date, days overdue (or "never
+    screened, eligible since D; due now"), what the visit needs, the reason,
+    the flags and, with a weekly capacity, the booked week; then the contact
+    gaps (not contacted, lost to follow-up, declined). The same people and
+    order as `tracker worklist`. Person codes only, never names.
 
     Example: tracker report worklist --from 2026-12-01 --to 2027-03-01 --slots-per-week 4 --out lists/
     """
@@ -77,12 +67,13 @@ def worklist_report(
     engine = open_store(db)
     with reading(engine) as conn:
         frames = R._load(conn)
-    due_rows, affected_rows, trend = worklist_rows(frames, conf, rule_set, policy, start, end, on, slots)
+    due_rows, affected_rows, trend, gap_rows, booking = worklist_rows(frames, conf, rule_set, policy, start, end, on, slots)
     doc = W.WorklistDocument(
         clinic=conf.clinic.name, window_from=start, window_to=end, rule_set=rule_set.title, policy=policy.point,
         as_of=on, printed=dt.date.today(), screening=tuple(W.line_from_row(r) for r in due_rows),
         affected=tuple(W.line_from_row(r) for r in affected_rows), slots_per_week=slots, cautions=tuple(CAUTIONS),
-        notes=(trend["note"],),
+        notes=(trend["note"],), contact_gaps=tuple(W.line_from_row(r) for r in gap_rows),
+        first_bookable_day=dt.date.fromisoformat(booking["first_bookable_day"]) if booking else None,
     )  # fmt: skip
     out.mkdir(parents=True, exist_ok=True)
     path = out / W.file_name(start, end)
@@ -99,6 +90,7 @@ def worklist_report(
                 "slots_per_week": slots,
                 "screening": [r["person"] for r in due_rows],
                 "affected": [r["person"] for r in affected_rows],
+                "contact_gaps": [{"person": r["person"], "gap": r["contact_status"]} for r in gap_rows],
                 "cautions": [W.PAGE_CAUTION, *CAUTIONS],
             }
         )

@@ -31,10 +31,21 @@ Conventions (documented here because the proposal depends on them)
 * **Triggers** (new symptoms, pregnancy, started competitive sport, puberty,
   variant reclassified, new family data, new ECG abnormality): review now
   (due = today).
-* **Never seen**: due from the day the person became eligible: the later of
-  the start of the first matching age band (earliest possible birth date) and
-  ``eligible_since`` (the date they were identified as at risk).  Usually
-  overdue.  An affected person with no visit and no ``eligible_since``
+* **Rule for the age on the as-of date.**  A rule is never read at an old
+  date's age.  For a person overdue (due date before today) the rule, its
+  interval and its needs are those of the age *today*, the day the visit is
+  now wanted; the due date and the days overdue are kept (flag
+  ``band_changed_since_due`` when the rule differs).  When the age band on
+  the proposed visit date differs from today's, the visit follows the rule
+  of the visit date and a note names both (flag ``band_change_before_visit``).
+* **Never screened** (no screening visit on record): the person has been
+  eligible since the later of the start of the first matching age band
+  (earliest possible birth date) and ``eligible_since`` (the date they were
+  identified as at risk).  If that date is past, the person is *due now*
+  (due = today, status ``due``, ``never_screened`` with ``eligible_since``
+  and the contact gap ``gap_reason``), never "N days overdue"; the rule is
+  the one for the age today.  If it is in the future, the visit is due on
+  that date.  An affected person with no visit and no ``eligible_since``
   (diagnosis date) is due today (first evaluation).
 * **Local overrides** (:class:`LocalOverride`) replace a rule's range and are
   listed with their reason; overrides naming a rule not in the rule set are
@@ -91,6 +102,14 @@ AFFECTED_CAUTION = (
     "decisions; check the model's age range and exclusions. Refer complex genetic or ICD decisions "
     "to a cardiomyopathy centre."
 )
+GAP_REASONS = {
+    "not_contacted": "not contacted",
+    "declined": "declined",
+    "lost_to_follow_up": "lost to follow-up",
+    "contactable": "contactable, no visit yet",
+}
+"""Why a never-screened person has not been seen, by contact status (plain words)."""
+
 LOST_CAUTION = "Lost to follow-up: the proposal stands but the person cannot be reached; try re-contact (local protocol)."
 NO_RULE_CAUTION = "No rule in this rule set covers this person: the clinician decides the follow-up."
 BORDERLINE_CAUTION = (
@@ -220,6 +239,12 @@ class Proposal:
     today - due in days (negative: days until due; None without a due date).
     ``interval_months`` is the routine interval used (after modifiers);
     ``routine_due`` the routine date before any trigger.
+
+    ``never_screened``: no screening visit on record (then ``eligible_since``
+    is the day the person became eligible, and ``gap_reason`` the contact
+    status behind the gap: ``not_contacted``, ``declined``,
+    ``lost_to_follow_up`` or ``contactable``; see :data:`GAP_REASONS`).
+    ``contact_status`` is the person's contact status (booking uses it).
     """
 
     person_code: str
@@ -239,6 +264,28 @@ class Proposal:
     flags: tuple[str, ...]
     notes: tuple[str, ...]
     cautions: tuple[str, ...]
+    never_screened: bool = False
+    eligible_since: dt.date | None = None
+    gap_reason: str | None = None
+    contact_status: str = "contactable"
+
+
+def never_screened_text(p: Proposal) -> str | None:
+    """'never screened, eligible since D; due now (not contacted)' for a never-screened person, else None."""
+    if not p.never_screened:
+        return None
+    gap = GAP_REASONS.get(p.gap_reason or "", p.gap_reason or "")
+    if p.eligible_since is None:
+        return f"never screened ({gap})" if gap else "never screened"
+    if p.eligible_since > p.today:
+        text = f"never screened, eligible from {p.eligible_since.isoformat()}"
+    else:
+        text = f"never screened, eligible since {p.eligible_since.isoformat()}"
+        if p.status in ("due", "overdue") and p.due is not None and p.due <= p.today:
+            text += "; due now"
+        elif p.status == "not_recalled":
+            text += "; not recalled"
+    return text + (f" ({gap})" if gap else "")
 
 
 # -------------------------------------------------------------------- helpers
@@ -303,6 +350,7 @@ class _Ctx:
     today: dt.date
     genotype: str
     rules: tuple[Rule, ...] = ()
+    eligible: dt.date | None = None
     fired: list[Fired] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     flags: list[str] = field(default_factory=list)
@@ -390,22 +438,12 @@ def _routine(ctx: _Ctx) -> tuple[dt.date, _Choice] | None:
     s = ctx.state
     last = s.last_visit
     if last is None:
-        start = s.birth.earliest()
-        if s.eligible_since is not None:
-            start = max(start, s.eligible_since)
-        elif s.phenotype == "positive":
-            # Affected, no visit and no diagnosis date recorded: first evaluation now.
-            start = max(start, ctx.today)
-        due = _first_eligible(ctx, start)
+        due = _never_screened(ctx)
         if due is None:
             return None
         choice = _choose(ctx, due)
         assert choice is not None
-        ctx.flag("never_seen")
-        ctx.notes.append(
-            f"never seen: due from {due.isoformat()}, the day the person became eligible "
-            f"(start of rule {choice.rule.id}" + (", or the date identified as at risk)" if s.eligible_since else ")")
-        )
+        _band_before_visit(ctx, due, choice)
         return due, choice
 
     choice = _choose(ctx, last)
@@ -419,7 +457,7 @@ def _routine(ctx: _Ctx) -> tuple[dt.date, _Choice] | None:
             f"no screening band at the age at the last visit: due on {due.isoformat()}, when the person "
             f"enters the band of rule {choice.rule.id}"
         )
-        return due, choice
+        return _rule_today(ctx, due, choice)
 
     tried = [(add_months(last, choice.months), choice)]
     for _ in range(len(ctx.rules) + 1):
@@ -441,13 +479,101 @@ def _routine(ctx: _Ctx) -> tuple[dt.date, _Choice] | None:
                 f"age-band crossing: the bands disagree; the earliest candidate date {due.isoformat()} "
                 f"(rule {cur.rule.id}) is used"
             )
-            return due, cur
+            return _rule_today(ctx, due, cur)
         ctx.notes.append(
             f"age-band crossing: the candidate due date {due.isoformat()} falls in the band of rule "
             f"{nxt.rule.id}; interval recomputed from the last visit with that rule"
         )
         tried.append((add_months(last, nxt.months), nxt))
-    return tried[-1]
+    return _rule_today(ctx, *tried[-1])
+
+
+def _ages_text(ctx: _Ctx, on: dt.date) -> str:
+    ages = possible_ages(ctx.state.birth, on)
+    return " or ".join(str(a) for a in ages) + " y"
+
+
+def _eligible_from(ctx: _Ctx) -> dt.date | None:
+    """The day a never-screened person became (or will become) eligible for a rule of ``ctx.rules``."""
+    s = ctx.state
+    start = s.birth.earliest()
+    if s.eligible_since is not None:
+        start = max(start, s.eligible_since)
+    elif s.phenotype == "positive":
+        # Affected, no visit and no diagnosis date recorded: first evaluation now.
+        start = max(start, ctx.today)
+    return _first_eligible(ctx, start)
+
+
+def _never_screened(ctx: _Ctx) -> dt.date | None:
+    """Visit date for a never-screened person: today if eligible in the past, else the eligibility date."""
+    eligible = _eligible_from(ctx)
+    if eligible is None:
+        return None
+    ctx.eligible = eligible
+    ctx.flag("never_seen")
+    gap = GAP_REASONS[ctx.state.contact_status]
+    if eligible > ctx.today:
+        ctx.notes.append(
+            f"never screened: eligible from {eligible.isoformat()} (age {_ages_text(ctx, eligible)}), "
+            f"when the person enters the band of a screening rule; {gap}"
+        )
+        return eligible
+    then = _choose(ctx, eligible)
+    visit = _first_eligible(ctx, ctx.today)
+    since = "the date identified as at risk or the start of the first age band" if ctx.state.eligible_since \
+        else "the start of the first age band"
+    if visit is None:
+        ctx.notes.append(
+            f"never screened, eligible since {eligible.isoformat()} ({since}); no rule covers the age on "
+            f"{ctx.today.isoformat()} ({_ages_text(ctx, ctx.today)}): the clinician decides; {gap}"
+        )
+        return None
+    now = _choose(ctx, visit)
+    text = f"never screened, eligible since {eligible.isoformat()} ({since}); " + (
+        "due now" if visit == ctx.today else f"due on {visit.isoformat()}, when the person enters a band again"
+    ) + f"; {gap}; rule for the age on {visit.isoformat()} ({_ages_text(ctx, visit)}): {now.rule.id}"
+    if then is not None and then.rule.id != now.rule.id:
+        text += f" (when first eligible, at {_ages_text(ctx, eligible)}, it was {then.rule.id})"
+    ctx.notes.append(text)
+    return visit
+
+
+def _band_before_visit(ctx: _Ctx, visit: dt.date, choice: _Choice) -> None:
+    """Say which rule applies on the visit date when today's age band has another rule."""
+    if visit <= ctx.today:
+        return
+    now = _choose(ctx, ctx.today)
+    if now is None or now.rule.id == choice.rule.id:
+        return
+    ctx.flag("band_change_before_visit")
+    ctx.notes.append(
+        f"age band changes before the visit: on {ctx.today.isoformat()} (age {_ages_text(ctx, ctx.today)}) rule "
+        f"{now.rule.id} applies; on the visit date {visit.isoformat()} (age {_ages_text(ctx, visit)}) rule "
+        f"{choice.rule.id} applies, and the visit follows it"
+    )
+
+
+def _rule_today(ctx: _Ctx, due: dt.date, choice: _Choice) -> tuple[dt.date, _Choice]:
+    """For a due date already past, the rule of the age on the as-of date (the visit is wanted now)."""
+    if due >= ctx.today:
+        _band_before_visit(ctx, due, choice)
+        return due, choice
+    now = _choose(ctx, ctx.today)
+    if now is None:
+        ctx.notes.append(
+            f"overdue since {due.isoformat()} (rule {choice.rule.id}); no rule covers the age on "
+            f"{ctx.today.isoformat()} ({_ages_text(ctx, ctx.today)}): reassess at the visit"
+        )
+        return due, choice
+    if now.rule.id != choice.rule.id:
+        ctx.flag("band_changed_since_due")
+        ctx.notes.append(
+            f"overdue since {due.isoformat()}, a date set by rule {choice.rule.id} (age {_ages_text(ctx, due)} then); "
+            f"on {ctx.today.isoformat()} the age is {_ages_text(ctx, ctx.today)}: rule {now.rule.id} applies to the "
+            "visit now (its interval and needs are used)"
+        )
+    return due, now
 
 
 def _apply_modifiers(ctx: _Ctx, due: dt.date, choice: _Choice) -> tuple[dt.date, int, bool]:
@@ -511,6 +637,7 @@ def _proposal(ctx: _Ctx, status: str, due, months, routine_due, rule, progressio
     needs, consider = _needs(rule, ctx) if status in ("due", "overdue") else ((), ())
     days = None if due is None else (ctx.today - due).days
     cautions = list(CAUTIONS) + [c for c in ctx.cautions if c not in CAUTIONS]
+    never = ctx.state.last_visit is None and status in ("due", "overdue", "not_recalled")
     return Proposal(
         person_code=ctx.state.person_code,
         rule_set_id=ctx.rule_set.id,
@@ -529,6 +656,10 @@ def _proposal(ctx: _Ctx, status: str, due, months, routine_due, rule, progressio
         flags=tuple(ctx.flags),
         notes=tuple(ctx.notes),
         cautions=tuple(cautions),
+        never_screened=never,
+        eligible_since=ctx.eligible if never else None,
+        gap_reason=ctx.state.contact_status if never else None,
+        contact_status=ctx.state.contact_status,
     )
 
 
@@ -561,6 +692,13 @@ def propose_recall(person: PersonState, rule_set: RuleSet, policy: Policy, today
         return _proposal(ctx, "not_scheduled", None, None, None, None)
     if s.contact_status == "declined":
         ctx.notes.append("declined: not recalled")
+        if s.last_visit is None:
+            ctx.genotype = _effective_genotype(ctx)
+            if s.phenotype == "positive" or ctx.genotype != "not_at_risk":
+                ctx.rules = rule_set.select("affected" if s.phenotype == "positive" else "screening", "recall")
+                ctx.eligible = _eligible_from(ctx)
+                if ctx.eligible is not None:
+                    ctx.notes.append(f"never screened, eligible since {ctx.eligible.isoformat()}; declined")
         if s.triggers:
             ctx.notes.append(
                 "trigger(s) recorded (" + ", ".join(sorted(s.triggers)) + "): the person declined recall; "

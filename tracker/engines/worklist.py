@@ -5,10 +5,25 @@ Pure functions over :class:`~tracker.engines.schedule.Proposal` values; no I/O.
 Urgency order (most urgent first):
 
 1. a trigger is recorded (review now);
-2. more days overdue (``max(0, days_overdue)``, so everyone not yet overdue ties here);
+2. more days waiting: days overdue (``max(0, days_overdue)``) for a person once
+   seen; for a person never screened, the days since they became eligible
+   (``today - eligible_since``); everyone not yet due ties here;
 3. progression beyond measurement variability or a projected threshold crossing;
 4. earlier due date;
 5. person code (a stable tie-break).
+
+Who is booked: only people who can be reached (contact status
+``contactable``).  People not contacted yet, lost to follow-up or who declined
+are never booked: they are returned as *contact gaps*
+(:func:`contact_gaps`), with the reason, for the nurse to act on.  Each person
+is booked at most once (a person code met twice keeps its most urgent
+proposal).
+
+When (:func:`first_bookable_day`): booking starts on the first clinic day
+(Monday to Friday unless the caller gives other weekdays; common practice)
+on or after both the window's first day and today, so nothing is ever booked
+into a week already begun or past.  :func:`plan_bookings` does all of this
+for a window ``[window_from, window_to]``.
 
 Booking (:func:`book_into_slots`): weeks start on ``window_start`` and every 7
 days after it.  People are taken in urgency order.  Each is placed in the
@@ -16,7 +31,9 @@ latest week with a free slot that starts on or before their due date (so early
 weeks stay free for the more urgent), else in the earliest free week after
 it (booked *late*), else not booked.  A booking is late when the booked week
 starts after the due date.  Everyone who cannot be seen by their due date
-(booked late or not booked) is reported, most urgent and earliest due first.
+(booked late or not booked) is in ``unseen``, most urgent and earliest due
+first; a late booking stays one booking (``late``), so lists built for people
+show each person once: booked (late or not), not booked, or contact gap.
 """
 
 from __future__ import annotations
@@ -28,6 +45,9 @@ from dataclasses import dataclass
 from tracker.engines.schedule import CAUTIONS, Proposal
 
 BOOKABLE = ("due", "overdue")
+REACHABLE = "contactable"
+CLINIC_WEEKDAYS = (0, 1, 2, 3, 4)  # Monday to Friday (common practice; a clinic may pass its own days)
+GAP_ORDER = ("not_contacted", "lost_to_follow_up", "declined")
 
 
 @dataclass(frozen=True)
@@ -61,13 +81,90 @@ class BookingPlan:
     weeks: int
     slots_per_week: int
     cautions: tuple[str, ...] = CAUTIONS
+    contact_gaps: tuple[Proposal, ...] = ()
+
+
+def days_waiting(p: Proposal) -> int:
+    """Days overdue for a person once seen; days since eligible for a person never screened; 0 if not yet due."""
+    if p.never_screened and p.eligible_since is not None:
+        return max(0, (p.today - p.eligible_since).days)
+    return max(0, p.days_overdue or 0)
 
 
 def urgency_key(p: Proposal) -> tuple:
-    """Sort key: triggers, then days overdue, then progression, then earliest due, then person code."""
-    overdue = max(0, p.days_overdue or 0)
+    """Sort key: triggers, then days waiting, then progression, then earliest due, then person code."""
     due = p.due or dt.date.max
-    return (0 if p.triggers else 1, -overdue, 0 if p.progression else 1, due, p.person_code)
+    return (0 if p.triggers else 1, -days_waiting(p), 0 if p.progression else 1, due, p.person_code)
+
+
+def reachable(p: Proposal) -> bool:
+    """Can be booked: contactable (not declined, not lost to follow-up, not yet contacted)."""
+    return p.contact_status == REACHABLE
+
+
+def contact_gaps(proposals: Iterable[Proposal]) -> list[Proposal]:
+    """People who cannot be booked until contact is made: not contacted, lost to follow-up, declined.
+
+    Listed once each, by gap (not contacted, lost, declined), then urgency.
+    Declined people are listed whatever their status; the others only when due
+    or overdue.
+    """
+    seen: set[str] = set()
+    out = []
+    for p in sorted(proposals, key=lambda p: (GAP_ORDER.index(p.contact_status) if p.contact_status in GAP_ORDER
+                                               else len(GAP_ORDER), urgency_key(p))):  # fmt: skip
+        if p.contact_status == REACHABLE or p.person_code in seen:
+            continue
+        if p.contact_status != "declined" and p.status not in BOOKABLE:
+            continue
+        if p.contact_status == "declined" and p.status == "not_scheduled":
+            continue
+        seen.add(p.person_code)
+        out.append(p)
+    return out
+
+
+def first_bookable_day(window_from: dt.date, today: dt.date, weekdays: tuple[int, ...] = CLINIC_WEEKDAYS) -> dt.date:
+    """The first clinic day (``weekdays``, Monday = 0) on or after both ``window_from`` and ``today``."""
+    if not weekdays or any(not 0 <= d <= 6 for d in weekdays):
+        raise ValueError("weekdays must be a non-empty set of 0 (Monday) to 6 (Sunday)")
+    day = max(window_from, today)
+    while day.weekday() not in weekdays:
+        day += dt.timedelta(days=1)
+    return day
+
+
+def plan_bookings(
+    proposals: Iterable[Proposal], window_from: dt.date, window_to: dt.date, slots_per_week: int, today: dt.date,
+    weekdays: tuple[int, ...] = CLINIC_WEEKDAYS,
+) -> BookingPlan:
+    """Book the reachable among ``proposals`` into weeks from the first bookable day to ``window_to``.
+
+    The weeks start on :func:`first_bookable_day` and every 7 days after it,
+    while they start on or before ``window_to``.  When no bookable day is left
+    in the window, nobody is booked (everyone due is in ``unseen``).
+    """
+    if window_to < window_from:
+        raise ValueError("window_to is before window_from")
+    start = first_bookable_day(window_from, today, weekdays)
+    items = list(proposals)
+    if start > window_to:
+        gaps = tuple(contact_gaps(items))
+        ordered = _unique(sort_by_urgency(p for p in items if p.status in BOOKABLE and p.due is not None and reachable(p)))
+        unseen = tuple(Unseen(p.person_code, p.due, None, "no bookable day left in the window") for p in ordered)
+        return BookingPlan((), unseen, start, 0, slots_per_week, contact_gaps=gaps)
+    weeks = (window_to - start).days // 7 + 1
+    return book_into_slots(items, start, weeks, slots_per_week)
+
+
+def _unique(ordered: list[Proposal]) -> list[Proposal]:
+    seen: set[str] = set()
+    out = []
+    for p in ordered:
+        if p.person_code not in seen:
+            seen.add(p.person_code)
+            out.append(p)
+    return out
 
 
 def sort_by_urgency(proposals: Iterable[Proposal]) -> list[Proposal]:
@@ -109,13 +206,16 @@ def book_into_slots(
 ) -> BookingPlan:
     """Place bookable proposals into ``weeks`` weeks of ``slots_per_week`` slots (see module docstring).
 
-    Proposals that are not ``due``/``overdue`` or have no due date are ignored.
+    Proposals that are not ``due``/``overdue`` or have no due date are ignored;
+    people who cannot be reached are not booked but returned in
+    ``contact_gaps``; a person code met twice is booked once.
     """
     if weeks <= 0 or slots_per_week < 0:
         raise ValueError("weeks must be positive and slots_per_week not negative")
+    items = list(proposals)
     starts = week_starts(window_start, weeks)
     free = [slots_per_week] * weeks
-    ordered = sort_by_urgency(p for p in proposals if p.status in BOOKABLE and p.due is not None)
+    ordered = _unique(sort_by_urgency(p for p in items if p.status in BOOKABLE and p.due is not None and reachable(p)))
     placed: list[tuple[int, int, Booking]] = []
     unseen: list[tuple[tuple, Unseen]] = []
 
@@ -144,4 +244,5 @@ def book_into_slots(
         window_start=window_start,
         weeks=weeks,
         slots_per_week=slots_per_week,
+        contact_gaps=tuple(contact_gaps(items)),
     )

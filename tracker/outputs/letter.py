@@ -133,6 +133,21 @@ DEFAULT_TEMPLATES = {
     "no_variant": "letter_no_variant.en.txt",
 }
 
+# Letters by where the person stands (the letter kind); the first-contact letter is the family-type
+# template above, the others are one template each.
+LETTER_KINDS = ("first_contact", "reminder", "result", "reclassification")
+KIND_TEMPLATES = {
+    "reminder": "letter_reminder.en.txt",
+    "result": "letter_result.en.txt",
+    "reclassification": "letter_reclassification.en.txt",
+}
+KIND_WORDS = {
+    "first_contact": "first contact",
+    "reminder": "reminder of the next heart check",
+    "result": "gene test result ready",
+    "reclassification": "family variant reclassified",
+}
+
 # Readability target: Flesch-Kincaid grade 7 or lower = reading age about 12 (see the docstring).
 TARGET_FK_GRADE = 7.0
 
@@ -316,6 +331,11 @@ def read_template(path: str | Path) -> Template:
     except UnicodeDecodeError:
         raise UserError(f"template {p.name}: not UTF-8 text") from None
     return parse_template(text, p.name)
+
+
+def kind_template(letter_kind: str) -> Template:
+    """The shipped template for a letter kind other than first contact."""
+    return read_template(TEMPLATE_DIR / KIND_TEMPLATES[letter_kind])
 
 
 def default_template(kind: str) -> Template:
@@ -547,10 +567,75 @@ class LetterPlan:
     recipient_name: str | None = None
     notes: tuple[str, ...] = ()
     probability: Fraction | None = None
+    letter_kind: str = "first_contact"
 
     @property
     def default_template(self) -> str:
-        return DEFAULT_TEMPLATES[self.kind]
+        return KIND_TEMPLATES.get(self.letter_kind) or DEFAULT_TEMPLATES[self.kind]
+
+
+@dataclass(frozen=True)
+class Standing:
+    """Where the person stands with the clinic (plain facts from the record).
+
+    ``studied``: an imaging or ECG study on record; ``tested``: a genetic test
+    result on record (``result_on`` its latest date); ``last_visit``: the last
+    screening visit (in surveillance); ``last_contact``: the last contact on
+    record; ``reclassified_on``: the date the family variant's class last
+    changed, if it ever did.
+    """
+
+    studied: bool = False
+    tested: bool = False
+    last_visit: dt.date | None = None
+    result_on: dt.date | None = None
+    last_contact: dt.date | None = None
+    reclassified_on: dt.date | None = None
+
+    @property
+    def in_screening(self) -> bool:
+        """Already in screening: a study or a test on record, or in surveillance (a visit on record)."""
+        return self.studied or self.tested or self.last_visit is not None
+
+
+def choose_letter_kind(st: Standing) -> str:
+    """The letter kind for where the person stands.
+
+    In order: ``reclassification`` (in screening, and the family variant's
+    class changed after the last contact, or with no contact on record);
+    ``result`` (a genetic result on record, dated after the last visit or with
+    no visit); ``reminder`` (in screening); ``first_contact`` (not in screening).
+    """
+    if st.in_screening and st.reclassified_on is not None and (
+        st.last_contact is None or st.reclassified_on > st.last_contact
+    ):
+        return "reclassification"
+    if st.tested and (st.last_visit is None or (st.result_on is not None and st.result_on > st.last_visit)):
+        return "result"
+    if st.in_screening:
+        return "reminder"
+    return "first_contact"
+
+
+def check_letter_kind(person: str, letter_kind: str, st: Standing) -> None:
+    """Refuse (one line) a letter kind that does not fit where the person stands."""
+    if letter_kind not in LETTER_KINDS:
+        raise UserError(f"--kind: {letter_kind!r} is not one of {', '.join(LETTER_KINDS)}")
+    what = [w for w, on in (("a study", st.studied), ("a test", st.tested), ("a visit", st.last_visit)) if on]
+    if letter_kind == "first_contact" and st.in_screening:
+        raise LetterRefused(
+            f"{person} is already in screening ({', '.join(what)} on record): no first-contact letter; "
+            f"use --kind {choose_letter_kind(st)}"
+        )
+    if letter_kind == "reminder" and not st.in_screening:
+        raise LetterRefused(f"{person} is not in screening yet (no study, test or visit on record): no reminder; "
+                            "use --kind first_contact")  # fmt: skip
+    if letter_kind == "result" and not st.tested:
+        raise LetterRefused(f"{person} has no genetic test result on record: no result letter")
+    if letter_kind == "reclassification" and (st.reclassified_on is None or not st.in_screening):
+        why = "the family variant's class has never changed" if st.reclassified_on is None else \
+            "the person is not in screening yet (use --kind first_contact)"
+        raise LetterRefused(f"{person}: no reclassification letter: {why}")
 
 
 class LetterRefused(UserError):
@@ -586,12 +671,17 @@ def prepare_letter(
     early_onset_family: bool = False,
     via_proband: bool = False,
     recipient_name: str | None = None,
+    standing: Standing | None = None,
+    letter_kind: str | None = None,
 ) -> LetterPlan:
     """Decide whether ``person`` gets a letter and gather its values and flags.
 
     ``variant``'s class must be the class ``genotypes`` was computed with.
-    Raises :class:`LetterRefused` (a one-line :class:`UserError`) when no
-    letter may be written, and :class:`UserError` when the clinic settings
+    The letter kind (first contact, reminder, result, reclassification)
+    follows ``standing`` (:func:`choose_letter_kind`; no standing = not in
+    screening); an explicit ``letter_kind`` is checked against it
+    (:func:`check_letter_kind`).  Raises :class:`LetterRefused` (a one-line
+    :class:`UserError`) when no letter may be written, and :class:`UserError` when the clinic settings
     lack what every letter needs (telephone, e-mail, signatory).
     """
     if guideline not in RULE_SETS:
@@ -614,6 +704,13 @@ def prepare_letter(
             "not yet diagnosed"
         )
 
+    standing = standing or Standing()
+    if letter_kind is None:
+        letter_kind = choose_letter_kind(standing)
+    else:
+        check_letter_kind(person, letter_kind, standing)
+    if letter_kind == "reclassification" and variant is None:
+        raise LetterRefused(f"{person}: no reclassification letter: no family variant is recorded")
     kind = _classify_kind(variant)
     rules = RULE_SETS[guideline]
     plan = plan_cascade(
@@ -628,7 +725,12 @@ def prepare_letter(
     values: dict[str, str | None] = {}
     probability: Fraction | None = None
 
-    if kind == "plp":
+    if letter_kind != "first_contact":
+        _refuse_follow_up(person, letter_kind, kind, st, screening, pedigree, affected, rules, guideline)
+        near = st.nearest_carrier
+        flags["first_degree"] = near is not None and near in pedigree and pedigree.relationship(person, near).degree == 1
+        notes.append(f"letter kind: {KIND_WORDS[letter_kind]} (the person is already in screening)")
+    elif kind == "plp":
         _refuse_plp(person, st, screening)
         probability = st.probability
         cand = next((c for c in plan.testing + plan.deferred if c.person == person), None)
@@ -668,7 +770,7 @@ def prepare_letter(
         notes.append("vital status unknown: confirm before sending")
     if m.contact_status == "lost_to_follow_up":
         notes.append("lost to follow-up: check the address before sending")
-    elif m.contact_status == "not_contacted":
+    elif m.contact_status == "not_contacted" and letter_kind == "first_contact":
         notes.append("never contacted before: this letter is the first contact")
     if via_proband:
         notes.append("to be handed on by the family member, not posted by the clinic")
@@ -706,7 +808,23 @@ def prepare_letter(
     return LetterPlan(
         person=person, family=m.family, kind=kind, on=on, guideline=guideline, clinic=clinic,
         values=values, flags=flags, recipient_name=recipient_name, notes=tuple(notes), probability=probability,
+        letter_kind=letter_kind,
     )  # fmt: skip
+
+
+def _refuse_follow_up(person: str, letter_kind: str, kind: str, st, screening: Mapping, ped: Pedigree,
+                      affected: Mapping[str, str | None], rules, guideline: str) -> None:  # fmt: skip
+    """Refuse a reminder or reclassification letter for someone outside surveillance (a result letter
+    goes to anyone with a result on record)."""
+    if letter_kind == "result":
+        return
+    if kind == "plp":
+        if st.status in ("non_carrier", "not_at_risk"):
+            _refuse_plp(person, st, screening)
+        return
+    if person not in screening and st.status != "carrier":
+        why = _not_listed_reason(ped, person, affected, rules.second_degree_via_deceased, guideline)
+        raise LetterRefused(f"{person}: {why}")
 
 
 def _refuse_plp(person: str, st, screening: Mapping) -> None:
@@ -761,7 +879,8 @@ class Letter:
 
 def compose_letter(plan: LetterPlan, template: Template | None = None) -> Letter:
     """Fill ``template`` (default: the shipped one for the plan's family type) and measure it."""
-    t = template or default_template(plan.kind)
+    t = template or (default_template(plan.kind) if plan.letter_kind == "first_contact"
+                     else kind_template(plan.letter_kind))
     filled = fill_template(t, plan.values, plan.flags)
     r = readability(filled)
     warnings = ()

@@ -41,7 +41,7 @@ from reportlab.platypus import (
 )
 
 from tracker.errors import UserError
-from tracker.outputs.letter import Letter
+from tracker.outputs.letter import KIND_WORDS, Letter
 from tracker.outputs.pdf_pages import paragraph
 
 MARGIN_MM = 20
@@ -81,6 +81,7 @@ def _recipient_block(letter: Letter) -> list:
     if plan.recipient_name:
         out.append(paragraph(plan.recipient_name, _SMALL))
     out.append(paragraph(f"Our reference: {plan.person}", _SMALL))
+    out.append(paragraph(f"Letter: {KIND_WORDS[plan.letter_kind]}", _SMALL))
     return out
 
 

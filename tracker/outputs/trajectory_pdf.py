@@ -596,6 +596,8 @@ def _recall_block(doc: TrajectoryDocument) -> list:
     r = doc.recall
     out = [paragraph("Recall proposal", _SECTION)]
     head = f"Status {r.get('status')}"
+    if r.get("waiting"):
+        head += f" ({r['waiting']})"
     if r.get("due"):
         head += f"; next due {r['due']}"
     if r.get("interval_months"):

@@ -1,10 +1,14 @@
 """The nurse's printable recall worklist for a window, as an A4 landscape PDF (reportlab).
 
-One line per visit: person code, due date, days overdue, what the visit needs
-(and what to consider), the reason (wrapped) and, when weekly slots are given,
-the booked week.  Family screening comes first, most urgent first (the order
-of :func:`tracker.engines.worklist.select_due`); affected members follow in
-their own table.
+One line per visit: person code, due date, how long the person has waited
+(days overdue for a person once seen; "never screened, eligible since D; due
+now" for a person never screened), what the visit needs (and what to
+consider), the reason (wrapped), the flags in plain words and, when weekly
+slots are given, the booked week.  Family screening comes first, most urgent
+first (the order of :func:`tracker.engines.worklist.select_due`); affected
+members follow in their own table; then the *contact gaps*: people who cannot
+be booked until contact is made (not contacted, lost to follow-up, declined),
+each with the gap, what they wait for and their flags.
 
 Header on the first page: clinic name (settings), the window, the rule set and
 interval policy, the "as of" date and the date printed.  Every page carries the
@@ -45,8 +49,51 @@ _HEAD_CELL = ParagraphStyle("wl_head_cell", parent=_TEXT, fontName="Helvetica-Bo
 _TITLE = ParagraphStyle("wl_title", parent=_TEXT, fontName="Helvetica-Bold", fontSize=15, leading=19, spaceAfter=2)
 _META = ParagraphStyle("wl_meta", parent=_TEXT, fontSize=10, leading=13)
 _SECTION = ParagraphStyle("wl_section", parent=_TEXT, fontName="Helvetica-Bold", fontSize=11, leading=14,
-                          spaceBefore=8, spaceAfter=4)  # fmt: skip
+                          spaceBefore=8, spaceAfter=4, keepWithNext=1)  # fmt: skip
 _FOOTER = ParagraphStyle("wl_footer", parent=_TEXT, fontSize=7.5, leading=9.5, textColor=colors.HexColor("#333333"))
+
+
+GAP_WORDS = {
+    "not_contacted": "not contacted",
+    "lost_to_follow_up": "lost to follow-up",
+    "declined": "declined",
+    "contactable": "contactable",
+}
+FLAG_WORDS = {
+    "never_seen": "never screened",
+    "not_contacted": "not contacted",
+    "lost_to_follow_up": "lost to follow-up",
+    "verify": "rule from memory: verify",
+    "trigger": "trigger: review now",
+    "affected": "affected",
+    "age_uncertain": "birth year only: age uncertain",
+    "band_crossing": "age band changes",
+    "band_changed_since_due": "age band changed since due",
+    "band_change_before_visit": "age band changes before the visit",
+    "vital_status_unknown": "vital status unknown",
+    "no_rule": "no rule: clinician decides",
+}
+
+
+def flag_words(flags) -> str:
+    """Flag codes in plain words, joined by '; ' (unknown codes shown with spaces)."""
+    return "; ".join(FLAG_WORDS.get(f, f.replace("_", " ")) for f in flags or ())
+
+
+def waiting_text(row: dict) -> str:
+    """The never-screened phrase, else 'declined: not recalled', else the days overdue (see :func:`overdue_text`)."""
+    if row.get("waiting"):
+        return row["waiting"]
+    if row.get("status") == "not_recalled":
+        return "declined: not recalled"
+    return overdue_text(row.get("days_overdue"))
+
+
+def booked_text(row: dict) -> str:
+    """'2026-12-07', '2026-12-07 (late)' or 'not booked'."""
+    if not row.get("booked_week"):
+        return "not booked"
+    return row["booked_week"] + (" (late)" if row.get("late") else "")
 
 
 @dataclass(frozen=True)
@@ -61,6 +108,9 @@ class WorklistLine:
     reason: str
     booked_week: str | None = None
     late: bool | None = None
+    waiting: str | None = None
+    flags: tuple[str, ...] = ()
+    gap: str | None = None
 
 
 @dataclass(frozen=True)
@@ -79,6 +129,8 @@ class WorklistDocument:
     slots_per_week: int | None = None
     cautions: tuple[str, ...] = field(default_factory=tuple)
     notes: tuple[str, ...] = ()
+    contact_gaps: tuple[WorklistLine, ...] = ()
+    first_bookable_day: dt.date | None = None
 
 
 def file_name(window_from: dt.date, window_to: dt.date) -> str:
@@ -92,6 +144,10 @@ def line_from_row(row: dict) -> WorklistLine:
         person=row["person"], due=row.get("due"), days_overdue=row.get("days_overdue"),
         needs=tuple(row.get("needs") or ()), consider=tuple(row.get("consider") or ()),
         reason=row.get("reason") or "", booked_week=row.get("booked_week"), late=row.get("late"),
+        waiting=waiting_text(row) if row.get("waiting") or row.get("status") == "not_recalled" else None,
+        flags=tuple(row.get("flags") or ()),
+        gap=GAP_WORDS.get(row.get("contact_status") or "", row.get("contact_status")) if row.get("list") == "contact_gap"
+        else None,
     )  # fmt: skip
 
 
@@ -112,20 +168,27 @@ def _needs_text(line: WorklistLine) -> str:
 
 
 def _booked_text(line: WorklistLine) -> str:
-    if not line.booked_week:
-        return "not booked"
-    return line.booked_week + (" (late)" if line.late else "")
+    return booked_text({"booked_week": line.booked_week, "late": line.late})
 
 
-def _table(lines: tuple[WorklistLine, ...], booked: bool, width: float) -> Table:
-    heads = ["Person", "Due", "Days overdue", "Visit needs", "Reason"] + (["Booked week"] if booked else [])
-    fixed_mm = [30, 22, 22, 48] + ([30] if booked else [])
-    reason_w = width - sum(fixed_mm) * mm
-    widths = [w * mm for w in fixed_mm[:4]] + [reason_w] + ([fixed_mm[4] * mm] if booked else [])
+def _waiting(line: WorklistLine) -> str:
+    return line.waiting or overdue_text(line.days_overdue)
+
+
+def _table(lines: tuple[WorklistLine, ...], booked: bool, width: float, gaps: bool = False) -> Table:
+    first = ["Gap"] if gaps else []
+    heads = ["Person", *first, "Due", "Days overdue / waiting", "Visit needs", "Reason", "Flags"] + (
+        ["Booked week"] if booked else [])
+    fixed_mm = [28] + ([24] if gaps else []) + [20, 30, 40]
+    tail_mm = [34] + ([26] if booked else [])
+    reason_w = width - (sum(fixed_mm) + sum(tail_mm)) * mm
+    widths = [w * mm for w in fixed_mm] + [reason_w] + [w * mm for w in tail_mm]
     data = [[paragraph(h, _HEAD_CELL) for h in heads]]
     for ln in lines:
-        row = [paragraph(ln.person, _TEXT), paragraph(ln.due or "", _TEXT), paragraph(overdue_text(ln.days_overdue), _TEXT),
-               paragraph(_needs_text(ln), _TEXT), paragraph(ln.reason, _TEXT)]  # fmt: skip
+        row = [paragraph(ln.person, _TEXT)] + ([paragraph(ln.gap or "", _TEXT)] if gaps else []) + [
+            paragraph(ln.due or "", _TEXT), paragraph(_waiting(ln), _TEXT),
+            paragraph(_needs_text(ln) if ln.needs or not gaps else "", _TEXT), paragraph(ln.reason, _TEXT),
+            paragraph(flag_words(ln.flags), _TEXT)]
         if booked:
             row.append(paragraph(_booked_text(ln), _TEXT))
         data.append(row)
@@ -149,7 +212,7 @@ def _table(lines: tuple[WorklistLine, ...], booked: bool, width: float) -> Table
 
 
 def build_story(doc: WorklistDocument) -> list:
-    """The flowables: header, the screening table, the affected table, notes."""
+    """The flowables: header, the screening table, the affected table, notes, the contact gaps."""
     width = PAGE[0] - 2 * MARGIN_MM * mm
     slots = f", {doc.slots_per_week} slots a week" if doc.slots_per_week is not None else ""
     story: list = [
@@ -164,12 +227,19 @@ def build_story(doc: WorklistDocument) -> list:
     story.append(paragraph(f"Family screening: due or overdue by {doc.window_to.isoformat()}, most urgent first "
                     f"({len(doc.screening)})", _SECTION))  # fmt: skip
     story.append(_table(doc.screening, booked, width) if doc.screening else paragraph("None.", _TEXT))
+    if booked and doc.first_bookable_day is not None:
+        story.append(paragraph(f"Booked from {doc.first_bookable_day.isoformat()}, the first clinic day on or after "
+                               "the window start and the plan date.", _TEXT))  # fmt: skip
     if doc.affected:
         story.append(paragraph(f"Affected members: follow-up interval ({len(doc.affected)})", _SECTION))
         story.append(_table(doc.affected, False, width))
     for n in doc.notes:
         story.append(Spacer(1, 3))
         story.append(paragraph(f"Note: {n}", _TEXT))
+    story.append(paragraph(f"Contact gaps: not booked until contact is made ({len(doc.contact_gaps)})", _SECTION))
+    story.append(paragraph("Not contacted, lost to follow-up or declined. Contact or re-contact them as the local "
+                           "protocol says; book only once they can be reached.", _TEXT))  # fmt: skip
+    story.append(_table(doc.contact_gaps, False, width, gaps=True) if doc.contact_gaps else paragraph("None.", _TEXT))
     return story
 
 
