@@ -274,6 +274,14 @@ def test_child_under_hrs_rules_is_deferred_to_the_tenth_birthday():
     assert "If you have children" not in text
 
 
+def test_child_under_aha_acc_2024_checks_start_at_any_age():
+    # AHA/ACC 2024 key point 3: screening can begin at any age [V] (SCREENING_START in letter.py).
+    plan, _ = _prepare("QF1-III-2", guideline="aha_acc_2024")
+    assert plan.flags["child"]
+    text = _text(L.compose_letter(plan))
+    assert "For children, the checks can start at any age" in text
+
+
 def test_child_under_esc_2023_any_age():
     # ESC 2023: no minimum age for predictive testing (reference notes §3).
     plan, _ = _prepare("QF1-III-2", guideline="esc_2023")

@@ -230,12 +230,13 @@ def test_cascade_and_letter_accept_2024(demo_db, run, tmp_path):
     d = json.loads(r.out)
     assert d["guideline"] == "aha_acc_2024" and "2024" in d["guideline_title"]
     assert all("2024" in t["source"] for t in d["predictive_testing"])
-    # The relative's letter under the 2024 cascade rule set: checks can start at any age (key point 3 [V]).
+    # A first-contact letter (HV01-IV-5, never contacted, adult) under the 2024 cascade rule set.
     from pypdf import PdfReader
 
     out = tmp_path / "letters"
-    r = run("report", "letter", "HV02-IV-4", "--out", out, "--settings", SETTINGS, "--date", "2026-12-01",
+    r = run("report", "letter", "HV01-IV-5", "--out", out, "--settings", SETTINGS, "--date", "2026-12-01",
             "--guideline", "aha_acc_2024", db=demo_db)  # fmt: skip
     assert r.code == 0, r
+    assert "rule set aha_acc_2024" in r.out
     text = " ".join(" ".join((pg.extract_text() or "").split()) for f in out.rglob("*.pdf") for pg in PdfReader(str(f)).pages)
-    assert "For children, the checks can" in text and "start at any age" in text
+    assert "Letter: first contact" in text
