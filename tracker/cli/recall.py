@@ -203,7 +203,24 @@ def _testing_item(c) -> dict:
 
 def _screening_item(c) -> dict:
     return {"person": c.person, "categories": list(c.categories), "reason": c.reason, "source": c.source,
-            "notes": list(c.notes)}  # fmt: skip
+            "notes": list(c.notes), "released_on": _iso(c.released_on), "relied_on": c.relied_on}  # fmt: skip
+
+
+def _contact_dates(frames: _Frames, family: str) -> dict[str, dt.date | None]:
+    """Person -> date of the recorded contact status (the date of a decline), for one family."""
+    rows = frames.people[frames.people["family"] == family]
+    out = {}
+    for p, d in zip(rows["person"], rows["contact_status_date"]):
+        out[p] = parse_date(d) if isinstance(d, str) and d.strip() else None
+    return out
+
+
+def _rereview_dict(r, variant: str | None = None) -> dict | None:
+    if r is None:
+        return None
+    return {"family": r.family, "variant": r.variant or variant, "acmg_class": r.acmg_class,
+            "classified_on": _iso(r.classified_on), "due": _iso(r.due), "overdue": r.overdue,
+            "text": r.text, "source": r.source}  # fmt: skip
 
 
 def _variant_dict(v: fs.VariantInfo | None) -> dict | None:
@@ -232,7 +249,8 @@ def cascade(
     Example: tracker cascade HV01 --settings demo_family/clinic.toml
     """
     on = _day(as_of, "--as-of", dt.date.today())
-    gid = guideline or load_settings(settings).guideline
+    conf = load_settings(settings)
+    gid = guideline or conf.guideline
     if gid not in CASCADE_RULE_SETS:
         raise UserError(
             f"no cascade rule set for guideline {gid!r}: give --guideline one of {', '.join(CASCADE_RULE_SETS)}"
@@ -244,6 +262,10 @@ def cascade(
     plan = plan_cascade(
         st.pedigree, st.genotypes, st.variant_class, on, gid, st.affected, st.seen,
         early_onset_family="early_onset" in st.features,
+        class_history=st.variant.history if st.variant else None,
+        contact_dates=_contact_dates(frames, family),
+        declined_reapproach_months=conf.cascade.declined_reapproach_months,
+        rereview_months=conf.cascade.variant_rereview_months,
     )  # fmt: skip
     notes = list(st.notes) + list(plan.notes)
     if "early_onset" in st.features:
@@ -262,6 +284,8 @@ def cascade(
         "released": [_screening_item(c) for c in plan.released],
         "gaps": [{"person": g.person, "gap": g.gap, "reason": g.reason, "recalled": g.gap != "declined"}
                  for g in plan.gaps],  # fmt: skip
+        "variant_rereview": _rereview_dict(plan.rereview, st.variant.key if st.variant else None),
+        "declined_policy": conf.cascade.declined_words(),
         "notes": notes,
         "caution": plan.caution + " " + GENOTYPE_CAUTION,
     }
