@@ -383,7 +383,7 @@ def reclassify(
         raise UserError(f"--date {on.isoformat()} is in the future")
     if not reason.strip():
         raise UserError("--reason must not be empty")
-    _settings, rule_set, policy = _recall_rules(settings, guideline)
+    conf, rule_set, policy = _recall_rules(settings, guideline)
     who = audit.actor(user)
     engine = open_store(db)
     out: list[dict] = []
@@ -400,7 +400,8 @@ def reclassify(
                 if new_class == v.current_class:
                     raise UserError(f"{v.family} {v.key} is already classified {new_class} (since {v.classified_on.isoformat()})")
             for v in variants:
-                out.append(_reclassify_one(conn, frames, v, new_class, on, reason.strip(), who, rule_set, policy))
+                out.append(_reclassify_one(conn, frames, v, new_class, on, reason.strip(), who, rule_set, policy,
+                                           conf))  # fmt: skip
             if dry_run:
                 raise _DryRun
     except _DryRun:
@@ -429,14 +430,18 @@ def reclassify(
 
 
 def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on: dt.date, reason: str,
-                    who: str, rule_set, policy: Policy) -> dict:  # fmt: skip
+                    who: str, rule_set, policy: Policy, conf: Settings) -> dict:  # fmt: skip
     state = _family_state(frames, v.family, None)
     proposals = fs.propose_for_family(state, rule_set, policy, on)
     screening = fs.screening_states(proposals)
     items, notes = fs.task_items(
-        impact_of_reclassification(state.pedigree, state.results, v.current_class, new_class, screening, variant=v.key),
+        impact_of_reclassification(
+            state.pedigree, state.results, v.current_class, new_class, screening, variant=v.key,
+            affected=state.affected, history=v.history, contact_dates=_contact_dates(frames, v.family),
+            declined_reapproach_months=conf.cascade.declined_reapproach_months, on=on,
+        ),
         state,
-    )
+    )  # fmt: skip
     variant_id = conn.execute(
         select(Variant.id).join(Family, Variant.family_id == Family.id).where(
             Family.code == v.family, Variant.transcript == v.transcript, Variant.hgvs_c == v.hgvs_c
@@ -455,11 +460,14 @@ def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on
     now = dt.datetime.now(dt.timezone.utc).replace(tzinfo=None, microsecond=0)
     rows = []
     for it in items:
+        stored, what = _stored_change(it.change), it.what_changes
+        if stored != it.change:
+            what = f"[{it.change}] {what}"
         iid = conn.execute(
             insert(ImpactItem).returning(ImpactItem.id),
             dict(
                 variant_classification_id=cid, person_id=person_ids.get(it.person) if it.person else None,
-                change=it.change, what_changes=it.what_changes, action=it.action, source=it.source,
+                change=stored, what_changes=what, action=it.action, source=it.source,
                 status_before=it.status_before, status_after=it.status_after, created_at=now, created_by=who,
             ),
         ).scalar_one()  # fmt: skip
@@ -483,6 +491,16 @@ def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on
         "items": rows,
         "notes": notes,
     }
+
+
+def _stored_change(change: str) -> str:
+    """The task code stored for an impact code.  The codes of the testing offer that the
+    schema's list does not hold yet (stepwise deferral, diagnostic testing of an affected
+    relative, a decline not re-approached) are stored as 'offer_predictive_testing', with the
+    precise code at the start of ``what_changes``."""
+    from tracker.store.models import IMPACT_CHANGES
+
+    return change if change in IMPACT_CHANGES else "offer_predictive_testing"
 
 
 # --------------------------------------------------------------------------- tasks

@@ -926,3 +926,22 @@ def rereview_reminder(
     else:
         return None
     return RereviewReminder(family, variant, acmg_class, classified_on, due, overdue, text)
+
+
+def declined_reapproach(
+    declined_on: dt.date | None, on: dt.date | None, months: int | None
+) -> tuple[bool, str]:
+    """(may be re-approached on ``on``, words) for a relative who declined, under the clinic's
+    policy: ``months`` None = not re-approached (the default: common practice, the decision is
+    respected and the family passes on news); else re-approached once the decline is that old."""
+    said = f"declined on {declined_on.isoformat()}" if declined_on else "declined (date not recorded)"
+    if months is None:
+        return False, f"{said}; clinic policy: not re-approached (default)"
+    if declined_on is None or on is None:
+        return False, (f"{said}; clinic policy: re-approach {months} months after a decline: record the date "
+                       "of the decline")
+    start = add_months(declined_on, months)
+    if on >= start:
+        return True, (f"{said}; clinic policy: re-approach after {months} months: may be re-approached "
+                      f"(since {start.isoformat()}), acknowledging the earlier decision")
+    return False, f"{said}; clinic policy: re-approach after {months} months: not before {start.isoformat()}"

@@ -85,7 +85,7 @@ from tracker.domain.genetics import (
     SRC_STEPWISE,
     GenotypeStatus,
     RereviewReminder,
-    add_months,
+    declined_reapproach,
     history_pairs,
     probability_text,
     release_basis,
@@ -410,19 +410,7 @@ def plan_cascade(
 
     def declined_state(p: str) -> tuple[bool, str]:
         """(re-approach now, words) for a relative who declined."""
-        when = contact_dates.get(p)
-        said = f"declined on {when.isoformat()}" if when else "declined (date not recorded)"
-        if declined_reapproach_months is None:
-            return False, f"{said}; clinic policy: not re-approached (default)"
-        if when is None:
-            return False, (f"{said}; clinic policy: re-approach {declined_reapproach_months} months after a decline: "
-                           "record the date of the decline")
-        start = add_months(when, declined_reapproach_months)
-        if on >= start:
-            return True, (f"{said}; clinic policy: re-approach after {declined_reapproach_months} months: may be "
-                          f"re-approached (since {start.isoformat()}), acknowledging the earlier decision")
-        return False, (f"{said}; clinic policy: re-approach after {declined_reapproach_months} months: not before "
-                       f"{start.isoformat()}")
+        return declined_reapproach(contact_dates.get(p), on, declined_reapproach_months)
 
     mode = getattr(statuses, "mode", None)
 
