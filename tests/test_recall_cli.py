@@ -273,7 +273,7 @@ def test_upgrade_vus_to_lp_makes_untested_relatives_eligible(demo_db, run, tmp_p
 
 RECALL_KEYS = {"person", "family", "as_of", "rule_set", "rule_set_title", "policy", "status", "due", "days_overdue",
                "interval_months", "routine_due", "rule_id", "needs", "consider", "reason", "source", "fired",
-               "triggers", "flags", "notes", "state", "cautions", "trend_modifiers"}  # fmt: skip
+               "triggers", "flags", "notes", "state", "cautions", "trend_modifiers", "release_basis"}  # fmt: skip
 
 
 def test_recall_carrier_child(rc_db, run):
@@ -312,7 +312,8 @@ def test_recall_deceased_and_declined(demo_db, run):
 
 
 WORKLIST_KEYS = {"window", "as_of", "rule_set", "rule_set_title", "policy", "slots_per_week", "due", "affected",
-                 "booking", "not_recalled", "lost_to_follow_up", "trend_modifiers", "files", "cautions"}  # fmt: skip
+                 "booking", "not_recalled", "lost_to_follow_up", "trend_modifiers", "files", "cautions",
+                 "variant_rereview"}  # fmt: skip
 ENTRY_KEYS = {"list", "person", "family", "status", "due", "days_overdue", "interval_months", "rule_id", "needs",
               "consider", "reason", "source", "triggers", "flags", "booked_week", "late"}  # fmt: skip
 

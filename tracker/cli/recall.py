@@ -308,6 +308,22 @@ def cascade(
     typer.echo(result["caution"])
 
 
+def _variant_rereview(frames: _Frames, on: dt.date, months: int) -> list[dict]:
+    """Re-review reminders of every family's variants on ``on`` (classifications up to that day)."""
+    from tracker.domain.genetics import rereview_reminder
+
+    variants = fs.records_up_to(frames.variants, "classified_on", on)
+    out = []
+    if variants is None or not len(variants):
+        return out
+    for fam, vs in sorted(fs.family_variants(variants).items()):
+        for v in vs:
+            r = rereview_reminder(v.current_class, v.classified_on, on, months, family=fam, variant=v.key)
+            if r is not None:
+                out.append(_rereview_dict(r))
+    return out
+
+
 def _testing_table(title: str, items: list[dict]) -> None:
     if not items:
         typer.echo(f"{title}: none")
@@ -686,6 +702,19 @@ def _proposal_dict(p: Proposal, st: fs.FamilyState) -> dict:
     }
 
 
+def _release_basis(st: fs.FamilyState, person: str) -> dict | None:
+    """What a genotype-negative person's release relied on (None if not released on a P/LP class)."""
+    from tracker.domain.genetics import release_basis, result_date_for_release
+
+    if st.variant is None or person not in st.genotypes or st.genotypes[person].status != "non_carrier":
+        return None
+    b = release_basis(st.variant.history, result_date_for_release(st.genotypes, person))
+    if b is None:
+        return None
+    return {"relied_class": b.relied_class, "classified_on": _iso(b.classified_on), "plp_since": _iso(b.plp_since),
+            "released_on": _iso(b.released_on), "words": b.words()}  # fmt: skip
+
+
 def _unscheduled_dict(person: str, st: fs.FamilyState, on: dt.date, rule_set_id: str) -> dict:
     why = st.not_scheduled[person]
     return {
@@ -728,6 +757,7 @@ def recall(
     result["rule_set_title"] = rule_set.title
     result["policy"] = policy.point
     result["trend_modifiers"] = trend
+    result["release_basis"] = _release_basis(st, person)
     if json_out:
         print_json(result)
         return
@@ -749,6 +779,8 @@ def recall(
         )
     for n in result["notes"]:
         typer.echo(f"note: {n}")
+    if result["release_basis"]:
+        typer.echo(f"genotype-negative release: {result['release_basis']['words']}; a downgrade of the class recalls")
     typer.echo(f"note: {trend['note']}")
     for c in result["cautions"]:
         typer.echo(f"caution: {c}")
@@ -871,6 +903,8 @@ def worklist(
         ics_out.write_bytes(ics.calendar_bytes(visits, caution=" ".join(CAUTIONS)))
         files["ics"] = str(ics_out)
 
+    # variant re-review reminders (data only; see _variant_rereview)
+    rereview = _variant_rereview(frames, on, conf.cascade.variant_rereview_months)
     result = {
         "window": {"from": start.isoformat(), "to": end.isoformat(), "weeks": weeks},
         "as_of": on.isoformat(),
@@ -885,6 +919,7 @@ def worklist(
         "lost_to_follow_up": lost,
         "trend_modifiers": trend,
         "files": files,
+        "variant_rereview": rereview,
         "cautions": list(CAUTIONS),
     }
     if json_out:
@@ -905,6 +940,10 @@ def worklist(
         typer.echo("Declined, not recalled: " + ", ".join(d["person"] for d in declined))
     if lost:
         typer.echo("Lost to follow-up (re-contact needed): " + ", ".join(lost))
+    if rereview:
+        typer.echo("Variant re-review: " + "; ".join(f"{r['family']} {r['acmg_class']} ({r['classified_on']}), "
+                                                    f"{'due since' if r['overdue'] else 'by'} {r['due']}"
+                                                    for r in rereview))  # fmt: skip
     typer.echo(f"note: {trend['note']}")
     for k, path in files.items():
         if path:
