@@ -121,9 +121,9 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
                     [[f.check, f.where, f.message] for f in findings])  # fmt: skip
     else:
         typer.echo(f"{location.describe()}: no problems found")
-    for f in reminders:
-        typer.echo(f"reminder: {f.where}: {f.message}")
-    if reminders:
+    if reminders and not json_out:
+        for f in reminders:
+            typer.echo(f"reminder: {f.where}: {f.message}")
         typer.echo(f"  source: {SRC_REREVIEW}")
     if findings:
         raise typer.Exit(1)
