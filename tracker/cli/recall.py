@@ -331,8 +331,8 @@ def _testing_table(title: str, items: list[dict]) -> None:
     print_table(
         title,
         ["person", "P(carrier)", "age", "recommendation", "eligible from", "reason"],
-        [[i["person"], i["probability_text"], i["age_years"], i["recommendation"], i["eligible_from"], i["reason"]]
-         for i in items],
+        [[i["person"], i["probability_text"], i["age_years"], i["recommendation"], i["eligible_from"],
+          "; ".join([i["reason"], *i["notes"]])] for i in items],
     )  # fmt: skip
     _sources(items)
 

@@ -539,7 +539,7 @@ def plan_cascade(
                         continue
                     if pedigree.relationship(a, q).degree != 2:
                         continue
-                    if actionable and (statuses[q].status == "non_carrier" or not_at_risk(q)):
+                    if actionable and (statuses[q].status == "non_carrier" or (explained and not_at_risk(q))):
                         continue
                     indicate(q, "second_degree_via_deceased",
                              f"second-degree relative of affected {a} through deceased {d}",

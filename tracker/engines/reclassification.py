@@ -279,19 +279,15 @@ def impact(
         elif kind == "upgrade":
             if a == "at_risk_untested":
                 what = f"now at risk of carrying a P/LP variant ({after.reason})"
-                if is_affected(person):
-                    own.append(ImpactItem(
-                        person, "offer_diagnostic_testing", what,
-                        "affected: offer diagnostic testing for the family variant; stays in affected follow-up",
-                        SRC_UPGRADE_TEST, b, a))
-                elif declined(person):
+                if declined(person):
                     again, said = declined_reapproach(
                         contact_dates.get(person), on, declined_reapproach_months)
                     if again:
                         own.append(ImpactItem(
                             person, "offer_predictive_testing", f"{what}; {said}",
                             "re-approach as the clinic's policy allows, acknowledging the earlier decision; offer "
-                            "predictive testing with pre-test counselling (the guideline's age rules apply)",
+                            + ("diagnostic testing (affected; stays in affected follow-up)" if is_affected(person)
+                               else "predictive testing with pre-test counselling (the guideline's age rules apply)"),
                             SRC_UPGRADE_TEST + "; re-approach after a decline: clinic policy", b, a))
                     else:
                         own.append(ImpactItem(
@@ -299,6 +295,11 @@ def impact(
                             "do not re-approach (clinic policy); record the new class; offer testing if they ask "
                             "(the family may pass on the news)",
                             "declined relatives: clinic policy (default not re-approached: common practice)", b, a))
+                elif is_affected(person):
+                    own.append(ImpactItem(
+                        person, "offer_diagnostic_testing", what,
+                        "affected: offer diagnostic testing for the family variant; stays in affected follow-up",
+                        SRC_UPGRADE_TEST, b, a))
                 else:
                     route = stepwise_route(pedigree, statuses_after, person) if pedigree is not None else None
                     if route is not None and route.deferred:
