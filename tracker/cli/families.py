@@ -250,6 +250,8 @@ def demo(db: DbOption = None, json_out: JsonOption = False) -> None:
     """Build a database from the invented demo families and print what it holds.
 
     All names, places and the clinic are invented. Default database: ./tracker.sqlite.
+    Refused (nothing written) on a database that holds records other than the demo's:
+    give another file with --db.
 
     Example: tracker demo --db demo.sqlite
     """
