@@ -362,3 +362,23 @@ def test_cascade_settings_are_checked():
     for bad in ({"variant_rereview_months": 0}, {"declined_reapproach_months": "often"}, {"other": 1}):
         with pytest.raises(UserError, match=r"\[cascade\]"):
             parse_settings({"cascade": bad}, "clinic.toml")
+
+
+def test_affected_non_carrier_is_never_released_nor_discharged():
+    # PHENO is affected and tested non-carrier: the variant does not explain her disease (phenocopy
+    # or a second cause); an affected member stays in affected follow-up whatever the class does.
+    p = ped([dict(person="CAR", contact_status="contactable"), dict(person="PHENO", mother="CAR"),
+             dict(person="NEG", mother="CAR")])
+    res = results(("CAR", "carrier"), ("PHENO", "non_carrier"), ("NEG", "non_carrier"))
+    aff = {"CAR": "affected", "PHENO": "affected"}
+    up = impact_of_reclassification(p, res, "uncertain_significance", "pathogenic", affected=aff,
+                                    history=[(D(2015, 1, 1), "uncertain_significance")])  # fmt: skip
+    pheno = next(i for i in up if i.person == "PHENO" and i.change == "result_reinterpreted_negative")
+    assert "stays in affected follow-up" in pheno.action and "discharge" not in pheno.action
+    neg = next(i for i in up if i.person == "NEG" and i.change == "result_reinterpreted_negative")
+    assert "discharge from screening may be offered" in neg.action
+    down = impact_of_reclassification(p, res, "pathogenic", "uncertain_significance", affected=aff,
+                                      history=[(D(2015, 1, 1), "pathogenic")])  # fmt: skip
+    changes = {(i.person, i.change) for i in down}
+    assert ("NEG", "return_to_surveillance") in changes
+    assert not {("PHENO", "return_to_surveillance"), ("PHENO", "keep_in_surveillance")} & changes

@@ -240,7 +240,9 @@ def impact(
         if kind == "downgrade":
             if b == "non_carrier":
                 was_released, relied = released(person)
-                if was_released:
+                if is_affected(person):
+                    pass  # an affected member is never released on a genotype: stays in affected follow-up
+                elif was_released:
                     own.append(ImpactItem(
                         person, "return_to_surveillance",
                         "genotype-negative result no longer releases from screening (variant no longer P/LP)"
@@ -333,6 +335,9 @@ def impact(
                     person, "result_reinterpreted_negative",
                     "earlier non-carrier result re-interpreted: now genotype-negative"
                     + (f" (inferred from monozygotic co-twin {after.inferred_from})" if after.inferred_from else ""),
+                    "affected: the family variant does not explain their disease; stays in affected follow-up; "
+                    "review with the genetics team (their relatives keep clinical screening)"
+                    if is_affected(person) else
                     "counsel; discharge from screening may be offered, with advice to return for symptoms or new family data",
                     SRC_UPGRADE_NEGATIVE, b, a))
         if any(i.change == "declined_not_reapproached" for i in own):
