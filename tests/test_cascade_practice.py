@@ -382,3 +382,16 @@ def test_affected_non_carrier_is_never_released_nor_discharged():
     changes = {(i.person, i.change) for i in down}
     assert ("NEG", "return_to_surveillance") in changes
     assert not {("PHENO", "return_to_surveillance"), ("PHENO", "keep_in_surveillance")} & changes
+
+
+def test_no_at_risk_letter_while_a_nearer_relative_waits(prac_db, run, tmp_path):
+    # stepwise cascade: PR-06's father PR-05 is offered testing first, so no letter goes to PR-06 yet
+    s = tmp_path / "clinic.toml"
+    s.write_text('[schedule]\nguideline = "esc_2023"\n[clinic]\nname = "Invented clinic"\nphone = "000"\n'
+                 'email = "clinic@example.invalid"\nsignatory = "Invented Signatory"\n', encoding="utf-8")
+    r = run("report", "letter", "PR-06", "--out", tmp_path, "--settings", s, "--date", "2026-11-30", db=prac_db)
+    assert r.code == 1, r
+    assert len(r.err.strip().splitlines()) == 1 and "offer testing to PR-05 first" in r.err
+    assert not list(tmp_path.glob("*PR-06*"))
+    ok = run("report", "letter", "PR-05", "--out", tmp_path, "--settings", s, "--date", "2026-11-30", db=prac_db)
+    assert ok.code == 0, ok

@@ -198,6 +198,7 @@ def _testing_item(c) -> dict:
         "reason": c.reason,
         "source": c.source,
         "notes": list(c.notes),
+        "wait_for": c.wait_for,
     }
 
 

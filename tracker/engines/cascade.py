@@ -253,6 +253,7 @@ class TestingCandidate:
     source: str
     guideline: str
     notes: tuple[str, ...] = ()
+    wait_for: str | None = None  # stepwise cascade: the relative to offer testing first
 
 
 @dataclass(frozen=True)
@@ -461,8 +462,10 @@ def plan_cascade(
                 eligible, words, start = _testing_recommendation(rules, age, birth, early_onset_family)
             if obligate:
                 words = f"confirmatory, optional (common practice): {words}"
-            elif not is_affected(p):
+            wait_for = None
+            if not obligate and not is_affected(p):
                 route = stepwise_route(pedigree, statuses, p)
+                wait_for = route.first
                 if route.deferred:
                     words = f"deferred: offer {route.first} first (stepwise cascade)" + (
                         f"; then {words}" if eligible else f"; {words}")
@@ -488,6 +491,7 @@ def plan_cascade(
                 source=source,
                 guideline=guideline,
                 notes=tuple(cand_notes),
+                wait_for=wait_for,
             )
             if not (_reachable(pedigree, p) or reapproach):
                 continue
