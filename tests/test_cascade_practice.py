@@ -395,3 +395,23 @@ def test_no_at_risk_letter_while_a_nearer_relative_waits(prac_db, run, tmp_path)
     assert not list(tmp_path.glob("*PR-06*"))
     ok = run("report", "letter", "PR-05", "--out", tmp_path, "--settings", s, "--date", "2026-11-30", db=prac_db)
     assert ok.code == 0, ok
+
+
+def test_upgrade_tells_who_is_no_longer_at_risk():
+    # VUS family: SP, married in, is screened as the mother of affected KID (the disease could come
+    # from either side).  Once the variant is P/LP and came through PRO, she is not at risk.
+    p = ped([dict(person="PRO", sex_at_birth="male"), dict(person="SP", sex_at_birth="female"),
+             dict(person="KID", mother="SP", father="PRO")])
+    res = results(("PRO", "carrier"), ("KID", "carrier"))
+    aff = {"PRO": "affected", "KID": "affected"}
+    items = impact_of_reclassification(p, res, "uncertain_significance", "likely_pathogenic",
+                                       {"SP": "surveillance"}, affected=aff)  # fmt: skip
+    sp = {i.change: i for i in items if i.person == "SP"}
+    assert "no_longer_at_risk" in sp and "may stop" in sp["no_longer_at_risk"].action
+    # a sibling of a carrier in whom the variant arose anew keeps a small risk (germline mosaicism)
+    p2 = ped([dict(person="M", sex_at_birth="female"), dict(person="F", sex_at_birth="male"),
+              dict(person="PRO", mother="M", father="F"), dict(person="SIB", mother="M", father="F")])
+    res2 = results(("PRO", "carrier"), ("M", "non_carrier"), ("F", "non_carrier"))
+    items2 = impact_of_reclassification(p2, res2, "uncertain_significance", "pathogenic",
+                                        {"SIB": "surveillance"}, affected={"PRO": "affected"})  # fmt: skip
+    assert not any(i.person == "SIB" and i.change == "no_longer_at_risk" for i in items2)

@@ -510,14 +510,21 @@ def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on
     }
 
 
+# Impact codes the schema's task list does not hold yet, and the stored code nearest in action
+# (the precise code is kept at the start of ``what_changes``).
+_STORED_AS = {
+    "predictive_testing_deferred": "offer_predictive_testing",
+    "offer_diagnostic_testing": "offer_predictive_testing",
+    "declined_not_reapproached": "offer_predictive_testing",
+    "no_longer_at_risk": "result_reinterpreted_negative",
+}
+
+
 def _stored_change(change: str) -> str:
-    """The task code stored for an impact code.  The codes of the testing offer that the
-    schema's list does not hold yet (stepwise deferral, diagnostic testing of an affected
-    relative, a decline not re-approached) are stored as 'offer_predictive_testing', with the
-    precise code at the start of ``what_changes``."""
+    """The task code stored for an impact code (see ``_STORED_AS``)."""
     from tracker.store.models import IMPACT_CHANGES
 
-    return change if change in IMPACT_CHANGES else "offer_predictive_testing"
+    return change if change in IMPACT_CHANGES else _STORED_AS[change]
 
 
 # --------------------------------------------------------------------------- tasks

@@ -101,6 +101,18 @@ SRC_NO_CASCADE_BENIGN = "AHA 2024: cascade testing of no benefit for LB/B (3); E
 SRC_UPGRADE_TEST = "ESC 2023 (adults I B, children IIa B); AHA 2024 §6.8 (1 B-NR): cascade testing for a P/LP variant [V]"
 SRC_UPGRADE_NEGATIVE = "ESC 2023: genotype-negative relatives discharged with advice to return (I C) [V]"
 SRC_UPGRADE_CARRIER = "ESC 2023 §6.11: carriers followed with regular ECG and imaging [V]"
+SRC_UPGRADE_NOT_AT_RISK = (
+    "not at risk by pedigree once the variant is P/LP (married or adopted in, the other side, below a "
+    "non-carrier): common practice, as for genotype-negative relatives (ESC 2023 I C [V])"
+)
+
+
+def _mosaic_sibling(statuses, person: str, pedigree: Pedigree | None) -> bool:
+    """A sibling of a carrier in whom the variant arose anew (parental germline mosaicism: small risk)."""
+    if pedigree is None or getattr(statuses, "mode", None) != "de_novo":
+        return False
+    carriers = [c for c, st in statuses.items() if st.status == "carrier"]
+    return any(person in pedigree.full_siblings(c) + pedigree.half_siblings(c) for c in carriers)
 
 
 @dataclass(frozen=True)
@@ -111,7 +123,8 @@ class ImpactItem:
     'recounsel_family', 'return_to_surveillance', 'keep_in_surveillance',
     'loses_genotype_positive', 'testing_withdrawn', 'exclusion_lifted',
     'offer_predictive_testing', 'predictive_testing_deferred',
-    'offer_diagnostic_testing', 'declined_not_reapproached', 'result_reinterpreted_positive',
+    'offer_diagnostic_testing', 'declined_not_reapproached', 'no_longer_at_risk',
+    'result_reinterpreted_positive',
     'result_reinterpreted_negative', 'obligate_carrier', 'unscheduled_review'.
     """
 
@@ -330,6 +343,14 @@ def impact(
                     "inform: the family variant now explains the disease; stays in affected follow-up"
                     if is_affected(person) else "inform; move to genotype-positive (carrier) surveillance",
                     SRC_UPGRADE_CARRIER, b, a))
+            elif (a == "not_at_risk" and state == "surveillance" and not is_affected(person)
+                  and not _mosaic_sibling(statuses_after, person, pedigree)):
+                own.append(ImpactItem(
+                    person, "no_longer_at_risk",
+                    f"not at risk from the family variant now that it is P/LP ({after.reason})",
+                    "counsel; clinical screening as a relative may stop, with advice to return for symptoms or new "
+                    "family data",
+                    SRC_UPGRADE_NOT_AT_RISK, b, a))
             elif a == "non_carrier":
                 own.append(ImpactItem(
                     person, "result_reinterpreted_negative",
