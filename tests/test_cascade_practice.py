@@ -415,3 +415,12 @@ def test_upgrade_tells_who_is_no_longer_at_risk():
     items2 = impact_of_reclassification(p2, res2, "uncertain_significance", "pathogenic",
                                         {"SIB": "surveillance"}, affected={"PRO": "affected"})  # fmt: skip
     assert not any(i.person == "SIB" and i.change == "no_longer_at_risk" for i in items2)
+
+
+def test_upgrade_offer_to_a_relative_lost_to_follow_up_says_so():
+    p = ped([dict(person="M", sex_at_birth="female"), dict(person="PRO", mother="M"),
+             dict(person="SIB_L", mother="M", contact_status="lost_to_follow_up")])
+    items = impact_of_reclassification(p, results(("PRO", "carrier")), "uncertain_significance", "pathogenic",
+                                       affected={"PRO": "affected"})  # fmt: skip
+    (offer,) = [i for i in items if i.person == "SIB_L" and i.change == "offer_predictive_testing"]
+    assert "lost to follow-up" in offer.what_changes

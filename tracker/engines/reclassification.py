@@ -323,6 +323,8 @@ def impact(
                             route.reason(), SRC_UPGRADE_TEST + "; " + SRC_STEPWISE, b, a))
                     else:
                         passed = f" ({route.reason()})" if route is not None and route.passed else ""
+                        if pedigree is not None and pedigree.member(person).contact_status == "lost_to_follow_up":
+                            passed += "; lost to follow-up: consider another route of contact"
                         own.append(ImpactItem(
                             person, "offer_predictive_testing", what + passed,
                             "offer predictive testing with pre-test counselling (the guideline's age rules apply)",
