@@ -418,8 +418,9 @@ def test_upgrade_tells_who_is_no_longer_at_risk():
 
 
 def test_upgrade_offer_to_a_relative_lost_to_follow_up_says_so():
-    p = ped([dict(person="M", sex_at_birth="female"), dict(person="PRO", mother="M"),
-             dict(person="SIB_L", mother="M", contact_status="lost_to_follow_up")])
+    p = ped([dict(person="M", sex_at_birth="female"), dict(person="F", sex_at_birth="male"),
+             dict(person="PRO", mother="M", father="F"),
+             dict(person="SIB_L", mother="M", father="F", contact_status="lost_to_follow_up")])
     items = impact_of_reclassification(p, results(("PRO", "carrier")), "uncertain_significance", "pathogenic",
                                        affected={"PRO": "affected"})  # fmt: skip
     (offer,) = [i for i in items if i.person == "SIB_L" and i.change == "offer_predictive_testing"]
