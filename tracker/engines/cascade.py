@@ -55,10 +55,12 @@ screened nor gaps once the family variant explains the disease; without a
 P/LP variant every first-degree relative of an affected member is screened.
 
 Stepwise cascade (common practice; ESC 2023: testing widens stepwise from
-first-degree relatives [V]): an unaffected at-risk relative whose at-risk
-parent (or, past parents who died or declined, the nearest at-risk ancestor
-on the line) is alive and untested is listed as deferred, with the relative
-to offer first; see :func:`tracker.domain.genetics.stepwise_route`.
+first-degree relatives [V]): first-degree relatives of a carrier are offered
+testing directly; an unaffected at-risk relative further out waits for the
+at-risk, untested relative one step nearer the carrier (the parent of a
+grandchild, the carrier's sibling for a niece) and is listed as deferred with
+that name, unless that relative died, declined or is lost to follow-up; see
+:func:`tracker.domain.genetics.stepwise_route`.
 
 Releases say what they relied on: the P/LP class in force at max(result date,
 date the class last became P/LP), from the class history
