@@ -284,9 +284,12 @@ def test_new_carrier_extends_the_cascade():
     ]
     p = ped(rows)
     before = plan(p, "esc_2023", res=results(("PRO", "carrier")), affected={"PRO": "affected"})
-    t = by_person(before.testing)
+    # stepwise (ESC 2023: the cascade widens stepwise [V]): her mother SIS, alive and untested, first
+    t = by_person(before.deferred)
     assert t["NIECE"].probability == Fraction(1, 4)
     assert t["NIECE"].reason.startswith("niece/nephew of carrier PRO")
+    assert t["NIECE"].recommendation.startswith("deferred: offer SIS first")
+    assert "SIS" in before.people("testing")
     assert "NIECE" in before.people("screening") and "BIL" not in before.people("screening")
     after = plan(p, "esc_2023", res=results(("PRO", "carrier"), ("SIS", "carrier")), affected={"PRO": "affected"})
     t = by_person(after.testing)

@@ -94,3 +94,24 @@ def test_readme_test_command_is_what_ci_runs():
     assert len(commands) == 2, "the quickstart has exactly two set-up commands"
     ci = (ROOT / ".ci" / "run").read_text()
     assert commands[1] in ci
+
+
+def test_demo_refuses_a_database_holding_other_families(loaded_db, run):
+    """The invented demo families never mix into a clinic's records: refused, one line, nothing written."""
+    from conftest import dump
+
+    before = dump(loaded_db)
+    r = run("demo", db=loaded_db)
+    assert r.code == 1, r
+    assert len(r.err.strip().splitlines()) == 1 and "Traceback" not in r.err
+    assert "not the demo" in r.err and "FAM-T1" in r.err and "--db" in r.err
+    assert dump(loaded_db) == before
+
+
+def test_demo_accepts_a_new_or_initialised_database_and_its_own_demo(db_url, run):
+    assert run("init", db=db_url).code == 0  # initialised, no families yet: the demo goes in
+    r = run("demo", "--json", db=db_url)
+    assert r.code == 0, r
+    again = run("demo", "--json", db=db_url)  # a database holding only the demo: accepted, nothing added
+    assert again.code == 0, again
+    assert all(f["rows_added"] == 0 for f in json.loads(again.out)["files"])

@@ -227,7 +227,14 @@ def test_risk_words_refuses_certainties(p):
 def test_grandchild_of_carrier_with_untested_parent_is_quoted_1_in_4():
     # Wright's r for a grandchild is 1/4 (second degree; reference notes §2b):
     # with the parent in between untested, the pedigree computation gives 1/4.
-    plan, gen = _prepare("QF1-III-1")
+    # Stepwise cascade (ESC 2023: testing widens stepwise [V]): while the parent QF1-II-1 can be
+    # asked, she is offered testing first and the grandchild gets no letter yet.
+    with pytest.raises(L.LetterRefused, match="offer testing to QF1-II-1 first"):
+        _prepare("QF1-III-1")
+    ped, results, affected = _family()
+    frame = ped.frame()
+    frame.loc[frame["person"] == "QF1-II-1", "contact_status"] = "declined"
+    plan, gen = _prepare("QF1-III-1", family=(Pedigree(frame), results, affected))  # the parent declined
     assert gen["QF1-III-1"].status == "at_risk_untested"
     assert gen["QF1-III-1"].probability == Fraction(1, 4)
     assert plan.kind == "plp"

@@ -102,7 +102,8 @@ def one_line_error(r, *words):
 
 
 CASCADE_KEYS = {"family", "as_of", "guideline", "guideline_title", "variant", "family_features", "predictive_testing",
-                "deferred", "segregation_testing", "clinical_screening", "released", "gaps", "notes", "caution"}  # fmt: skip
+                "deferred", "segregation_testing", "clinical_screening", "released", "gaps", "notes", "caution",
+                "variant_rereview", "declined_policy"}  # fmt: skip
 
 
 def test_cascade_for_a_plp_family_lists_untested_relatives_and_gaps(demo_db, run):
@@ -261,7 +262,10 @@ def test_upgrade_vus_to_lp_makes_untested_relatives_eligible(demo_db, run, tmp_p
     c = js(run, "cascade", "HV03", "--settings", SETTINGS, db=db)
     testing = {t["person"]: t for t in c["predictive_testing"]}
     assert testing["HV03-III-1"]["probability_text"] == "1/2"  # child of a carrier (first degree: 1/2)
-    assert "HV03-IV-1" in testing and testing["HV03-IV-1"]["probability_text"] == "1/4"  # grandchild
+    # grandchild: stepwise (ESC 2023: the cascade widens stepwise [V]): her mother HV03-III-2 first
+    deferred = {t["person"]: t for t in c["deferred"]}
+    assert "HV03-IV-1" not in testing and deferred["HV03-IV-1"]["probability_text"] == "1/4"
+    assert deferred["HV03-IV-1"]["recommendation"].startswith("deferred: offer HV03-III-2 first")
     assert "HV03-II-4" not in testing  # declined: a gap, not recalled
     assert c["variant"]["acmg_class"] == "likely_pathogenic"
 
@@ -272,7 +276,7 @@ def test_upgrade_vus_to_lp_makes_untested_relatives_eligible(demo_db, run, tmp_p
 RECALL_KEYS = {"person", "family", "as_of", "rule_set", "rule_set_title", "policy", "status", "due", "days_overdue",
                "interval_months", "routine_due", "rule_id", "needs", "consider", "reason", "source", "fired",
                "triggers", "flags", "notes", "state", "cautions", "trend_modifiers", "never_screened", "eligible_since",
-               "gap_reason", "waiting"}  # fmt: skip
+               "gap_reason", "waiting", "release_basis"}  # fmt: skip
 
 
 def test_recall_carrier_child(rc_db, run):
@@ -312,7 +316,7 @@ def test_recall_deceased_and_declined(demo_db, run):
 
 WORKLIST_KEYS = {"window", "as_of", "rule_set", "rule_set_title", "policy", "slots_per_week", "due", "affected",
                  "booking", "contact_gaps", "not_recalled", "lost_to_follow_up", "trend_modifiers", "files",
-                 "cautions"}  # fmt: skip
+                 "cautions", "variant_rereview"}  # fmt: skip
 ENTRY_KEYS = {"list", "person", "family", "status", "due", "days_overdue", "interval_months", "rule_id", "needs",
               "consider", "reason", "source", "triggers", "flags", "booked_week", "late", "never_screened",
               "eligible_since", "gap_reason", "waiting", "contact_status"}  # fmt: skip

@@ -20,6 +20,10 @@ else ``./tracker.toml`` if present, else the defaults below.  Example
     [repeatability]             # the clinic's own within-subject SD, in the measure's unit
     mwt_echo = 1.2
 
+    [cascade]                   # counselling policies of the cascade (docs/recall-and-cascade.md)
+    variant_rereview_months = 24        # re-review the variant's class after this long
+    declined_reapproach_months = 24     # absent: relatives who declined are not re-approached
+
     [privacy]                   # for `tracker export all --pseudonymise` (docs/privacy.md)
     pseudonym_key_file = "pseudonym.key"   # relative to this file; or pseudonym_key = "..."
     small_cell_threshold = 5
@@ -35,6 +39,7 @@ import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from tracker.domain.genetics import DEFAULT_REREVIEW_MONTHS
 from tracker.errors import UserError
 
 ENV_VAR = "TRACKER_SETTINGS"
@@ -96,6 +101,22 @@ class Privacy:
         return text
 
 
+# Cascade policies.  Re-review: AHA 2024 (1 B-NR) asks for re-evaluation of the variant "at
+# intervals" and ESC 2023 for systematic reclassification [V]; neither gives an interval, so the
+# 24-month default is common practice.  Declined relatives: by default not re-approached (common
+# practice: the decision is respected and the family passes on news; the clinic may choose to
+# re-approach after a number of months).
+@dataclass(frozen=True)
+class CascadePolicy:
+    variant_rereview_months: int = DEFAULT_REREVIEW_MONTHS
+    declined_reapproach_months: int | None = None  # None: do not re-approach
+
+    def declined_words(self) -> str:
+        if self.declined_reapproach_months is None:
+            return "clinic policy: relatives who declined are not re-approached (default)"
+        return f"clinic policy: relatives who declined may be re-approached {self.declined_reapproach_months} months after"
+
+
 @dataclass(frozen=True)
 class Settings:
     clinic: Clinic = field(default_factory=Clinic)
@@ -105,6 +126,7 @@ class Settings:
     repeatability: dict[str, float] = field(default_factory=dict)
     source: str = "built-in defaults"
     privacy: Privacy = field(default_factory=Privacy)
+    cascade: CascadePolicy = field(default_factory=CascadePolicy)
 
 
 _SECTIONS = {
@@ -112,6 +134,7 @@ _SECTIONS = {
     "schedule": {"guideline", "policy", "slots_per_week"},
     "repeatability": None,  # any measure code
     "privacy": {"pseudonym_key", "pseudonym_key_file", "small_cell_threshold"},
+    "cascade": {"variant_rereview_months", "declined_reapproach_months"},
 }
 
 
@@ -164,7 +187,20 @@ def parse_settings(data: dict, name: str = "settings", base: Path | None = None)
         if not isinstance(v, (int, float)) or v <= 0:
             raise UserError(f"{name}: [repeatability] {code} must be a positive number (within-subject SD)")
         rep[code] = float(v)
-    return Settings(clinic, guideline, policy, slots, rep, name, _privacy(data.get("privacy", {}), name, base))
+    return Settings(clinic, guideline, policy, slots, rep, name, _privacy(data.get("privacy", {}), name, base),
+                    _cascade(data.get("cascade", {}), name))
+
+
+def _cascade(section: dict, name: str) -> CascadePolicy:
+    out = {}
+    for key in ("variant_rereview_months", "declined_reapproach_months"):
+        if key not in section:
+            continue
+        v = section[key]
+        if not isinstance(v, int) or isinstance(v, bool) or v < 1:
+            raise UserError(f"{name}: [cascade] {key} must be a whole number of months, at least 1")
+        out[key] = v
+    return CascadePolicy(**out)
 
 
 def _privacy(section: dict, name: str, base: Path | None) -> Privacy:

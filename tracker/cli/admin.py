@@ -2,12 +2,16 @@
 
 from __future__ import annotations
 
+import datetime as dt
 from pathlib import Path
 from typing import Annotated
 
 import typer
 
 from tracker.cli.common import engine_for, DbOption, JsonOption, open_store, print_json, print_table
+from tracker.cli.common import SettingsOption
+from tracker.domain.genetics import SRC_REREVIEW
+from tracker.settings import load_settings
 from tracker.store import migrate
 from tracker.store import repository as repo
 from tracker.store.database import locate, make_engine, reading, writing
@@ -76,10 +80,12 @@ def schema(db: DbOption = None, json_out: JsonOption = False) -> None:
         typer.echo(f"{location.describe()}: revision {current}; tool needs {head} ({state})")
 
 
-def check(db: DbOption = None, json_out: JsonOption = False) -> None:
+def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsOption = None) -> None:
     """Check the database: file integrity, schema revision, orphan rows, and consistency of the
     records (pedigree cycles, dates out of order, values outside plausible ranges, placeholders
     with clinical data, at-risk relatives with no recall). Exit code 1 when anything is found.
+    Variant re-review reminders (a VUS, or a class older than the clinic's interval) are listed
+    apart and do not change the exit code.
 
     Example: tracker check --json
     """
@@ -90,6 +96,7 @@ def check(db: DbOption = None, json_out: JsonOption = False) -> None:
     engine = engine_for(db)
     with reading(engine) as conn:
         findings = checks.integrity_findings(conn) + checks.schema_findings(conn)
+        reminders = []
         if not findings:
             findings += checks.orphan_findings(conn)
             people = repo.load_people(conn)
@@ -101,8 +108,12 @@ def check(db: DbOption = None, json_out: JsonOption = False) -> None:
             findings += dc.range_findings(studies, repo.load_measures(conn))
             findings += dc.placeholder_findings(people, studies, assessments, results)
             findings += _recall_findings(people, repo.load_variants(conn), results, assessments, studies)
+            # re-review reminders: listed apart, not findings
+            reminders = checks.variant_rereview_reminders(
+                conn, dt.date.today(), load_settings(settings).cascade.variant_rereview_months)
     result = {"database": location.describe(), "ok": not findings,
-              "findings": [f.as_dict() for f in findings]}  # fmt: skip
+              "findings": [f.as_dict() for f in findings],
+              "reminders": [dict(f.as_dict(), source=SRC_REREVIEW) for f in reminders]}  # fmt: skip
     if json_out:
         print_json(result)
     elif findings:
@@ -110,6 +121,10 @@ def check(db: DbOption = None, json_out: JsonOption = False) -> None:
                     [[f.check, f.where, f.message] for f in findings])  # fmt: skip
     else:
         typer.echo(f"{location.describe()}: no problems found")
+    if reminders and not json_out:
+        for f in reminders:
+            typer.echo(f"reminder: {f.where}: {f.message}")
+        typer.echo(f"  source: {SRC_REREVIEW}")
     if findings:
         raise typer.Exit(1)
 

@@ -250,14 +250,18 @@ def demo(db: DbOption = None, json_out: JsonOption = False) -> None:
     """Build a database from the invented demo families and print what it holds.
 
     All names, places and the clinic are invented. Default database: ./tracker.sqlite.
+    Refused (nothing written) on a database that holds records other than the demo's:
+    give another file with --db.
 
     Example: tracker demo --db demo.sqlite
     """
     location = locate(db)
+    folder = demo_folder()
+    _refuse_other_families(db, location, folder)
     engine = engine_for(db, create=True)
     migrate.upgrade(engine)
     with writing(engine) as conn:
-        imported = csv_import.import_folder(conn, demo_folder(), user="demo")
+        imported = csv_import.import_folder(conn, folder, user="demo")
     result = _summary(engine)
     result["database"] = location.describe()
     result["files"] = [s.as_dict() for s in imported]
@@ -267,6 +271,44 @@ def demo(db: DbOption = None, json_out: JsonOption = False) -> None:
     typer.echo(f"Demo database: {location.describe()} (invented families; no real patient data)")
     _print_summary(result)
     typer.echo("Next: `tracker families`, `tracker export people --out people.csv`, `tracker --help`")
+
+
+def _demo_codes(folder: Path, name: str, column: str) -> set[str]:
+    import csv
+
+    with (folder / name).open(encoding="utf-8", newline="") as f:
+        return {row[column].strip() for row in csv.DictReader(f) if row.get(column)}
+
+
+def _refuse_other_families(db: str | None, location, folder: Path) -> None:
+    """Refuse (one line, nothing written) unless the database is new, empty, or holds only the demo.
+
+    "Only the demo": every family and person code in the database is one of the demo's
+    (records added to demo people since still count as the demo).
+    """
+    from sqlalchemy import inspect, text
+
+    if location.sqlite_path is not None and (
+        not location.sqlite_path.exists() or location.sqlite_path.stat().st_size == 0
+    ):
+        return
+    engine = engine_for(db)
+    with engine.connect() as conn:
+        tables = set(inspect(conn).get_table_names())
+        if "family" not in tables:
+            return
+        families = {r[0] for r in conn.execute(text("SELECT code FROM family"))}
+        people = {r[0] for r in conn.execute(text("SELECT code FROM person"))} if "person" in tables else set()
+    others = sorted(families - _demo_codes(folder, "families.csv", "family")) + sorted(
+        people - _demo_codes(folder, "people.csv", "person")
+    )
+    if others:
+        shown = ", ".join(others[:3]) + (", ..." if len(others) > 3 else "")
+        raise UserError(
+            f"--db: {location.describe()} already holds records that are not the demo ({shown}): "
+            "the invented families go only into a new database or one holding only the demo; "
+            "pick another file, e.g. `tracker demo --db demo.sqlite`"
+        )
 
 
 def _summary(engine) -> dict:

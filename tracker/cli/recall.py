@@ -207,12 +207,30 @@ def _testing_item(c) -> dict:
         "reason": c.reason,
         "source": c.source,
         "notes": list(c.notes),
+        "wait_for": c.wait_for,
     }
 
 
 def _screening_item(c) -> dict:
     return {"person": c.person, "categories": list(c.categories), "reason": c.reason, "source": c.source,
-            "notes": list(c.notes)}  # fmt: skip
+            "notes": list(c.notes), "released_on": _iso(c.released_on), "relied_on": c.relied_on}  # fmt: skip
+
+
+def _contact_dates(frames: _Frames, family: str) -> dict[str, dt.date | None]:
+    """Person -> date of the recorded contact status (the date of a decline), for one family."""
+    rows = frames.people[frames.people["family"] == family]
+    out = {}
+    for p, d in zip(rows["person"], rows["contact_status_date"]):
+        out[p] = parse_date(d) if isinstance(d, str) and d.strip() else None
+    return out
+
+
+def _rereview_dict(r, variant: str | None = None) -> dict | None:
+    if r is None:
+        return None
+    return {"family": r.family, "variant": r.variant or variant, "acmg_class": r.acmg_class,
+            "classified_on": _iso(r.classified_on), "due": _iso(r.due), "overdue": r.overdue,
+            "text": r.text, "source": r.source}  # fmt: skip
 
 
 def _variant_dict(v: fs.VariantInfo | None) -> dict | None:
@@ -241,7 +259,8 @@ def cascade(
     Example: tracker cascade HV01 --settings demo_family/clinic.toml
     """
     on = _day(as_of, "--as-of", dt.date.today())
-    gid = guideline or load_settings(settings).guideline
+    conf = load_settings(settings)
+    gid = guideline or conf.guideline
     if gid not in CASCADE_RULE_SETS:
         raise UserError(
             f"no cascade rule set for guideline {gid!r}: give --guideline one of {', '.join(CASCADE_RULE_SETS)}"
@@ -253,6 +272,10 @@ def cascade(
     plan = plan_cascade(
         st.pedigree, st.genotypes, st.variant_class, on, gid, st.affected, st.seen,
         early_onset_family="early_onset" in st.features,
+        class_history=st.variant.history if st.variant else None,
+        contact_dates=_contact_dates(frames, family),
+        declined_reapproach_months=conf.cascade.declined_reapproach_months,
+        rereview_months=conf.cascade.variant_rereview_months,
     )  # fmt: skip
     notes = list(st.notes) + list(plan.notes)
     if "early_onset" in st.features:
@@ -271,6 +294,8 @@ def cascade(
         "released": [_screening_item(c) for c in plan.released],
         "gaps": [{"person": g.person, "gap": g.gap, "reason": g.reason, "recalled": g.gap != "declined"}
                  for g in plan.gaps],  # fmt: skip
+        "variant_rereview": _rereview_dict(plan.rereview, st.variant.key if st.variant else None),
+        "declined_policy": conf.cascade.declined_words(),
         "notes": notes,
         "caution": plan.caution + " " + GENOTYPE_CAUTION,
     }
@@ -293,6 +318,22 @@ def cascade(
     typer.echo(result["caution"])
 
 
+def _variant_rereview(frames: _Frames, on: dt.date, months: int) -> list[dict]:
+    """Re-review reminders of every family's variants on ``on`` (classifications up to that day)."""
+    from tracker.domain.genetics import rereview_reminder
+
+    variants = fs.records_up_to(frames.variants, "classified_on", on)
+    out = []
+    if variants is None or not len(variants):
+        return out
+    for fam, vs in sorted(fs.family_variants(variants).items()):
+        for v in vs:
+            r = rereview_reminder(v.current_class, v.classified_on, on, months, family=fam, variant=v.key)
+            if r is not None:
+                out.append(_rereview_dict(r))
+    return out
+
+
 def _testing_table(title: str, items: list[dict]) -> None:
     if not items:
         typer.echo(f"{title}: none")
@@ -300,8 +341,8 @@ def _testing_table(title: str, items: list[dict]) -> None:
     print_table(
         title,
         ["person", "P(carrier)", "age", "recommendation", "eligible from", "reason"],
-        [[i["person"], i["probability_text"], i["age_years"], i["recommendation"], i["eligible_from"], i["reason"]]
-         for i in items],
+        [[i["person"], i["probability_text"], i["age_years"], i["recommendation"], i["eligible_from"],
+          "; ".join([i["reason"], *i["notes"]])] for i in items],
     )  # fmt: skip
     _sources(items)
 
@@ -368,7 +409,7 @@ def reclassify(
         raise UserError(f"--date {on.isoformat()} is in the future")
     if not reason.strip():
         raise UserError("--reason must not be empty")
-    _settings, rule_set, policy = _recall_rules(settings, guideline)
+    conf, rule_set, policy = _recall_rules(settings, guideline)
     who = audit.actor(user)
     engine = open_store(db)
     out: list[dict] = []
@@ -385,7 +426,8 @@ def reclassify(
                 if new_class == v.current_class:
                     raise UserError(f"{v.family} {v.key} is already classified {new_class} (since {v.classified_on.isoformat()})")
             for v in variants:
-                out.append(_reclassify_one(conn, frames, v, new_class, on, reason.strip(), who, rule_set, policy))
+                out.append(_reclassify_one(conn, frames, v, new_class, on, reason.strip(), who, rule_set, policy,
+                                           conf))  # fmt: skip
             if dry_run:
                 raise _DryRun
     except _DryRun:
@@ -414,14 +456,18 @@ def reclassify(
 
 
 def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on: dt.date, reason: str,
-                    who: str, rule_set, policy: Policy) -> dict:  # fmt: skip
+                    who: str, rule_set, policy: Policy, conf: Settings) -> dict:  # fmt: skip
     state = _family_state(frames, v.family, None)
     proposals = fs.propose_for_family(state, rule_set, policy, on)
     screening = fs.screening_states(proposals)
     items, notes = fs.task_items(
-        impact_of_reclassification(state.pedigree, state.results, v.current_class, new_class, screening, variant=v.key),
+        impact_of_reclassification(
+            state.pedigree, state.results, v.current_class, new_class, screening, variant=v.key,
+            affected=state.affected, history=v.history, contact_dates=_contact_dates(frames, v.family),
+            declined_reapproach_months=conf.cascade.declined_reapproach_months, on=on,
+        ),
         state,
-    )
+    )  # fmt: skip
     variant_id = conn.execute(
         select(Variant.id).join(Family, Variant.family_id == Family.id).where(
             Family.code == v.family, Variant.transcript == v.transcript, Variant.hgvs_c == v.hgvs_c
@@ -440,11 +486,14 @@ def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on
     now = dt.datetime.now(dt.timezone.utc).replace(tzinfo=None, microsecond=0)
     rows = []
     for it in items:
+        stored, what = _stored_change(it.change), it.what_changes
+        if stored != it.change:
+            what = f"[{it.change}] {what}"
         iid = conn.execute(
             insert(ImpactItem).returning(ImpactItem.id),
             dict(
                 variant_classification_id=cid, person_id=person_ids.get(it.person) if it.person else None,
-                change=it.change, what_changes=it.what_changes, action=it.action, source=it.source,
+                change=stored, what_changes=what, action=it.action, source=it.source,
                 status_before=it.status_before, status_after=it.status_after, created_at=now, created_by=who,
             ),
         ).scalar_one()  # fmt: skip
@@ -468,6 +517,23 @@ def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on
         "items": rows,
         "notes": notes,
     }
+
+
+# Impact codes the schema's task list does not hold yet, and the stored code nearest in action
+# (the precise code is kept at the start of ``what_changes``).
+_STORED_AS = {
+    "predictive_testing_deferred": "offer_predictive_testing",
+    "offer_diagnostic_testing": "offer_predictive_testing",
+    "declined_not_reapproached": "offer_predictive_testing",
+    "no_longer_at_risk": "result_reinterpreted_negative",
+}
+
+
+def _stored_change(change: str) -> str:
+    """The task code stored for an impact code (see ``_STORED_AS``)."""
+    from tracker.store.models import IMPACT_CHANGES
+
+    return change if change in IMPACT_CHANGES else _STORED_AS[change]
 
 
 # --------------------------------------------------------------------------- tasks
@@ -657,6 +723,19 @@ def _proposal_dict(p: Proposal, st: fs.FamilyState) -> dict:
     }
 
 
+def _release_basis(st: fs.FamilyState, person: str) -> dict | None:
+    """What a genotype-negative person's release relied on (None if not released on a P/LP class)."""
+    from tracker.domain.genetics import release_basis, result_date_for_release
+
+    if st.variant is None or person not in st.genotypes or st.genotypes[person].status != "non_carrier":
+        return None
+    b = release_basis(st.variant.history, result_date_for_release(st.genotypes, person))
+    if b is None:
+        return None
+    return {"relied_class": b.relied_class, "classified_on": _iso(b.classified_on), "plp_since": _iso(b.plp_since),
+            "released_on": _iso(b.released_on), "words": b.words()}  # fmt: skip
+
+
 def _unscheduled_dict(person: str, st: fs.FamilyState, on: dt.date, rule_set_id: str) -> dict:
     why = st.not_scheduled[person]
     return {
@@ -700,6 +779,7 @@ def recall(
     result["rule_set_title"] = rule_set.title
     result["policy"] = policy.point
     result["trend_modifiers"] = trend
+    result["release_basis"] = _release_basis(st, person)
     if json_out:
         print_json(result)
         return
@@ -726,6 +806,8 @@ def recall(
         )
     for n in result["notes"]:
         typer.echo(f"note: {n}")
+    if result["release_basis"]:
+        typer.echo(f"genotype-negative release: {result['release_basis']['words']}; a downgrade of the class recalls")
     typer.echo(f"note: {trend['note']}")
     for c in result["cautions"]:
         typer.echo(f"caution: {c}")
@@ -873,6 +955,8 @@ def worklist(
         ics_out.write_bytes(ics.calendar_bytes(visits, caution=" ".join(CAUTIONS)))
         files["ics"] = str(ics_out)
 
+    # variant re-review reminders (data only; see _variant_rereview)
+    rereview = _variant_rereview(frames, on, conf.cascade.variant_rereview_months)
     result = {
         "window": {"from": start.isoformat(), "to": end.isoformat(), "weeks": weeks},
         "as_of": on.isoformat(),
@@ -888,6 +972,7 @@ def worklist(
         "lost_to_follow_up": lost,
         "trend_modifiers": trend,
         "files": files,
+        "variant_rereview": rereview,
         "cautions": list(CAUTIONS),
     }
     if json_out:
@@ -915,6 +1000,10 @@ def worklist(
         )  # fmt: skip
     else:
         typer.echo("Contact gaps: none")
+    if rereview:
+        typer.echo("Variant re-review: " + "; ".join(f"{r['family']} {r['acmg_class']} ({r['classified_on']}), "
+                                                    f"{'due since' if r['overdue'] else 'by'} {r['due']}"
+                                                    for r in rereview))  # fmt: skip
     typer.echo(f"note: {trend['note']}")
     for k, path in files.items():
         if path:

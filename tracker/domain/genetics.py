@@ -709,3 +709,239 @@ def _zero_reason(ped, person, carriers, non_carriers, probs, de_novo_roots) -> t
                     "not at risk from this variant"
                 )
     return "excluded", "the recorded results exclude this line of descent: not at risk from this variant"
+
+
+# ---------------------------------------------------------------------------
+# counselling practice: stepwise cascade, release by class, re-review
+# ---------------------------------------------------------------------------
+
+SRC_STEPWISE = (
+    "ESC 2023: cascade testing starts with first-degree relatives and widens stepwise as carriers are "
+    "found [V]; offering the at-risk parent first (the child's risk depends on the parent's result) is "
+    "common practice"
+)
+
+
+@dataclass(frozen=True)
+class StepwiseRoute:
+    """Who to offer predictive testing before ``person``.
+
+    ``first``: the at-risk, untested relative between the person and the nearest carrier who
+    can be offered testing now (None: offer the person directly).  ``passed``: relatives on the line
+    who were passed over, with why (declined, deceased, lost to follow-up, placeholder)."""
+
+    person: str
+    first: str | None
+    passed: tuple[str, ...] = ()
+
+    @property
+    def deferred(self) -> bool:
+        return self.first is not None
+
+    def reason(self) -> str:
+        if self.first is not None:
+            return (
+                f"stepwise cascade: offer predictive testing to {self.first} (at risk, untested) first; "
+                f"if {self.first} does not carry the variant, {self.person} is not at risk. "
+                f"Offer {self.person} directly if {self.first} declines or dies"
+            )
+        if self.passed:
+            return "offered directly: " + "; ".join(self.passed)
+        return ""
+
+
+def _passed_over(m) -> str | None:
+    """Why an at-risk relative cannot be offered testing first (None: they can)."""
+    if m.placeholder:
+        return f"{m.person} is drawn only to connect the pedigree"
+    if m.vital_status == "deceased":
+        return f"{m.person} has died"
+    if m.contact_status == "declined":
+        return f"{m.person} declined"
+    if m.contact_status == "lost_to_follow_up":
+        return f"{m.person} is lost to follow-up"
+    return None
+
+
+def stepwise_route(pedigree: Pedigree, statuses: Mapping[str, GenotypeStatus], person: str) -> StepwiseRoute:
+    """The stepwise-cascade route of an at-risk untested person (see :class:`StepwiseRoute`).
+
+    A first-degree relative of a carrier (tested, obligate or by monozygotic co-twin) is
+    offered testing directly.  A more distant relative of degree d from the nearest carrier
+    waits for their first-degree relatives of degree d-1 from that carrier who are at risk
+    and untested (the parent of a grandchild, the sibling of the carrier for a niece): the
+    first one who is alive (or of unknown vital status), not a placeholder, and has neither
+    declined nor been lost to follow-up is offered testing first.  Those who cannot be asked
+    are passed over and the walk goes on through them towards the carrier; when nobody is
+    left the person is offered testing directly.  Common practice (ESC 2023: cascade testing
+    starts with first-degree relatives and widens stepwise [V])."""
+    k = statuses[person].nearest_carrier
+    if k is None:
+        return StepwiseRoute(person, None)
+    degree = pedigree.relationship(person, k).degree
+    if degree is None or degree <= 1:
+        return StepwiseRoute(person, None)
+    passed: list[str] = []
+    frontier, seen = [person], {person}
+    while degree > 1 and frontier:
+        nxt = []
+        for f in frontier:
+            for q in pedigree.first_degree_relatives(f):
+                if q in seen or q not in statuses or statuses[q].status != "at_risk_untested":
+                    continue
+                if pedigree.relationship(q, k).degree != degree - 1:
+                    continue
+                seen.add(q)
+                why = _passed_over(pedigree.member(q))
+                if why is None:
+                    return StepwiseRoute(person, q, tuple(passed))
+                passed.append(why)
+                nxt.append(q)
+        frontier, degree = nxt, degree - 1
+    return StepwiseRoute(person, None, tuple(passed))
+
+
+@dataclass(frozen=True)
+class ReleaseBasis:
+    """What a genotype-negative discharge relied on: the P/LP class in force on ``released_on``
+    = max(result date, the date the class last became P/LP)."""
+
+    relied_class: str
+    classified_on: dt.date | None  # date of the classification relied on
+    plp_since: dt.date | None  # date the class last became P/LP (None: unknown)
+    released_on: dt.date | None
+
+    def words(self) -> str:
+        cls = _CLASS_WORDS[self.relied_class]
+        when = f" (classified {self.classified_on.isoformat()})" if self.classified_on else ""
+        on = f"released {self.released_on.isoformat()}" if self.released_on else "released (undated)"
+        return f"{on}, relying on the class {cls}{when}"
+
+
+def history_pairs(history) -> list[tuple[dt.date | None, str]]:
+    out = []
+    for h in history:
+        if isinstance(h, tuple):
+            out.append((h[0], h[1]))
+        else:
+            out.append((h.classified_on, h.acmg_class))
+    return out
+
+
+def release_basis(history, result_date: dt.date | None) -> ReleaseBasis | None:
+    """The class a genotype-negative result released the person on, from the variant's class
+    history (oldest first; ``(date, class)`` pairs or objects with ``classified_on`` and
+    ``acmg_class``) as it stands.  None when the latest class is not P/LP (no release: a
+    non-carrier result under a VUS/LB/B class releases nobody)."""
+    pairs = history_pairs(history)
+    if not pairs or pairs[-1][1] not in ACTIONABLE_CLASSES:
+        return None
+    i = len(pairs) - 1
+    while i > 0 and pairs[i - 1][1] in ACTIONABLE_CLASSES:
+        i -= 1
+    plp_since = pairs[i][0]
+    if result_date is None:
+        released = plp_since
+    elif plp_since is None:
+        released = result_date
+    else:
+        released = max(result_date, plp_since)
+    relied = pairs[i]
+    for d, c in pairs[i:]:
+        if d is None or released is None or d <= released:
+            relied = (d, c)
+    return ReleaseBasis(relied[1], relied[0], plp_since, released)
+
+
+def result_date_for_release(statuses: Mapping[str, GenotypeStatus], person: str) -> dt.date | None:
+    """The date of the non-carrier result a person's status rests on (a monozygotic co-twin's
+    result for an inferred status)."""
+    st = statuses[person]
+    if st.inferred_from is not None and st.inferred_from in statuses:
+        return statuses[st.inferred_from].test_date
+    return st.test_date
+
+
+# Re-review of the variant's class.  AHA 2024 (1 B-NR): re-evaluate the variant's significance at
+# intervals [V]; ESC 2023: systematic reclassification, results passed on to families [V].  Neither
+# gives an interval: the 24-month default is common practice (the clinic sets its own in
+# [cascade] variant_rereview_months).
+DEFAULT_REREVIEW_MONTHS = 24
+SRC_REREVIEW = (
+    "AHA 2024 (1 B-NR): re-evaluate the variant's significance at intervals [V]; ESC 2023: systematic "
+    "reclassification, results passed on to families [V]; the interval is the clinic's setting "
+    "(default 24 months: common practice)"
+)
+
+
+@dataclass(frozen=True)
+class RereviewReminder:
+    """A reminder to re-review the family variant's class."""
+
+    family: str | None
+    variant: str | None
+    acmg_class: str
+    classified_on: dt.date
+    due: dt.date
+    overdue: bool
+    text: str
+    source: str = SRC_REREVIEW
+
+
+def add_months(d: dt.date, months: int) -> dt.date:
+    y, m = divmod(d.month - 1 + months, 12)
+    year, month = d.year + y, m + 1
+    for day in (d.day, 30, 29, 28):
+        try:
+            return dt.date(year, month, day)
+        except ValueError:
+            continue
+    raise AssertionError("unreachable")  # pragma: no cover
+
+
+def rereview_reminder(
+    acmg_class: str | None,
+    classified_on: dt.date | None,
+    on: dt.date,
+    months: int = DEFAULT_REREVIEW_MONTHS,
+    family: str | None = None,
+    variant: str | None = None,
+) -> RereviewReminder | None:
+    """A re-review reminder on ``on``: always for a VUS (re-review due ``months`` after its latest
+    classification, and meanwhile a standing reminder), and for any other class once its latest
+    classification is ``months`` old or more.  None otherwise (or without a class)."""
+    if acmg_class is None or classified_on is None:
+        return None
+    if months < 1:
+        raise ValueError("the re-review interval must be at least 1 month")
+    due = add_months(classified_on, months)
+    overdue = on >= due
+    words = _CLASS_WORDS[acmg_class]
+    if overdue:
+        text = (f"variant classified {words} on {classified_on.isoformat()}, {months} months or more ago: "
+                f"re-review of the class due since {due.isoformat()}")
+    elif acmg_class == "uncertain_significance":
+        text = (f"variant of uncertain significance (classified {classified_on.isoformat()}): may be "
+                f"reclassified; re-review the class by {due.isoformat()} and act on any change")
+    else:
+        return None
+    return RereviewReminder(family, variant, acmg_class, classified_on, due, overdue, text)
+
+
+def declined_reapproach(
+    declined_on: dt.date | None, on: dt.date | None, months: int | None
+) -> tuple[bool, str]:
+    """(may be re-approached on ``on``, words) for a relative who declined, under the clinic's
+    policy: ``months`` None = not re-approached (the default: common practice, the decision is
+    respected and the family passes on news); else re-approached once the decline is that old."""
+    said = f"declined on {declined_on.isoformat()}" if declined_on else "declined (date not recorded)"
+    if months is None:
+        return False, f"{said}; clinic policy: not re-approached (default)"
+    if declined_on is None or on is None:
+        return False, (f"{said}; clinic policy: re-approach {months} months after a decline: record the date "
+                       "of the decline")
+    start = add_months(declined_on, months)
+    if on >= start:
+        return True, (f"{said}; clinic policy: re-approach after {months} months: may be re-approached "
+                      f"(since {start.isoformat()}), acknowledging the earlier decision")
+    return False, f"{said}; clinic policy: re-approach after {months} months: not before {start.isoformat()}"

@@ -51,8 +51,27 @@ never blocks a listing; the row asks for the age to be confirmed.
 
 Who is listed: living (or vital status unknown, flagged), not a placeholder,
 and contactable or not yet contacted.  People who declined or are lost to
-follow-up appear only among the gaps (listed for the record, not recalled).
-Deceased people are never listed.
+follow-up appear among the gaps (listed for the record, not recalled); the
+decline is dated and the clinic's policy says whether to re-approach (default:
+not re-approached; with ``declined_reapproach_months`` a relative whose
+decline is that old is listed again for testing, with the decline named).
+Deceased people are never listed.  People not at risk by pedigree (married or
+adopted in, the other side of the family, below a non-carrier) are neither
+screened nor gaps once the family variant explains the disease; without a
+P/LP variant every first-degree relative of an affected member is screened.
+
+Stepwise cascade (common practice; ESC 2023: testing widens stepwise from
+first-degree relatives [V]): first-degree relatives of a carrier are offered
+testing directly; an unaffected at-risk relative further out waits for the
+at-risk, untested relative one step nearer the carrier (the parent of a
+grandchild, the carrier's sibling for a niece) and is listed as deferred with
+that name, unless that relative died, declined or is lost to follow-up; see
+:func:`tracker.domain.genetics.stepwise_route`.
+
+Releases say what they relied on: the P/LP class in force at max(result date,
+date the class last became P/LP), from the class history
+(:func:`tracker.domain.genetics.release_basis`).  A VUS, or any class older
+than the clinic's re-review interval, gives a re-review reminder.
 
 Decision support only: the treating clinician decides, following local
 protocols and the current guideline.
@@ -68,7 +87,20 @@ from fractions import Fraction
 import pandas as pd
 
 from tracker.domain.dates import PartialDate, age_at, birthday_at_age, completed_years
-from tracker.domain.genetics import ACTIONABLE_CLASSES, GenotypeStatus, probability_text
+from tracker.domain.genetics import (
+    ACTIONABLE_CLASSES,
+    DEFAULT_REREVIEW_MONTHS,
+    SRC_STEPWISE,
+    GenotypeStatus,
+    RereviewReminder,
+    declined_reapproach,
+    history_pairs,
+    probability_text,
+    release_basis,
+    rereview_reminder,
+    result_date_for_release,
+    stepwise_route,
+)
 from tracker.domain.pedigree import Pedigree
 
 CAUTION = (
@@ -250,6 +282,7 @@ class TestingCandidate:
     source: str
     guideline: str
     notes: tuple[str, ...] = ()
+    wait_for: str | None = None  # stepwise cascade: the relative to offer testing first
 
 
 @dataclass(frozen=True)
@@ -263,6 +296,8 @@ class ScreeningCandidate:
     source: str
     guideline: str
     notes: tuple[str, ...] = ()
+    released_on: dt.date | None = None  # released list: the day the release took effect
+    relied_on: str = ""  # released list: the P/LP class (and its date) the release relied on
 
 
 @dataclass(frozen=True)
@@ -289,6 +324,7 @@ class CascadePlan:
     gaps: tuple[Gap, ...]
     notes: tuple[str, ...] = ()
     caution: str = CAUTION
+    rereview: RereviewReminder | None = None
 
     def frames(self) -> dict[str, pd.DataFrame]:
         """One frame per list: testing, deferred, segregation, screening,
@@ -364,6 +400,11 @@ def plan_cascade(
     affected: Mapping[str, str | None] | None = None,
     seen: Iterable[str] = (),
     early_onset_family: bool = False,
+    *,
+    class_history=None,
+    contact_dates: Mapping[str, dt.date | None] | None = None,
+    declined_reapproach_months: int | None = None,
+    rereview_months: int = DEFAULT_REREVIEW_MONTHS,
 ) -> CascadePlan:
     """The cascade plan for one pedigree on date ``on`` under ``guideline``.
 
@@ -371,7 +412,13 @@ def plan_cascade(
     study or genetic test on record (for the "contacted but never seen" gap).
     ``early_onset_family``: clinician's judgement that the family has
     early-onset disease (opens testing of younger children under
-    ``hrs_2022_testing``).
+    ``hrs_2022_testing``).  ``class_history``: the variant's classifications,
+    oldest first (``(date, class)`` pairs or objects with ``classified_on`` and
+    ``acmg_class``; default: the current class, undated).  ``contact_dates``:
+    person -> date of the recorded contact status (the date of a decline).
+    ``declined_reapproach_months``: the clinic's policy (None: relatives who
+    declined are not re-approached).  ``rereview_months``: the clinic's
+    variant re-review interval.
     """
     if guideline not in RULE_SETS:
         raise ValueError(f"unknown guideline rule set {guideline!r}; one of {', '.join(RULE_SETS)}")
@@ -386,6 +433,28 @@ def plan_cascade(
 
     def fam(p: str) -> str | None:
         return pedigree.member(p).family
+
+    contact_dates = dict(contact_dates or {})
+    history = history_pairs(class_history) if class_history is not None else (
+        [(None, variant_class)] if variant_class else [])
+
+    def declined_state(p: str) -> tuple[bool, str]:
+        """(re-approach now, words) for a relative who declined."""
+        return declined_reapproach(contact_dates.get(p), on, declined_reapproach_months)
+
+    mode = getattr(statuses, "mode", None)
+
+    def not_at_risk(q: str) -> bool:
+        """Not at risk from the family variant by pedigree (a sibling of a carrier in whom the
+        variant arose anew keeps a small risk from parental germline mosaicism: still at risk)."""
+        st = statuses[q]
+        if st.status != "not_at_risk":
+            return False
+        if mode == "de_novo":
+            carriers = [c for c in people if statuses[c].status == "carrier"]
+            if any(q in pedigree.full_siblings(c) + pedigree.half_siblings(c) for c in carriers):
+                return False
+        return True
 
     testing: list[TestingCandidate] = []
     deferred: list[TestingCandidate] = []
@@ -415,12 +484,28 @@ def plan_cascade(
             cand_notes = list(_vital_notes(pedigree, p))
             if age.note:
                 cand_notes.append(age.note)
+            source = rules.testing_source
             if is_affected(p):
                 eligible, words, start = True, "diagnostic: affected, test for the family variant", None
             else:
                 eligible, words, start = _testing_recommendation(rules, age, birth, early_onset_family)
             if obligate:
                 words = f"confirmatory, optional (common practice): {words}"
+            wait_for = None
+            if not obligate and not is_affected(p):
+                route = stepwise_route(pedigree, statuses, p)
+                wait_for = route.first
+                if route.deferred:
+                    words = f"deferred: offer {route.first} first (stepwise cascade)" + (
+                        f"; then {words}" if eligible else f"; {words}")
+                    eligible, source = False, f"{rules.testing_source}; {SRC_STEPWISE}"
+                    cand_notes.append(route.reason())
+                elif route.passed:
+                    cand_notes.append(route.reason())
+            reapproach = False
+            if pedigree.member(p).contact_status == "declined":
+                reapproach, said = declined_state(p)
+                cand_notes.append(said)
             cand = TestingCandidate(
                 person=p,
                 family=fam(p),
@@ -432,11 +517,12 @@ def plan_cascade(
                 eligible=eligible,
                 eligible_from=start,
                 reason=st.reason,
-                source=rules.testing_source,
+                source=source,
                 guideline=guideline,
                 notes=tuple(cand_notes),
+                wait_for=wait_for,
             )
-            if not _reachable(pedigree, p):
+            if not (_reachable(pedigree, p) or reapproach):
                 continue
             (testing if eligible else deferred).append(cand)
 
@@ -464,12 +550,14 @@ def plan_cascade(
             sq = statuses[q]
             if actionable and sq.status == "non_carrier" and explained:
                 continue  # genotype-negative: released below
+            if actionable and explained and not_at_risk(q):
+                continue  # married in, other side, below a non-carrier: not at risk, not screened
             if actionable and sa.status == "non_carrier":
                 why = (f"first-degree relative of affected {a}, whose disease is not explained by the family "
                        f"variant ({a} tested non-carrier): clinical screening")
             elif actionable and sq.status == "not_at_risk":
-                why = (f"first-degree relative of affected {a} (not at risk from the family variant by "
-                       "pedigree, untested: screening per the first-degree rule)")
+                why = (f"first-degree relative of affected {a} ({sq.reason}; untested: screening per the "
+                       "first-degree rule)")
             elif actionable:
                 why = f"first-degree relative of affected {a}"
             else:
@@ -484,7 +572,7 @@ def plan_cascade(
                         continue
                     if pedigree.relationship(a, q).degree != 2:
                         continue
-                    if actionable and statuses[q].status == "non_carrier":
+                    if actionable and (statuses[q].status == "non_carrier" or (explained and not_at_risk(q))):
                         continue
                     indicate(q, "second_degree_via_deceased",
                              f"second-degree relative of affected {a} through deceased {d}",
@@ -501,12 +589,16 @@ def plan_cascade(
                 indicate(p, "at_risk",
                          f"{st.reason}: clinical screening until tested", rules.screening_source)
             elif st.status == "non_carrier":
+                basis = release_basis(history, result_date_for_release(statuses, p))
+                relied = basis.words() if basis else ""
                 released.append(
                     ScreeningCandidate(
                         p, fam(p), ("genotype_negative",),
                         f"{st.reason}: genotype-negative for the family P/LP variant: discharge from "
-                        "screening with advice to return for symptoms or new family data",
+                        "screening with advice to return for symptoms or new family data"
+                        + (f" ({relied}; a downgrade of the class recalls)" if relied else ""),
                         rules.release_source, guideline, _vital_notes(pedigree, p),
+                        basis.released_on if basis else None, relied,
                     )
                 )
             elif st.status == "uncertain":
@@ -547,7 +639,14 @@ def plan_cascade(
         elif contact == "lost_to_follow_up":
             gaps.append(Gap(fam(p), p, "lost_to_follow_up", "lost to follow-up: consider another route of contact"))
         elif contact == "declined":
-            gaps.append(Gap(fam(p), p, "declined", "declined: listed for the record, not recalled"))
+            gaps.append(Gap(fam(p), p, "declined", f"{declined_state(p)[1]}: listed for the record, not recalled"))
+
+    rereview = None
+    if history and history[-1][0] is not None:
+        when, cls = history[-1]
+        rereview = rereview_reminder(cls, when, on, rereview_months, family=pedigree.member(people[0]).family)
+        if rereview is not None:
+            notes.append(f"re-review reminder: {rereview.text} ({rereview.source})")
 
     return CascadePlan(
         guideline=guideline,
@@ -560,4 +659,5 @@ def plan_cascade(
         released=tuple(released),
         gaps=tuple(gaps),
         notes=tuple(notes),
+        rereview=rereview,
     )

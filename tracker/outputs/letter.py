@@ -736,6 +736,8 @@ def prepare_letter(
         cand = next((c for c in plan.testing + plan.deferred if c.person == person), None)
         if cand is None:  # pragma: no cover - an at-risk, listable, reachable person is always planned
             raise LetterRefused(f"{person}: not in the cascade plan under {guideline}: no letter")
+        if cand.wait_for is not None:  # stepwise cascade: the nearer relative is offered testing first
+            raise LetterRefused(f"{person}: stepwise cascade: offer testing to {cand.wait_for} first; no letter yet")
         values["risk"] = risk_words(st.probability)
         if rules.min_age_years is None:
             values["testing_start"] = "at any age"

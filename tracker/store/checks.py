@@ -51,3 +51,29 @@ def _existing(conn: Connection) -> set[str]:
     from sqlalchemy import inspect
 
     return set(inspect(conn).get_table_names())
+
+
+def variant_rereview_reminders(conn: Connection, on, months: int) -> list[Finding]:
+    """Reminders, not failures: each family variant of uncertain significance, and each whose latest
+    classification is ``months`` old or more on ``on`` (the clinic's re-review interval;
+    see :func:`tracker.domain.genetics.rereview_reminder` for the rule and its source)."""
+    from tracker.domain.dates import parse_date
+    from tracker.domain.genetics import rereview_reminder
+    from tracker.store import repository as repo
+
+    variants = repo.load_variants(conn)
+    out = []
+    latest: dict[tuple[str, str], tuple] = {}
+    for fam, tx, c, cls, when in zip(variants["family"], variants["transcript"], variants["hgvs_c"],
+                                     variants["acmg_class"], variants["classified_on"]):  # fmt: skip
+        day = parse_date(when) if isinstance(when, str) and when else None
+        if day is None or day > on:
+            continue
+        key = (fam, f"{tx}:{c}")
+        if key not in latest or day >= latest[key][1]:
+            latest[key] = (cls, day)
+    for (fam, key), (cls, day) in sorted(latest.items()):
+        r = rereview_reminder(cls, day, on, months, family=fam, variant=key)
+        if r is not None:
+            out.append(Finding("variant_rereview", f"variant {fam} {key}", r.text))
+    return out
