@@ -317,3 +317,21 @@ def test_obligate_carrier_offered_confirmatory_test():
 def test_caution_present():
     pl = plan(family(), "esc_2023")
     assert "Decision support only" in pl.caution and "clinician decides" in pl.caution
+
+
+def test_each_cascade_rule_set_cites_only_its_own_guideline_year():
+    # Guidelines are never blended: a cascade rule set's title and sources name its own year only,
+    # and the letters' screening-start phrase for that rule set does too.
+    import re
+
+    from tracker.engines.cascade import RULE_SETS
+    from tracker.outputs.letter import SCREENING_START
+
+    for gid, rs in RULE_SETS.items():
+        year = re.search(r"(20\d\d)", gid).group(1)
+        texts = [rs.title, rs.testing_source, rs.screening_source, rs.release_source, rs.second_degree_source,
+                 rs.segregation_source or ""]  # fmt: skip
+        texts.append(SCREENING_START[gid][1] if not gid.startswith("hrs") else "")
+        for t in texts:
+            years = set(re.findall(r"\b(?:19|20)\d\d\b", t))
+            assert years <= {year}, (gid, t)

@@ -132,22 +132,22 @@ class RuleSet:
 RULE_SETS: dict[str, RuleSet] = {
     "aha_acc_2020": RuleSet(
         guideline="aha_acc_2020",
-        title="2020 AHA/ACC HCM guideline (as restated in the 2024 AHA/ACC guideline)",
+        title="2020 AHA/ACC HCM guideline",
         min_age_years=None,
         full_age_years=None,
         early_onset_exception=False,
         testing_source=(
-            "AHA/ACC 2020 and 2024 §6.8 rec 6: cascade genetic testing of first-degree relatives "
-            "when the proband has a P/LP variant (1 B-NR); testing or screening can start at any "
-            "age, with expert counselling and shared decisions [V]"
+            "AHA/ACC 2020 §6.8 rec 6: cascade genetic testing of first-degree relatives when the "
+            "proband has a P/LP variant (1 B-NR); testing or screening can start at any age, with "
+            "expert counselling and shared decisions [V2: the later revision restates it unchanged]"
         ),
         screening_source=(
-            "AHA/ACC 2024 §6.8 rec 6 (as 2020): clinical screening (ECG + echo) of all first-degree "
-            "relatives (1 B-NR) [V]; more distant at-risk relatives by judgement [M, from memory, verify]"
+            "AHA/ACC 2020 §6.8 rec 6: clinical screening (ECG + echo) of all first-degree relatives "
+            "(1 B-NR) [V2]; more distant at-risk relatives by judgement [M, from memory, verify]"
         ),
         release_source=(
-            "AHA/ACC: no ongoing screening of genotype-negative relatives (3: No Benefit) "
-            "[M, from memory, verify]; AHA 2024: unless the variant is downgraded [V2]"
+            "AHA/ACC 2020 §6.8 rec 13: no ongoing clinical screening of genotype-negative relatives "
+            "(3: No Benefit) [M, from memory, verify]"
         ),
     ),
     "aha_acc_2024": RuleSet(

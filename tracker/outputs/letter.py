@@ -194,7 +194,7 @@ FIELDS = ("subject", "greeting", "closing")
 
 # From what age heart checks are offered, per cascade rule set (phrase, source).
 SCREENING_START: dict[str, tuple[str, str]] = {
-    "aha_acc_2020": ("at any age", "AHA/ACC 2024 key point: screening can start at any age [V]"),
+    "aha_acc_2020": ("at any age", "AHA/ACC 2020 §6.8: genetic or clinical screening can start at any age (1 B-NR) [V2]"),
     "aha_acc_2024": ("at any age", "AHA/ACC 2024 key point 3: screening can begin at any age [V]"),
     "esc_2023": ("in childhood", "ESC 2023 §6.11: screening from childhood to old age [V]"),
     "hrs_2022_testing": (
