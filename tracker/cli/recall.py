@@ -10,6 +10,7 @@ SQLAlchemy Core inside one transaction.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import math
 from dataclasses import dataclass
@@ -35,6 +36,7 @@ from tracker.engines.reclassification import impact_of_reclassification
 from tracker.engines.schedule import CAUTIONS, Policy, Proposal, propose_recall
 from tracker.engines.worklist import book_into_slots, lost_to_follow_up, not_recalled, select_due, week_starts
 from tracker.errors import UserError
+from tracker.normals.criteria import NOT_ASSESSABLE
 from tracker.outputs import ics, worklist_csv
 from tracker.rules import available_rule_sets, load_rule_set
 from tracker.settings import Settings, load_settings
@@ -164,7 +166,8 @@ def _with_trends(
     for b in range(-(-len(people) // TREND_CHUNK_PEOPLE)):
         chunk = studies.iloc[in_batch.get(b, [])]
         parts.append(flags(
-            build(frames.people.iloc[members.get(b, [])], chunk), guideline=rule_set_id,
+            review.mark_pregnancy(build(frames.people.iloc[members.get(b, [])], chunk), frames.assessments),
+            guideline=rule_set_id,
             relative_of_affected=relatives, genotype_positive=positive,
             clinic_repeatability=settings.repeatability or None,
         ))  # fmt: skip
@@ -173,6 +176,32 @@ def _with_trends(
         "note": f"trend modifiers from the measurement trends ({rule_set_id} thresholds): progression beyond "
         "measurement variability and projected threshold crossing shorten the interval",
     }
+
+
+PROGRESSION_PREFIX = "Progression on the measurement trends"
+
+
+def _progression_text(rule_text: str, tests: str) -> str:
+    """The rule set's progression modifier text with its opening clause replaced by the tests that
+    fired (slope, last change, z-score slope) and their figures; the interval clause is kept."""
+    if not tests or rule_text.startswith(PROGRESSION_PREFIX):
+        return rule_text
+    tail = rule_text.split(": ", 1)[1] if ": " in rule_text else rule_text
+    return f"{PROGRESSION_PREFIX} ({tests}): {tail}"
+
+
+def with_trend_texts(p: Proposal, facts: fs.PersonFacts) -> Proposal:
+    """``p`` with the progression modifier naming the test that fired, and each "criteria not
+    assessable" review flag in its notes (flag ``criteria_not_assessable``)."""
+    fired = tuple(
+        dataclasses.replace(f, text=_progression_text(f.text, facts.progression_tests))
+        if f.kind == "modifier" and f.code == "progression" else f
+        for f in p.fired
+    )  # fmt: skip
+    review = tuple(x for x in facts.review_flags.split(" | ") if x and x not in p.notes)
+    flags = p.flags + (("criteria_not_assessable",) if facts.review_flags and "criteria_not_assessable" not in p.flags
+                       else ())  # fmt: skip
+    return dataclasses.replace(p, fired=fired, flags=flags, notes=p.notes + review)
 
 
 def _batches(batch: np.ndarray) -> dict[int, np.ndarray]:
@@ -603,6 +632,7 @@ def _reason(p: Proposal) -> tuple[str, str]:
 def _proposal_dict(p: Proposal, st: fs.FamilyState) -> dict:
     person = p.person_code
     ps, facts, g = st.states[person], st.facts[person], st.genotypes[person]
+    p = with_trend_texts(p, facts)
     reason, source = _reason(p)
     return {
         "person": person,
@@ -639,6 +669,8 @@ def _proposal_dict(p: Proposal, st: fs.FamilyState) -> dict:
             "progression": ps.progression,
             "projected_crossing_age_years": ps.projected_crossing_age_years,
             "trend_reasons": facts.trend_reasons,
+            "progression_tests": facts.progression_tests,
+            "review_flags": [x for x in facts.review_flags.split(" | ") if x],
         },
         "cautions": list(p.cautions),
     }
@@ -722,6 +754,7 @@ def _entry(p: Proposal, family: str, lst: str) -> dict:
         "days_overdue": p.days_overdue, "interval_months": p.interval_months, "rule_id": p.rule_id,
         "needs": list(p.needs), "consider": list(p.consider), "reason": reason, "source": source,
         "triggers": list(p.triggers), "flags": list(p.flags), "booked_week": None, "late": None,
+        "review_flags": [n for n in p.notes if n.startswith(NOT_ASSESSABLE)],
     }  # fmt: skip
 
 
@@ -743,6 +776,7 @@ def due_proposals(frames, conf, rule_set, policy, start: dt.date, end: dt.date, 
     affected: set[str] = set()
     for fam, st in states.items():
         for p, prop in fs.propose_for_family(st, rule_set, policy, on).items():
+            prop = with_trend_texts(prop, st.facts[p])
             proposals.append(prop)
             family_of[p] = fam
             if st.states[p].phenotype == "positive":

@@ -346,6 +346,7 @@ def trajectory_report(
     kw = dict(guideline=gid, relative_of_affected=rel, genotype_positive=pos)
     mine = studies[studies["person"] == person] if studies is not None and len(studies) else None
     m = review.build_measurements(people, mine) if mine is not None and len(mine) else None
+    m = review.mark_pregnancy(m, assessments) if m is not None else None
     a = t = conv = None
     if m is not None and len(m):
         a = review.assess_measurements(m, **kw)

@@ -215,7 +215,8 @@ def _person_data(code: str, data: dict, settings, horizon: float) -> dict[str, A
                                   data["assessments"])  # fmt: skip
     rel, pos = _status_sets(ctx)
     kw = dict(guideline=settings.guideline, relative_of_affected=rel, genotype_positive=pos)
-    m = review.build_measurements(people, data["studies"][data["studies"]["person"] == code])
+    m = review.mark_pregnancy(review.build_measurements(people, data["studies"][data["studies"]["person"] == code]),
+                              data["assessments"])
     a = review.assess_measurements(m, **kw)
     t = review.trend_table(a, **kw, clinic_repeatability=settings.repeatability, horizon_years=horizon)
     conv = review.conversions(a)
@@ -361,7 +362,7 @@ def trends_(
     ctx = review.clinical_context(people, data["results"], data["variants"], data["assessments"])
     rel, pos = _status_sets(ctx)
     studies = data["studies"][data["studies"]["person"].isin(set(people["person"]))]
-    m = review.build_measurements(people, studies)
+    m = review.mark_pregnancy(review.build_measurements(people, studies), data["assessments"])
     t = review.trend_table(m, guideline=s.guideline, relative_of_affected=rel, genotype_positive=pos,
                            clinic_repeatability=s.repeatability, horizon_years=horizon)  # fmt: skip
     t = t[t["n"] >= 2]

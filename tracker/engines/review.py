@@ -567,7 +567,7 @@ TREND_COLUMNS = [
     "progression_tests", "left_out", "criteria_not_assessable", "criteria_flags", "concern",
     "reasons", "caution",
 ]  # fmt: skip
-FLAG_COLUMNS = ["person", "progressing", "projected_crossing_age", "reasons", "review_flags"]
+FLAG_COLUMNS = ["person", "progressing", "projected_crossing_age", "reasons", "progression_tests", "review_flags"]
 
 
 def _window(a: pd.DataFrame) -> pd.DataFrame:
@@ -764,8 +764,9 @@ def _flag(t: pd.DataFrame, flags: pd.DataFrame, horizon: float) -> None:
                     np.where(direction < 0, t["z_ci_high"].to_numpy(dtype=float) < 0, False))  # fmt: skip
     z_measure = t["measure"].isin(list(paediatric.MODEL_MEASURE)).to_numpy()
     no_adult_ci = ~np.isfinite(t["ci_low"].to_numpy(dtype=float))
+    t["fitted_change"] = t["slope"].to_numpy(dtype=float) * t["span_years"].to_numpy(dtype=float)
     t["flag_change"] = change & ~child & counts
-    t["flag_slope"] = slope & ~child & counts
+    t["flag_slope"] = slope & ~child & counts & _beyond_lsc(t)
     t["flag_z_slope"] = z_up & z_measure & (child | no_adult_ci) & counts
     t["progressing"] = t["flag_change"] | t["flag_slope"] | t["flag_z_slope"]
     st = t["projection_status"].to_numpy(dtype=object)
@@ -774,6 +775,23 @@ def _flag(t: pd.DataFrame, flags: pd.DataFrame, horizon: float) -> None:
         st == "fitted line already past threshold"
     )
     t["progression_tests"] = _test_texts(t)
+
+
+def _beyond_lsc(t: pd.DataFrame) -> np.ndarray:
+    """The fitted change over the series (slope x span) exceeds the measure's least significant
+    change (absolute, or relative to the fitted first value), where the measure has one.
+
+    Engineering choice: a slope whose interval excludes zero but whose whole fitted change is
+    smaller than two scans of an unchanged person can differ (e.g. +0.08 mm/y over 10 years of
+    posterior wall) is not called progression."""
+    fc = np.abs(t["fitted_change"].to_numpy(dtype=float))
+    lsc = t["lsc"].to_numpy(dtype=float)
+    rel = t["lsc_relative"].to_numpy(dtype=float)
+    first = t["intercept"].to_numpy(dtype=float) + t["slope"].to_numpy(dtype=float) * t["first_age"].to_numpy(dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rel_change = fc / np.abs(first)
+    has = np.isfinite(lsc) | np.isfinite(rel)
+    return ~has | (np.isfinite(lsc) & (fc > lsc)) | (np.isfinite(rel) & (rel_change > rel))
 
 
 def _fmt(x: float, nd: int = 2) -> str:
@@ -794,14 +812,18 @@ def _test_texts(t: pd.DataFrame) -> np.ndarray:
                 limits.append(f"the least significant relative change {r.lsc_relative:.0%}")
             text = (f"last-change test: {_fmt(r.last_change)} {r.unit} from {_iso(r.last_change_from)} to "
                     f"{_iso(r.last_change_to)}, beyond {' and '.join(limits)} ({r.lsc_status})")  # fmt: skip
-            if r.lsc_status in ("placeholder", "provisional"):
-                text += f"; {LSC_DEFAULT_NOTE}"
-            texts.append(text)
+            texts.append(text + lsc_note(r.lsc_status))
         out = _join(out, change, _spread(change, texts))
     slope = t["flag_slope"].to_numpy(dtype=bool)
     if slope.any():
         texts = [f"slope test: {_fmt(r.slope)} {r.unit}/y (95% CI {_fmt(r.ci_low)} to {_fmt(r.ci_high)}) over "
-                 f"{r.n} studies, {r.first_age:.1f}-{r.last_age:.1f} y; the interval excludes zero towards disease"
+                 f"{r.n} studies, {r.first_age:.1f}-{r.last_age:.1f} y; the interval excludes zero towards disease; "
+                 f"fitted change {_fmt(r.fitted_change, 1)} {r.unit}"
+                 + (f", beyond the least significant change {r.lsc:.2f} {r.unit} ({r.lsc_status})"
+                    if np.isfinite(r.lsc) and abs(r.fitted_change) > r.lsc
+                    else f", beyond the least significant relative change {r.lsc_relative:.0%} ({r.lsc_status})"
+                    if np.isfinite(r.lsc_relative) else " (no least significant change known for this measure)")
+                 + lsc_note(r.lsc_status)
                  for r in t.loc[slope].itertuples(index=False)]  # fmt: skip
         out = _join(out, slope, _spread(slope, texts))
     zs = t["flag_z_slope"].to_numpy(dtype=bool)
@@ -825,10 +847,18 @@ def _iso(v) -> str:
     return v.isoformat()[:10] if hasattr(v, "isoformat") else str(v)[:10]
 
 
-LSC_DEFAULT_NOTE = (
-    "this least significant change is the packaged default, not a verified published test-retest figure: "
-    "the clinic must set its own within-subject SD in the settings ([repeatability])"
-)
+LSC_DEFAULT_NOTES = {
+    "placeholder": "the least significant change is the packaged placeholder, not a verified published "
+    "test-retest figure: the clinic must set its lab's own within-subject SD in the settings ([repeatability])",
+    "provisional": "the least significant change is a provisional default derived from a published figure: "
+    "replace it with the lab's own within-subject SD in the settings ([repeatability])",
+}
+
+
+def lsc_note(status: object) -> str:
+    """"; NOTE" when a least significant change of this status is a packaged default, else ""."""
+    note = LSC_DEFAULT_NOTES.get(str(status))
+    return f"; {note}" if note else ""
 
 
 def _join(out: np.ndarray, mask: np.ndarray, text) -> np.ndarray:
@@ -983,7 +1013,8 @@ def trend_flags(
     any measure progressing beyond measurement variability), projected_crossing_age
     (earliest projected age, years, at which maximal wall thickness reaches the
     guideline threshold within ``horizon_years``; NaN if none), reasons (plain text,
-    "measure: reason" joined by " | ": each progression test that fired with its figures),
+    "measure: reason" joined by " | "), progression_tests (the same for the progression tests
+    that fired only, each with its figures),
     review_flags ("criteria not assessable: ..." for each wall-thickness value the guideline's
     criteria could not judge, joined by " | "; "" if none).  Same arguments as :func:`trend_table`.
     Decision support only: the treating clinician decides.
@@ -1002,6 +1033,8 @@ def trend_flags(
     crossing = t[t["crossing_within_horizon"].astype(bool)].groupby("person")["projected_age"].min().reindex(people)
     flagged = t[t["reasons"] != ""]
     reasons = (flagged["measure"] + ": " + flagged["reasons"]).groupby(flagged["person"]).agg(" | ".join)
+    fired = t[t["progressing"].astype(bool) & (t["progression_tests"] != "")]
+    tests = (fired["measure"] + ": " + fired["progression_tests"]).groupby(fired["person"]).agg(" | ".join)
     crit = t[t["criteria_flags"] != ""]
     review_flags = crit.groupby("person")["criteria_flags"].agg(" | ".join)
     return pd.DataFrame(
@@ -1010,6 +1043,7 @@ def trend_flags(
             "progressing": progressing.to_numpy(dtype=bool),
             "projected_crossing_age": crossing.to_numpy(dtype=float),
             "reasons": reasons.reindex(people).fillna("").to_numpy(dtype=object),
+            "progression_tests": tests.reindex(people).fillna("").to_numpy(dtype=object),
             "review_flags": review_flags.reindex(people).fillna("").to_numpy(dtype=object),
         },
         columns=FLAG_COLUMNS,
