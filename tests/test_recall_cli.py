@@ -310,7 +310,7 @@ def test_recall_deceased_and_declined(demo_db, run):
 WORKLIST_KEYS = {"window", "as_of", "rule_set", "rule_set_title", "policy", "slots_per_week", "due", "affected",
                  "booking", "not_recalled", "lost_to_follow_up", "trend_modifiers", "files", "cautions"}  # fmt: skip
 ENTRY_KEYS = {"list", "person", "family", "status", "due", "days_overdue", "interval_months", "rule_id", "needs",
-              "consider", "reason", "source", "triggers", "flags", "booked_week", "late"}  # fmt: skip
+              "consider", "reason", "source", "triggers", "flags", "booked_week", "late", "review_flags"}  # fmt: skip
 
 
 def test_worklist_capacity_reports_who_cannot_be_seen_by_the_due_date(rc_db, run):

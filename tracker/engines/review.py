@@ -60,7 +60,8 @@ DIAGNOSTIC_MEASURES = ("mwt_echo", "mwt_cmr")
 #: "Progression flags").  Common practice: hypertrophy defines the HCM phenotype (2023 ESC
 #: cardiomyopathy guideline, diagnostic criteria [V]; guidelines.md section 4), so wall thickness
 #: (maximal, septal, posterior) and LV mass index are the primary measures, with the LVOT gradient
-#: (obstruction develops with the phenotype).  LA size is supporting: it also grows with age in
+#: at rest (obstruction develops with the phenotype; Valsalva and provoked gradients depend on
+#: the manoeuvre, effort and loading and are not trended for the flag, common practice).  LA size is supporting: it also grows with age in
 #: healthy adults and the encoded adult reference (Lang 2015 [V2]) has no age term, so its tests
 #: count only when the latest value is above the upper normal limit (engineering choice).
 #: Not flag measures (slope and last change shown, never flagged): e' (falls with age, Nagueh 2009
@@ -70,7 +71,7 @@ SUPPORTING = "supporting (flags only above the upper normal limit)"
 FLAG_MEASURES: dict[str, str] = {
     "mwt_echo": PRIMARY, "mwt_cmr": PRIMARY, "ivsd": PRIMARY, "lvpwd": PRIMARY,
     "lvmi_echo": PRIMARY, "lvmi_cmr": PRIMARY,
-    "lvot_rest": PRIMARY, "lvot_valsalva": PRIMARY, "lvot_provoked": PRIMARY,
+    "lvot_rest": PRIMARY,
     "la_diam": SUPPORTING, "lavi": SUPPORTING,
 }  # fmt: skip
 #: Direction of disease of the flag measures (higher = towards disease), added to
@@ -564,7 +565,7 @@ TREND_COLUMNS = [
     "last_change_vs_lsc", "threshold", "threshold_unit", "projection_status", "projected_age",
     "projected_age_ci_low", "projected_age_ci_high", "projection_reason", "progressing",
     "crossing_within_horizon", "converted", "conversion_date", "review_flag", "flag_role",
-    "progression_tests", "left_out", "criteria_not_assessable", "criteria_flags", "concern",
+    "tests_fired", "progression_tests", "left_out", "criteria_not_assessable", "criteria_flags", "concern",
     "reasons", "caution",
 ]  # fmt: skip
 FLAG_COLUMNS = ["person", "progressing", "projected_crossing_age", "reasons", "progression_tests", "review_flags"]
@@ -775,6 +776,11 @@ def _flag(t: pd.DataFrame, flags: pd.DataFrame, horizon: float) -> None:
         st == "fitted line already past threshold"
     )
     t["progression_tests"] = _test_texts(t)
+    names = np.full(len(t), "", dtype=object)
+    for col, name in (("flag_slope", "slope test"), ("flag_change", "last-change test"),
+                      ("flag_z_slope", "z-score slope test")):  # fmt: skip
+        names = _join(names, t[col].to_numpy(dtype=bool), name)
+    t["tests_fired"] = names
 
 
 def _beyond_lsc(t: pd.DataFrame) -> np.ndarray:
@@ -805,32 +811,34 @@ def _test_texts(t: pd.DataFrame) -> np.ndarray:
     if change.any():
         texts = []
         for r in t.loc[change].itertuples(index=False):
-            limits = []
             if np.isfinite(r.lsc) and abs(r.last_change) > r.lsc:
-                limits.append(f"the least significant change {r.lsc:.2f} {r.unit}")
-            if np.isfinite(r.lsc_relative) and not limits:
-                limits.append(f"the least significant relative change {r.lsc_relative:.0%}")
-            text = (f"last-change test: {_fmt(r.last_change)} {r.unit} from {_iso(r.last_change_from)} to "
-                    f"{_iso(r.last_change_to)}, beyond {' and '.join(limits)} ({r.lsc_status})")  # fmt: skip
-            texts.append(text + lsc_note(r.lsc_status))
+                limit = f"LSC {r.lsc:.2f} {r.unit}"
+            else:
+                limit = f"relative LSC {r.lsc_relative:.0%}"
+            texts.append(f"last-change test: {_fmt(r.last_change)} {r.unit} ({_iso(r.last_change_from)} to "
+                         f"{_iso(r.last_change_to)}) > {limit}{lsc_note(r.lsc_status)}")  # fmt: skip
         out = _join(out, change, _spread(change, texts))
     slope = t["flag_slope"].to_numpy(dtype=bool)
     if slope.any():
-        texts = [f"slope test: {_fmt(r.slope)} {r.unit}/y (95% CI {_fmt(r.ci_low)} to {_fmt(r.ci_high)}) over "
-                 f"{r.n} studies, {r.first_age:.1f}-{r.last_age:.1f} y; the interval excludes zero towards disease; "
-                 f"fitted change {_fmt(r.fitted_change, 1)} {r.unit}"
-                 + (f", beyond the least significant change {r.lsc:.2f} {r.unit} ({r.lsc_status})"
-                    if np.isfinite(r.lsc) and abs(r.fitted_change) > r.lsc
-                    else f", beyond the least significant relative change {r.lsc_relative:.0%} ({r.lsc_status})"
-                    if np.isfinite(r.lsc_relative) else " (no least significant change known for this measure)")
-                 + lsc_note(r.lsc_status)
-                 for r in t.loc[slope].itertuples(index=False)]  # fmt: skip
+        texts = []
+        for r in t.loc[slope].itertuples(index=False):
+            text = (f"slope test: {_fmt(r.slope)} {r.unit}/y (95% CI {_fmt(r.ci_low)} to {_fmt(r.ci_high)}; {r.n} "
+                    f"studies, {r.first_age:.1f}-{r.last_age:.1f} y) excludes zero towards disease; fitted change "
+                    f"{_fmt(r.fitted_change, 1)} {r.unit}")  # fmt: skip
+            if np.isfinite(r.lsc) and abs(r.fitted_change) > r.lsc:
+                text += f" > LSC {r.lsc:.2f} {r.unit}{lsc_note(r.lsc_status)}"
+            elif np.isfinite(r.lsc_relative):
+                text += f" > relative LSC {r.lsc_relative:.0%}{lsc_note(r.lsc_status)}"
+            else:
+                text += " (no LSC known for this measure)"
+            texts.append(text)
         out = _join(out, slope, _spread(slope, texts))
     zs = t["flag_z_slope"].to_numpy(dtype=bool)
     if zs.any():
-        texts = [f"z-score slope test: {_fmt(r.z_slope)} z/y (95% CI {_fmt(r.z_ci_low)} to {_fmt(r.z_ci_high)}) "
-                 f"over {r.z_n} studies under 18 y ({r.z_model}); the interval excludes zero towards disease"
-                 for r in t.assign(z_slope=t["z_slope_per_year"]).loc[zs].itertuples(index=False)]  # fmt: skip
+        texts = [f"z-score slope test: {_fmt(b)} z/y (95% CI {_fmt(lo)} to {_fmt(hi)}; {n} studies under 18 y, "
+                 f"{model}) excludes zero towards disease"
+                 for b, lo, hi, n, model in zip(t.loc[zs, "z_slope_per_year"], t.loc[zs, "z_ci_low"],
+                                                t.loc[zs, "z_ci_high"], t.loc[zs, "z_n"], t.loc[zs, "z_model"])]  # fmt: skip
         out = _join(out, zs, _spread(zs, texts))
     return out
 
@@ -847,18 +855,17 @@ def _iso(v) -> str:
     return v.isoformat()[:10] if hasattr(v, "isoformat") else str(v)[:10]
 
 
+#: Said beside every least significant change that is a packaged default (repeatability.toml).
 LSC_DEFAULT_NOTES = {
-    "placeholder": "the least significant change is the packaged placeholder, not a verified published "
-    "test-retest figure: the clinic must set its lab's own within-subject SD in the settings ([repeatability])",
-    "provisional": "the least significant change is a provisional default derived from a published figure: "
-    "replace it with the lab's own within-subject SD in the settings ([repeatability])",
+    "placeholder": "placeholder LSC, not a published figure: set the clinic's own in the settings [repeatability]",
+    "provisional": "provisional LSC: set the lab's own in the settings [repeatability]",
 }
 
 
 def lsc_note(status: object) -> str:
-    """"; NOTE" when a least significant change of this status is a packaged default, else ""."""
+    """" (NOTE)" when a least significant change of this status is a packaged default, else ""."""
     note = LSC_DEFAULT_NOTES.get(str(status))
-    return f"; {note}" if note else ""
+    return f" ({note})" if note else ""
 
 
 def _join(out: np.ndarray, mask: np.ndarray, text) -> np.ndarray:
