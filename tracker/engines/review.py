@@ -767,7 +767,7 @@ def _flag(t: pd.DataFrame, flags: pd.DataFrame, horizon: float) -> None:
     no_adult_ci = ~np.isfinite(t["ci_low"].to_numpy(dtype=float))
     t["fitted_change"] = t["slope"].to_numpy(dtype=float) * t["span_years"].to_numpy(dtype=float)
     t["flag_change"] = change & ~child & counts
-    t["flag_slope"] = slope & ~child & counts & _beyond_lsc(t)
+    t["flag_slope"] = slope & ~child & counts & _beyond_sw(t)
     t["flag_z_slope"] = z_up & z_measure & (child | no_adult_ci) & counts
     t["progressing"] = t["flag_change"] | t["flag_slope"] | t["flag_z_slope"]
     st = t["projection_status"].to_numpy(dtype=object)
@@ -783,21 +783,23 @@ def _flag(t: pd.DataFrame, flags: pd.DataFrame, horizon: float) -> None:
     t["tests_fired"] = names
 
 
-def _beyond_lsc(t: pd.DataFrame) -> np.ndarray:
-    """The fitted change over the series (slope x span) exceeds the measure's least significant
-    change (absolute, or relative to the fitted first value), where the measure has one.
+def _beyond_sw(t: pd.DataFrame) -> np.ndarray:
+    """The fitted change over the series (slope x span) exceeds one within-subject SD of a single
+    scan (Sw = LSC / 2.77, or the relative LSC / 2.77 against the fitted first value), where the
+    measure has a repeatability figure.
 
-    Engineering choice: a slope whose interval excludes zero but whose whole fitted change is
-    smaller than two scans of an unchanged person can differ (e.g. +0.08 mm/y over 10 years of
-    posterior wall) is not called progression."""
+    Engineering choice: the slope's interval already deals with noise; this asks for a change that
+    matters, so a slope whose interval excludes zero but whose whole fitted change is smaller than
+    the scatter of one scan (e.g. +0.08 mm/y of posterior wall over 10 years, 0.8 mm against an Sw of
+    1.4 mm) is not called progression."""
     fc = np.abs(t["fitted_change"].to_numpy(dtype=float))
-    lsc = t["lsc"].to_numpy(dtype=float)
-    rel = t["lsc_relative"].to_numpy(dtype=float)
+    sw = t["lsc"].to_numpy(dtype=float) / repeatability.LSC_FACTOR
+    rel = t["lsc_relative"].to_numpy(dtype=float) / repeatability.LSC_FACTOR
     first = t["intercept"].to_numpy(dtype=float) + t["slope"].to_numpy(dtype=float) * t["first_age"].to_numpy(dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
         rel_change = fc / np.abs(first)
-    has = np.isfinite(lsc) | np.isfinite(rel)
-    return ~has | (np.isfinite(lsc) & (fc > lsc)) | (np.isfinite(rel) & (rel_change > rel))
+    has = np.isfinite(sw) | np.isfinite(rel)
+    return ~has | (np.isfinite(sw) & (fc > sw)) | (np.isfinite(rel) & (rel_change > rel))
 
 
 def _fmt(x: float, nd: int = 2) -> str:
@@ -825,12 +827,13 @@ def _test_texts(t: pd.DataFrame) -> np.ndarray:
             text = (f"slope test: {_fmt(r.slope)} {r.unit}/y (95% CI {_fmt(r.ci_low)} to {_fmt(r.ci_high)}; {r.n} "
                     f"studies, {r.first_age:.1f}-{r.last_age:.1f} y) excludes zero towards disease; fitted change "
                     f"{_fmt(r.fitted_change, 1)} {r.unit}")  # fmt: skip
-            if np.isfinite(r.lsc) and abs(r.fitted_change) > r.lsc:
-                text += f" > LSC {r.lsc:.2f} {r.unit}{lsc_note(r.lsc_status)}"
+            sw = r.lsc / repeatability.LSC_FACTOR
+            if np.isfinite(sw) and abs(r.fitted_change) > sw:
+                text += f" > one within-subject SD {sw:.2f} {r.unit}{lsc_note(r.lsc_status)}"
             elif np.isfinite(r.lsc_relative):
-                text += f" > relative LSC {r.lsc_relative:.0%}{lsc_note(r.lsc_status)}"
+                text += f" > {r.lsc_relative / repeatability.LSC_FACTOR:.0%} (relative LSC / 2.77){lsc_note(r.lsc_status)}"
             else:
-                text += " (no LSC known for this measure)"
+                text += " (no repeatability figure known for this measure)"
             texts.append(text)
         out = _join(out, slope, _spread(slope, texts))
     zs = t["flag_z_slope"].to_numpy(dtype=bool)
