@@ -127,6 +127,18 @@ def test_a_child_with_a_cmr_value_only_is_flagged():
     assert len(flags) == 1 and "CMR wall thickness" in flags.loc[0, "flag"]
 
 
+def test_a_not_assessable_value_answered_by_a_later_judged_study_is_not_flagged():
+    birth = "2011-05-05"
+    p = people(("Y-9", "F-Y", "female", birth))
+    cmr = ("Y-9", at_age(birth, 15.0), "cmr", "", None, None, "mwt_cmr", 8.0, "mm")
+    echo = ("Y-9", at_age(birth, 15.5), "echo", "", 165, 55, "mwt_echo", 8.5, "mm")
+    assert len(review.criteria_review_flags(_assess(p, studies(cmr, echo)))) == 0
+    # the same CMR after the echo is the latest word and is flagged
+    later = ("Y-9", at_age(birth, 16.0), "cmr", "", None, None, "mwt_cmr", 8.2, "mm")
+    flags = review.criteria_review_flags(_assess(p, studies(cmr, echo, later)))
+    assert list(flags["study_date"]) == [dt.date.fromisoformat(at_age(birth, 16.0))]
+
+
 # --------------------------------------------------------------------------- progression flags
 
 

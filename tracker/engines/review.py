@@ -923,7 +923,8 @@ CRITERIA_FLAG_COLUMNS = ["person", "study_date", "measure", "value", "age_years"
 
 
 def criteria_review_flags(assessed: pd.DataFrame) -> pd.DataFrame:
-    """Every maximal wall thickness value whose criteria could not be assessed, as a review flag.
+    """Every maximal wall thickness value whose criteria could not be assessed and that no wall
+    thickness judged at the same study date or later answers, as a review flag.
 
     Input: :func:`assess_measurements` output.  One row per value (``CRITERIA_FLAG_COLUMNS``);
     ``flag`` reads "criteria not assessable: mwt_echo 14 mm on 2025-12-01 (age 17.5 y): REASON".
@@ -932,8 +933,16 @@ def criteria_review_flags(assessed: pd.DataFrame) -> pd.DataFrame:
     if "meets_criteria" not in assessed.columns or len(assessed) == 0:
         return pd.DataFrame(columns=CRITERIA_FLAG_COLUMNS)
     note = assessed["criteria_note"].astype(object).fillna("").astype(str)
-    m = assessed[assessed["measure"].isin(DIAGNOSTIC_MEASURES).to_numpy() & assessed["meets_criteria"].isna().to_numpy()
-                 & note.str.startswith(NOT_ASSESSABLE).to_numpy()]  # fmt: skip
+    mwt = assessed["measure"].isin(DIAGNOSTIC_MEASURES).to_numpy()
+    m = assessed[mwt & assessed["meets_criteria"].isna().to_numpy() & note.str.startswith(NOT_ASSESSABLE).to_numpy()]
+    # a value judged at the same study date or later answers the question: only values after the
+    # person's last judged wall thickness (or with none judged) are flagged
+    judged = assessed[mwt & assessed["meets_criteria"].notna().to_numpy()]
+    last_judged = judged.groupby("person")["study_date"].max()
+    since = m["person"].map(last_judged).astype(object).to_numpy()
+    later = [s is None or s is pd.NaT or (isinstance(s, float) and np.isnan(s)) or d > s
+             for d, s in zip(m["study_date"].to_numpy(dtype=object), since)]  # fmt: skip
+    m = m[np.asarray(later, dtype=bool)]
     if len(m) == 0:
         return pd.DataFrame(columns=CRITERIA_FLAG_COLUMNS)
     prefix = len(NOT_ASSESSABLE) + 2
