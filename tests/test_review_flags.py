@@ -285,3 +285,16 @@ def test_trend_rows_carry_tests_and_review_flags_to_the_facts():
                            genotype_positive=set())  # fmt: skip
     rows = fs._trend_rows(f)
     assert rows["Y-8"]["review_flags"].startswith("criteria not assessable: mwt_echo 9 mm")
+
+
+@pytest.mark.parametrize("flags", [["no", "yes", "no", "no"], [False, True, False, False]])
+def test_pregnancy_window_is_bounded_by_the_visits_that_record_no_pregnancy(flags):
+    # window: 280 days either side of the visit recording the pregnancy (engineering choice), cut at
+    # the visits recording none; yes/no text and booleans read alike
+    days = ["2023-10-04", "2023-10-05", "2024-03-06", "2024-12-11", "2024-12-12", "2025-11-10", "2022-01-01"]
+    m = pd.DataFrame({"person": ["P"] * 7 + ["Q"], "study_date": [dt.date.fromisoformat(d) for d in days + ["2024-03-06"]]})
+    a = pd.DataFrame({"person": ["P", "P", "P", "Q"], "assessment_date": ["2023-10-04", "2024-03-06", "2025-11-10",
+                      "2024-03-06"], "pregnant": flags})  # fmt: skip
+    got = review.mark_pregnancy(m, a)
+    assert got["pregnant"].tolist() == [False, True, True, True, False, False, False, False]
+    assert "pregnant" not in m.columns  # the input is not changed

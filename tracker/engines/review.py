@@ -981,26 +981,37 @@ def mark_pregnancy(frame: pd.DataFrame, assessments: pd.DataFrame | None) -> pd.
     a = assessments[assessments["person"].isin(set(out["person"]))]
     if len(a) == 0:
         return out
-    dates = pd.to_datetime(a["assessment_date"].astype(str)).dt.date
-    marks = pd.DataFrame({"person": a["person"].to_numpy(), "date": dates.to_numpy(),
-                          "pregnant": [_truthy(v) for v in a["pregnant"]]})  # fmt: skip
-    window = dt.timedelta(days=PREGNANCY_WINDOW_DAYS)
-    flags = np.zeros(len(out), dtype=bool)
-    study = out["study_date"].to_numpy(dtype=object)
-    person = out["person"].to_numpy(dtype=object)
-    for p, rows in marks.groupby("person", sort=False):
-        yes = sorted(rows.loc[rows["pregnant"], "date"])
-        if not yes:
-            continue
-        no = sorted(rows.loc[~rows["pregnant"], "date"])
-        mine = np.flatnonzero(person == p)
-        for d in yes:
-            lo = max([d - window] + [x + dt.timedelta(days=1) for x in no if x < d])
-            hi = min([d + window] + [x - dt.timedelta(days=1) for x in no if x > d])
-            for i in mine:
-                if lo <= study[i] <= hi:
-                    flags[i] = True
-    out["pregnant"] = flags
+    flag = a["pregnant"]
+    if pd.api.types.is_bool_dtype(flag.dtype):
+        yes = flag.fillna(False).to_numpy(dtype=bool)
+    else:  # yes/no text, 0/1 or mixed
+        yes = np.array([_truthy(v) for v in flag.to_numpy(dtype=object)], dtype=bool)
+    day = pd.to_datetime(a["assessment_date"].astype(str)).to_numpy(dtype="datetime64[D]")
+    marks = pd.DataFrame({"person": a["person"].to_numpy(dtype=object), "day": day, "yes": yes})
+    if not marks["yes"].any():
+        return out
+    window = np.timedelta64(PREGNANCY_WINDOW_DAYS, "D")
+    one = np.timedelta64(1, "D")
+    marks = marks.sort_values(["person", "day"], kind="stable").reset_index(drop=True)
+    # nearest "not pregnant" assessment before and after each one (NaT if none), per person
+    no_day = marks["day"].where(~marks["yes"])
+    g = no_day.groupby(marks["person"])
+    before = g.shift(1).groupby(marks["person"]).ffill()  # latest "no" strictly before the row
+    after = g.shift(-1).groupby(marks["person"]).bfill()  # earliest "no" strictly after the row
+    w = marks[marks["yes"]]
+    b, f2 = before[marks["yes"]].to_numpy(dtype="datetime64[D]"), after[marks["yes"]].to_numpy(dtype="datetime64[D]")
+    d = w["day"].to_numpy(dtype="datetime64[D]")
+    lo = np.where(np.isnat(b), d - window, np.maximum(d - window, b + one))
+    hi = np.where(np.isnat(f2), d + window, np.minimum(d + window, f2 - one))
+    windows = pd.DataFrame({"person": w["person"].to_numpy(dtype=object), "lo": lo, "hi": hi})
+    keys = pd.DataFrame({"person": out["person"].to_numpy(dtype=object),
+                         "day": pd.to_datetime(out["study_date"].astype(str)).to_numpy(dtype="datetime64[D]")})  # fmt: skip
+    uniq = keys.drop_duplicates().reset_index(drop=True)
+    pairs = uniq.merge(windows, on="person", how="inner")
+    inside = pairs[(pairs["day"] >= pairs["lo"]) & (pairs["day"] <= pairs["hi"])][["person", "day"]].drop_duplicates()
+    if len(inside):
+        hit = keys.merge(inside.assign(hit=True), on=["person", "day"], how="left")["hit"]
+        out["pregnant"] = hit.notna().to_numpy(dtype=bool)
     return out
 
 
