@@ -91,6 +91,9 @@ def test_criteria_not_assessable_reaches_every_output(rf_db, run, tmp_path):
             db=rf_db)  # fmt: skip
     entry = next(e for e in wl["due"] if e["person"] == "RF-02")
     assert entry["review_flags"][0].startswith(flag) and "criteria_not_assessable" in entry["flags"]
+    text = run("worklist", "--from", "2026-12-01", "--to", "2028-12-31", "--as-of", AS_OF, "--settings", SETTINGS,
+               db=rf_db).out  # fmt: skip
+    assert "review RF-02: " + flag in text
     rep = js(run, "report", "trajectory", "RF-02", "--out", tmp_path / "rep", "--as-of", AS_OF, "--settings", SETTINGS,
              db=rf_db)  # fmt: skip
     assert rep["review_flags"][0].startswith(flag) and any(flag in f for f in rep["flags"])

@@ -897,6 +897,9 @@ def worklist(
         typer.echo("Declined, not recalled: " + ", ".join(d["person"] for d in declined))
     if lost:
         typer.echo("Lost to follow-up (re-contact needed): " + ", ".join(lost))
+    for r in due_rows + affected_rows:  # review flags (criteria not assessable): the clinician decides
+        for flag in r["review_flags"]:
+            typer.echo(f"review {r['person']}: {flag}")
     typer.echo(f"note: {trend['note']}")
     for k, path in files.items():
         if path:

@@ -61,9 +61,10 @@ DIAGNOSTIC_MEASURES = ("mwt_echo", "mwt_cmr")
 #: cardiomyopathy guideline, diagnostic criteria [V]; guidelines.md section 4), so wall thickness
 #: (maximal, septal, posterior) and LV mass index are the primary measures, with the LVOT gradient
 #: at rest (obstruction develops with the phenotype; Valsalva and provoked gradients depend on
-#: the manoeuvre, effort and loading and are not trended for the flag, common practice).  LA size is supporting: it also grows with age in
-#: healthy adults and the encoded adult reference (Lang 2015 [V2]) has no age term, so its tests
-#: count only when the latest value is above the upper normal limit (engineering choice).
+#: the manoeuvre, effort and loading and are not trended for the flag, common practice).  LA size
+#: is supporting: it also grows with age in healthy adults and the encoded adult reference (Lang
+#: 2015 [V2]) has no age term, so its tests count only when the latest value is above the upper
+#: normal limit (engineering choice).
 #: Not flag measures (slope and last change shown, never flagged): e' (falls with age, Nagueh 2009
 #: age bands [V2]), GLS (magnitude falls with age, NORRE 2017 [V]), ECV, LGE, ECG voltages and the rest.
 PRIMARY = "primary"
@@ -341,7 +342,9 @@ def build_measurements(people: pd.DataFrame, studies: pd.DataFrame, *, bsa_formu
 # --------------------------------------------------------------------------- limits and criteria
 
 
-CMR_NO_Z = "no paediatric z-score reference is encoded for CMR wall thickness (an echo value with height and weight is needed)"
+CMR_NO_Z = (
+    "no paediatric z-score reference is encoded for CMR wall thickness (an echo value with height and weight is needed)"
+)
 
 
 def _z_reason(note: str, set_id: str) -> str:
