@@ -298,3 +298,16 @@ def test_pregnancy_window_is_bounded_by_the_visits_that_record_no_pregnancy(flag
     got = review.mark_pregnancy(m, a)
     assert got["pregnant"].tolist() == [False, True, True, True, False, False, False, False]
     assert "pregnant" not in m.columns  # the input is not changed
+
+
+def test_echo_lv_mass_index_rising_within_normal_limits_is_not_progression():
+    # IVSd and LVPWd +1 mm over 10 years in a young woman: LVMI (linear method, Lang 2015) rises but
+    # stays within normal limits (43-95 g/m2 women [V2]); the wall-thickness tests decide
+    ages = [20.0, 22.0, 24.0, 26.0, 28.0, 30.0]
+    walls = [7.0, 7.2, 7.4, 7.6, 7.8, 8.0]
+    m = _adult("A-6", "1995-01-01", "female", {"ivsd": list(zip(ages, walls)), "lvpwd": list(zip(ages, walls)),
+                                                "lvidd": [(a, 45.0) for a in ages]}, h=165, w=60)  # fmt: skip
+    t = _table(m).set_index("measure")
+    lvmi = m.loc[m["measure"] == "lvmi_echo", "value"]
+    assert t.loc["lvmi_echo", "slope_ci_low"] > 0 and lvmi.iloc[-1] < 95 and lvmi.iloc[-1] - lvmi.iloc[0] > 5
+    assert not t.loc["lvmi_echo", "progressing"] and not t["progressing"].any()

@@ -59,19 +59,21 @@ DIAGNOSTIC_MEASURES = ("mwt_echo", "mwt_cmr")
 #: Measures whose trend can raise the progression flag, and how (see docs/measurements.md,
 #: "Progression flags").  Common practice: hypertrophy defines the HCM phenotype (2023 ESC
 #: cardiomyopathy guideline, diagnostic criteria [V]; guidelines.md section 4), so wall thickness
-#: (maximal, septal, posterior) and LV mass index are the primary measures, with the LVOT gradient
+#: (maximal, septal, posterior) and CMR LV mass index are the primary measures, with the LVOT gradient
 #: at rest (obstruction develops with the phenotype; Valsalva and provoked gradients depend on
 #: the manoeuvre, effort and loading and are not trended for the flag, common practice).  LA size
 #: is supporting: it also grows with age in healthy adults and the encoded adult reference (Lang
 #: 2015 [V2]) has no age term, so its tests count only when the latest value is above the upper
-#: normal limit (engineering choice).
+#: normal limit (engineering choice).  Echo LV mass index is supporting too: the linear method
+#: cubes the error of three linear measurements, and within normal limits it adds nothing to the
+#: wall-thickness tests (engineering choice).
 #: Not flag measures (slope and last change shown, never flagged): e' (falls with age, Nagueh 2009
 #: age bands [V2]), GLS (magnitude falls with age, NORRE 2017 [V]), ECV, LGE, ECG voltages and the rest.
 PRIMARY = "primary"
 SUPPORTING = "supporting (flags only above the upper normal limit)"
 FLAG_MEASURES: dict[str, str] = {
     "mwt_echo": PRIMARY, "mwt_cmr": PRIMARY, "ivsd": PRIMARY, "lvpwd": PRIMARY,
-    "lvmi_echo": PRIMARY, "lvmi_cmr": PRIMARY,
+    "lvmi_echo": SUPPORTING, "lvmi_cmr": PRIMARY,
     "lvot_rest": PRIMARY,
     "la_diam": SUPPORTING, "lavi": SUPPORTING,
 }  # fmt: skip
