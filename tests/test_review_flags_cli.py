@@ -123,3 +123,15 @@ def test_the_recall_text_names_the_slope_test_not_a_change_beyond_variability(rf
     assert "placeholder LSC" in fired["text"]  # the packaged wall-thickness LSC is named as a placeholder
     text = run("recall", "RF-05", "--as-of", AS_OF, "--settings", SETTINGS, db=rf_db).out
     assert "Change beyond measurement variability" not in text
+    # the demo settings set no wall-thickness Sw: the trend note says the placeholders were used
+    assert "mwt_echo" in rec["trend_modifiers"]["note"] and "packaged placeholders" in rec["trend_modifiers"]["note"]
+
+
+def test_the_clinic_own_repeatability_replaces_the_placeholder(rf_db, run, tmp_path):
+    own = tmp_path / "clinic.toml"
+    own.write_text(SETTINGS.read_text(encoding="utf-8") + "\n[repeatability]\nmwt_echo = 0.5\nmwt_cmr = 0.5\n"
+                   "ivsd = 0.5\nlvpwd = 0.5\n", encoding="utf-8")  # fmt: skip
+    rec = js(run, "recall", "RF-05", "--as-of", AS_OF, "--settings", own, db=rf_db)
+    fired = next(f for f in rec["fired"] if f["code"] == "progression")
+    assert "placeholder" not in fired["text"] and "placeholders" not in rec["trend_modifiers"]["note"]
+    assert "> one within-subject SD 0.50 mm" in fired["text"]

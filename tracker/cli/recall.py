@@ -132,7 +132,7 @@ def _with_trends(
 ) -> tuple[dict[str, fs.FamilyState], dict]:
     """Fill progression / projected crossing from the trend engine, if it is installed."""
     try:
-        from tracker.engines import review
+        from tracker.engines import repeatability, review
         from tracker.normals.criteria import RULE_SETS as CRITERIA
 
         build, flags = review.build_measurements, review.trend_flags
@@ -171,11 +171,15 @@ def _with_trends(
             relative_of_affected=relatives, genotype_positive=positive,
             clinic_repeatability=settings.repeatability or None,
         ))  # fmt: skip
+    placeholders = sorted(m for m, r in repeatability.load_repeatability(settings.repeatability or None).items()
+                          if r.status == "placeholder")  # fmt: skip
     return fs.apply_trends_to_states(states, pd.concat(parts, ignore_index=True)), {
         "applied": True,
         "note": f"trend modifiers from the measurement trends ({rule_set_id} thresholds): progression beyond "
-        "measurement variability and projected threshold crossing shorten the interval",
-    }
+        "measurement variability and projected threshold crossing shorten the interval"
+        + (f"; the least significant changes of {', '.join(placeholders)} are packaged placeholders, not the "
+           "lab's own: set them in the settings [repeatability]" if placeholders else ""),
+    }  # fmt: skip
 
 
 PROGRESSION_PREFIX = "Progression on the measurement trends"
