@@ -124,7 +124,8 @@ def test_the_recall_text_names_the_slope_test_not_a_change_beyond_variability(rf
     text = run("recall", "RF-05", "--as-of", AS_OF, "--settings", SETTINGS, db=rf_db).out
     assert "Change beyond measurement variability" not in text
     # the demo settings set no wall-thickness Sw: the trend note says the placeholders were used
-    assert "mwt_echo" in rec["trend_modifiers"]["note"] and "packaged placeholders" in rec["trend_modifiers"]["note"]
+    assert "mwt_echo" in rec["trend_modifiers"]["lsc_note"] and "packaged placeholders" in rec["trend_modifiers"]["lsc_note"]
+    assert "note: " + rec["trend_modifiers"]["lsc_note"] in text
 
 
 def test_the_clinic_own_repeatability_replaces_the_placeholder(rf_db, run, tmp_path):
@@ -133,5 +134,5 @@ def test_the_clinic_own_repeatability_replaces_the_placeholder(rf_db, run, tmp_p
                    "ivsd = 0.5\nlvpwd = 0.5\n", encoding="utf-8")  # fmt: skip
     rec = js(run, "recall", "RF-05", "--as-of", AS_OF, "--settings", own, db=rf_db)
     fired = next(f for f in rec["fired"] if f["code"] == "progression")
-    assert "placeholder" not in fired["text"] and "placeholders" not in rec["trend_modifiers"]["note"]
+    assert "placeholder" not in fired["text"] and rec["trend_modifiers"]["lsc_note"] == ""
     assert "> one within-subject SD 0.50 mm" in fired["text"]

@@ -176,9 +176,9 @@ def _with_trends(
     return fs.apply_trends_to_states(states, pd.concat(parts, ignore_index=True)), {
         "applied": True,
         "note": f"trend modifiers from the measurement trends ({rule_set_id} thresholds): progression beyond "
-        "measurement variability and projected threshold crossing shorten the interval"
-        + (f"; the least significant changes of {', '.join(placeholders)} are packaged placeholders, not the "
-           "lab's own: set them in the settings [repeatability]" if placeholders else ""),
+        "measurement variability and projected threshold crossing shorten the interval",
+        "lsc_note": (f"the least significant changes of {', '.join(placeholders)} are packaged placeholders, not the "
+                     "lab's own: set them in the settings [repeatability]") if placeholders else "",
     }  # fmt: skip
 
 
@@ -744,6 +744,8 @@ def recall(
     for n in result["notes"]:
         typer.echo(f"note: {n}")
     typer.echo(f"note: {trend['note']}")
+    if trend.get("lsc_note"):
+        typer.echo(f"note: {trend['lsc_note']}")
     for c in result["cautions"]:
         typer.echo(f"caution: {c}")
 
@@ -905,6 +907,8 @@ def worklist(
         for flag in r["review_flags"]:
             typer.echo(f"review {r['person']}: {flag}")
     typer.echo(f"note: {trend['note']}")
+    if trend.get("lsc_note"):
+        typer.echo(f"note: {trend['lsc_note']}")
     for k, path in files.items():
         if path:
             typer.echo(f"{k} written: {path}")
