@@ -311,3 +311,14 @@ def test_echo_lv_mass_index_rising_within_normal_limits_is_not_progression():
     lvmi = m.loc[m["measure"] == "lvmi_echo", "value"]
     assert t.loc["lvmi_echo", "slope_ci_low"] > 0 and lvmi.iloc[-1] < 95 and lvmi.iloc[-1] - lvmi.iloc[0] > 5
     assert not t.loc["lvmi_echo", "progressing"] and not t["progressing"].any()
+
+
+def test_worklist_pdf_line_carries_the_review_flags():
+    from tracker.outputs.worklist_pdf import line_from_row
+
+    row = {"person": "Y-2", "reason": "Child carrier: ECG and echo every 1-2 years.",
+           "review_flags": ["criteria not assessable: mwt_echo 9 mm on 2026-06-15 (age 17.3 y): BSA unknown"]}
+    line = line_from_row(row)
+    assert line.reason == ("Child carrier: ECG and echo every 1-2 years. REVIEW: criteria not assessable: "
+                           "mwt_echo 9 mm on 2026-06-15 (age 17.3 y): BSA unknown.")
+    assert line_from_row({"person": "Y-1", "reason": "r."}).reason == "r."
