@@ -319,7 +319,7 @@ WORKLIST_KEYS = {"window", "as_of", "rule_set", "rule_set_title", "policy", "slo
                  "cautions", "variant_rereview"}  # fmt: skip
 ENTRY_KEYS = {"list", "person", "family", "status", "due", "days_overdue", "interval_months", "rule_id", "needs",
               "consider", "reason", "source", "triggers", "flags", "booked_week", "late", "never_screened",
-              "eligible_since", "gap_reason", "waiting", "contact_status"}  # fmt: skip
+              "eligible_since", "gap_reason", "waiting", "contact_status", "review_flags"}  # fmt: skip
 
 
 def test_worklist_capacity_reports_who_cannot_be_seen_by_the_due_date(rc_db, run):

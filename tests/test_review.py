@@ -197,7 +197,8 @@ def test_projection_and_trend_flags_for_a_relative_approaching_13_mm():
     assert t["projected_age_ci_low"] < 40.0 < t["projected_age_ci_high"]  # Fieller interval covers the true age
     assert t["crossing_within_horizon"] and t["progressing"]
     f = review.trend_flags(m, **kw)
-    assert list(f.columns) == ["person", "progressing", "projected_crossing_age", "reasons"]
+    assert list(f.columns) == ["person", "progressing", "projected_crossing_age", "reasons", "progression_tests",
+                               "review_flags"]
     assert bool(f.loc[0, "progressing"]) and f.loc[0, "projected_crossing_age"] == pytest.approx(t["projected_age"])
     assert "mwt_echo" in f.loc[0, "reasons"]
     # a non-relative's threshold is 15 mm: the crossing is beyond the 3-year horizon, refused

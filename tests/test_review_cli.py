@@ -20,7 +20,7 @@ PERSON_KEYS = {
     "person", "family", "sex_at_birth", "vital_status", "age_years", "age_uncertainty_years", "age_on",
     "placeholder", "genotype_status", "genotype_reason", "variant", "variant_class", "affected_status",
     "affected_status_date", "first_degree_relative_of_affected", "affected_first_degree_relatives",
-    "guideline", "horizon_years", "bsa_formula", "studies", "trends", "conversion", "not_pooled", "caution",
+    "guideline", "horizon_years", "bsa_formula", "studies", "trends", "conversion", "not_pooled", "caution", "review_flags",
 }  # fmt: skip
 TRENDS_KEYS = {"guideline", "horizon_years", "family", "measure", "rows", "not_pooled", "caution"}
 

@@ -10,6 +10,7 @@ SQLAlchemy Core inside one transaction.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import math
 from dataclasses import dataclass
@@ -43,6 +44,7 @@ from tracker.engines.worklist import (
     week_starts,
 )
 from tracker.errors import UserError
+from tracker.normals.criteria import NOT_ASSESSABLE
 from tracker.outputs import ics, worklist_csv
 from tracker.outputs.worklist_pdf import GAP_WORDS, booked_text, flag_words, waiting_text
 from tracker.rules import available_rule_sets, load_rule_set
@@ -139,7 +141,7 @@ def _with_trends(
 ) -> tuple[dict[str, fs.FamilyState], dict]:
     """Fill progression / projected crossing from the trend engine, if it is installed."""
     try:
-        from tracker.engines import review
+        from tracker.engines import repeatability, review
         from tracker.normals.criteria import RULE_SETS as CRITERIA
 
         build, flags = review.build_measurements, review.trend_flags
@@ -173,15 +175,46 @@ def _with_trends(
     for b in range(-(-len(people) // TREND_CHUNK_PEOPLE)):
         chunk = studies.iloc[in_batch.get(b, [])]
         parts.append(flags(
-            build(frames.people.iloc[members.get(b, [])], chunk), guideline=rule_set_id,
+            review.mark_pregnancy(build(frames.people.iloc[members.get(b, [])], chunk), frames.assessments),
+            guideline=rule_set_id,
             relative_of_affected=relatives, genotype_positive=positive,
             clinic_repeatability=settings.repeatability or None,
         ))  # fmt: skip
+    placeholders = sorted(m for m, r in repeatability.load_repeatability(settings.repeatability or None).items()
+                          if r.status == "placeholder")  # fmt: skip
     return fs.apply_trends_to_states(states, pd.concat(parts, ignore_index=True)), {
         "applied": True,
         "note": f"trend modifiers from the measurement trends ({rule_set_id} thresholds): progression beyond "
         "measurement variability and projected threshold crossing shorten the interval",
-    }
+        "lsc_note": (f"the least significant changes of {', '.join(placeholders)} are packaged placeholders, not the "
+                     "lab's own: set them in the settings [repeatability]") if placeholders else "",
+    }  # fmt: skip
+
+
+PROGRESSION_PREFIX = "Progression on the measurement trends"
+
+
+def _progression_text(rule_text: str, tests: str) -> str:
+    """The rule set's progression modifier text with its opening clause replaced by the tests that
+    fired (slope, last change, z-score slope) and their figures; the interval clause is kept."""
+    if not tests or rule_text.startswith(PROGRESSION_PREFIX):
+        return rule_text
+    tail = rule_text.split(": ", 1)[1] if ": " in rule_text else rule_text
+    return f"{PROGRESSION_PREFIX} ({tests}): {tail}"
+
+
+def with_trend_texts(p: Proposal, facts: fs.PersonFacts) -> Proposal:
+    """``p`` with the progression modifier naming the test that fired, and each "criteria not
+    assessable" review flag in its notes (flag ``criteria_not_assessable``)."""
+    fired = tuple(
+        dataclasses.replace(f, text=_progression_text(f.text, facts.progression_tests))
+        if f.kind == "modifier" and f.code == "progression" else f
+        for f in p.fired
+    )  # fmt: skip
+    review = tuple(x for x in facts.review_flags.split(" | ") if x and x not in p.notes)
+    flags = p.flags + (("criteria_not_assessable",) if facts.review_flags and "criteria_not_assessable" not in p.flags
+                       else ())  # fmt: skip
+    return dataclasses.replace(p, fired=fired, flags=flags, notes=p.notes + review)
 
 
 def _batches(batch: np.ndarray) -> dict[int, np.ndarray]:
@@ -678,6 +711,7 @@ def _reason(p: Proposal) -> tuple[str, str]:
 def _proposal_dict(p: Proposal, st: fs.FamilyState) -> dict:
     person = p.person_code
     ps, facts, g = st.states[person], st.facts[person], st.genotypes[person]
+    p = with_trend_texts(p, facts)
     reason, source = _reason(p)
     return {
         "person": person,
@@ -718,6 +752,8 @@ def _proposal_dict(p: Proposal, st: fs.FamilyState) -> dict:
             "progression": ps.progression,
             "projected_crossing_age_years": ps.projected_crossing_age_years,
             "trend_reasons": facts.trend_reasons,
+            "progression_tests": facts.progression_tests,
+            "review_flags": [x for x in facts.review_flags.split(" | ") if x],
         },
         "cautions": list(p.cautions),
     }
@@ -809,6 +845,8 @@ def recall(
     if result["release_basis"]:
         typer.echo(f"genotype-negative release: {result['release_basis']['words']}; a downgrade of the class recalls")
     typer.echo(f"note: {trend['note']}")
+    if trend.get("lsc_note"):
+        typer.echo(f"note: {trend['lsc_note']}")
     for c in result["cautions"]:
         typer.echo(f"caution: {c}")
 
@@ -826,6 +864,7 @@ def _entry(p: Proposal, family: str, lst: str) -> dict:
         "interval_months": p.interval_months, "rule_id": p.rule_id,
         "needs": list(p.needs), "consider": list(p.consider), "reason": reason, "source": source,
         "triggers": list(p.triggers), "flags": list(p.flags), "booked_week": None, "late": None,
+        "review_flags": [n for n in p.notes if n.startswith(NOT_ASSESSABLE)],
     }  # fmt: skip
 
 
@@ -847,6 +886,7 @@ def due_proposals(frames, conf, rule_set, policy, start: dt.date, end: dt.date, 
     affected: set[str] = set()
     for fam, st in states.items():
         for p, prop in fs.propose_for_family(st, rule_set, policy, on).items():
+            prop = with_trend_texts(prop, st.facts[p])
             proposals.append(prop)
             family_of[p] = fam
             if st.states[p].phenotype == "positive":
@@ -1004,7 +1044,12 @@ def worklist(
         typer.echo("Variant re-review: " + "; ".join(f"{r['family']} {r['acmg_class']} ({r['classified_on']}), "
                                                     f"{'due since' if r['overdue'] else 'by'} {r['due']}"
                                                     for r in rereview))  # fmt: skip
+    for r in due_rows + affected_rows + gap_rows:  # review flags (criteria not assessable): the clinician decides
+        for flag in r["review_flags"]:
+            typer.echo(f"review {r['person']}: {flag}")
     typer.echo(f"note: {trend['note']}")
+    if trend.get("lsc_note"):
+        typer.echo(f"note: {trend['lsc_note']}")
     for k, path in files.items():
         if path:
             typer.echo(f"{k} written: {path}")

@@ -102,6 +102,8 @@ def _fit(a: pd.DataFrame, trow: dict) -> tuple[pd.DataFrame, pd.DataFrame] | Non
     """The trend engine's fit of the trend row's window and its band, or None (one study, children)."""
     if trow is None or trow["n"] < 2 or trow["window"] == _CHILD_WINDOW:
         return None
+    if "pregnant" in a.columns:  # studies during pregnancy are left out of the trend's fit
+        a = a[~a["pregnant"].astype(bool)]
     rows = a[(a["measure"] == trow["measure"]) & (a["age_years"] >= trow["first_age"] - 1e-9)
              & (a["age_years"] <= trow["last_age"] + 1e-9)]  # fmt: skip
     ols = trends.per_person_ols(rows[["person", "measure", "modality", "study_date", "age_years", "value"]])
@@ -156,13 +158,21 @@ def _flags(trend_records: list[dict]) -> tuple[T.FlagRow, ...]:
     rows = []
     key = set(T.KEY_MEASURES)
     for r in trend_records:
-        if r["n"] < 2 or (not r["reasons"] and r["measure"] not in key):
+        if (r["n"] < 2 and not r["criteria_flags"]) or (not r["reasons"] and r["measure"] not in key):
             continue
+        window = str(r["window"]) + (f"; {r['left_out']}" if r["left_out"] else "")
+        # the tests that fired by name (their figures are in the slope and last-change columns), then the rest
+        rest = r["reasons"][len(r["progression_tests"] or ""):].lstrip("; ")
+        tests = f"progression: {r['tests_fired']}" if r["tests_fired"] else ""
+        flag = "; ".join(x for x in (tests, rest) if x)
         rows.append(T.FlagRow(
-            measure=r["measure"], n=int(r["n"]), window=str(r["window"]), flag=r["reasons"] or "no flag",
+            measure=r["measure"], n=int(r["n"]), window=window, flag=flag or "no flag",
             flagged=bool(r["reasons"]), slope=RV._ci(r["slope_per_year"], r["slope_ci_low"], r["slope_ci_high"],
                                                      r["unit"]),
-            z_slope=RV._ci(r["z_slope_per_year"], r["z_ci_low"], r["z_ci_high"], "z"), change=RV._change_text(r),
+            # the z-score slope of the studies under 18 y where it is the tested trend (a child, or a test that fired)
+            z_slope=RV._ci(r["z_slope_per_year"], r["z_ci_low"], r["z_ci_high"], "z")
+            if r["last_age"] < 18 or "z-score slope" in (r["tests_fired"] or "") else "",
+            change=RV._change_text(r),
             projection=RV._projection_text(r) if r["measure"] in review.DIAGNOSTIC_MEASURES else "",
         ))  # fmt: skip
     return tuple(sorted(rows, key=lambda f: not f.flagged))
@@ -346,6 +356,7 @@ def trajectory_report(
     kw = dict(guideline=gid, relative_of_affected=rel, genotype_positive=pos)
     mine = studies[studies["person"] == person] if studies is not None and len(studies) else None
     m = review.build_measurements(people, mine) if mine is not None and len(mine) else None
+    m = review.mark_pregnancy(m, assessments) if m is not None else None
     a = t = conv = None
     if m is not None and len(m):
         a = review.assess_measurements(m, **kw)
@@ -384,7 +395,8 @@ def trajectory_report(
         recall=rec, risk=risk_section, charts=_charts(a, trend_rows, short) if a is not None else (),
         tables=_tables(a, labels) if a is not None else (), strain=strain, strain_note=strain_note,
         sources=_sources(a) if a is not None else (),
-        notes=(review.NOT_POOLED, f"Records dated after {on.isoformat()} are left out."),
+        notes=(review.NOT_POOLED, *RV.lsc_default_notes(trend_records),
+               f"Records dated after {on.isoformat()} are left out."),
         cautions=tuple(rec["cautions"]),
     )  # fmt: skip
     out.mkdir(parents=True, exist_ok=True)
@@ -407,6 +419,7 @@ def trajectory_report(
                          "reasons": list(risk_section.reasons),
                          "inputs": risk_result.inputs if risk_result is not None else None},  # fmt: skip
                 "flags": [f.text for f in doc.flags],
+                "review_flags": rec["state"]["review_flags"] if rec.get("state") else [],
                 "conversion": doc.conversion,
                 "charts": [c.measure for c in doc.charts],
                 "tables": {x.modality: len(x.dates) for x in doc.tables},

@@ -162,6 +162,20 @@ def _change_text(r: dict) -> str:
     return f"{change}; LSC {' or '.join(limits)} ({r['lsc_status']}): {verdict} measurement variability"
 
 
+def lsc_default_notes(rows: list[dict]) -> list[str]:
+    """One line naming the measures of ``rows`` (trend records) whose least significant change is a
+    packaged default (placeholder or provisional), or no line."""
+    parts = []
+    for status in review.LSC_DEFAULT_NOTES:
+        used = sorted({r["measure"] for r in rows if r.get("lsc_status") == status and r.get("last_change") is not None})
+        if used:
+            parts.append(f"{status} for {', '.join(used)}")
+    if not parts:
+        return []
+    return [f"Least significant changes that are packaged defaults, not the lab's own ({'; '.join(parts)}): "
+            "the clinic must set its own within-subject SD in the settings [repeatability]."]
+
+
 # --------------------------------------------------------------------------- person
 
 
@@ -215,7 +229,8 @@ def _person_data(code: str, data: dict, settings, horizon: float) -> dict[str, A
                                   data["assessments"])  # fmt: skip
     rel, pos = _status_sets(ctx)
     kw = dict(guideline=settings.guideline, relative_of_affected=rel, genotype_positive=pos)
-    m = review.build_measurements(people, data["studies"][data["studies"]["person"] == code])
+    m = review.mark_pregnancy(review.build_measurements(people, data["studies"][data["studies"]["person"] == code]),
+                              data["assessments"])
     a = review.assess_measurements(m, **kw)
     t = review.trend_table(a, **kw, clinic_repeatability=settings.repeatability, horizon_years=horizon)
     conv = review.conversions(a)
@@ -233,8 +248,9 @@ def _person_data(code: str, data: dict, settings, horizon: float) -> dict[str, A
         "horizon_years": horizon,
         "bsa_formula": "mosteller",
         "studies": studies,
-        "trends": _records(t[t["n"] >= 2], TREND_JSON_KEYS),
+        "trends": _records(t[(t["n"] >= 2) | t["criteria_not_assessable"].astype(bool)], TREND_JSON_KEYS),
         "conversion": conversion,
+        "review_flags": list(review.criteria_review_flags(a)["flag"]),
         "not_pooled": review.NOT_POOLED,
         "caution": review.CAUTION,
     }
@@ -278,7 +294,7 @@ def _print_person(d: dict) -> None:
     typer.echo(d["not_pooled"])
     for modality in ("echo", "cmr", "ecg"):
         rows = [
-            [t["measure"], t["n"], _num(t["span_years"]), t["window"],
+            [t["measure"], t["n"], _num(t["span_years"]), t["window"] + (f"; {t['left_out']}" if t["left_out"] else ""),
              _ci(t["slope_per_year"], t["slope_ci_low"], t["slope_ci_high"], t["unit"]),
              _ci(t["z_slope_per_year"], t["z_ci_low"], t["z_ci_high"], "z"), _change_text(t), _projection_text(t),
              t["reasons"]]
@@ -290,6 +306,10 @@ def _print_person(d: dict) -> None:
                         ["measure", "n", "span (y)", "studies", "slope/y (95% CI)", "z slope/y (95% CI)",
                          "last change vs LSC", "projection", "flags"], rows)  # fmt: skip
     typer.echo(d["not_pooled"])
+    for line in lsc_default_notes(d["trends"]):
+        typer.echo(line)
+    for flag in d["review_flags"]:
+        typer.echo(f"REVIEW: {flag}")
     c = d["conversion"]
     if c is None:
         typer.echo("Conversion: no assessable maximal wall thickness")
@@ -361,10 +381,10 @@ def trends_(
     ctx = review.clinical_context(people, data["results"], data["variants"], data["assessments"])
     rel, pos = _status_sets(ctx)
     studies = data["studies"][data["studies"]["person"].isin(set(people["person"]))]
-    m = review.build_measurements(people, studies)
+    m = review.mark_pregnancy(review.build_measurements(people, studies), data["assessments"])
     t = review.trend_table(m, guideline=s.guideline, relative_of_affected=rel, genotype_positive=pos,
                            clinic_repeatability=s.repeatability, horizon_years=horizon)  # fmt: skip
-    t = t[t["n"] >= 2]
+    t = t[(t["n"] >= 2) | t["criteria_not_assessable"].astype(bool)]
     if measure is not None:
         t = t[t["measure"] == measure]
     rows = _records(t, TREND_JSON_KEYS)
@@ -378,16 +398,19 @@ def trends_(
         return
     typer.echo(f"Guideline: {result['guideline']['id']} - {result['guideline']['name']}")
     print_table(
-        f"Trends: {len(rows)} series (person, measure) with 2 or more studies, most concerning first",
+        f"Trends: {len(rows)} series (person, measure) with 2 or more studies or a review flag, most concerning first",
         ["person", "measure", "n", "span (y)", "slope/y (95% CI)", "z slope/y", "last change vs LSC",
          "projection", "progressing", f"crossing <= {horizon:g} y", "converted", "flags"],
         [[r["person"], r["measure"], r["n"], _num(r["span_years"]),
           _ci(r["slope_per_year"], r["slope_ci_low"], r["slope_ci_high"], r["unit"]),
           _ci(r["z_slope_per_year"], r["z_ci_low"], r["z_ci_high"], "z"), _change_text(r), _projection_text(r),
           "yes" if r["progressing"] else "", "yes" if r["crossing_within_horizon"] else "",
-          (r["conversion_date"] or "yes") if r["converted"] else "", r["reasons"]] for r in rows],
+          (r["conversion_date"] or "yes") if r["converted"] else "",
+          "; ".join(x for x in (r["reasons"], r["left_out"]) if x)] for r in rows],
     )  # fmt: skip
     typer.echo(review.NOT_POOLED)
+    for line in lsc_default_notes(rows):
+        typer.echo(line)
     typer.echo(review.CAUTION)
 
 

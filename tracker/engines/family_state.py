@@ -62,7 +62,8 @@ change who is recalled and when; none is a guideline number):
   first classification and the first genetic test in the family.
 * **Trend modifiers**: ``progression`` and ``projected_crossing_age_years``
   come from a trend frame (columns ``person, progressing,
-  projected_crossing_age, reasons``) when one is given.
+  projected_crossing_age, reasons``, optionally ``progression_tests`` and
+  ``review_flags``) when one is given; the texts go to each person's facts.
 
 Decision support only: the treating clinician decides, following local
 protocols and the current guideline.
@@ -158,6 +159,8 @@ class PersonFacts:
     tested: bool = False
     studied: bool = False
     trend_reasons: str = ""
+    progression_tests: str = ""  # the progression tests that fired, with their figures
+    review_flags: str = ""  # "criteria not assessable: ..." texts joined by " | "
 
 
 @dataclass(frozen=True)
@@ -771,10 +774,14 @@ def _with_trend_rows(state: FamilyState, rows: Mapping[str, Mapping]) -> FamilyS
         crossing = None if _blank(t.get("projected_crossing_age")) else float(t["projected_crossing_age"])
         progressing = False if _blank(t.get("progressing")) else bool(t["progressing"])
         states[p] = replace(s, progression=progressing, projected_crossing_age_years=crossing)
+    def text(p: str, column: str) -> str:
+        return "" if p not in rows or _blank(rows[p].get(column)) else str(rows[p][column])
+
     facts = {
-        p: replace(f, trend_reasons="" if p not in rows or _blank(rows[p].get("reasons")) else str(rows[p]["reasons"]))
+        p: replace(f, trend_reasons=text(p, "reasons"), progression_tests=text(p, "progression_tests"),
+                   review_flags=text(p, "review_flags"))
         for p, f in state.facts.items()
-    }
+    }  # fmt: skip
     return replace(state, states=states, facts=facts)
 
 

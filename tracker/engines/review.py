@@ -24,6 +24,7 @@ treating clinician decides; follow local protocols and the current guideline.
 
 from __future__ import annotations
 
+import datetime as dt
 from collections.abc import Collection, Mapping
 
 import numpy as np
@@ -39,7 +40,7 @@ from tracker.engines.deformation import derive_deformation
 from tracker.normals import paediatric
 from tracker.normals.assess import ADULT_FROM_YEARS, assess_frame
 from tracker.normals.bsa import HAYCOCK, bsa
-from tracker.normals.criteria import CRITERIA_CAUTION, RULE_SETS, wall_thickness_criteria_frame
+from tracker.normals.criteria import CRITERIA_CAUTION, NOT_ASSESSABLE, RULE_SETS, wall_thickness_criteria_frame
 from tracker.normals.tables import CATALOGUE_UNITS
 
 CAUTION = (
@@ -55,6 +56,37 @@ NOT_POOLED = (
 
 #: Maximal wall thickness codes: the diagnostic measures of HCM (guidelines.md section 4).
 DIAGNOSTIC_MEASURES = ("mwt_echo", "mwt_cmr")
+#: Measures whose trend can raise the progression flag, and how (see docs/measurements.md,
+#: "Progression flags").  Common practice: hypertrophy defines the HCM phenotype (2023 ESC
+#: cardiomyopathy guideline, diagnostic criteria [V]; guidelines.md section 4), so wall thickness
+#: (maximal, septal, posterior) and CMR LV mass index are the primary measures, with the LVOT gradient
+#: at rest (obstruction develops with the phenotype; Valsalva and provoked gradients depend on
+#: the manoeuvre, effort and loading and are not trended for the flag, common practice).  LA size
+#: is supporting: it also grows with age in healthy adults and the encoded adult reference (Lang
+#: 2015 [V2]) has no age term, so its tests count only when the latest value is above the upper
+#: normal limit (engineering choice).  Echo LV mass index is supporting too: the linear method
+#: cubes the error of three linear measurements, and within normal limits it adds nothing to the
+#: wall-thickness tests (engineering choice).
+#: Not flag measures (slope and last change shown, never flagged): e' (falls with age, Nagueh 2009
+#: age bands [V2]), GLS (magnitude falls with age, NORRE 2017 [V]), ECV, LGE, ECG voltages and the rest.
+PRIMARY = "primary"
+SUPPORTING = "supporting (flags only above the upper normal limit)"
+FLAG_MEASURES: dict[str, str] = {
+    "mwt_echo": PRIMARY, "mwt_cmr": PRIMARY, "ivsd": PRIMARY, "lvpwd": PRIMARY,
+    "lvmi_echo": SUPPORTING, "lvmi_cmr": PRIMARY,
+    "lvot_rest": PRIMARY,
+    "la_diam": SUPPORTING, "lavi": SUPPORTING,
+}  # fmt: skip
+#: Direction of disease of the flag measures (higher = towards disease), added to
+#: trends.DISEASE_DIRECTION where it has none (LV mass index by echo, LVOT gradients).
+FLAG_DIRECTION = {**trends.DISEASE_DIRECTION, **{m: +1 for m in FLAG_MEASURES}}
+#: A study is taken as during pregnancy when it lies within this many days of an assessment that
+#: records the person as pregnant, and not on or beyond an assessment that records her as not
+#: pregnant (engineering choice: 280 days, the length of a pregnancy, either side of the visit,
+#: so the whole pregnancy and the first months after delivery; cardiac remodelling of pregnancy,
+#: e.g. a larger LV mass, reverses after delivery (common practice)).
+PREGNANCY_WINDOW_DAYS = 280
+
 #: Segment counts are bookkeeping, not measures: never trended.
 NOT_TRENDED = frozenset({"gls_segavg_n", "mech_dispersion_n"})
 _SEGMENT_PREFIXES = ("ls_seg", "ls_sys_seg", "ttp_seg", "ls18_seg", "ls18_sys_seg", "ttp18_seg")
@@ -312,7 +344,23 @@ def build_measurements(people: pd.DataFrame, studies: pd.DataFrame, *, bsa_formu
 # --------------------------------------------------------------------------- limits and criteria
 
 
-def _criteria(a: pd.DataFrame, guideline: str, relatives: Collection[str], positive: Collection[str]) -> dict:
+CMR_NO_Z = (
+    "no paediatric z-score reference is encoded for CMR wall thickness (an echo value with height and weight is needed)"
+)
+
+
+def _z_reason(note: str, set_id: str) -> str:
+    """Why a child's echo value has no z-score, from the limits' note (BSA unknown, outside the range)."""
+    parts = [p for p in str(note).split("; ") if p.startswith(("BSA", "age outside"))]
+    if "BSA unknown" in parts:
+        parts[parts.index("BSA unknown")] = "BSA unknown (no height or weight at this study)"
+    return f"{set_id}: " + "; ".join(parts) if parts else ""
+
+
+def _criteria(
+    a: pd.DataFrame, guideline: str, relatives: Collection[str], positive: Collection[str],
+    paediatric_set: str = paediatric.DEFAULT_SET,
+) -> dict:
     """Wall-thickness criteria for the mwt_* rows of ``a`` (columns of the result)."""
     n = len(a)
     cols = {
@@ -336,13 +384,24 @@ def _criteria(a: pd.DataFrame, guideline: str, relatives: Collection[str], posit
         )
         return cols
     m = a.loc[mwt]
-    z = np.where(m["measure"].to_numpy() == "mwt_echo", m["z"].to_numpy(dtype=float), np.nan)
+    echo = m["measure"].to_numpy() == "mwt_echo"
+    z = np.where(echo, m["z"].to_numpy(dtype=float), np.nan)
+    age = m["age_years"].to_numpy(dtype=float)
+    value = m["value"].to_numpy(dtype=float)
+    # no z-score for a child's echo value (body size unknown or outside the set): the smallest z the
+    # value can have at any body size the paediatric set covers (tracker.normals.paediatric.smallest_z)
+    bound = paediatric.smallest_z("mwt_echo", np.where(echo & np.isnan(z), value, np.nan), age, paediatric_set)
+    notes = m["note"].astype(object).where(m["note"].notna(), "").to_numpy(dtype=object)
+    z_reason = np.where(echo, [_z_reason(x, paediatric_set) for x in notes], CMR_NO_Z)
     c = wall_thickness_criteria_frame(
         pd.DataFrame(
             {
-                "age_years": m["age_years"].to_numpy(dtype=float),
-                "mwt_mm": m["value"].to_numpy(dtype=float),
+                "age_years": age,
+                "mwt_mm": value,
                 "mwt_z": z,
+                "mwt_z_min": bound["z_min"],
+                "mwt_z_min_bsa": bound["bsa_m2"],
+                "z_reason": z_reason,
                 "first_degree_relative": m["person"].isin(set(relatives)).to_numpy(),
                 "genotype_positive": m["person"].isin(set(positive)).to_numpy(),
             }
@@ -457,7 +516,7 @@ def assess_measurements(
     a.loc[~known, "note"] = "no normal range encoded for this measure"
     _ecg_voltage_criteria(a, child)
     a["z_model"] = a["reference_set"].where(np.isfinite(a["z"].to_numpy(dtype=float)), None)
-    for c, v in _criteria(a, guideline, relative_of_affected, genotype_positive).items():
+    for c, v in _criteria(a, guideline, relative_of_affected, genotype_positive, paediatric_set).items():
         a[c] = v
     a["guideline_id"] = guideline
     diagnostic = a["measure"].isin(DIAGNOSTIC_MEASURES).to_numpy()
@@ -510,10 +569,11 @@ TREND_COLUMNS = [
     "last_change", "last_change_from", "last_change_to", "lsc", "lsc_relative", "lsc_status",
     "last_change_vs_lsc", "threshold", "threshold_unit", "projection_status", "projected_age",
     "projected_age_ci_low", "projected_age_ci_high", "projection_reason", "progressing",
-    "crossing_within_horizon", "converted", "conversion_date", "review_flag", "concern",
+    "crossing_within_horizon", "converted", "conversion_date", "review_flag", "flag_role",
+    "tests_fired", "progression_tests", "left_out", "criteria_not_assessable", "criteria_flags", "concern",
     "reasons", "caution",
 ]  # fmt: skip
-FLAG_COLUMNS = ["person", "progressing", "projected_crossing_age", "reasons"]
+FLAG_COLUMNS = ["person", "progressing", "projected_crossing_age", "reasons", "progression_tests", "review_flags"]
 
 
 def _window(a: pd.DataFrame) -> pd.DataFrame:
@@ -625,13 +685,18 @@ def trend_table(
     a = a[np.isfinite(a["age_years"].to_numpy(dtype=float))].reset_index(drop=True)
     if len(a) == 0:
         return pd.DataFrame({c: pd.Series(dtype=object) for c in TREND_COLUMNS})
+    all_rows = a  # conversions and criteria flags use every study, pregnancy included
+    if "pregnant" in a.columns:
+        a = a[~a["pregnant"].fillna(False).astype(bool).to_numpy()].reset_index(drop=True)
+    if len(a) == 0:  # every study during pregnancy: nothing to trend
+        a = all_rows.iloc[:0]
     w = _window(a)
     ols = trends.per_person_ols(w)
     zin = a[a["measure"].isin(list(paediatric.MODEL_MEASURE))]
     zols = trends.per_person_z_ols(zin) if len(zin) else trends.per_person_ols(zin.assign(z=[]), y="z")
     lsc = repeatability.lsc_table(repeatability.load_repeatability(clinic_repeatability))
-    changes = trends.consecutive_changes(w, lsc_table=lsc)
-    flags = trends.progression_flags(ols, changes, None, horizon_years)
+    changes = trends.consecutive_changes(w, lsc_table=lsc, direction=FLAG_DIRECTION)
+    flags = trends.progression_flags(ols, changes, None, horizon_years, direction=FLAG_DIRECTION)
 
     key = ["person", "measure"]
     t = ols.copy()
@@ -660,14 +725,22 @@ def trend_table(
     t["lsc_status"], t["last_change_vs_lsc"] = lc["lsc_status"].to_numpy(), lc["variability"].to_numpy()
     t = t.join(_thresholds(t, guideline, relative_of_affected, genotype_positive))
     t = t.join(_projections(t, ols, zols, horizon_years))
+    last = w.sort_values("age_years", kind="stable").groupby(key).tail(1).set_index(key)
+    t["last_upper"] = last["upper"].reindex(pd.MultiIndex.from_frame(t[key])).to_numpy(dtype=float)
     _flag(t, flags, horizon_years)
+    t["left_out"] = _left_out_text(all_rows, a, t)
+    crit = criteria_review_flags(all_rows)
+    ctext = crit.groupby(key)["flag"].agg(" | ".join) if len(crit) else pd.Series(dtype=object)
+    t["criteria_flags"] = ctext.reindex(pd.MultiIndex.from_frame(t[key])).fillna("").to_numpy(dtype=object)
+    t["criteria_not_assessable"] = t["criteria_flags"] != ""
+    a = all_rows
     conv = conversions(a).set_index("person") if a["measure"].isin(DIAGNOSTIC_MEASURES).any() else None
     t["converted"] = t["person"].map(conv["ever_met"]).fillna(False).astype(bool) if conv is not None else False
     t["conversion_date"] = t["person"].map(conv["first_met_date"]) if conv is not None else None
     t["review_flag"] = t["person"].map(conv["review_flag"]).fillna(False).astype(bool) if conv is not None else False
     t["first_met_measures"] = t["person"].map(conv["first_met_measures"]) if conv is not None else ""
     t["concern"] = (8 * t["crossing_within_horizon"] + 4 * t["progressing"] + 2 * t["review_flag"]
-                    + t["converted"]).astype(int)  # fmt: skip
+                    + 2 * t["criteria_not_assessable"] + t["converted"]).astype(int)  # fmt: skip
     t["reasons"] = _reasons(t, horizon_years)
     t["caution"] = CAUTION
     t = t.rename(columns={"slope": "slope_per_year", "ci_low": "slope_ci_low", "ci_high": "slope_ci_high"})
@@ -676,24 +749,131 @@ def trend_table(
 
 
 def _flag(t: pd.DataFrame, flags: pd.DataFrame, horizon: float) -> None:
-    """progressing and crossing_within_horizon; children on z-model measures use the z slope."""
+    """progressing (three tests: last change, slope, z-score slope) and crossing_within_horizon.
+
+    Only the measures of ``FLAG_MEASURES`` flag; LA size (supporting) only when its latest value is
+    above the upper normal limit.  Under 18 y at the last study only the z-score slope flags (a
+    change or slope in mm includes growth); a series that crosses 18 y with fewer than 3 studies
+    from 18 y (no slope interval in mm) is tested on the z-score slope of its studies under 18 y.
+    """
     f = flags.set_index(["person", "measure"]).reindex(pd.MultiIndex.from_frame(t[["person", "measure"]]))
     change = f["last_change_beyond_towards_disease"].fillna(False).to_numpy(dtype=bool)
     slope = f["slope_ci_towards_disease"].fillna(False).to_numpy(dtype=bool)
     child = (t["last_age"] < ADULT_FROM_YEARS).to_numpy()
-    direction = t["measure"].map(trends.DISEASE_DIRECTION).fillna(0).to_numpy(dtype=float)
+    role = t["measure"].map(FLAG_MEASURES)
+    t["flag_role"] = role.where(role.notna(), "not a progression-flag measure").to_numpy(dtype=object)
+    last_value = t["last_value"].to_numpy(dtype=float)
+    upper = t["last_upper"].to_numpy(dtype=float)
+    counts = role.notna().to_numpy() & ((role != SUPPORTING).to_numpy() | (last_value > upper))
+    direction = t["measure"].map(FLAG_DIRECTION).fillna(0).to_numpy(dtype=float)
     z_up = np.where(direction > 0, t["z_ci_low"].to_numpy(dtype=float) > 0,
                     np.where(direction < 0, t["z_ci_high"].to_numpy(dtype=float) < 0, False))  # fmt: skip
-    t["flag_change"] = change
     z_measure = t["measure"].isin(list(paediatric.MODEL_MEASURE)).to_numpy()
-    # under 18 y only a z-score slope flags: a slope in mm, mL or cm/s includes growth
-    t["flag_slope"] = np.where(child, z_up & z_measure, slope)
-    t["progressing"] = t["flag_change"] | t["flag_slope"]
+    no_adult_ci = ~np.isfinite(t["ci_low"].to_numpy(dtype=float))
+    t["fitted_change"] = t["slope"].to_numpy(dtype=float) * t["span_years"].to_numpy(dtype=float)
+    t["flag_change"] = change & ~child & counts
+    t["flag_slope"] = slope & ~child & counts & _beyond_sw(t)
+    t["flag_z_slope"] = z_up & z_measure & (child | no_adult_ci) & counts
+    t["progressing"] = t["flag_change"] | t["flag_slope"] | t["flag_z_slope"]
     st = t["projection_status"].to_numpy(dtype=object)
     after = t["years_after_last"].to_numpy(dtype=float)
     t["crossing_within_horizon"] = ((st == "projected") & (after <= horizon)) | (
         st == "fitted line already past threshold"
     )
+    t["progression_tests"] = _test_texts(t)
+    names = np.full(len(t), "", dtype=object)
+    for col, name in (("flag_slope", "slope test"), ("flag_change", "last-change test"),
+                      ("flag_z_slope", "z-score slope test")):  # fmt: skip
+        names = _join(names, t[col].to_numpy(dtype=bool), name)
+    t["tests_fired"] = names
+
+
+def _beyond_sw(t: pd.DataFrame) -> np.ndarray:
+    """The fitted change over the series (slope x span) exceeds one within-subject SD of a single
+    scan (Sw = LSC / 2.77, or the relative LSC / 2.77 against the fitted first value), where the
+    measure has a repeatability figure.
+
+    Engineering choice: the slope's interval already deals with noise; this asks for a change that
+    matters, so a slope whose interval excludes zero but whose whole fitted change is smaller than
+    the scatter of one scan (e.g. +0.08 mm/y of posterior wall over 10 years, 0.8 mm against an Sw of
+    1.4 mm) is not called progression."""
+    fc = np.abs(t["fitted_change"].to_numpy(dtype=float))
+    sw = t["lsc"].to_numpy(dtype=float) / repeatability.LSC_FACTOR
+    rel = t["lsc_relative"].to_numpy(dtype=float) / repeatability.LSC_FACTOR
+    first = t["intercept"].to_numpy(dtype=float) + t["slope"].to_numpy(dtype=float) * t["first_age"].to_numpy(dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rel_change = fc / np.abs(first)
+    has = np.isfinite(sw) | np.isfinite(rel)
+    return ~has | (np.isfinite(sw) & (fc > sw)) | (np.isfinite(rel) & (rel_change > rel))
+
+
+def _fmt(x: float, nd: int = 2) -> str:
+    return f"{x:+.{nd}f}"
+
+
+def _test_texts(t: pd.DataFrame) -> np.ndarray:
+    """The progression tests that fired, each with its figures (plain text per row)."""
+    out = np.full(len(t), "", dtype=object)
+    change = t["flag_change"].to_numpy(dtype=bool)
+    if change.any():
+        texts = []
+        for r in t.loc[change].itertuples(index=False):
+            if np.isfinite(r.lsc) and abs(r.last_change) > r.lsc:
+                limit = f"LSC {r.lsc:.2f} {r.unit}"
+            else:
+                limit = f"relative LSC {r.lsc_relative:.0%}"
+            texts.append(f"last-change test: {_fmt(r.last_change)} {r.unit} ({_iso(r.last_change_from)} to "
+                         f"{_iso(r.last_change_to)}) > {limit}{lsc_note(r.lsc_status)}")  # fmt: skip
+        out = _join(out, change, _spread(change, texts))
+    slope = t["flag_slope"].to_numpy(dtype=bool)
+    if slope.any():
+        texts = []
+        for r in t.loc[slope].itertuples(index=False):
+            text = (f"slope test: {_fmt(r.slope)} {r.unit}/y (95% CI {_fmt(r.ci_low)} to {_fmt(r.ci_high)}; {r.n} "
+                    f"studies, {r.first_age:.1f}-{r.last_age:.1f} y) excludes zero towards disease; fitted change "
+                    f"{_fmt(r.fitted_change, 1)} {r.unit}")  # fmt: skip
+            sw = r.lsc / repeatability.LSC_FACTOR
+            if np.isfinite(sw) and abs(r.fitted_change) > sw:
+                text += f" > one within-subject SD {sw:.2f} {r.unit}{lsc_note(r.lsc_status)}"
+            elif np.isfinite(r.lsc_relative):
+                text += f" > {r.lsc_relative / repeatability.LSC_FACTOR:.0%} (relative LSC / 2.77){lsc_note(r.lsc_status)}"
+            else:
+                text += " (no repeatability figure known for this measure)"
+            texts.append(text)
+        out = _join(out, slope, _spread(slope, texts))
+    zs = t["flag_z_slope"].to_numpy(dtype=bool)
+    if zs.any():
+        texts = [f"z-score slope test: {_fmt(b)} z/y (95% CI {_fmt(lo)} to {_fmt(hi)}; {n} studies under 18 y, "
+                 f"{model}) excludes zero towards disease"
+                 for b, lo, hi, n, model in zip(t.loc[zs, "z_slope_per_year"], t.loc[zs, "z_ci_low"],
+                                                t.loc[zs, "z_ci_high"], t.loc[zs, "z_n"], t.loc[zs, "z_model"])]  # fmt: skip
+        out = _join(out, zs, _spread(zs, texts))
+    return out
+
+
+def _spread(mask: np.ndarray, texts: list[str]) -> np.ndarray:
+    full = np.full(len(mask), "", dtype=object)
+    full[np.flatnonzero(mask)] = texts
+    return full
+
+
+def _iso(v) -> str:
+    if v is None or v is pd.NaT or (isinstance(v, float) and np.isnan(v)):
+        return "?"
+    return v.isoformat()[:10] if hasattr(v, "isoformat") else str(v)[:10]
+
+
+#: Said beside every least significant change that is a packaged default (repeatability.toml).
+LSC_DEFAULT_NOTES = {
+    "placeholder": "placeholder LSC, not a published figure: set the clinic's own in the settings [repeatability]",
+    "provisional": "provisional LSC: set the lab's own in the settings [repeatability]",
+}
+
+
+def lsc_note(status: object) -> str:
+    """" (NOTE)" when a least significant change of this status is a packaged default, else ""."""
+    note = LSC_DEFAULT_NOTES.get(str(status))
+    return f" ({note})" if note else ""
 
 
 def _join(out: np.ndarray, mask: np.ndarray, text) -> np.ndarray:
@@ -707,30 +887,23 @@ def _join(out: np.ndarray, mask: np.ndarray, text) -> np.ndarray:
 
 
 def _reasons(t: pd.DataFrame, horizon: float) -> np.ndarray:
-    """Plain-text reasons per row (vectorised; numbers formatted only where shown)."""
+    """Plain-text reasons per row: each progression test that fired with its figures, the projection,
+    the review and conversion notes and "criteria not assessable" (vectorised where it can be)."""
     n = len(t)
-    out = np.full(n, "", dtype=object)
-    child = t["last_age"].to_numpy(dtype=float) < ADULT_FROM_YEARS
-    z_measure = t["measure"].isin(list(paediatric.MODEL_MEASURE)).to_numpy()
-    change = t["flag_change"].to_numpy(dtype=bool)
-    out = _join(out, change, "last change beyond measurement variability towards disease")
-    slope = t["flag_slope"].to_numpy(dtype=bool)
-    out = _join(out, slope & child & z_measure, "z-score slope 95% CI excludes zero towards disease")
-    out = _join(out, slope & ~(child & z_measure), "slope 95% CI excludes zero towards disease")
+    out = t["progression_tests"].to_numpy(dtype=object).copy()
     status = t["projection_status"].to_numpy(dtype=object)
     proj = (status == "projected") & t["crossing_within_horizon"].to_numpy(dtype=bool)
     if proj.any():
         p = t.loc[proj]
         text = [
-            f"projected to reach {thr:g} {u} at age {age:.1f} y (95% CI {lo:.1f}-{hi:.1f}), within {horizon:g} years"
+            f"projection test: the fitted line reaches {thr:g} {u} at age {age:.1f} y (95% CI {lo:.1f}-{hi:.1f}), "
+            f"within {horizon:g} years"
             for thr, u, age, lo, hi in zip(p["threshold"], p["threshold_unit"], p["projected_age"],
                                            p["projected_age_ci_low"], p["projected_age_ci_high"])
         ]  # fmt: skip
-        full = np.full(n, "", dtype=object)
-        full[proj] = text
-        out = _join(out, proj, full)
+        out = _join(out, proj, _spread(proj, text))
     out = _join(out, status == "fitted line already past threshold",
-                "fitted line already past the threshold though the last value is not: review")  # fmt: skip
+                "projection test: fitted line already past the threshold though the last value is not: review")  # fmt: skip
     diag = t["measure"].isin(DIAGNOSTIC_MEASURES).to_numpy()
     review_flag = t["review_flag"].to_numpy(dtype=bool)
     out = _join(out, review_flag & diag, "review: met criteria earlier but not at the latest study")
@@ -743,7 +916,123 @@ def _reasons(t: pd.DataFrame, horizon: float) -> np.ndarray:
         dates = np.full(n, "", dtype=object)
         dates[conv] = [f"met criteria from {d}" for d in t.loc[conv, "conversion_date"]]
         out = _join(out, conv, dates)
+    crit = t["criteria_flags"].to_numpy(dtype=object)
+    out = _join(out, crit != "", crit)
     return out
+
+
+# --------------------------------------------------------------------------- review flags and pregnancy
+
+
+CRITERIA_FLAG_COLUMNS = ["person", "study_date", "measure", "value", "age_years", "flag"]
+
+
+def criteria_review_flags(assessed: pd.DataFrame) -> pd.DataFrame:
+    """Every maximal wall thickness value whose criteria could not be assessed and that no wall
+    thickness judged at the same study date or later answers, as a review flag.
+
+    Input: :func:`assess_measurements` output.  One row per value (``CRITERIA_FLAG_COLUMNS``);
+    ``flag`` reads "criteria not assessable: mwt_echo 14 mm on 2025-12-01 (age 17.5 y): REASON".
+    A guideline without encoded criteria is not flagged per value (the caller says so once).
+    """
+    if "meets_criteria" not in assessed.columns or len(assessed) == 0:
+        return pd.DataFrame(columns=CRITERIA_FLAG_COLUMNS)
+    note = assessed["criteria_note"].astype(object).fillna("").astype(str)
+    mwt = assessed["measure"].isin(DIAGNOSTIC_MEASURES).to_numpy()
+    m = assessed[mwt & assessed["meets_criteria"].isna().to_numpy() & note.str.startswith(NOT_ASSESSABLE).to_numpy()]
+    # a value judged at the same study date or later answers the question: only values after the
+    # person's last judged wall thickness (or with none judged) are flagged
+    judged = assessed[mwt & assessed["meets_criteria"].notna().to_numpy()]
+    last_judged = judged.groupby("person")["study_date"].max()
+    since = m["person"].map(last_judged).astype(object).to_numpy()
+    later = [s is None or s is pd.NaT or (isinstance(s, float) and np.isnan(s)) or d > s
+             for d, s in zip(m["study_date"].to_numpy(dtype=object), since)]  # fmt: skip
+    m = m[np.asarray(later, dtype=bool)]
+    if len(m) == 0:
+        return pd.DataFrame(columns=CRITERIA_FLAG_COLUMNS)
+    prefix = len(NOT_ASSESSABLE) + 2
+    flags = [
+        f"{NOT_ASSESSABLE}: {meas} {v:g} {u} on {_iso(d)}"
+        + ("" if not np.isfinite(age) else f" (age {age:.1f} y)") + f": {str(why)[prefix:]}"
+        for meas, v, u, d, age, why in zip(m["measure"], m["value"], m["unit"], m["study_date"], m["age_years"],
+                                          m["criteria_note"])
+    ]  # fmt: skip
+    out = m[["person", "study_date", "measure", "value", "age_years"]].copy()
+    out["flag"] = flags
+    return out.reset_index(drop=True)[CRITERIA_FLAG_COLUMNS]
+
+
+def _truthy(v) -> bool:
+    if v is None or v is pd.NA or (isinstance(v, float) and np.isnan(v)):
+        return False
+    if isinstance(v, str):
+        return v.strip().lower() in ("yes", "true", "y", "1")
+    return bool(v)
+
+
+def mark_pregnancy(frame: pd.DataFrame, assessments: pd.DataFrame | None) -> pd.DataFrame:
+    """``frame`` (:func:`build_measurements` output) with a bool column ``pregnant``: the study lies
+    within ``PREGNANCY_WINDOW_DAYS`` of an assessment that records the person as pregnant, and not on
+    or beyond (towards it) an assessment that records her as not pregnant.
+
+    ``assessments``: person, assessment_date, pregnant (bool or yes/no).  Studies during pregnancy
+    are left out of the trends (slopes, last change, projection) and named in their ``left_out``
+    column; they are still judged against limits and criteria.  A copy; ``frame`` is not changed.
+    """
+    out = frame.copy()
+    out["pregnant"] = False
+    if assessments is None or len(assessments) == 0 or "pregnant" not in assessments.columns or len(out) == 0:
+        return out
+    a = assessments[assessments["person"].isin(set(out["person"]))]
+    if len(a) == 0:
+        return out
+    flag = a["pregnant"]
+    if pd.api.types.is_bool_dtype(flag.dtype):
+        yes = flag.fillna(False).to_numpy(dtype=bool)
+    else:  # yes/no text, 0/1 or mixed
+        yes = np.array([_truthy(v) for v in flag.to_numpy(dtype=object)], dtype=bool)
+    day = pd.to_datetime(a["assessment_date"].astype(str)).to_numpy(dtype="datetime64[D]")
+    marks = pd.DataFrame({"person": a["person"].to_numpy(dtype=object), "day": day, "yes": yes})
+    if not marks["yes"].any():
+        return out
+    window = np.timedelta64(PREGNANCY_WINDOW_DAYS, "D")
+    one = np.timedelta64(1, "D")
+    marks = marks.sort_values(["person", "day"], kind="stable").reset_index(drop=True)
+    # nearest "not pregnant" assessment before and after each one (NaT if none), per person
+    no_day = marks["day"].where(~marks["yes"])
+    g = no_day.groupby(marks["person"])
+    before = g.shift(1).groupby(marks["person"]).ffill()  # latest "no" strictly before the row
+    after = g.shift(-1).groupby(marks["person"]).bfill()  # earliest "no" strictly after the row
+    w = marks[marks["yes"]]
+    b, f2 = before[marks["yes"]].to_numpy(dtype="datetime64[D]"), after[marks["yes"]].to_numpy(dtype="datetime64[D]")
+    d = w["day"].to_numpy(dtype="datetime64[D]")
+    lo = np.where(np.isnat(b), d - window, np.maximum(d - window, b + one))
+    hi = np.where(np.isnat(f2), d + window, np.minimum(d + window, f2 - one))
+    windows = pd.DataFrame({"person": w["person"].to_numpy(dtype=object), "lo": lo, "hi": hi})
+    keys = pd.DataFrame({"person": out["person"].to_numpy(dtype=object),
+                         "day": pd.to_datetime(out["study_date"].astype(str)).to_numpy(dtype="datetime64[D]")})  # fmt: skip
+    uniq = keys.drop_duplicates().reset_index(drop=True)
+    pairs = uniq.merge(windows, on="person", how="inner")
+    inside = pairs[(pairs["day"] >= pairs["lo"]) & (pairs["day"] <= pairs["hi"])][["person", "day"]].drop_duplicates()
+    if len(inside):
+        hit = keys.merge(inside.assign(hit=True), on=["person", "day"], how="left")["hit"]
+        out["pregnant"] = hit.notna().to_numpy(dtype=bool)
+    return out
+
+
+def _left_out_text(all_rows: pd.DataFrame, kept: pd.DataFrame, t: pd.DataFrame) -> np.ndarray:
+    """Per series: the studies during pregnancy left out of the trend, or ""."""
+    out = np.full(len(t), "", dtype=object)
+    if "pregnant" not in all_rows.columns:
+        return out
+    gone = all_rows[all_rows["pregnant"].fillna(False).astype(bool).to_numpy()]
+    if len(gone) == 0:
+        return out
+    text = gone.groupby(["person", "measure"])["study_date"].agg(
+        lambda d: f"{len(d)} {'study' if len(d) == 1 else 'studies'} during pregnancy left out of the trend "
+        f"({', '.join(_iso(x) for x in sorted(d))})"
+    )
+    return text.reindex(pd.MultiIndex.from_frame(t[["person", "measure"]])).fillna("").to_numpy(dtype=object)
 
 
 def trend_flags(
@@ -759,7 +1048,10 @@ def trend_flags(
     any measure progressing beyond measurement variability), projected_crossing_age
     (earliest projected age, years, at which maximal wall thickness reaches the
     guideline threshold within ``horizon_years``; NaN if none), reasons (plain text,
-    "measure: reason" joined by " | ").  Same arguments as :func:`trend_table`.
+    "measure: reason" joined by " | "), progression_tests (the same for the progression tests
+    that fired only, each with its figures),
+    review_flags ("criteria not assessable: ..." for each wall-thickness value the guideline's
+    criteria could not judge, joined by " | "; "" if none).  Same arguments as :func:`trend_table`.
     Decision support only: the treating clinician decides.
     """
     t = trend_table(
@@ -776,12 +1068,18 @@ def trend_flags(
     crossing = t[t["crossing_within_horizon"].astype(bool)].groupby("person")["projected_age"].min().reindex(people)
     flagged = t[t["reasons"] != ""]
     reasons = (flagged["measure"] + ": " + flagged["reasons"]).groupby(flagged["person"]).agg(" | ".join)
+    fired = t[t["progressing"].astype(bool) & (t["progression_tests"] != "")]
+    tests = (fired["measure"] + ": " + fired["progression_tests"]).groupby(fired["person"]).agg(" | ".join)
+    crit = t[t["criteria_flags"] != ""]
+    review_flags = crit.groupby("person")["criteria_flags"].agg(" | ".join)
     return pd.DataFrame(
         {
             "person": people.to_numpy(dtype=object),
             "progressing": progressing.to_numpy(dtype=bool),
             "projected_crossing_age": crossing.to_numpy(dtype=float),
             "reasons": reasons.reindex(people).fillna("").to_numpy(dtype=object),
+            "progression_tests": tests.reindex(people).fillna("").to_numpy(dtype=object),
+            "review_flags": review_flags.reindex(people).fillna("").to_numpy(dtype=object),
         },
         columns=FLAG_COLUMNS,
     )

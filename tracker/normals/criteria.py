@@ -35,6 +35,8 @@ AHA_ACC_2020 = "aha_acc_2020"
 RULE_KEYS = ("adult", "adult_relative", "child", "child_relative")
 RELATIVE_FLAGS = ("first_degree_relative", "genotype_positive")
 
+NOT_ASSESSABLE = "criteria not assessable"
+
 CRITERIA_CAUTION = (
     CAUTION + " A wall-thickness threshold is not a diagnosis on its own: the hypertrophy must be "
     "unexplained by loading conditions or a phenocopy, and a z-score depends on its reference set."
@@ -141,12 +143,28 @@ def _num_col(df: pd.DataFrame, name: str) -> np.ndarray:
     return np.round(pd.to_numeric(df[name], errors="raise").to_numpy(dtype=float), COMPARE_DECIMALS)
 
 
+def _text_col(df: pd.DataFrame, name: str) -> np.ndarray:
+    if name not in df:
+        return np.full(len(df), "", dtype=object)
+    return df[name].astype(object).where(df[name].notna(), "").to_numpy(dtype=object)
+
+
+def _meets(x: np.ndarray, r: Rule) -> np.ndarray:
+    return x >= r.threshold if r.comparison == ">=" else x > r.threshold
+
+
 def wall_thickness_criteria_frame(df: pd.DataFrame, guideline_id: str) -> pd.DataFrame:
     """Apply one guideline's thresholds to every row of a DataFrame.
 
     Columns: ``age_years`` (required), ``mwt_mm`` and/or ``mwt_z``,
     ``first_degree_relative`` and ``genotype_positive`` (yes/no; missing =
-    False).  Returns a copy with ``met`` (nullable boolean), ``threshold``,
+    False).  Optional, for a z rule when ``mwt_z`` is missing (body size unknown or outside the
+    reference set's range): ``mwt_z_min``, the smallest z-score the value can have at any body size
+    the reference set covers (:func:`tracker.normals.paediatric.smallest_z`), ``mwt_z_min_bsa``
+    (the BSA, m2, where it is reached) and ``z_reason`` (why there is no z-score).  A value whose
+    smallest possible z meets the rule meets it at every body size the set allows and is reported
+    as meeting it, with that method in ``note``; otherwise ``met`` is missing and ``note`` starts
+    with "criteria not assessable" and gives the reason.  Returns a copy with ``met`` (nullable boolean), ``threshold``,
     ``threshold_unit``, ``comparison``, ``rule``, ``borderline``,
     ``guideline``, ``source``, ``note`` and ``caution`` added.
     """
@@ -165,18 +183,41 @@ def wall_thickness_criteria_frame(df: pd.DataFrame, guideline_id: str) -> pd.Dat
     unit = np.full(n, None, dtype=object)
     comparison = np.full(n, None, dtype=object)
     source = np.full(n, "", dtype=object)
+    z_min, z_min_bsa = _num_col(df, "mwt_z_min"), _num_col(df, "mwt_z_min_bsa")
+    z_why = _text_col(df, "z_reason")
     met = np.full(n, None, dtype=object)
     note = np.full(n, "", dtype=object)
-    note[np.isnan(age)] = "age unknown"
+    note[np.isnan(age)] = f"{NOT_ASSESSABLE}: age unknown"
     for k, r in rs.rules.items():
         m = key == k
         threshold[m], unit[m], comparison[m], source[m] = r.threshold, r.unit, r.comparison, rs.source(k)
         x = z if r.unit == "z" else mm
         has = m & ~np.isnan(x)
-        ok = x[has] >= r.threshold if r.comparison == ">=" else x[has] > r.threshold
-        met[has] = ok
+        met[has] = _meets(x[has], r)
         what = "a z-score of maximal wall thickness" if r.unit == "z" else "maximal wall thickness in mm"
-        note[m & np.isnan(x)] = f"not assessable: the {k.replace('_', ' ')} rule needs {what}"
+        missing = m & np.isnan(x)
+        why = np.full(n, f"{NOT_ASSESSABLE}: the {k.replace('_', ' ')} rule needs {what}", dtype=object)
+        if r.unit == "z":
+            # body size unknown or outside the reference set: met if met at every body size the set covers
+            bound = missing & np.isfinite(z_min)
+            hit = bound.copy()
+            hit[bound] = _meets(z_min[bound], r)
+            met[hit] = True
+            note[hit] = [
+                f"met at every body size the reference set covers: smallest possible z {zz:.2f} "
+                f"(at BSA {bb:g} m2) {r.comparison} {r.threshold:g}" + (f"; {w}" if w else "")
+                for zz, bb, w in zip(z_min[hit], z_min_bsa[hit], z_why[hit])
+            ]
+            low = bound & ~hit
+            why[low] = [
+                f"{base}; {w or 'no z-score'}, and the value is not {r.comparison} {r.threshold:g} at every "
+                f"body size the reference set covers (smallest possible z {zz:.2f} at BSA {bb:g} m2)"
+                for base, zz, bb, w in zip(why[low], z_min[low], z_min_bsa[low], z_why[low])
+            ]
+            other = missing & ~bound & (z_why != "")
+            why[other] = [f"{base}; {w}" for base, w in zip(why[other], z_why[other])]
+            missing &= ~hit
+        note[missing] = why[missing]
     borderline = np.zeros(n, dtype=bool)
     if rs.borderline_lower_mm is not None:
         borderline = (key == "adult") & (mm >= rs.borderline_lower_mm) & (met == False)  # noqa: E712

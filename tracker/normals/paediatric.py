@@ -224,3 +224,43 @@ def paediatric_z(
         reason=str(r["reason"]),
         source=source_for(measure, set_id),
     )
+
+
+def smallest_z_bsa(measure: str, set_id: str = DEFAULT_SET) -> float:
+    """The body surface area (m2) inside the set's BSA range at which a given value has its
+    smallest z-score.
+
+    The z-score of a fixed value depends on body size only through the predicted mean, so the
+    smallest z over the range is where the prediction is largest: for the allometric model
+    (PHN) X / BSA^alpha is monotone in BSA, so an end of the range; for the log-cubic model
+    (Detroit) the largest of b0 + b1 BSA + b2 BSA^2 + b3 BSA^3 at the ends of the range or at a
+    stationary point inside it (exact, no grid).
+    """
+    s = reference_set(set_id)
+    c = _coefficients(s, measure)
+    candidates = [s.bsa_min, s.bsa_max]
+    if s.model != "allometric":
+        _, b1, b2, b3 = c.b
+        roots = np.roots([3 * b3, 2 * b2, b1]) if (b3 or b2) else np.array([])
+        candidates += [float(r.real) for r in roots if abs(r.imag) < 1e-12 and s.bsa_min < r.real < s.bsa_max]
+    predicted = _value_cm_at_z(s, c, np.asarray(candidates, dtype=float), 0.0)
+    return float(candidates[int(np.argmax(predicted))])
+
+
+def smallest_z(
+    measure: str, value_mm: ArrayLike, age_years: ArrayLike, set_id: str = DEFAULT_SET
+) -> dict[str, np.ndarray]:
+    """The smallest z-score a value can have at any body size the set covers, for people whose
+    body size is unknown or outside the set's BSA range (vectorised; NaN = unknown).
+
+    Returns ``z_min`` (NaN where the age is outside the set's age range or the value is
+    missing) and ``bsa_m2`` (the BSA at which it is reached, the same for every value).  A value
+    whose smallest z is above a z threshold is above it at every body size the set covers; a
+    value whose smallest z is not tells nothing (its true z may be higher).
+    """
+    s = reference_set(set_id)
+    v, age = np.broadcast_arrays(np.asarray(value_mm, dtype=float), np.asarray(age_years, dtype=float))
+    at = smallest_z_bsa(measure, set_id)
+    ok = np.isfinite(v) & (v > 0) & np.isfinite(age) & (age >= s.age_min) & (age <= s.age_max)
+    z = z_scores(measure, np.where(ok, v, np.nan), at, np.where(ok, age, np.nan), set_id)["z"]
+    return {"z_min": np.where(ok, z, np.nan), "bsa_m2": np.full(v.shape, at)}

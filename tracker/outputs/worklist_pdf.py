@@ -143,7 +143,8 @@ def line_from_row(row: dict) -> WorklistLine:
     return WorklistLine(
         person=row["person"], due=row.get("due"), days_overdue=row.get("days_overdue"),
         needs=tuple(row.get("needs") or ()), consider=tuple(row.get("consider") or ()),
-        reason=row.get("reason") or "", booked_week=row.get("booked_week"), late=row.get("late"),
+        reason=((row.get("reason") or "") + "".join(f" REVIEW: {f}." for f in row.get("review_flags") or ())).strip(),
+        booked_week=row.get("booked_week"), late=row.get("late"),
         waiting=waiting_text(row) if row.get("waiting") or row.get("status") == "not_recalled" else None,
         flags=tuple(row.get("flags") or ()),
         gap=GAP_WORDS.get(row.get("contact_status") or "", row.get("contact_status")) if row.get("list") == "contact_gap"
