@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from tracker.domain import units
+from tracker.domain.consistency import record_problems
 from tracker.domain.dates import parse_partial_date
 from tracker.io.columns import parse
 from tracker.io.layouts import Layout
@@ -208,6 +209,9 @@ def check_people(c: Checked, ctx: Context) -> None:
     c.add(rows["death_date"].notna() & ~deceased, "death_date", "is given but vital_status is not deceased")
     death_before_birth = _each_distinct(rows["death_date"], _latest) < _each_distinct(rows["birth_date"], _earliest)
     c.add(death_before_birth, "death_date", "is before the date of birth")
+
+    for r, col, message in record_problems(rows, ctx.today):
+        c.note(int(r), col, message)
 
     twin = rows["twin_of"]
     has_twin = twin.notna()
