@@ -170,7 +170,7 @@ def _split(checked: validation.Checked, stored: pd.DataFrame, compare: list[str]
     if present.any():
         mine = rows[present]
         theirs = stored.iloc[pos[present]]
-        for col in compare:
+        for col in (c for c in compare if c not in checked.absent):
             same = _same(mine[col].to_numpy(dtype=object), theirs[col].to_numpy(dtype=object))
             for r in mine.index[~same]:
                 problems.append(

@@ -44,6 +44,8 @@ class Checked:
     file: str
     rows: pd.DataFrame
     problems: list[Problem] = field(default_factory=list)
+    # Header-optional columns the file left out: empty for new rows, never compared with stored rows.
+    absent: tuple[str, ...] = ()
 
     def add(self, mask: pd.Series, column: str | None, message) -> None:
         """Add a problem for every row where ``mask`` is true (message: text or per-row texts)."""
@@ -69,7 +71,7 @@ class Checked:
 def parse_cells(layout: Layout, file: str, cells: pd.DataFrame, today: dt.date) -> Checked:
     """Parse every column of the layout; unreadable cells become problems."""
     clean = pd.DataFrame(index=cells.index)
-    checked = Checked(layout, file, clean)
+    checked = Checked(layout, file, clean, absent=tuple(cells.attrs.get("absent_columns", ())))
     for col in layout.columns:
         parsed = parse(col, cells[col.name], today)
         clean[col.name] = parsed.values
