@@ -11,6 +11,7 @@ import io
 import json
 
 import pandas as pd
+import pytest
 from sqlalchemy import inspect, text
 
 from conftest import MINI, dump
@@ -172,3 +173,196 @@ def test_diagnosis_age_of_the_living_is_bounded_by_their_age_today():
     alive = dict(vital_status="alive", birth_date="2000-12-02")  # 25 years old on 2026-12-01
     assert record_problems(_frame(diagnosis_age=25, **alive), today) == []
     assert record_problems(_frame(diagnosis_age=26, **alive), today)[0][1] == "diagnosis_age"
+
+
+# --------------------------------------------------------------------------- family features
+
+from tracker.engines import family_state as fs  # noqa: E402
+from tracker.engines import risk  # noqa: E402
+
+PEOPLE_COLS = ["person", "family", "given_name", "family_name", "sex_at_birth", "gender_identity", "birth_date",
+               "vital_status", "death_date", "mother", "father", "placeholder", "proband", "twin_of", "twin_type",
+               "adoption", "contact_status", "contact_status_date", "notes", "death_cause", "death_age",
+               "diagnosis_age", "diagnosis_place", "icd_date", "pacemaker_date"]  # fmt: skip
+ASSESSMENT_COLS = ["person", "assessment_date", "affected_status", "symptoms", "competitive_athlete", "pregnant",
+                   "hypertension", "notes", *repo.RISK_ANSWERS, "atrial_fibrillation"]  # fmt: skip
+
+
+def _p(code, sex, birth, *, vital="alive", death=None, mother=None, father=None, proband=False, notes=None,
+       cause=None, death_age=None, diagnosis_age=None, place=None, icd=None, pacemaker=None, family="RF-A"):  # fmt: skip
+    return dict(person=code, family=family, given_name=None, family_name=None, sex_at_birth=sex,
+                gender_identity=None, birth_date=birth, vital_status=vital, death_date=death, mother=mother,
+                father=father, placeholder=False, proband=proband, twin_of=None, twin_type=None, adoption=None,
+                contact_status=None if vital == "deceased" else "contactable", contact_status_date=None, notes=notes,
+                death_cause=cause, death_age=float("nan") if death_age is None else float(death_age),
+                diagnosis_age=float("nan") if diagnosis_age is None else float(diagnosis_age),
+                diagnosis_place=place, icd_date=icd, pacemaker_date=pacemaker)  # fmt: skip
+
+
+def _a(code, on, status, answers=None):
+    answers = answers or {}
+    return dict(person=code, assessment_date=on, affected_status=status, symptoms=None, competitive_athlete=False,
+                pregnant=False, hypertension=False, notes=None,
+                **{k: answers.get(k) for k in repo.RISK_ANSWERS}, atrial_fibrillation=None)  # fmt: skip
+
+
+def _state(people, assessments, family="RF-A"):
+    people = pd.DataFrame(people, columns=PEOPLE_COLS)
+    assessments = pd.DataFrame(assessments, columns=ASSESSMENT_COLS)
+    empty_v = pd.DataFrame(columns=["family", "gene", "transcript", "hgvs_c", "hgvs_p", "zygosity", "acmg_class",
+                                    "classified_on", "reason"])  # fmt: skip
+    empty_r = pd.DataFrame(columns=["person", "test_date", "test_type", "variant", "result", "lab",
+                                    "report_reference"])  # fmt: skip
+    empty_s = pd.DataFrame(columns=["person", "study_date", "modality", "site", "height_cm", "weight_kg", "measure",
+                                    "value", "unit"])  # fmt: skip
+    return fs.build_family_state(family, people, empty_v, empty_r, assessments, empty_s, as_of=dt.date(2026, 12, 1))
+
+
+def test_early_onset_from_a_diagnosis_made_elsewhere():
+    """A mother diagnosed at 15 at another centre, first seen here at 44: an early-onset family."""
+    people = [_p("RF-1", "female", "1980-02-02", diagnosis_age=15, place="Invented Harbour Children's Hospital"),
+              _p("RF-2", "male", "2010-03-03", mother="RF-1")]  # fmt: skip
+    st = _state(people, [_a("RF-1", "2024-05-05", "affected")])
+    assert "early_onset" in st.features
+    assert "RF-1 (diagnosed at 15 y (Invented Harbour Children's Hospital)" in st.feature_reasons["early_onset"]
+
+
+def test_early_onset_from_a_deceased_relative_never_seen_here():
+    people = [_p("RF-1", "male", "1950", vital="deceased", death="1975", diagnosis_age=12, cause="cardiac_non_sudden"),
+              _p("RF-2", "female", "1975-04-04", father="RF-1", proband=True)]  # fmt: skip
+    st = _state(people, [_a("RF-2", "2020-01-01", "affected")])
+    assert "early_onset" in st.features and "RF-1" in st.feature_reasons["early_onset"]
+
+
+def test_no_early_onset_from_an_adult_diagnosis_elsewhere():
+    people = [_p("RF-1", "female", "1980-02-02", diagnosis_age=30, place="elsewhere")]
+    st = _state(people, [_a("RF-1", "2024-05-05", "affected")])
+    assert "early_onset" not in st.features
+
+
+def test_sudden_death_from_the_recorded_cause_not_the_notes():
+    people = [_p("RF-1", "male", "1950", vital="deceased", death="1990-05-05", cause="sudden", death_age=40),
+              _p("RF-2", "male", "1950", vital="deceased", death="1992-05-05", cause="non_cardiac",
+                 notes="collapsed suddenly after a stroke"),
+              _p("RF-3", "female", "1975-04-04", father="RF-1", proband=True)]  # fmt: skip
+    st = _state(people, [_a("RF-3", "2020-01-01", "affected")])
+    why = st.feature_reasons["sudden_death"]
+    assert "RF-1 at 40 y" in why and "recorded as the cause of death" in why
+    assert "RF-2" not in why  # a recorded non-cardiac cause is not overridden by a word in the notes
+
+
+def test_sudden_death_from_notes_only_is_labelled_as_such():
+    people = [_p("RF-1", "male", "1950", vital="deceased", death="1990", notes="Sudden death at 40"),
+              _p("RF-3", "female", "1975-04-04", father="RF-1", proband=True)]  # fmt: skip
+    st = _state(people, [_a("RF-3", "2020-01-01", "affected")])
+    assert "from the notes only" in st.feature_reasons["sudden_death"]
+
+
+def test_no_sudden_death_without_cause_or_note():
+    people = [_p("RF-1", "male", "1950", vital="deceased", death="1990", cause="unknown"),
+              _p("RF-3", "female", "1975-04-04", father="RF-1", proband=True)]  # fmt: skip
+    assert "sudden_death" not in _state(people, [_a("RF-3", "2020-01-01", "affected")]).features
+
+
+# --------------------------------------------------------------------------- Risk-SCD from the record
+
+NO = dict.fromkeys(repo.RISK_ANSWERS, False)
+
+
+def _assessed(age=45.0, mwt=20.0, la=42.0, lvot=30.0):
+    """One echo as the review engine gives it; the first worked example of guidelines.md 5a (2.23%)."""
+    on = dt.date(2026, 6, 1)
+    return pd.DataFrame([dict(study_date=on, modality="echo", measure=m, value=v, age_years=age)
+                         for m, v in (("mwt_echo", mwt), ("la_diam", la), ("lvot_rest", lvot))])  # fmt: skip
+
+
+def _person_risk(people, assessments, person, assessed=None, as_of=dt.date(2026, 12, 1)):
+    people = pd.DataFrame(people, columns=PEOPLE_COLS)
+    assessments = pd.DataFrame(assessments, columns=ASSESSMENT_COLS)
+    answers, answered = risk.latest_answers(assessments, person)
+    answers["competitive_athlete"] = False
+    return risk.person_risk_scd(person, affected_status="affected", assessed=_assessed() if assessed is None
+                                else assessed, answers=answers, answered=answered, people=people,
+                                hcm=risk.hcm_status(people, assessments), as_of=as_of)  # fmt: skip
+
+
+def test_figure_with_an_icd_says_so_and_never_advises_not_indicated():
+    # 45 y, MWT 20, LA 42, LVOT 30, no risk factors: 2.23% (guidelines.md 5a worked example 1) -> the ESC 2014
+    # band wording for <4% is "ICD generally not indicated", which must not reach a person who has an ICD.
+    people = [_p("RF-1", "male", "1981-01-01", icd="2019-04-02")]
+    r = _person_risk(people, [_a("RF-1", "2026-06-01", "affected", NO)], "RF-1")
+    assert r.status == "computed" and r.risk_5y_pct == pytest.approx(2.23, abs=0.005)
+    assert r.has_icd and "already has an ICD (ICD implanted 2019-04-02)" in r.headline
+    text = json.dumps(r.as_dict())
+    assert "not indicated" not in text and "primary-prevention" in text
+
+
+def test_without_an_icd_the_band_advice_is_shown():
+    people = [_p("RF-1", "male", "1981-01-01")]
+    r = _person_risk(people, [_a("RF-1", "2026-06-01", "affected", NO)], "RF-1")
+    assert not r.has_icd and any("ICD generally not indicated" in b for b in r.bands)
+
+
+def test_an_icd_after_the_as_of_date_is_not_yet_there():
+    people = [_p("RF-1", "male", "1981-01-01", icd="2026-11-20")]
+    r = _person_risk(people, [_a("RF-1", "2026-06-01", "affected", NO)], "RF-1", as_of=dt.date(2026, 7, 1))
+    assert not r.has_icd
+
+
+def test_prior_arrest_is_secondary_prevention_and_never_not_indicated():
+    people = [_p("RF-1", "male", "1981-01-01")]
+    answers = dict(NO, prior_arrest_or_sustained_vt=True)
+    r = _person_risk(people, [_a("RF-1", "2026-06-01", "affected", answers)], "RF-1")
+    assert r.status == "refused" and r.risk_5y_pct is None and r.secondary_prevention
+    assert "secondary prevention applies" in r.headline
+    assert "not indicated" not in json.dumps(r.as_dict())
+
+
+def _family(father_death_age, father_hcm=False, answer=False):
+    people = [_p("RF-1", "male", "1940", vital="deceased", death="1985", cause="sudden", death_age=father_death_age,
+                 diagnosis_age=30 if father_hcm else None),
+              _p("RF-2", "male", "1972-05-05", father="RF-1", proband=True)]  # fmt: skip
+    return people, [_a("RF-2", "2026-06-01", "affected", dict(NO, family_history_scd=answer))]
+
+
+def test_answer_no_against_a_sudden_death_of_the_father_under_40_is_a_conflict():
+    # ESC 2023 definition [V]: SCD of a first-degree relative under 40 y.
+    r = _person_risk(*_family(35), "RF-2")
+    assert r.status == "computed"  # the figure uses the recorded answer; the conflict stands beside it
+    assert len(r.conflicts) == 1 and r.conflicts[0].startswith("CONFLICT: family history of SCD answered no")
+    assert "father RF-1" in r.conflicts[0] and "at 35 y" in r.conflicts[0]
+
+
+def test_sudden_death_at_41_without_hcm_recorded_asks_to_verify():
+    r = _person_risk(*_family(41), "RF-2")
+    assert len(r.conflicts) == 1 and r.conflicts[0].startswith("CHECK:")
+    assert "counts only if under 40 y or with confirmed HCM" in r.conflicts[0]
+
+
+def test_sudden_death_at_any_age_with_confirmed_hcm_is_a_conflict():
+    r = _person_risk(*_family(62, father_hcm=True), "RF-2")
+    assert r.conflicts and r.conflicts[0].startswith("CONFLICT:")
+
+
+def test_answer_yes_is_not_contradicted_by_a_record_without_deaths():
+    people = [_p("RF-2", "male", "1972-05-05", proband=True)]
+    r = _person_risk(people, [_a("RF-2", "2026-06-01", "affected", dict(NO, family_history_scd=True))], "RF-2")
+    assert r.conflicts == ()
+
+
+def test_sudden_death_of_a_second_degree_relative_is_not_first_degree():
+    people = [_p("RF-0", "male", "1915", vital="deceased", death="1950", cause="sudden", death_age=35),
+              _p("RF-1", "male", "1940", father="RF-0", vital="deceased", death="2010", cause="non_cardiac"),
+              _p("RF-2", "male", "1972-05-05", father="RF-1", proband=True)]  # fmt: skip
+    r = _person_risk(people, [_a("RF-2", "2026-06-01", "affected", NO)], "RF-2")
+    assert r.conflicts == ()
+
+
+def test_sudden_death_of_a_full_sibling_and_of_a_child_count():
+    people = [_p("RF-M", "female", "1945"), _p("RF-F", "male", "1943"),
+              _p("RF-2", "male", "1972-05-05", mother="RF-M", father="RF-F", proband=True),
+              _p("RF-3", "male", "1975", mother="RF-M", father="RF-F", vital="deceased", death="2005", cause="sudden"),
+              _p("RF-4", "female", "1999", father="RF-2", vital="deceased", death="2016", cause="sudden")]  # fmt: skip
+    r = _person_risk(people, [_a("RF-2", "2026-06-01", "affected", NO)], "RF-2")
+    assert len(r.conflicts) == 2 and all(c.startswith("CONFLICT") for c in r.conflicts)
+    assert "sibling RF-3: sudden death recorded, at 29-30 y" in r.conflicts[0]

@@ -14,7 +14,7 @@ from dataclasses import asdict, dataclass
 
 import pandas as pd
 
-from tracker.domain.dates import PartialDate, completed_years, parse_partial_date
+from tracker.domain.dates import PartialDate, age_bounds, parse_partial_date
 from tracker.domain.pedigree import Pedigree, PedigreeError
 
 
@@ -103,15 +103,6 @@ def _years(v) -> int | None:
     except (TypeError, ValueError):
         return None
     return None if math.isnan(x) else int(x)
-
-
-def age_bounds(birth: PartialDate, end: PartialDate | dt.date) -> tuple[int, int]:
-    """(least, greatest) whole years of age on ``end`` that a birth date and an end date known to the
-    day or the year allow."""
-    lo_end, hi_end = (end, end) if isinstance(end, dt.date) else (end.earliest(), end.latest())
-    lo = completed_years(birth.latest(), lo_end) if lo_end >= birth.latest() else 0
-    hi = completed_years(birth.earliest(), hi_end) if hi_end >= birth.earliest() else 0
-    return max(lo, 0), max(hi, 0)
 
 
 def record_problems(people: pd.DataFrame, today: dt.date) -> list[tuple[object, str, str]]:

@@ -214,6 +214,7 @@ class RiskSection:
     validated_ranges: str = ""
     caution: str = ""
     model: str = ""
+    conflicts: tuple[str, ...] = ()  # the record against a recorded answer: shown beside the figure
 
 
 @dataclass(frozen=True)
@@ -621,6 +622,8 @@ def _recall_block(doc: TrajectoryDocument) -> list:
 def _risk_block(doc: TrajectoryDocument) -> list:
     k = doc.risk
     out = [paragraph("Sudden cardiac death risk (HCM Risk-SCD)", _SECTION), paragraph(k.headline, _TEXT)]
+    for c in k.conflicts:
+        out.append(paragraph(c, _TEXT))
     if k.inputs:
         out.append(paragraph("Inputs: " + "; ".join(k.inputs) + ".", _SMALL))
     for b in k.bands:
