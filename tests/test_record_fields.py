@@ -329,13 +329,13 @@ def test_answer_no_against_a_sudden_death_of_the_father_under_40_is_a_conflict()
     # ESC 2023 definition [V]: SCD of a first-degree relative under 40 y.
     r = _person_risk(*_family(35), "RF-2")
     assert r.status == "computed"  # the figure uses the recorded answer; the conflict stands beside it
-    assert len(r.conflicts) == 1 and r.conflicts[0].startswith("CONFLICT: family history of SCD answered no")
+    assert len(r.conflicts) == 2 and r.conflicts[0].startswith("CONFLICT: family history of SCD answered no")
     assert "father RF-1" in r.conflicts[0] and "at 35 y" in r.conflicts[0]
 
 
 def test_sudden_death_at_41_without_hcm_recorded_asks_to_verify():
     r = _person_risk(*_family(41), "RF-2")
-    assert len(r.conflicts) == 1 and r.conflicts[0].startswith("CHECK:")
+    assert len(r.conflicts) == 2 and r.conflicts[0].startswith("CHECK:")
     assert "counts only if under 40 y or with confirmed HCM" in r.conflicts[0]
 
 
@@ -364,5 +364,79 @@ def test_sudden_death_of_a_full_sibling_and_of_a_child_count():
               _p("RF-3", "male", "1975", mother="RF-M", father="RF-F", vital="deceased", death="2005", cause="sudden"),
               _p("RF-4", "female", "1999", father="RF-2", vital="deceased", death="2016", cause="sudden")]  # fmt: skip
     r = _person_risk(people, [_a("RF-2", "2026-06-01", "affected", NO)], "RF-2")
-    assert len(r.conflicts) == 2 and all(c.startswith("CONFLICT") for c in r.conflicts)
+    assert len(r.conflicts) == 3 and all(c.startswith("CONFLICT") for c in r.conflicts[:2])
     assert "sibling RF-3: sudden death recorded, at 29-30 y" in r.conflicts[0]
+
+
+def test_conflict_shows_what_the_disputed_answer_is_worth():
+    # 45 y, MWT 20, LA 42, LVOT 30: PI 2.4229 without family history (guidelines.md 5a worked example 1);
+    # with it the PI gains the coefficient 0.4583082 (O'Mahony 2014 [V2]): 1 - 0.998^exp(2.8812) = 3.51%.
+    r = _person_risk(*_family(35), "RF-2")
+    expected = risk.risk_from_index(risk.prognostic_index(45, 20, 42, 30, True, False, False))
+    assert expected == pytest.approx(3.51, abs=0.01)
+    assert f"answered yes the estimate would be {expected:.2f}%" in r.conflicts[-1]
+
+
+# --------------------------------------------------------------------------- the commands, on the demo families
+
+SETTINGS = MINI.parents[2] / "demo_family" / "clinic.toml"
+AS_OF = "2026-12-01"
+
+
+@pytest.fixture(scope="module")
+def demo_db(tmp_path_factory):
+    from tracker.cli.app import main
+
+    db = tmp_path_factory.mktemp("record") / "demo.sqlite"
+    assert main(["demo", "--db", str(db)]) == 0
+    return str(db)
+
+
+def _cli(capsys, *args):
+    from tracker.cli.app import main
+
+    capsys.readouterr()
+    code = main([str(a) for a in args])
+    out = capsys.readouterr()
+    assert code == 0, out.err
+    return out.out
+
+
+def test_trajectory_of_a_person_with_an_icd_never_says_not_indicated(demo_db, capsys, tmp_path):
+    import pypdf
+
+    out = _cli(capsys, "report", "trajectory", "HV04-III-1", "--out", tmp_path, "--as-of", AS_OF, "--settings",
+               SETTINGS, "--db", demo_db, "--json")  # fmt: skip
+    info = json.loads(out)
+    assert info["risk"]["has_icd"] is True and "already has an ICD" in info["risk"]["headline"]
+    text = " ".join((p.extract_text() or "") for p in pypdf.PdfReader(info["file"]).pages)
+    text = " ".join(text.split())
+    assert "already has an ICD" in text
+    assert "not indicated" not in text and "not indicated" not in out
+
+
+def test_person_and_recall_show_risk_scd_with_the_family_history_check(demo_db, capsys):
+    person = json.loads(_cli(capsys, "person", "HV01-III-1", "--db", demo_db, "--settings", SETTINGS, "--json"))
+    recall = json.loads(_cli(capsys, "recall", "HV01-III-1", "--as-of", AS_OF, "--db", demo_db, "--settings", SETTINGS,
+                             "--json"))  # fmt: skip
+    for d in (person["risk_scd"], recall["risk_scd"]):
+        assert d["status"] == "computed" and d["risk_5y_pct"] is not None
+        assert d["conflicts"] and "father HV01-II-1: sudden death recorded, at 41 y" in d["conflicts"][0]
+        assert d["inputs"]["family_history_scd"] is False and "Decision support only" in d["caution"]
+    assert person["record"]["atrial_fibrillation"]["first_recorded_on"] == "2024-09-09"
+    text = _cli(capsys, "person", "HV01-III-1", "--db", demo_db, "--settings", SETTINGS)
+    assert "HCM Risk-SCD (computed)" in text and "CHECK: family history of SCD answered no" in text
+    text = _cli(capsys, "recall", "HV01-III-1", "--as-of", AS_OF, "--db", demo_db, "--settings", SETTINGS)
+    assert "HCM Risk-SCD (computed)" in text and "CHECK: family history of SCD answered no" in text
+
+
+def test_person_shows_a_diagnosis_made_elsewhere(demo_db, capsys):
+    d = json.loads(_cli(capsys, "person", "HV02-III-1", "--db", demo_db, "--settings", SETTINGS, "--json"))
+    assert d["record"]["diagnosis_age"] == 34 and "Carnmoor" in d["record"]["diagnosis_place"]
+
+
+def test_recall_of_the_demo_family_reads_the_recorded_sudden_death(demo_db, capsys):
+    d = json.loads(_cli(capsys, "cascade", "HV01", "--as-of", AS_OF, "--db", demo_db, "--settings", SETTINGS,
+                        "--json"))  # fmt: skip
+    why = d["family_features"]["sudden_death"]
+    assert "HV01-II-1 at 41 y" in why and "from the notes" not in why

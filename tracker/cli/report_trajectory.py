@@ -36,6 +36,7 @@ import typer
 
 from tracker.cli import recall as R
 from tracker.cli import review as RV
+from tracker.cli import risk_view as RK
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
 from tracker.engines import family_state as fs
 from tracker.engines import review, risk, trends
@@ -179,15 +180,6 @@ def _conversion(conv: pd.DataFrame) -> str:
     return f"Conversion: criteria not met at {c['n_assessed_studies']} assessed studies."
 
 
-def risk_of_person(person: str, family_people: pd.DataFrame, assessments: pd.DataFrame | None,
-                   assessed: pd.DataFrame | None, affected_status: str | None, on: dt.date) -> risk.PersonRisk:
-    """HCM Risk-SCD of one person as every command shows it (the engine's :func:`risk.person_risk_scd`)."""
-    answers, answered = risk.latest_answers(assessments, person)
-    return risk.person_risk_scd(person, affected_status=affected_status, assessed=assessed, answers=answers,
-                                answered=answered, people=family_people,
-                                hcm=risk.hcm_status(family_people, assessments), as_of=on)  # fmt: skip
-
-
 def risk_section(pr: risk.PersonRisk) -> T.RiskSection:
     return T.RiskSection(pr.status, pr.headline, pr.risk_5y_pct, pr.inputs_text, pr.reasons, pr.bands,
                          pr.validated_ranges, pr.caution, pr.model, conflicts=pr.conflicts)  # fmt: skip
@@ -300,7 +292,8 @@ def trajectory_report(
                notes_shown=[n for n in rec["notes"] if n not in rec["reason"]] + [trend_note["note"]])  # fmt: skip
 
     # --- risk
-    pr = risk_of_person(person, people[people["family"] == family], assessments, a, identity.get("affected_status"), on)
+    pr = RK.person_risk(person, people[people["family"] == family], assessments, identity.get("affected_status"), on,
+                        assessed=a)
     risk_shown = risk_section(pr)
 
     short = gid.replace("_", " ").upper().replace("AHA ACC", "AHA/ACC")

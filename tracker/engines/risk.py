@@ -518,6 +518,14 @@ def family_history_conflicts(answer: bool | None, deaths: list[SuddenDeath]) -> 
     return tuple(out)
 
 
+def _model_args(inputs: dict) -> dict:
+    """The keyword arguments of :func:`hcm_risk_scd` from a result's ``inputs``."""
+    names = ("age_years", "mwt_mm", "la_diameter_mm", "lvot_max_mmhg", "family_history_scd", "nsvt",
+             "unexplained_syncope", "prior_cardiac_arrest_or_sustained_vt", "competitive_athlete",
+             "metabolic_infiltrative_or_syndromic")  # fmt: skip
+    return {n: inputs[n] for n in names}
+
+
 def _num(v, unit: str) -> str:
     if v is None or not math.isfinite(v):
         return ""
@@ -629,6 +637,12 @@ def person_risk_scd(person: str, *, affected_status: str | None, assessed, answe
     )  # fmt: skip
     inputs = {**i, "echo_date": date.isoformat()}
     tail = ("; ".join(answered),) if answered else ()
+    if result.computed and conflicts and answers.get("family_history_scd") is False:
+        other = hcm_risk_scd(**{**_model_args(i), "family_history_scd": True})
+        if other.computed:  # what the disputed answer is worth, beside the figure
+            common["conflicts"] = conflicts + (
+                f"With family history of SCD answered yes the estimate would be {other.risk_5y_pct:.2f}% "
+                f"(band {other.esc2014.label}, {other.esc2014.category}) instead of {result.risk_5y_pct:.2f}%.",)
     if result.computed:
         head = " ".join(prefix + [f"Estimated 5-year risk of sudden cardiac death: {result.risk_5y_pct:.2f}% "
                                   f"({MODEL_NAME}; inputs from the echo of {date.isoformat()})."])  # fmt: skip
