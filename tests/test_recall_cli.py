@@ -269,7 +269,7 @@ def test_upgrade_vus_to_lp_makes_untested_relatives_eligible(demo_db, run, tmp_p
 
 RECALL_KEYS = {"person", "family", "as_of", "rule_set", "rule_set_title", "policy", "status", "due", "days_overdue",
                "interval_months", "routine_due", "rule_id", "needs", "consider", "reason", "source", "fired",
-               "triggers", "flags", "notes", "state", "cautions", "trend_modifiers"}  # fmt: skip
+               "triggers", "flags", "notes", "state", "cautions", "trend_modifiers", "risk_scd"}  # fmt: skip
 
 
 def test_recall_carrier_child(rc_db, run):
