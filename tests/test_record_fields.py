@@ -440,3 +440,14 @@ def test_recall_of_the_demo_family_reads_the_recorded_sudden_death(demo_db, caps
                         "--json"))  # fmt: skip
     why = d["family_features"]["sudden_death"]
     assert "HV01-II-1 at 41 y" in why and "from the notes" not in why
+
+
+def test_trajectory_shows_the_family_history_check_beside_the_figure(demo_db, capsys, tmp_path):
+    import pypdf
+
+    info = json.loads(_cli(capsys, "report", "trajectory", "HV01-III-1", "--out", tmp_path, "--as-of", AS_OF,
+                           "--settings", SETTINGS, "--db", demo_db, "--json"))  # fmt: skip
+    text = " ".join(" ".join((p.extract_text() or "") for p in pypdf.PdfReader(info["file"]).pages).split())
+    assert "Estimated 5-year risk of sudden cardiac death" in text
+    assert "CHECK: family history of SCD answered no" in text and "father HV01-II-1" in text
+    assert info["risk"]["conflicts"] and info["risk"]["status"] == "computed"
