@@ -365,7 +365,7 @@ def test_sudden_death_of_a_full_sibling_and_of_a_child_count():
               _p("RF-4", "female", "1999", father="RF-2", vital="deceased", death="2016", cause="sudden")]  # fmt: skip
     r = _person_risk(people, [_a("RF-2", "2026-06-01", "affected", NO)], "RF-2")
     assert len(r.conflicts) == 3 and all(c.startswith("CONFLICT") for c in r.conflicts[:2])
-    assert "sibling RF-3: sudden death recorded, at 29-30 y" in r.conflicts[0]
+    assert "sibling RF-3: sudden death at 29-30 y" in r.conflicts[0]
 
 
 def test_conflict_shows_what_the_disputed_answer_is_worth():
@@ -374,7 +374,7 @@ def test_conflict_shows_what_the_disputed_answer_is_worth():
     r = _person_risk(*_family(35), "RF-2")
     expected = risk.risk_from_index(risk.prognostic_index(45, 20, 42, 30, True, False, False))
     assert expected == pytest.approx(3.51, abs=0.01)
-    assert f"answered yes the estimate would be {expected:.2f}%" in r.conflicts[-1]
+    assert f"Answered yes, the estimate would be {expected:.2f}%" in r.conflicts[-1]
 
 
 # --------------------------------------------------------------------------- the commands, on the demo families
@@ -421,7 +421,7 @@ def test_person_and_recall_show_risk_scd_with_the_family_history_check(demo_db, 
                              "--json"))  # fmt: skip
     for d in (person["risk_scd"], recall["risk_scd"]):
         assert d["status"] == "computed" and d["risk_5y_pct"] is not None
-        assert d["conflicts"] and "father HV01-II-1: sudden death recorded, at 41 y" in d["conflicts"][0]
+        assert d["conflicts"] and "father HV01-II-1: sudden death at 41 y" in d["conflicts"][0]
         assert d["inputs"]["family_history_scd"] is False and "Decision support only" in d["caution"]
     assert person["record"]["atrial_fibrillation"]["first_recorded_on"] == "2024-09-09"
     text = _cli(capsys, "person", "HV01-III-1", "--db", demo_db, "--settings", SETTINGS)

@@ -348,10 +348,9 @@ class SuddenDeath:
         return f"at {self.age_low}-{self.age_high} y"
 
     def text(self) -> str:
-        how = "notes mention a sudden death (cause of death not recorded)" if self.from_notes else \
-            "sudden death recorded"  # fmt: skip
+        how = "notes say sudden death (cause of death not recorded)" if self.from_notes else "sudden death"
         hcm = {"confirmed": "HCM confirmed", "absent": "assessed unaffected", "unknown": "HCM not recorded"}[self.hcm]
-        return f"{self.relation} {self.relative}: {how}, {self.age_text}, {hcm}"
+        return f"{self.relation} {self.relative}: {how} {self.age_text}, {hcm}"
 
 
 @dataclass(frozen=True)
@@ -499,7 +498,8 @@ def family_history_conflicts(answer: bool | None, deaths: list[SuddenDeath]) -> 
     """Where the recorded family-history answer and the pedigree disagree, or may disagree.
 
     A "yes" with no sudden death recorded is not a conflict (relatives may be missing from the
-    record); a "no" beside a recorded sudden death that meets, or may meet, the definition is.
+    record); a "no" (or no answer) beside a recorded sudden death that meets, or may meet, the
+    definition (:data:`FHX_SCD_DEFINITION`) is.
     """
     out = []
     shown = "not recorded" if answer is None else ("yes" if answer else "no")
@@ -507,14 +507,13 @@ def family_history_conflicts(answer: bool | None, deaths: list[SuddenDeath]) -> 
         if d.counts == "no" or answer is True:
             continue
         if d.counts == "yes":
-            verdict = "meets the definition" if answer is False else "would meet the definition"
             lead = "CONFLICT" if answer is False else "CHECK"
+            verdict = (f"{'meets' if answer is False else 'would meet'} the definition (ESC 2023 [V]: a first-degree "
+                       f"relative under {FHX_SCD_AGE_LIMIT_YEARS} y, or any age with confirmed HCM)")  # fmt: skip
         else:
-            lead, verdict = "CHECK", (
-                f"counts only if under {FHX_SCD_AGE_LIMIT_YEARS} y or with confirmed HCM: verify"
-            )
-        out.append(f"{lead}: family history of SCD answered {shown}, but the record holds: {d.text()}; "
-                   f"this {verdict} ({FHX_SCD_DEFINITION}; ESC 2023 [V]).")  # fmt: skip
+            lead = "CHECK"
+            verdict = f"counts only if under {FHX_SCD_AGE_LIMIT_YEARS} y or with confirmed HCM (ESC 2023 [V]): verify"
+        out.append(f"{lead}: family history of SCD answered {shown}, but the record holds {d.text()}; {verdict}.")
     return tuple(out)
 
 
@@ -641,11 +640,10 @@ def person_risk_scd(person: str, *, affected_status: str | None, assessed, answe
         other = hcm_risk_scd(**{**_model_args(i), "family_history_scd": True})
         if other.computed:  # what the disputed answer is worth, beside the figure
             common["conflicts"] = conflicts + (
-                f"With family history of SCD answered yes the estimate would be {other.risk_5y_pct:.2f}% "
-                f"(band {other.esc2014.label}, {other.esc2014.category}) instead of {result.risk_5y_pct:.2f}%.",)
+                f"Answered yes, the estimate would be {other.risk_5y_pct:.2f}% ({other.esc2014.label}).",)
     if result.computed:
         head = " ".join(prefix + [f"Estimated 5-year risk of sudden cardiac death: {result.risk_5y_pct:.2f}% "
-                                  f"({MODEL_NAME}; inputs from the echo of {date.isoformat()})."])  # fmt: skip
+                                  f"(HCM Risk-SCD, O'Mahony et al. 2014; echo of {date.isoformat()})."])  # fmt: skip
         if has_icd:  # the band only, without the ICD advice written for people without one
             bands = tuple(f"{b.guideline} band: {b.label} ({b.category}); the band's ICD advice is for people "
                           "without an ICD and is not shown" for b in (result.esc2014, result.esc2023) if b)  # fmt: skip
