@@ -451,3 +451,12 @@ def test_trajectory_shows_the_family_history_check_beside_the_figure(demo_db, ca
     assert "Estimated 5-year risk of sudden cardiac death" in text
     assert "CHECK: family history of SCD answered no" in text and "father HV01-II-1" in text
     assert info["risk"]["conflicts"] and info["risk"]["status"] == "computed"
+
+
+def test_never_assessed_reads_as_such(demo_db, capsys):
+    d = json.loads(_cli(capsys, "person", "HV01-II-1", "--db", demo_db, "--settings", SETTINGS, "--json"))
+    assert d["risk_scd"]["status"] == "not applicable" and "never assessed" in d["risk_scd"]["headline"]
+    assert d["record"]["death_cause"] == "sudden" and d["record"]["death_age"] == 41
+    r = risk.person_risk_scd("X", affected_status=float("nan"), assessed=None, answers={}, answered=[],
+                             people=pd.DataFrame(columns=PEOPLE_COLS), hcm={})  # fmt: skip
+    assert "never assessed" in r.headline

@@ -268,8 +268,8 @@ def _person_data(code: str, data: dict, settings, horizon: float) -> dict[str, A
         studies.append(s)
     conversion = _records(conv, CONVERSION_KEYS)[0] if len(conv) else None
     identity = _identity(code, people, ctx, dt.date.today())
-    pr = RK.person_risk(code, people[people["family"] == family], data["assessments"], identity["affected_status"],
-                        dt.date.today(), assessed=a)  # fmt: skip
+    pr = RK.person_risk(code, people[people["family"] == family], data["assessments"],
+                        _clean(identity["affected_status"]), dt.date.today(), assessed=a)  # fmt: skip
     return {
         **{k: _clean(v) for k, v in identity.items()},
         "record": _record(code, people, data["assessments"]),

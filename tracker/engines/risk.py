@@ -573,6 +573,7 @@ def person_risk_scd(person: str, *, affected_status: str | None, assessed, answe
     the output says the person already has an ICD.  A prior arrest or sustained VT refuses the
     figure (secondary prevention).  Neither ever says an ICD is "not indicated".
     """
+    affected_status = None if _blank(affected_status) else affected_status
     row = next(iter(people[people["person"] == person].to_dict("records")), None)
     device, has_icd = _device(row, as_of)
     secondary = answers.get("prior_arrest_or_sustained_vt") is True
