@@ -177,6 +177,8 @@ add("people_pacemaker_after_death.csv", "people",
     "after the date of death", header=PR)
 add("people_pacemaker_bad_date.csv", "people", person_record(pacemaker="03/2020"), 2, "pacemaker_date",
     "not an ISO 8601 date", header=PR)
+add("people_diagnosis_place_too_long.csv", "people", person_record(diagnosis_age="20", place="x" * 201), 2,
+    "diagnosis_place", "longer than 200 characters", header=PR)
 add("assessments_bad_atrial_fibrillation.csv", "assessments", ass() + ",paroxysmal", 2, "atrial_fibrillation",
     "not yes, no or empty", header=H["assessments"] + ",atrial_fibrillation")
 add("assessments_bad_status.csv", "assessments", ass(status="affected?"), 2, "affected_status", "not one of")
