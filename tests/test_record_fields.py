@@ -460,3 +460,10 @@ def test_never_assessed_reads_as_such(demo_db, capsys):
     r = risk.person_risk_scd("X", affected_status=float("nan"), assessed=None, answers={}, answered=[],
                              people=pd.DataFrame(columns=PEOPLE_COLS), hcm={})  # fmt: skip
     assert "never assessed" in r.headline
+
+
+def test_a_sudden_death_only_in_the_notes_asks_to_record_and_verify():
+    people = [_p("RF-1", "male", "1940", vital="deceased", death="1975", notes="Sudden death at 35 while running"),
+              _p("RF-2", "male", "1972-05-05", father="RF-1", proband=True)]  # fmt: skip
+    r = _person_risk(people, [_a("RF-2", "2026-06-01", "affected", NO)], "RF-2")
+    assert r.conflicts[0].startswith("CHECK:") and "notes say sudden death (cause of death not recorded)" in r.conflicts[0]
