@@ -243,6 +243,13 @@ class Person:
     contact_status_date: str = ""
     notes: str = ""
     gender_identity: str = ""
+    # Recorded as fields (schema revision 0006), not only in the notes.
+    death_cause: str = ""  # sudden, cardiac_non_sudden, non_cardiac, unknown
+    death_age: str = ""  # whole years
+    diagnosis_age: str = ""  # whole years at diagnosis of HCM, possibly at another centre
+    diagnosis_place: str = ""
+    icd_date: str = ""
+    pacemaker_date: str = ""
 
 
 P = Person
@@ -252,13 +259,15 @@ PEOPLE: list[Person] = [
     P("HV01-I-2", "HV01", "Edith", "Thornbury", "female", "1912", "deceased", "1990", placeholder=True),
     P("HV01-II-1", "HV01", "Walter", "Thornbury", "male", "1938", "deceased", "1979-06-02",
       mother="HV01-I-2", father="HV01-I-1",
+      death_cause="sudden", death_age="41",
       notes="Sudden cardiac death while gardening, aged about 41; no post-mortem. Obligate carrier."),
     P("HV01-II-2", "HV01", "Margaret", "Farrant", "female", "1942-04-11",
       notes="Married into the family; remarried after 1979. Tested non-carrier 2012: the variant is paternal."),
     P("HV01-II-3", "HV01", "Leonard", "Farrant", "male", "1936", "deceased", "2019-01-23",
       notes="Second husband of HV01-II-2."),
     P("HV01-II-4", "HV01", "Joan", "Thornbury", "female", "1940", "deceased", "2003",
-      mother="HV01-I-2", father="HV01-I-1", notes="Died 2003 after a stroke, per family; never assessed."),
+      mother="HV01-I-2", father="HV01-I-1", death_cause="non_cardiac",
+      notes="Died 2003 after a stroke, per family; never assessed."),
     P("HV01-III-1", "HV01", "Graham", "Thornbury", "male", "1964-09-23",
       mother="HV01-II-2", father="HV01-II-1", proband=True,
       contact_status="contactable", contact_status_date="2012-04-16",
@@ -307,7 +316,8 @@ PEOPLE: list[Person] = [
       mother="HV02-II-2", father="HV02-II-1", proband=True,
       twin_of="HV02-III-2", twin_type="monozygotic",
       contact_status="contactable", contact_status_date="2014-03-10",
-      notes="Index case, diagnosed 2014 aged 34."),
+      diagnosis_age="34", diagnosis_place="Carnmoor District Hospital (referring centre)",
+      notes="Index case, diagnosed 2014 aged 34 at the referring hospital."),
     P("HV02-III-2", "HV02", "Morwenna", "Okafor", "female", "1979-11-03",
       mother="HV02-II-2", father="HV02-II-1",
       twin_of="HV02-III-1", twin_type="monozygotic",
@@ -382,6 +392,7 @@ PEOPLE: list[Person] = [
     P("HV04-III-1", "HV04", "Tomasz", "Kowalczyk", "male", "1975-01-30",
       mother="HV04-II-2", father="HV04-II-1", proband=True,
       contact_status="contactable", contact_status_date="2013-10-07",
+      icd_date="2013-12-09",
       notes="Index case: exertional syncope 2013, ICD implanted after the baseline CMR."),
     P("HV04-III-2", "HV04", "Anna", "Kowalczyk", "female", "1976-07-04", notes="Wife of the proband; married in."),
     P("HV04-III-3", "HV04", "Ewa", "Nowicka", "female", "1978-08-19",
@@ -400,6 +411,7 @@ PEOPLE: list[Person] = [
       notes="At risk, untested: family chose clinical screening until she can decide."),
     # ---- HV05 Brennan / Shaw: no variant found ---------------------------
     P("HV05-I-1", "HV05", "Patrick", "Brennan", "male", "1940", "deceased", "2009",
+      death_cause="unknown", death_age="69",
       notes="Died 2009 aged about 69, 'heart failure', cause unclear; no post-mortem."),
     P("HV05-I-2", "HV05", "Maureen", "Brennan", "female", "1944-01-20",
       contact_status="contactable", contact_status_date="2017-08-14",
@@ -993,7 +1005,7 @@ def build() -> tuple[list[Study], list[dict]]:
                 person=person.person, assessment_date=day.isoformat(), affected_status=status,
                 symptoms=symptoms_at(prof, month), competitive_athlete=yn(athlete),
                 pregnant=yn(pregnant), hypertension=yn(hyper), notes=prof.notes.get(month, ""),
-                **risk_answers(status),
+                **risk_answers(status), atrial_fibrillation=af_answer(symptoms_at(prof, month)),
             ))
     return studies, assessments
 
@@ -1012,6 +1024,11 @@ def risk_answers(status: str) -> dict[str, str]:
     """
     value = "no" if status == "affected" else ""
     return {c: value for c in RISK_ANSWER_COLUMNS}
+
+
+def af_answer(symptoms: str) -> str:
+    """Atrial fibrillation at an assessment: "yes" once documented (the symptoms name it), else not recorded."""
+    return "yes" if "atrial fibrillation" in symptoms else ""
 
 
 # ---------------------------------------------------------------------------
@@ -1281,7 +1298,8 @@ def main() -> None:
               [dict(family=f, condition=CONDITION, notes=n) for f, n in FAMILIES])
     people_cols = ["person", "family", "given_name", "family_name", "sex_at_birth", "gender_identity",
                    "birth_date", "vital_status", "death_date", "mother", "father", "placeholder", "proband",
-                   "twin_of", "twin_type", "adoption", "contact_status", "contact_status_date", "notes"]
+                   "twin_of", "twin_type", "adoption", "contact_status", "contact_status_date", "notes",
+                   "death_cause", "death_age", "diagnosis_age", "diagnosis_place", "icd_date", "pacemaker_date"]
     people_rows = []
     for p in PEOPLE:
         row = {c: getattr(p, c) for c in people_cols}
@@ -1297,7 +1315,7 @@ def main() -> None:
                     report_reference=g[5]) for g in GENETIC_RESULTS])
     write_csv("assessments.csv", ["person", "assessment_date", "affected_status", "symptoms",
                                   "competitive_athlete", "pregnant", "hypertension", "notes",
-                                  *RISK_ANSWER_COLUMNS], assessments)  # fmt: skip
+                                  *RISK_ANSWER_COLUMNS, "atrial_fibrillation"], assessments)  # fmt: skip
     study_rows = []
     for s in sorted(studies, key=lambda s: (s.person, s.day, s.modality)):
         base = dict(person=s.person, study_date=s.day.isoformat(), modality=s.modality, site=s.site,

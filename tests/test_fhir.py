@@ -358,12 +358,49 @@ def test_hcm_condition_only_where_the_latest_assessment_is_affected(exported, fr
     affected = set(a.loc[a["affected_status"] == "affected", "person"])
     assert "HV01-IV-2" in affected and "HV01-IV-1" not in affected  # demo data, see assessments.csv
     for person, hist in h.items():
+        hcm = [c for c in hist.condition or [] if _codes(c.code, "http://snomed.info/sct") == [SNOMED_HCM]]
         if person in affected:
-            (cond,) = hist.condition
-            assert _codes(cond.code, "http://snomed.info/sct") == [SNOMED_HCM]
+            (cond,) = hcm
             assert _codes(cond.code, "http://human-phenotype-ontology.org") == [HPO_HCM]
         else:
-            assert not hist.condition
+            assert not hcm
+
+
+def test_recorded_sudden_death_and_diagnosis_age_are_conditions_with_their_onset():
+    """Invented rows: a father with a recorded sudden death at 41 (cause and age of death as fields), a mother
+    diagnosed with HCM at 52 elsewhere and never assessed here.  HPO HP:0001645 Sudden cardiac death
+    (standards.md 4c [V]); FHIR R4 FamilyMemberHistory.condition.onsetAge and contributedToDeath."""
+    people = pd.DataFrame(
+        [
+            {"person": "Y-1", "family": "Y", "sex_at_birth": "male", "birth_date": "1938",
+             "vital_status": "deceased", "death_date": None, "death_cause": "sudden", "death_age": 41.0,
+             "proband": False, "placeholder": False, "mother": None, "father": None},
+            {"person": "Y-2", "family": "Y", "sex_at_birth": "female", "birth_date": "1940",
+             "vital_status": "alive", "death_date": None, "diagnosis_age": 52.0, "proband": False,
+             "placeholder": False, "mother": None, "father": None},
+            {"person": "Y-3", "family": "Y", "sex_at_birth": "male", "birth_date": "1965",
+             "vital_status": "alive", "death_date": None, "proband": True, "placeholder": False,
+             "mother": "Y-2", "father": "Y-1"},
+        ]
+    )  # fmt: skip
+    empty = {
+        "variants": pd.DataFrame(columns=["family", "gene", "transcript", "hgvs_c", "hgvs_p", "zygosity",
+                                          "acmg_class", "classified_on", "reason"]),
+        "results": pd.DataFrame(columns=["person", "test_date", "test_type", "variant", "result", "lab",
+                                         "report_reference"]),
+        "assessments": pd.DataFrame(columns=["person", "assessment_date", "affected_status"]),
+        "studies": pd.DataFrame(columns=["person", "study_date", "modality", "measure", "value", "unit"]),
+        "measures": pd.DataFrame(columns=["code", "label", "unit", "loinc"]),
+    }
+    families = pd.DataFrame([{"family": "Y", "condition": "hypertrophic cardiomyopathy"}])
+    parsed = Bundle.model_validate_json(fhir.bundle_json(fhir.build_family_bundle("Y", families, people, **empty)))
+    h = _histories(parsed)
+    (scd,) = h["Y-1"].condition
+    assert _codes(scd.code, "http://human-phenotype-ontology.org") == ["HP:0001645"]
+    assert scd.contributedToDeath is True and scd.onsetAge.value == 41 and scd.onsetAge.code == "a"
+    assert h["Y-1"].deceasedAge.value == 41  # no date of death recorded: the age at death
+    (hcm,) = h["Y-2"].condition
+    assert _codes(hcm.code, "http://snomed.info/sct") == [SNOMED_HCM] and hcm.onsetAge.value == 52
 
 
 def test_year_only_dates_and_vital_status():

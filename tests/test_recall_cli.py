@@ -276,7 +276,7 @@ def test_upgrade_vus_to_lp_makes_untested_relatives_eligible(demo_db, run, tmp_p
 RECALL_KEYS = {"person", "family", "as_of", "rule_set", "rule_set_title", "policy", "status", "due", "days_overdue",
                "interval_months", "routine_due", "rule_id", "needs", "consider", "reason", "source", "fired",
                "triggers", "flags", "notes", "state", "cautions", "trend_modifiers", "never_screened", "eligible_since",
-               "gap_reason", "waiting", "release_basis"}  # fmt: skip
+               "gap_reason", "waiting", "release_basis", "risk_scd"}  # fmt: skip
 
 
 def test_recall_carrier_child(rc_db, run):

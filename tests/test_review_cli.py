@@ -21,6 +21,7 @@ PERSON_KEYS = {
     "placeholder", "genotype_status", "genotype_reason", "variant", "variant_class", "affected_status",
     "affected_status_date", "first_degree_relative_of_affected", "affected_first_degree_relatives",
     "guideline", "horizon_years", "bsa_formula", "studies", "trends", "conversion", "not_pooled", "caution", "review_flags",
+    "record", "risk_scd",
 }  # fmt: skip
 TRENDS_KEYS = {"guideline", "horizon_years", "family", "measure", "rows", "not_pooled", "caution"}
 

@@ -674,6 +674,9 @@ def generate(families: int, seed: int) -> Cohort:
         "proband": np.where(is_proband[fa, sa], "yes", "no").astype(object),
         "twin_of": None, "twin_type": None, "adoption": None, "contact_status": cstat,
         "contact_status_date": np.where(pd.notna(cstat), _iso(cdate_day), None), "notes": None,
+        # Recorded fields of schema revision 0006: not generated (empty).
+        "death_cause": None, "death_age": None, "diagnosis_age": None, "diagnosis_place": None, "icd_date": None,
+        "pacemaker_date": None,
     })  # fmt: skip
 
     # ---- families.csv and variants.csv
@@ -763,6 +766,7 @@ def generate(families: int, seed: int) -> Cohort:
     for answer in ("family_history_scd", "nsvt", "unexplained_syncope", "prior_arrest_or_sustained_vt",
                    "metabolic_or_syndromic"):  # fmt: skip
         assessments_df[answer] = np.where(status == "affected", "no", None).astype(object)
+    assessments_df["atrial_fibrillation"] = None  # not generated (schema revision 0006)
 
     # ---- studies.csv (long layout), ordered by person, date, modality, measure
     st_code = person_code[fi[st_p], si[st_p]]

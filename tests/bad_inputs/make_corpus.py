@@ -28,6 +28,14 @@ def person(code="T1-20", family="FAM-T1", sex="female", birth="1999-05-05", vita
                      proband, twin, twin_type, adoption, contact, contact_date, notes])  # fmt: skip
 
 
+# The people layout with the recorded cause and age of death, age at diagnosis and device dates.
+H["people_record"] = H["people"] + ",death_cause,death_age,diagnosis_age,diagnosis_place,icd_date,pacemaker_date"
+
+
+def person_record(cause="", death_age="", diagnosis_age="", place="", icd="", pacemaker="", **kw):
+    return person(**kw) + "," + ",".join([cause, death_age, diagnosis_age, place, icd, pacemaker])
+
+
 def study(person="T1-06", date="2025-01-10", modality="echo", site="Invented Vale Hospital", h="175",
           w="65", measure="mwt_echo", value="12.0", unit="mm"):  # fmt: skip
     return ",".join([person, date, modality, site, h, w, measure, value, unit])
@@ -142,6 +150,37 @@ add("genetic_predictive_no_variant_found.csv", "genetic-results", gr(variant="",
     "only for a diagnostic panel")
 add("genetic_carrier_without_variant.csv", "genetic-results", gr(variant=""), 2, "variant", "is required")
 add("genetic_malformed_variant.csv", "genetic-results", gr(variant="MYBPC3 c.1504C>T"), 2, "variant", "transcript:c.change")
+PR = H["people_record"]
+add("people_death_cause_alive.csv", "people", person_record(cause="sudden"), 2, "death_cause",
+    "vital_status is not deceased", header=PR)
+add("people_bad_death_cause.csv", "people", person_record(vital="deceased", death="2020", cause="heart attack"), 2,
+    "death_cause", "not one of", header=PR)
+add("people_death_age_alive.csv", "people", person_record(death_age="20"), 2, "death_age",
+    "vital_status is not deceased", header=PR)
+add("people_death_age_against_dates.csv", "people",
+    person_record(vital="deceased", death="2020-01-01", cause="sudden", death_age="25"), 2, "death_age",
+    "does not agree with the dates of birth and death", header=PR)
+add("people_death_age_fraction.csv", "people", person_record(vital="deceased", death="", death_age="20.5"), 2,
+    "death_age", "not a whole number of years", header=PR)
+add("people_death_age_too_high.csv", "people", person_record(vital="deceased", death="", death_age="140"), 2,
+    "death_age", "outside 0-130 years", header=PR)
+add("people_diagnosis_age_above_age.csv", "people", person_record(diagnosis_age="40"), 2, "diagnosis_age",
+    "is above the person's age", header=PR)
+add("people_diagnosis_age_above_death_age.csv", "people",
+    person_record(vital="deceased", death="", death_age="19", diagnosis_age="21"), 2, "diagnosis_age",
+    "is above the age at death", header=PR)
+add("people_icd_before_birth.csv", "people", person_record(icd="1998"), 2, "icd_date", "before the date of birth",
+    header=PR)
+add("people_icd_future.csv", "people", person_record(icd="2099-01-01"), 2, "icd_date", "in the future", header=PR)
+add("people_pacemaker_after_death.csv", "people",
+    person_record(vital="deceased", death="2019-03-01", pacemaker="2020-02-02"), 2, "pacemaker_date",
+    "after the date of death", header=PR)
+add("people_pacemaker_bad_date.csv", "people", person_record(pacemaker="03/2020"), 2, "pacemaker_date",
+    "not an ISO 8601 date", header=PR)
+add("people_diagnosis_place_too_long.csv", "people", person_record(diagnosis_age="20", place="x" * 201), 2,
+    "diagnosis_place", "longer than 200 characters", header=PR)
+add("assessments_bad_atrial_fibrillation.csv", "assessments", ass() + ",paroxysmal", 2, "atrial_fibrillation",
+    "not yes, no or empty", header=H["assessments"] + ",atrial_fibrillation")
 add("assessments_bad_status.csv", "assessments", ass(status="affected?"), 2, "affected_status", "not one of")
 add("assessments_bad_yesno.csv", "assessments", ass(ath="sometimes"), 2, "competitive_athlete", "not yes or no")
 add("assessments_missing_date.csv", "assessments", ass(date=""), 2, "assessment_date", "is empty")

@@ -105,6 +105,7 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
             results = repo.load_genetic_results(conn)
             findings += dc.pedigree_findings(people)
             findings += dc.date_findings(people, studies, assessments, results)
+            findings += dc.record_findings(people)
             findings += dc.range_findings(studies, repo.load_measures(conn))
             findings += dc.placeholder_findings(people, studies, assessments, results)
             findings += _recall_findings(people, repo.load_variants(conn), results, assessments, studies)

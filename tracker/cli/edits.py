@@ -62,7 +62,8 @@ def _show(change: edits.Change, json_out: bool) -> None:
 def edit_person(person: PersonArg, sets: Sets, reason: Reason, user: UserOption = None, db: DbOption = None,
                 json_out: JsonOption = False) -> None:  # fmt: skip
     """Correct fields of a person: names, sex_at_birth, birth_date, vital_status, death_date, mother, father,
-    twin_of, contact_status, contact_status_date, notes, ...
+    twin_of, contact_status, contact_status_date, notes, death_cause, death_age, diagnosis_age,
+    diagnosis_place, icd_date, pacemaker_date, ...
 
     Example: tracker edit person HV01-III-4 --set vital_status=deceased --set death_date=2026-10-02 --reason "GP letter"
     """
@@ -97,7 +98,8 @@ def edit_assessment(
 ) -> None:
     """Correct or complete an assessment: affected_status, symptoms, competitive_athlete, pregnant, hypertension,
     notes, and the HCM Risk-SCD answers (family_history_scd, nsvt, unexplained_syncope,
-    prior_arrest_or_sustained_vt, metabolic_or_syndromic: yes, no, or empty = not recorded).
+    prior_arrest_or_sustained_vt, metabolic_or_syndromic: yes, no, or empty = not recorded), and
+    atrial_fibrillation (yes, no, or empty).
 
     Example: tracker edit assessment HV01-IV-2 2026-06-05 --set nsvt=yes --reason "48-h Holter 2026-06-20"
     """

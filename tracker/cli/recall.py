@@ -23,6 +23,7 @@ import pandas as pd
 import typer
 from sqlalchemy import Connection, insert, select, update
 
+from tracker.cli import risk_view as RK
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json, print_table
 from tracker.gcpause import gc_paused
 from tracker.domain.dates import parse_date
@@ -816,6 +817,7 @@ def recall(
     result["policy"] = policy.point
     result["trend_modifiers"] = trend
     result["release_basis"] = _release_basis(st, person)
+    result["risk_scd"] = _risk_scd(frames, person, fam.iloc[0], st, on)
     if json_out:
         print_json(result)
         return
@@ -847,8 +849,20 @@ def recall(
     typer.echo(f"note: {trend['note']}")
     if trend.get("lsc_note"):
         typer.echo(f"note: {trend['lsc_note']}")
+    for line in RK.text_lines(result["risk_scd"]):
+        typer.echo(line)
     for c in result["cautions"]:
         typer.echo(f"caution: {c}")
+
+
+def _risk_scd(frames: _Frames, person: str, family: str, st: fs.FamilyState, on: dt.date) -> dict:
+    """HCM Risk-SCD of the person from the records up to ``on``, as `tracker person` shows it."""
+    people = frames.people[frames.people["family"] == family]
+    facts = st.facts.get(person)
+    pr = RK.person_risk(person, people, fs.records_up_to(frames.assessments, "assessment_date", on),
+                        facts.affected_status if facts else None, on,
+                        studies=fs.records_up_to(frames.studies, "study_date", on))  # fmt: skip
+    return pr.as_dict()
 
 
 # --------------------------------------------------------------------------- worklist

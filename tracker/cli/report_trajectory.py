@@ -36,6 +36,7 @@ import typer
 
 from tracker.cli import recall as R
 from tracker.cli import review as RV
+from tracker.cli import risk_view as RK
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
 from tracker.engines import family_state as fs
 from tracker.engines import review, risk, trends
@@ -189,89 +190,9 @@ def _conversion(conv: pd.DataFrame) -> str:
     return f"Conversion: criteria not met at {c['n_assessed_studies']} assessed studies."
 
 
-def _answers(assessments: pd.DataFrame | None, person: str) -> tuple[dict[str, bool | None], list[str]]:
-    """The latest recorded answer of each Risk-SCD question (None: never recorded), with its date."""
-    answers: dict[str, bool | None] = {a: None for a in repo.RISK_ANSWERS}
-    answers["competitive_athlete"] = None
-    dates: dict[str, list[str]] = {}
-    if assessments is None or not len(assessments):
-        return answers, []
-    mine = assessments[assessments["person"] == person].sort_values("assessment_date")
-    for name in answers:
-        if name not in mine.columns:
-            continue
-        known = mine[mine[name].notna()]
-        if len(known):
-            answers[name] = bool(known[name].iloc[-1])
-            dates.setdefault(known["assessment_date"].iloc[-1], []).append(name)
-    if len(dates) == 1:
-        return answers, [f"answers as recorded at the assessment of {next(iter(dates))}"]
-    return answers, [f"{', '.join(n.replace('_', ' ') for n in names)} as recorded at the assessment of {d}"
-                     for d, names in sorted(dates.items())]  # fmt: skip
-
-
-def _risk(a: pd.DataFrame, identity: dict, answers: dict[str, bool | None]
-          ) -> tuple[T.RiskSection, risk.RiskSCDResult | None]:  # fmt: skip
-    status = identity.get("affected_status")
-    if status != "affected":
-        return T.RiskSection("not applicable", "Not estimated: HCM Risk-SCD is for patients with HCM, and this person "
-                             f"is not recorded as affected (latest status: {status or 'never assessed'})."), None  # fmt: skip
-    echo = a[(a["modality"] == "echo") & (a["measure"] == "mwt_echo")] if a is not None else None
-    if echo is None or echo.empty:
-        return T.RiskSection("refused", "Not computed: no echo maximal wall thickness recorded. No figure is given.",
-                             reasons=("missing: mwt_mm",), validated_ranges=risk.VALIDATED_RANGES_TEXT,
-                             caution=risk.CAUTION, model=risk.MODEL_NAME), None  # fmt: skip
-    date = echo["study_date"].max()
-    at = a[(a["study_date"] == date) & (a["modality"] == "echo")].set_index("measure")["value"]
-    age = float(echo.loc[echo["study_date"] == date, "age_years"].iloc[0])
-    rest, valsalva, prov = _f(at.get("lvot_rest")), _f(at.get("lvot_valsalva")), _f(at.get("lvot_provoked"))
-    notes = []
-    if valsalva is not None:
-        lvot = risk.lvot_max_for_risk_scd(rest, valsalva)
-    elif prov is not None:
-        # The model's provoked input is the Valsalva gradient; lvot_provoked does not say how it was provoked.
-        lvot = None
-        notes.append("the provoked LVOT gradient of this echo (lvot_provoked) does not state the manoeuvre; the model "
-                     "needs the Valsalva gradient: record it as lvot_valsalva")  # fmt: skip
-    else:
-        lvot = risk.lvot_max_for_risk_scd(rest, None)
-        if rest is not None:
-            notes.append("no Valsalva gradient recorded at this echo: the rest gradient is used")
-    result = risk.hcm_risk_scd(
-        age_years=age, mwt_mm=_f(at.get("mwt_echo")), la_diameter_mm=_f(at.get("la_diam")), lvot_max_mmhg=lvot,
-        family_history_scd=answers["family_history_scd"], nsvt=answers["nsvt"],
-        unexplained_syncope=answers["unexplained_syncope"],
-        prior_cardiac_arrest_or_sustained_vt=answers["prior_arrest_or_sustained_vt"],
-        competitive_athlete=answers["competitive_athlete"],
-        metabolic_infiltrative_or_syndromic=answers["metabolic_or_syndromic"],
-    )  # fmt: skip
-
-    def yn(v: object) -> str:
-        return "not recorded" if v is None else ("yes" if v else "no")
-
-    i = result.inputs
-    inputs = (
-        f"echo {date.isoformat()}", f"age {age:.1f} y", f"maximal wall thickness {T.number(i['mwt_mm'], 'mm') or 'missing'}",
-        f"LA diameter {T.number(i['la_diameter_mm'], 'mm') or 'missing'}",
-        f"maximal LVOT gradient {T.number(i['lvot_max_mmhg'], 'mmHg') or 'missing'}",
-        f"family history of SCD {yn(i['family_history_scd'])}", f"NSVT {yn(i['nsvt'])}",
-        f"unexplained syncope {yn(i['unexplained_syncope'])}",
-        f"prior cardiac arrest or sustained VT {yn(i['prior_cardiac_arrest_or_sustained_vt'])}",
-        f"competitive athlete {yn(i['competitive_athlete'])}",
-        f"metabolic/infiltrative disease or syndrome {yn(i['metabolic_infiltrative_or_syndromic'])}",
-    )  # fmt: skip
-    if result.computed:
-        head = (f"Estimated 5-year risk of sudden cardiac death: {result.risk_5y_pct:.2f}% "
-                f"({risk.MODEL_NAME}; inputs from the echo of {date.isoformat()}).")  # fmt: skip
-        bands = tuple(f"{b.guideline} band: {b.wording}" for b in (result.esc2014, result.esc2023) if b)
-        section = T.RiskSection("computed", head, result.risk_5y_pct, inputs, tuple(notes), bands,
-                                risk.VALIDATED_RANGES_TEXT, risk.CAUTION, risk.MODEL_NAME)  # fmt: skip
-    else:
-        head = ("Not computed: an input is missing, outside the model's validated range, or an exclusion applies "
-                "(reasons below). No figure is given.")  # fmt: skip
-        section = T.RiskSection("refused", head, None, inputs, tuple(notes) + result.refusal_reasons, (),
-                                risk.VALIDATED_RANGES_TEXT, risk.CAUTION, risk.MODEL_NAME)  # fmt: skip
-    return section, result
+def risk_section(pr: risk.PersonRisk) -> T.RiskSection:
+    return T.RiskSection(pr.status, pr.headline, pr.risk_5y_pct, pr.inputs_text, pr.reasons, pr.bands,
+                         pr.validated_ranges, pr.caution, pr.model, conflicts=pr.conflicts)  # fmt: skip
 
 
 def _strain(m: pd.DataFrame, a: pd.DataFrame) -> tuple[T.StrainMap | None, str]:
@@ -382,17 +303,16 @@ def trajectory_report(
                notes_shown=[n for n in rec["notes"] if n not in rec["reason"]] + [trend_note["note"]])  # fmt: skip
 
     # --- risk
-    answers, answered = _answers(assessments, person)
-    risk_section, risk_result = _risk(a, identity, answers)
-    if answered and risk_section.status != "not applicable":
-        risk_section = dataclasses.replace(risk_section, reasons=risk_section.reasons + ("; ".join(answered),))
+    pr = RK.person_risk(person, people[people["family"] == family], assessments, identity.get("affected_status"), on,
+                        assessed=a)
+    risk_shown = risk_section(pr)
 
     short = gid.replace("_", " ").upper().replace("AHA ACC", "AHA/ACC")
     strain, strain_note = _strain(m, a) if a is not None else (None, "No segmental strain values recorded.")
     doc = T.TrajectoryDocument(
         identity=identity, guideline=f"{g['id']}: {g['name']}", clinic=conf.clinic.name, as_of=on,
         generated=dt.date.today(), flags=_flags(trend_records), conversion=_conversion(conv) if a is not None else "",
-        recall=rec, risk=risk_section, charts=_charts(a, trend_rows, short) if a is not None else (),
+        recall=rec, risk=risk_shown, charts=_charts(a, trend_rows, short) if a is not None else (),
         tables=_tables(a, labels) if a is not None else (), strain=strain, strain_note=strain_note,
         sources=_sources(a) if a is not None else (),
         notes=(review.NOT_POOLED, *RV.lsc_default_notes(trend_records),
@@ -415,9 +335,7 @@ def trajectory_report(
                 "guideline": gid,
                 "recall": {k: rec.get(k) for k in ("status", "due", "interval_months", "rule_set", "rule_id",
                                                    "reason", "source")},  # fmt: skip
-                "risk": {"status": risk_section.status, "risk_5y_pct": risk_section.risk_5y_pct,
-                         "reasons": list(risk_section.reasons),
-                         "inputs": risk_result.inputs if risk_result is not None else None},  # fmt: skip
+                "risk": {**pr.as_dict(), "inputs": pr.inputs or None},
                 "flags": [f.text for f in doc.flags],
                 "review_flags": rec["state"]["review_flags"] if rec.get("state") else [],
                 "conversion": doc.conversion,
@@ -432,8 +350,12 @@ def trajectory_report(
     typer.echo(f"recall: {rec['status']}" + (f", due {rec['due']}" if rec["due"] else "")
                + (f", every {rec['interval_months']} months" if rec["interval_months"] else "")
                + f"; rule set {rule_set.title}")  # fmt: skip
-    typer.echo(f"HCM Risk-SCD: {risk_section.status}"
-               + (f", {risk_section.risk_5y_pct:.2f}% at 5 years" if risk_section.risk_5y_pct is not None else ""))  # fmt: skip
+    typer.echo(f"HCM Risk-SCD: {pr.status}" + (f", {pr.risk_5y_pct:.2f}% at 5 years" if pr.risk_5y_pct is not None
+                                               else ""))  # fmt: skip
+    if pr.device:
+        typer.echo(f"HCM Risk-SCD: {pr.headline}")
+    for c in pr.conflicts:
+        typer.echo(f"HCM Risk-SCD: {c}")
     typer.echo(T.PAGE_CAUTION)
 
 

@@ -17,6 +17,7 @@ import typer
 from rich.console import Console
 from rich.table import Table
 
+from tracker.cli import risk_view as RK
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
 from tracker.domain.dates import age_at, parse_partial_date
 from tracker.engines import review
@@ -220,6 +221,46 @@ def _identity(code: str, people: pd.DataFrame, ctx: pd.DataFrame, today: dt.date
     }
 
 
+RECORD_KEYS = ["death_cause", "death_age", "diagnosis_age", "diagnosis_place", "icd_date", "pacemaker_date"]
+
+
+def _record(code: str, people: pd.DataFrame, assessments: pd.DataFrame | None) -> dict[str, Any]:
+    """Cause and age of death, diagnosis (possibly elsewhere), devices, and atrial fibrillation (the latest
+    recorded answer and the first assessment recording it)."""
+    p = people.set_index("person").loc[code]
+    out = {k: _clean(p.get(k)) for k in RECORD_KEYS}
+    for k in ("death_age", "diagnosis_age"):
+        out[k] = None if out[k] is None else int(out[k])
+    af = {"latest": None, "latest_on": None, "first_recorded_on": None}
+    if assessments is not None and len(assessments) and "atrial_fibrillation" in assessments.columns:
+        mine = assessments[(assessments["person"] == code) & assessments["atrial_fibrillation"].notna()]
+        mine = mine.sort_values("assessment_date")
+        if len(mine):
+            af["latest"], af["latest_on"] = bool(mine["atrial_fibrillation"].iloc[-1]), mine["assessment_date"].iloc[-1]
+            yes = mine[mine["atrial_fibrillation"].astype(bool)]
+            af["first_recorded_on"] = yes["assessment_date"].iloc[0] if len(yes) else None
+    out["atrial_fibrillation"] = af
+    return out
+
+
+def _record_text(r: dict[str, Any]) -> str:
+    parts = []
+    if r["death_cause"] or r["death_age"] is not None:
+        parts.append("death: " + (r["death_cause"] or "cause not recorded").replace("_", " ")
+                     + (f", at {r['death_age']} y" if r["death_age"] is not None else ""))  # fmt: skip
+    if r["diagnosis_age"] is not None or r["diagnosis_place"]:
+        age = f"at {r['diagnosis_age']} y" if r["diagnosis_age"] is not None else "age not recorded"
+        parts.append(f"HCM diagnosed {age}" + (f" ({r['diagnosis_place']})" if r["diagnosis_place"] else ""))
+    for k, name in (("icd_date", "ICD"), ("pacemaker_date", "pacemaker")):
+        if r[k]:
+            parts.append(f"{name} implanted {r[k]}")
+    af = r["atrial_fibrillation"]
+    if af["latest"] is not None:
+        parts.append("atrial fibrillation " + (f"yes (first recorded {af['first_recorded_on']})" if af["first_recorded_on"]
+                                               else f"no (assessment {af['latest_on']})"))  # fmt: skip
+    return "Record: " + ("; ".join(parts) if parts else "no cause of death, diagnosis elsewhere, device or AF recorded")
+
+
 def _person_data(code: str, data: dict, settings, horizon: float) -> dict[str, Any]:
     people = data["people"]
     if code not in set(people["person"]):
@@ -242,8 +283,12 @@ def _person_data(code: str, data: dict, settings, horizon: float) -> dict[str, A
         studies.append(s)
     conversion = _records(conv, CONVERSION_KEYS)[0] if len(conv) else None
     identity = _identity(code, people, ctx, dt.date.today())
+    pr = RK.person_risk(code, people[people["family"] == family], data["assessments"],
+                        _clean(identity["affected_status"]), dt.date.today(), assessed=a)  # fmt: skip
     return {
         **{k: _clean(v) for k, v in identity.items()},
+        "record": _record(code, people, data["assessments"]),
+        "risk_scd": pr.as_dict(),
         "guideline": _guideline(settings),
         "horizon_years": horizon,
         "bsa_formula": "mosteller",
@@ -319,6 +364,9 @@ def _print_person(d: dict) -> None:
                    f"{c['first_met_measures']}); status: {c['status']}.{review_txt}")  # fmt: skip
     else:
         typer.echo(f"Conversion: criteria not met at {c['n_assessed_studies']} assessed studies")
+    typer.echo(_record_text(d["record"]))
+    for line in RK.text_lines(d["risk_scd"]):
+        typer.echo(line)
     if sources:
         typer.echo("Sources and notes:")
         for text, n in sources.items():

@@ -8,11 +8,13 @@ reached the store some other way, or a rule that has changed since.
 
 from __future__ import annotations
 
+import datetime as dt
+import math
 from dataclasses import asdict, dataclass
 
 import pandas as pd
 
-from tracker.domain.dates import parse_partial_date
+from tracker.domain.dates import PartialDate, age_bounds, parse_partial_date
 from tracker.domain.pedigree import Pedigree, PedigreeError
 
 
@@ -82,6 +84,88 @@ def date_findings(people: pd.DataFrame, studies: pd.DataFrame, assessments: pd.D
             if d:
                 out.append(Finding("dates", key, "is after the person's date of death"))
     return out
+
+
+# --------------------------------------------------------------------------- record fields (revision 0006)
+
+RECORD_FIELDS = ("death_cause", "death_age", "diagnosis_age", "icd_date", "pacemaker_date")
+
+
+def _pd(v) -> PartialDate | None:
+    return parse_partial_date(v) if isinstance(v, str) and v else None
+
+
+def _years(v) -> int | None:
+    if v is None or isinstance(v, bool):
+        return None
+    try:
+        x = float(v)
+    except (TypeError, ValueError):
+        return None
+    return None if math.isnan(x) else int(x)
+
+
+def record_problems(people: pd.DataFrame, today: dt.date) -> list[tuple[object, str, str]]:
+    """Cross-field checks of the recorded cause and age of death, age at diagnosis and device dates.
+
+    ``people``: rows in the people layout's clean form (a CSV file or ``load_people``).  Returns
+    (row index label, column, message) for each problem, at most one per cell:
+
+    - a cause or an age of death only for a deceased person;
+    - an age at death that the dates of birth and death (when both are recorded) do not allow;
+    - an age at diagnosis above the person's age (today, or at death);
+    - an ICD or pacemaker date before the date of birth or after the date of death.
+
+    Pure; the importer (:mod:`tracker.io.validation`), ``tracker check`` and ``tracker edit`` use it.
+    """
+    present = [c for c in RECORD_FIELDS if c in people.columns]
+    if not present or people.empty:
+        return []
+    given = pd.Series(False, index=people.index)
+    for c in present:
+        given |= people[c].notna()
+    out: list[tuple[object, str, str]] = []
+    for idx, r in people[given].iterrows():
+        deceased = r.get("vital_status") == "deceased"
+        birth, death = _pd(r.get("birth_date")), _pd(r.get("death_date"))
+        death_age, diag_age = _years(r.get("death_age")), _years(r.get("diagnosis_age"))
+        cause = r.get("death_cause")
+        if isinstance(cause, str) and cause and not deceased:
+            out.append((idx, "death_cause", "is given but vital_status is not deceased"))
+        if death_age is not None and not deceased:
+            out.append((idx, "death_age", "is given but vital_status is not deceased"))
+        elif death_age is not None and birth is not None and death is not None:
+            lo, hi = age_bounds(birth, death)
+            if not lo <= death_age <= hi:
+                allowed = f"{lo} y" if lo == hi else f"{lo}-{hi} y"
+                out.append((idx, "death_age", f"{death_age} y does not agree with the dates of birth and death "
+                                              f"(they allow {allowed})"))  # fmt: skip
+        if diag_age is not None:
+            limit, what = None, ""
+            if death_age is not None and deceased:
+                limit, what = death_age, "the age at death"
+            elif birth is not None and deceased and death is not None:
+                limit, what = age_bounds(birth, death)[1], "the age at death"
+            elif birth is not None and not deceased:
+                limit, what = age_bounds(birth, today)[1], f"the person's age on {today.isoformat()}"
+            if limit is not None and diag_age > limit:
+                out.append((idx, "diagnosis_age", f"{diag_age} y is above {what} ({limit} y)"))
+        for col in ("icd_date", "pacemaker_date"):
+            when = _pd(r.get(col))
+            if when is None:
+                continue
+            if birth is not None and when.latest() < birth.earliest():
+                out.append((idx, col, "is before the date of birth"))
+            elif death is not None and when.earliest() > death.latest():
+                out.append((idx, col, "is after the date of death"))
+    return out
+
+
+def record_findings(people: pd.DataFrame, today: dt.date | None = None) -> list[Finding]:
+    """:func:`record_problems` of stored people, as findings."""
+    today = today or dt.date.today()
+    return [Finding("record", f"person {people.at[i, 'person']}", f"{col} {msg}")
+            for i, col, msg in record_problems(people, today)]  # fmt: skip
 
 
 def range_findings(values: pd.DataFrame, measures: pd.DataFrame) -> list[Finding]:

@@ -133,3 +133,12 @@ def age_at(birth: PartialDate, on: dt.date) -> Age:
     """
     years = (on - birth.value).days / DAYS_PER_YEAR
     return Age(years, 0.0 if birth.precision == DAY else 0.5)
+
+
+def age_bounds(birth: PartialDate, end: PartialDate | dt.date) -> tuple[int, int]:
+    """(least, greatest) whole years of age on ``end`` that a birth date and an end date known to the
+    day or the year allow."""
+    lo_end, hi_end = (end, end) if isinstance(end, dt.date) else (end.earliest(), end.latest())
+    lo = completed_years(birth.latest(), lo_end) if lo_end >= birth.latest() else 0
+    hi = completed_years(birth.earliest(), hi_end) if hi_end >= birth.earliest() else 0
+    return max(lo, 0), max(hi, 0)

@@ -32,3 +32,7 @@ ACTIONABLE_CLASSES = ("pathogenic", "likely_pathogenic")
 TEST_TYPES = ("diagnostic_panel", "predictive")
 TEST_RESULTS = ("carrier", "non_carrier", "inconclusive", "no_variant_found")
 MODALITIES = ("echo", "cmr", "ecg", "clinic")
+
+# Cause of death of a deceased person (person.death_cause; CHECK constraint of migration 0006).
+# "sudden" is sudden death (cardiac or unexplained); the sudden-death logic reads this word.
+DEATH_CAUSES = ("sudden", "cardiac_non_sudden", "non_cardiac", "unknown")

@@ -30,10 +30,15 @@ change who is recalled and when; none is a guideline number):
   ``plp_variant``              the current class is pathogenic or likely pathogenic;
   ``familial_disease``         more than one member affected (latest status);
   ``isolated_case``            exactly one member affected;
-  ``early_onset``              an affected member was younger than 18 y (decimal age, from the
-                               recorded date of birth) at their first assessment recorded as
-                               affected;
-  ``sudden_death``             a deceased member whose notes contain "sudden" (any case);
+  ``early_onset``              a member was younger than 18 y at diagnosis: the recorded age at
+                               diagnosis (``diagnosis_age``, e.g. diagnosed at another centre) or,
+                               for an affected member, the decimal age (from the recorded date of
+                               birth) at their first assessment recorded as affected; the younger
+                               of the two when both exist;
+  ``sudden_death``             a deceased member whose cause of death is recorded as "sudden";
+                               for a deceased member with no cause of death recorded, notes
+                               containing "sudden" (any case) still count, and the reason says
+                               it comes from the notes;
   ``genotype_negative_family`` no variant recorded for the family and a diagnostic panel of a
                                member reported no variant found.
 
@@ -451,22 +456,41 @@ def _family_features(
     elif len(affected) == 1:
         reasons["isolated_case"] = f"one affected member: {affected[0]}"
     births = {r["person"]: _partial(r["birth_date"]) for r in members}
+    diagnosed = {r["person"]: (int(float(r["diagnosis_age"])), _text(r.get("diagnosis_place")))
+                 for r in members if not _blank(r.get("diagnosis_age"))}  # fmt: skip
     early = []
-    for p in affected:
-        b, on = births.get(p), facts[p].first_affected_on
-        if b is not None and on is not None:
+    for p in [*affected, *(p for p in diagnosed if p not in affected)]:
+        ages = []  # (age in years, words)
+        if p in diagnosed:
+            age, place = diagnosed[p]
+            ages.append((float(age), f"diagnosed at {age} y" + (f" ({place})" if place else "") + ", recorded age"))
+        b, on = births.get(p), facts[p].first_affected_on if p in facts else None
+        if p in affected and b is not None and on is not None:
             age = age_at(b, on).years
+            ages.append((age, f"affected at {age:.1f} y at the first assessment recorded as affected"))
+        if ages:
+            age, words = min(ages)
             if age < EARLY_ONSET_AGE_YEARS:
-                early.append(f"{p} (affected at {age:.1f} y)")
+                early.append(f"{p} ({words})")
     if early:
         reasons["early_onset"] = f"affected before {EARLY_ONSET_AGE_YEARS} y: " + ", ".join(early)
-    sudden = [
-        r["person"]
-        for r in members
-        if _text(r.get("vital_status")) == "deceased" and not _blank(r.get("notes")) and "sudden" in str(r["notes"]).lower()
-    ]
-    if sudden:
-        reasons["sudden_death"] = "deceased member with a sudden death recorded in the notes: " + ", ".join(sudden)
+    sudden, from_notes = [], []
+    for r in members:
+        if _text(r.get("vital_status")) != "deceased":
+            continue
+        cause = _text(r.get("death_cause"))
+        if cause == "sudden":
+            age = "" if _blank(r.get("death_age")) else f" at {int(float(r['death_age']))} y"
+            sudden.append(r["person"] + age)
+        elif cause is None and not _blank(r.get("notes")) and "sudden" in str(r["notes"]).lower():
+            from_notes.append(r["person"])  # fallback for records without a cause of death
+    if sudden or from_notes:
+        parts = []
+        if sudden:
+            parts.append("deceased member with sudden death recorded as the cause of death: " + ", ".join(sudden))
+        if from_notes:
+            parts.append("from the notes only (cause of death not recorded; record it): " + ", ".join(from_notes))
+        reasons["sudden_death"] = "; ".join(parts)
     if variant is None and results is not None and len(results):
         nvf = {
             p for p, test, result in zip(results["person"].tolist(), results["test_type"].tolist(),

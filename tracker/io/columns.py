@@ -62,7 +62,7 @@ class Column:
     """One column of a layout: its name, type, and whether a value is required."""
 
     name: str
-    kind: str  # text, code, date, partial_date, choice, yesno, answer, number, regex
+    kind: str  # text, code, date, partial_date, choice, yesno, answer, number, years, regex
     required: bool = False
     # The column may be left out of a file's header (every cell is then empty); for
     # columns added to a layout later, so that older files still import.
@@ -241,6 +241,26 @@ def _number(col, cells, empty, today):
     return numbers.where(bad.isna()), bad
 
 
+# Whole years of age entered as a field (age at death, at diagnosis): data-entry limit only
+# (engineering default, common practice).
+MAX_AGE_YEARS = 130
+
+
+def _years(col, cells, empty, today):
+    """Whole years of age, 0 to MAX_AGE_YEARS -> float (NaN when empty)."""
+    bad = _no_errors(cells.index)
+    numbers = pd.to_numeric(cells.where(~empty, None), errors="coerce").astype(float)
+    not_number = numbers.isna() & ~empty
+    bad[not_number] = [f"{v[:40]!r} is not a whole number of years" for v in cells[not_number]]
+    finite = numbers.notna() & np.isfinite(numbers)
+    bad[numbers.notna() & ~finite] = "is not a finite number"
+    fraction = finite & (numbers != np.floor(numbers.where(finite, 0)))
+    bad[fraction & bad.isna()] = [f"{v[:40]!r} is not a whole number of years" for v in cells[fraction & bad.isna()]]
+    out = finite & ((numbers < 0) | (numbers > MAX_AGE_YEARS)) & bad.isna()
+    bad[out] = [f"{v[:40]!r} is outside 0-{MAX_AGE_YEARS} years" for v in cells[out]]
+    return numbers.where(bad.isna()), bad
+
+
 _HANDLERS = {
     "text": _text,
     "code": _code,
@@ -251,6 +271,7 @@ _HANDLERS = {
     "date": _date,
     "partial_date": _partial_date,
     "number": _number,
+    "years": _years,
 }
 
 

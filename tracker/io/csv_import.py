@@ -170,7 +170,7 @@ def _split(checked: validation.Checked, stored: pd.DataFrame, compare: list[str]
     if present.any():
         mine = rows[present]
         theirs = stored.iloc[pos[present]]
-        for col in compare:
+        for col in (c for c in compare if c not in checked.absent):
             same = _same(mine[col].to_numpy(dtype=object), theirs[col].to_numpy(dtype=object))
             for r in mine.index[~same]:
                 problems.append(
@@ -290,7 +290,14 @@ _PERSON_COLUMNS = [
     "code", "family_id", "given_name", "family_name", "sex_at_birth", "gender_identity", "birth_date",
     "birth_date_precision", "vital_status", "death_date", "death_date_precision", "is_placeholder", "is_proband",
     "twin_type", "adoption", "contact_status", "contact_status_date", "notes",
+    "death_cause", "death_age", "diagnosis_age", "diagnosis_place", "icd_date", "icd_date_precision",
+    "pacemaker_date", "pacemaker_date_precision",
 ]  # fmt: skip
+
+
+def _whole(values: list) -> list:
+    """Whole years (floats from the CSV) as int, None when empty."""
+    return [None if v is None else int(v) for v in values]
 
 
 def _write_people(conn, checked, progress, ctx):
@@ -300,16 +307,20 @@ def _write_people(conn, checked, progress, ctx):
         fam = _ids(conn, Family)
         c = {name: _py(new[name]) for name in checked.layout.names}
         stored_form = {}  # ISO partial date -> (ISO day text as stored, precision)
-        for v in set(c["birth_date"]) | set(c["death_date"]):
+        for v in set(c["birth_date"]) | set(c["death_date"]) | set(c["icd_date"]) | set(c["pacemaker_date"]):
             day, precision = partial_to_storage(v)
             stored_form[v] = (day.isoformat() if day else None, precision)
         birth, birth_p = zip(*(stored_form[v] for v in c["birth_date"]))
         death, death_p = zip(*(stored_form[v] for v in c["death_date"]))
+        icd, icd_p = zip(*(stored_form[v] for v in c["icd_date"]))
+        pacemaker, pacemaker_p = zip(*(stored_form[v] for v in c["pacemaker_date"]))
         cols = [
             c["person"], [fam[f] for f in c["family"]], c["given_name"], c["family_name"], c["sex_at_birth"],
             c["gender_identity"], birth, birth_p, c["vital_status"], death, death_p,
             [bool(v) for v in c["placeholder"]], [bool(v) for v in c["proband"]], c["twin_type"], c["adoption"],
             c["contact_status"], c["contact_status_date"], c["notes"],
+            c["death_cause"], _whole(c["death_age"]), _whole(c["diagnosis_age"]), c["diagnosis_place"],
+            icd, icd_p, pacemaker, pacemaker_p,
         ]  # fmt: skip
         _bulk_insert(conn, "person", _PERSON_COLUMNS, list(zip(*cols)))
         # Parent and twin links, now that every person has an id: one executemany.
@@ -382,19 +393,19 @@ def _write_genetic_results(conn, checked, progress, ctx):
 
 
 _ASSESSMENT_COLUMNS = ["person_id", "assessment_date", "affected_status", "symptoms", "competitive_athlete",
-                       "pregnant", "hypertension", "notes", *repo.RISK_ANSWERS]  # fmt: skip
+                       "pregnant", "hypertension", "notes", *repo.RISK_ANSWERS, *repo.OTHER_ANSWERS]  # fmt: skip
 
 
 def _write_assessments(conn, checked, progress, ctx):
     compare = ["affected_status", "symptoms", "competitive_athlete", "pregnant", "hypertension", "notes",
-               *repo.RISK_ANSWERS]  # fmt: skip
+               *repo.RISK_ANSWERS, *repo.OTHER_ANSWERS]  # fmt: skip
     new, already = _split(checked, repo.load_assessments(conn), compare)
     if len(new):
         ids = _ids(conn, Person)
         c = {name: _py(new[name]) for name in checked.layout.names}
         flags = [[bool(v) for v in c[k]] for k in ("competitive_athlete", "pregnant", "hypertension")]
         cols = [[ids[p] for p in c["person"]], c["assessment_date"], c["affected_status"], c["symptoms"], *flags,
-                c["notes"], *(c[a] for a in repo.RISK_ANSWERS)]  # fmt: skip
+                c["notes"], *(c[a] for a in (*repo.RISK_ANSWERS, *repo.OTHER_ANSWERS))]  # fmt: skip
         _bulk_insert(conn, "assessment", _ASSESSMENT_COLUMNS, list(zip(*cols)))
     progress(len(checked.rows))
     return len(new), already

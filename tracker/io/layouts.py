@@ -65,6 +65,13 @@ PEOPLE = Layout(
         Column("contact_status", "choice", choices=V.CONTACT_STATUS),
         Column("contact_status_date", "date"),
         Column("notes", "text"),
+        # Added with schema revision 0006; may be left out of older files (every cell is then empty).
+        Column("death_cause", "choice", choices=V.DEATH_CAUSES, header_optional=True),
+        Column("death_age", "years", header_optional=True),
+        Column("diagnosis_age", "years", header_optional=True),
+        Column("diagnosis_place", "text", max_length=200, header_optional=True),
+        Column("icd_date", "partial_date", header_optional=True),
+        Column("pacemaker_date", "partial_date", header_optional=True),
     ),
     key=("person",),
 )
@@ -141,6 +148,8 @@ ASSESSMENTS = Layout(
         Column("unexplained_syncope", "answer", header_optional=True),
         Column("prior_arrest_or_sustained_vt", "answer", header_optional=True),
         Column("metabolic_or_syndromic", "answer", header_optional=True),
+        # Atrial fibrillation documented at or before this assessment (yes / no / empty; revision 0006).
+        Column("atrial_fibrillation", "answer", header_optional=True),
     ),
     key=("person", "assessment_date"),
 )

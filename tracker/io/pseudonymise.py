@@ -91,6 +91,9 @@ KEPT: dict[str, dict[str, str]] = {
         "vital_status": KEEP, "death_date": DATE, "mother": PERSON, "father": PERSON,
         "placeholder": KEEP, "proband": KEEP, "twin_of": PERSON, "twin_type": KEEP,
         "adoption": KEEP, "contact_status": KEEP, "contact_status_date": DATE,
+        # Revision 0006: a controlled vocabulary and whole years.  The device dates (which may be
+        # year-only) and the free-text place of diagnosis are not kept.
+        "death_cause": KEEP, "death_age": KEEP, "diagnosis_age": KEEP,
     },
     "variants": {
         "family": FAMILY, "gene": KEEP, "transcript": KEEP, "hgvs_c": KEEP, "hgvs_p": KEEP,
@@ -104,7 +107,7 @@ KEPT: dict[str, dict[str, str]] = {
         "competitive_athlete": KEEP, "pregnant": KEEP, "hypertension": KEEP,
         # HCM Risk-SCD answers: yes / no / empty, a controlled vocabulary
         "family_history_scd": KEEP, "nsvt": KEEP, "unexplained_syncope": KEEP,
-        "prior_arrest_or_sustained_vt": KEEP, "metabolic_or_syndromic": KEEP,
+        "prior_arrest_or_sustained_vt": KEEP, "metabolic_or_syndromic": KEEP, "atrial_fibrillation": KEEP,
     },
     "studies": {
         "person": PERSON, "study_date": DATE, "modality": KEEP, "site": SITE, "height_cm": KEEP,

@@ -98,10 +98,13 @@ def read_table(path: Path, layout: Layout) -> pd.DataFrame:
     frame.columns = header
     frame = frame.apply(_strip)
     frame.index = pd.RangeIndex(2, 2 + len(frame))
-    for c in layout.names:
-        if c not in frame.columns:  # a header-optional column left out: every cell empty
-            frame[c] = pd.Categorical([""] * len(frame))
-    return frame[layout.names]
+    absent = tuple(c for c in layout.names if c not in frame.columns)
+    for c in absent:  # a header-optional column left out: every cell empty
+        frame[c] = pd.Categorical([""] * len(frame))
+    frame = frame[layout.names]
+    # The file says nothing about these columns: a stored value is not compared with them.
+    frame.attrs["absent_columns"] = absent
+    return frame
 
 
 def _first_record(text: str) -> list[str]:

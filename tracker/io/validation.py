@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from tracker.domain import units
+from tracker.domain.consistency import record_problems
 from tracker.domain.dates import parse_partial_date
 from tracker.io.columns import parse
 from tracker.io.layouts import Layout
@@ -43,6 +44,8 @@ class Checked:
     file: str
     rows: pd.DataFrame
     problems: list[Problem] = field(default_factory=list)
+    # Header-optional columns the file left out: empty for new rows, never compared with stored rows.
+    absent: tuple[str, ...] = ()
 
     def add(self, mask: pd.Series, column: str | None, message) -> None:
         """Add a problem for every row where ``mask`` is true (message: text or per-row texts)."""
@@ -68,7 +71,7 @@ class Checked:
 def parse_cells(layout: Layout, file: str, cells: pd.DataFrame, today: dt.date) -> Checked:
     """Parse every column of the layout; unreadable cells become problems."""
     clean = pd.DataFrame(index=cells.index)
-    checked = Checked(layout, file, clean)
+    checked = Checked(layout, file, clean, absent=tuple(cells.attrs.get("absent_columns", ())))
     for col in layout.columns:
         parsed = parse(col, cells[col.name], today)
         clean[col.name] = parsed.values
@@ -208,6 +211,9 @@ def check_people(c: Checked, ctx: Context) -> None:
     c.add(rows["death_date"].notna() & ~deceased, "death_date", "is given but vital_status is not deceased")
     death_before_birth = _each_distinct(rows["death_date"], _latest) < _each_distinct(rows["birth_date"], _earliest)
     c.add(death_before_birth, "death_date", "is before the date of birth")
+
+    for r, col, message in record_problems(rows, ctx.today):
+        c.note(int(r), col, message)
 
     twin = rows["twin_of"]
     has_twin = twin.notna()

@@ -21,9 +21,12 @@ What is mapped
   HL7 v3 RoleCode where a code fits (MTH, FTH, SIS, BRO, SON, DAU, HSIS, HBRO, GRMTH, GRFTH,
   GGRMTH, GGRFTH, GRNDDAU, GRNDSON, AUNT, UNCLE, NIECE, NEPHEW, COUSN for first cousins, twin
   codes by zygosity, adoptive codes; sex-neutral codes when the sex is unknown); otherwise the
-  generic FAMMEMB.  ``sex``, ``bornDate``, ``deceasedBoolean``/``deceasedDate``; ``condition`` =
+  generic FAMMEMB.  ``sex``, ``bornDate``, ``deceasedBoolean``/``deceasedDate`` (``deceasedAge``
+  from the recorded age at death when no date is recorded); ``condition`` =
   HCM (SNOMED CT 233873004 and HPO HP:0001639) when the relative's latest assessment is
-  "affected".  No FamilyMemberHistory is made when the family has no recorded proband.
+  "affected" or an age at diagnosis is recorded (then ``onsetAge``, UCUM ``a``), and Sudden
+  cardiac death (HPO HP:0001645, ``contributedToDeath`` true, ``onsetAge`` = age at death) when
+  the recorded cause of death is "sudden".  No FamilyMemberHistory is made when the family has no recorded proband.
 * **Observation per stored measurement** (catalogue unit): ``status`` final, ``category``
   imaging (echo, CMR) or procedure (ECG), ``code`` = LOINC when the catalogue has one *and* it
   is listed in the reference notes (standards.md 4a/4b), plus always the local system
@@ -116,6 +119,16 @@ def _text(v: object) -> str | None:
         pass
     s = str(v).strip()
     return s or None
+
+
+def _whole_years(v: object) -> int | None:
+    t = _text(v)
+    return None if t is None else int(float(t))
+
+
+def _age(years: int) -> dict:
+    """A FHIR Age in whole years (UCUM ``a``)."""
+    return {"value": years, "unit": "a", "system": fc.UCUM, "code": "a"}
 
 
 def _cc(*codes: fc.Code, text: str | None = None) -> dict:
@@ -238,12 +251,24 @@ def _family_member_history(
     vital, death = _text(row.get("vital_status")), _text(row.get("death_date"))
     if death:
         res["deceasedDate"] = death
+    elif vital == "deceased" and (death_age := _whole_years(row.get("death_age"))) is not None:
+        res["deceasedAge"] = _age(death_age)
     elif vital == "deceased":
         res["deceasedBoolean"] = True
     elif vital == "alive":
         res["deceasedBoolean"] = False
-    if affected:
-        res["condition"] = [{"code": _condition_cc(condition)}]
+    conditions = []
+    diagnosis_age = _whole_years(row.get("diagnosis_age"))
+    if affected or diagnosis_age is not None:  # HCM, with the recorded age at diagnosis as its onset
+        conditions.append({"code": _condition_cc(condition)})
+        if diagnosis_age is not None:
+            conditions[-1]["onsetAge"] = _age(diagnosis_age)
+    if _text(row.get("death_cause")) == "sudden":
+        conditions.append({"code": _cc(fc.SCD_HPO, text="Sudden cardiac death"), "contributedToDeath": True})
+        if (death_age := _whole_years(row.get("death_age"))) is not None:
+            conditions[-1]["onsetAge"] = _age(death_age)
+    if conditions:
+        res["condition"] = conditions
     if bool(row.get("placeholder")):
         res["note"] = [{"text": "placeholder: drawn to connect the pedigree"}]
     return res

@@ -190,6 +190,8 @@ HGNC_TAG = "[V2]"
 
 HCM_SNOMED = Code(SNOMED, "233873004", "Hypertrophic cardiomyopathy", "[V]", "standards.md 4d")
 HCM_HPO = Code(HPO, "HP:0001639", "Hypertrophic cardiomyopathy", "[V]", "standards.md 4c")
+# A relative's recorded sudden death (person.death_cause "sudden").
+SCD_HPO = Code(HPO, "HP:0001645", "Sudden cardiac death", "[V]", "standards.md 4c")
 
 # ---------------------------------------------------------------------------
 # Observation categories by study modality

@@ -214,6 +214,7 @@ class RiskSection:
     validated_ranges: str = ""
     caution: str = ""
     model: str = ""
+    conflicts: tuple[str, ...] = ()  # the record against a recorded answer: shown beside the figure
 
 
 @dataclass(frozen=True)
@@ -623,13 +624,14 @@ def _recall_block(doc: TrajectoryDocument) -> list:
 def _risk_block(doc: TrajectoryDocument) -> list:
     k = doc.risk
     out = [paragraph("Sudden cardiac death risk (HCM Risk-SCD)", _SECTION), paragraph(k.headline, _TEXT)]
+    if k.conflicts:  # beside the figure, before its inputs
+        out.append(paragraph(" ".join(k.conflicts), _SMALL))
     if k.inputs:
         out.append(paragraph("Inputs: " + "; ".join(k.inputs) + ".", _SMALL))
-    for b in k.bands:
-        out.append(paragraph(b, _SMALL))
-    for reason in k.reasons:
-        out.append(paragraph(f"- {reason}", _SMALL))
-    tail = []
+    # The bands, reasons and notes lead the paragraph of the range and the caution (two pages).
+    tail = list(k.bands)
+    if k.reasons:
+        tail.append("Reasons and notes: " + "; ".join(r.rstrip(".") for r in k.reasons) + ".")
     if k.validated_ranges:
         tail.append(k.validated_ranges + " The model does not apply outside this range.")
     if k.caution:

@@ -113,6 +113,7 @@ def _findings(conn: Connection, family: str) -> set[tuple[str, str, str]]:
     results = results[results["person"].isin(codes)]
     found = dc.pedigree_findings(people) + dc.date_findings(people, studies, assessments, results)
     found += dc.range_findings(studies, repo.load_measures(conn))
+    found += dc.record_findings(people.reset_index(drop=True))
     return {(f.check, f.where, f.message) for f in found}
 
 
@@ -151,7 +152,7 @@ def edit_person(conn: Connection, code: str, changes: dict[str, str], *, reason:
     values: dict = {}
     for field, text in changes.items():
         value = _cell(field, PERSON_FIELDS[field], text, today)
-        if field in ("birth_date", "death_date"):
+        if field in ("birth_date", "death_date", "icd_date", "pacemaker_date"):
             stored, precision = partial_to_storage(value)
             values[field] = stored
             values[field + "_precision"] = precision
@@ -159,6 +160,8 @@ def edit_person(conn: Connection, code: str, changes: dict[str, str], *, reason:
             values[_LINKS[field]] = _linked_person(conn, field, value, code, row.family_id)
         elif field == "contact_status_date":
             values[field] = dt.date.fromisoformat(value) if value else None
+        elif field in ("death_age", "diagnosis_age"):  # whole years
+            values[field] = None if value is None else int(value)
         else:
             values[_PERSON_COLUMNS.get(field, field)] = value
     conn.execute(update(Person).where(Person.id == row.id).values(**values))

@@ -63,6 +63,12 @@ class Person(Base):
             "contact_status IN ('not_contacted','contactable','declined','lost_to_follow_up')",
             name="contact_status",
         ),
+        # Migration 0006.
+        CheckConstraint(
+            "death_cause IN ('sudden','cardiac_non_sudden','non_cardiac','unknown')", name="death_cause"
+        ),
+        CheckConstraint("icd_date_precision IN ('day','year')", name="icd_date_precision"),
+        CheckConstraint("pacemaker_date_precision IN ('day','year')", name="pacemaker_date_precision"),
     )
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
@@ -90,6 +96,15 @@ class Person(Base):
     removed_at: Mapped[dt.datetime | None] = mapped_column(DateTime)
     removed_by: Mapped[str | None] = mapped_column(String(100))
     removed_reason: Mapped[str | None] = mapped_column(Text)
+    # Migration 0006: cause and age of death, diagnosis (possibly elsewhere), devices.
+    death_cause: Mapped[str | None] = mapped_column(String(20))
+    death_age: Mapped[int | None] = mapped_column(Integer)  # whole years
+    diagnosis_age: Mapped[int | None] = mapped_column(Integer)  # whole years at diagnosis/onset of HCM
+    diagnosis_place: Mapped[str | None] = mapped_column(String(200))
+    icd_date: Mapped[dt.date | None] = mapped_column(Date)
+    icd_date_precision: Mapped[str | None] = mapped_column(String(4))
+    pacemaker_date: Mapped[dt.date | None] = mapped_column(Date)
+    pacemaker_date_precision: Mapped[str | None] = mapped_column(String(4))
 
 
 class Assessment(Base):
@@ -116,6 +131,8 @@ class Assessment(Base):
     unexplained_syncope: Mapped[bool | None] = mapped_column(Boolean)
     prior_arrest_or_sustained_vt: Mapped[bool | None] = mapped_column(Boolean)
     metabolic_or_syndromic: Mapped[bool | None] = mapped_column(Boolean)
+    # Migration 0006: atrial fibrillation documented (yes), looked for and absent (no), None = not recorded.
+    atrial_fibrillation: Mapped[bool | None] = mapped_column(Boolean)
 
 
 class Variant(Base):

@@ -71,6 +71,14 @@ def load_people(conn: Connection) -> pd.DataFrame:
             Person.contact_status,
             Person.contact_status_date,
             Person.notes,
+            Person.death_cause,
+            Person.death_age,
+            Person.diagnosis_age,
+            Person.diagnosis_place,
+            Person.icd_date,
+            Person.icd_date_precision,
+            Person.pacemaker_date,
+            Person.pacemaker_date_precision,
         )
         .join(Family, Person.family_id == Family.id)
         .outerjoin(mother, Person.mother_id == mother.id)
@@ -83,15 +91,20 @@ def load_people(conn: Connection) -> pd.DataFrame:
         "person", "family", "given_name", "family_name", "sex_at_birth", "gender_identity",
         "_birth", "_birth_p", "vital_status", "_death", "_death_p", "mother", "father",
         "placeholder", "proband", "twin_of", "twin_type", "adoption", "contact_status",
-        "contact_status_date", "notes",
+        "contact_status_date", "notes", "death_cause", "death_age", "diagnosis_age", "diagnosis_place",
+        "_icd", "_icd_p", "_pacemaker", "_pacemaker_p",
     ]  # fmt: skip
     df = _frame(conn, stmt, cols)
     df["birth_date"] = [partial_from_storage(d, p) for d, p in zip(df["_birth"], df["_birth_p"])]
     df["death_date"] = [partial_from_storage(d, p) for d, p in zip(df["_death"], df["_death_p"])]
+    df["icd_date"] = [partial_from_storage(d, p) for d, p in zip(df["_icd"], df["_icd_p"])]
+    df["pacemaker_date"] = [partial_from_storage(d, p) for d, p in zip(df["_pacemaker"], df["_pacemaker_p"])]
+    for c in ("death_age", "diagnosis_age"):  # whole years as float, NaN when not recorded (the CSV clean form)
+        df[c] = pd.to_numeric(df[c], errors="coerce").astype(float)
     df["contact_status_date"] = _iso(df["contact_status_date"])
     df["placeholder"] = df["placeholder"].astype(bool)
     df["proband"] = df["proband"].astype(bool)
-    df = df.drop(columns=["_birth", "_birth_p", "_death", "_death_p"])
+    df = df.drop(columns=["_birth", "_birth_p", "_death", "_death_p", "_icd", "_icd_p", "_pacemaker", "_pacemaker_p"])
     return df[_PEOPLE_ORDER]
 
 
@@ -99,6 +112,7 @@ _PEOPLE_ORDER = [
     "person", "family", "given_name", "family_name", "sex_at_birth", "gender_identity",
     "birth_date", "vital_status", "death_date", "mother", "father", "placeholder", "proband",
     "twin_of", "twin_type", "adoption", "contact_status", "contact_status_date", "notes",
+    "death_cause", "death_age", "diagnosis_age", "diagnosis_place", "icd_date", "pacemaker_date",
 ]  # fmt: skip
 
 
@@ -154,6 +168,8 @@ def load_genetic_results(conn: Connection) -> pd.DataFrame:
 # HCM Risk-SCD answers of an assessment: True, False or None (not recorded).
 RISK_ANSWERS = ("family_history_scd", "nsvt", "unexplained_syncope", "prior_arrest_or_sustained_vt",
                 "metabolic_or_syndromic")  # fmt: skip
+# Other yes / no / not-recorded answers of an assessment (revision 0006).
+OTHER_ANSWERS = ("atrial_fibrillation",)
 
 
 def load_assessments(conn: Connection) -> pd.DataFrame:
@@ -168,13 +184,14 @@ def load_assessments(conn: Connection) -> pd.DataFrame:
             Assessment.hypertension,
             Assessment.notes,
             *(getattr(Assessment, a) for a in RISK_ANSWERS),
+            *(getattr(Assessment, a) for a in OTHER_ANSWERS),
         )
         .join(Person, Assessment.person_id == Person.id)
         .where(Person.removed_at.is_(None))
         .order_by(Person.code, Assessment.assessment_date)
     )
     cols = ["person", "assessment_date", "affected_status", "symptoms", "competitive_athlete",
-            "pregnant", "hypertension", "notes", *RISK_ANSWERS]  # fmt: skip
+            "pregnant", "hypertension", "notes", *RISK_ANSWERS, *OTHER_ANSWERS]  # fmt: skip
     df = _frame(conn, stmt, cols)
     df["assessment_date"] = _iso(df["assessment_date"])
     for c in ("competitive_athlete", "pregnant", "hypertension"):
