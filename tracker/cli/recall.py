@@ -40,7 +40,7 @@ from tracker.rules import available_rule_sets, load_rule_set
 from tracker.settings import Settings, load_settings
 from tracker.store import audit
 from tracker.store import repository as repo
-from tracker.store.database import reading, writing
+from tracker.store.database import check_row_id, reading, writing
 from tracker.store.models import Family, ImpactItem, Person, Variant, VariantClassification
 
 AcmgClass = Enum("AcmgClass", {c: c for c in ACMG_CLASSES}, type=str)
@@ -563,6 +563,7 @@ def tasks_done(
     """
     if not note.strip():
         raise UserError("--note must not be empty")
+    check_row_id(task_id, "TASK_ID")
     engine = open_store(db)
     with writing(engine) as conn:
         row = conn.execute(select(ImpactItem.id, ImpactItem.done_on, ImpactItem.person_id, ImpactItem.change)
