@@ -65,20 +65,22 @@ def _disk_full(exc: BaseException) -> bool:
 
 @contextmanager
 def _private_file(path: Path, what: str) -> Iterator[Path]:
-    """A new private file (0600) at ``path``, removed again unless the block succeeds and moves it.
+    """A scratch path for a private file (0600): whatever is left at it is removed when the block ends.
 
     A full disk becomes one clear line naming the folder.
     """
-    path.unlink(missing_ok=True)
+    leftovers = [path, *(path.with_name(path.name + s) for s in ("-journal", "-wal", "-shm"))]
+    for p in leftovers:
+        p.unlink(missing_ok=True)
     try:
         yield path
     except BaseException as exc:
-        for p in (path, path.with_name(path.name + "-journal"), path.with_name(path.name + "-wal"),
-                  path.with_name(path.name + "-shm")):  # fmt: skip
-            p.unlink(missing_ok=True)
         if _disk_full(exc):
             raise UserError(f"{path.parent}: the disk is full; {what}: nothing was written") from None
         raise
+    finally:
+        for p in leftovers:
+            p.unlink(missing_ok=True)
 
 
 def verify(path: Path) -> BackupInfo:
