@@ -12,7 +12,7 @@ from tracker.store import migrate
 from tracker.store import repository as repo
 from sqlalchemy.exc import DBAPIError
 
-from tracker.store.database import DatabaseUnreadable, locate, make_engine, reading, unreadable_reason, writing
+from tracker.store.database import DatabaseUnreadable, locate, make_engine, reading, unreadable_reason
 
 
 def init(db: DbOption = None, json_out: JsonOption = False) -> None:

@@ -38,6 +38,7 @@ from tracker.errors import UserError
 from tracker.outputs import ics, worklist_csv
 from tracker.rules import available_rule_sets, load_rule_set
 from tracker.settings import Settings, load_settings
+from tracker.outfiles import write_output
 from tracker.store import audit
 from tracker.store import repository as repo
 from tracker.store.database import check_row_id, reading, writing
@@ -819,7 +820,7 @@ def worklist(
 
     files = {"csv": None, "ics": None}
     if csv_out is not None:
-        csv_out.write_text(worklist_csv.worklist_csv(due_rows + affected_rows), encoding="utf-8")
+        write_output(csv_out, worklist_csv.worklist_csv(due_rows + affected_rows), where="--csv", newline=None)
         files["csv"] = str(csv_out)
     if ics_out is not None:
         visits = [
@@ -827,7 +828,7 @@ def worklist(
                               r["reason"])
             for r in due_rows + affected_rows
         ]  # fmt: skip
-        ics_out.write_bytes(ics.calendar_bytes(visits, caution=" ".join(CAUTIONS)))
+        write_output(ics_out, ics.calendar_bytes(visits, caution=" ".join(CAUTIONS)), where="--ics")
         files["ics"] = str(ics_out)
 
     result = {

@@ -24,7 +24,7 @@ import hashlib
 import os
 import sqlite3
 from contextlib import contextmanager
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterator
 
@@ -151,7 +151,6 @@ class RestoreInfo:
     carried_over: int
     restore_entry: int
     previous_file_kept_as: str | None = None
-    notes: list[str] = field(default_factory=list)
 
     def as_dict(self) -> dict:
         return {"restored_from": self.file, "revision": self.revision, "upgraded_from": self.upgraded_from,
