@@ -300,3 +300,24 @@ def test_full_disk_during_backup_or_restore_is_one_line_and_leaves_nothing(mini_
         assert r.code == 1 and "disk is full" in r.err and r.err.count("\n") == 1, r
         assert sorted(p.name for p in tmp_path.iterdir()) == files
         assert dump(mini_db) == before
+
+
+def test_restore_to_a_new_file_and_onto_an_older_copy(mini_db, tmp_path, run):
+    """Nothing to carry over (a new file), and a backup whose trail extends the database's."""
+    old_copy = tmp_path / "old-copy.sqlite"
+    assert run("backup", old_copy, db=mini_db).code == 0
+    r = run("edit", "person", "T1-07", "--set", "notes=later", "--reason", "r", db=mini_db)
+    assert r.code == 0, r
+    newer = tmp_path / "newer.sqlite"
+    assert run("backup", newer, db=mini_db).code == 0
+    fresh = str(tmp_path / "fresh.sqlite")
+    r = run("restore", newer, db=fresh)
+    assert r.code == 0, r
+    assert _trail(fresh)[:-1] == _trail(str(newer))
+    # The older copy's trail is the beginning of the newer backup's: nothing of it is lost.
+    target = tmp_path / "target.sqlite"
+    assert run("backup", target, db=str(old_copy)).code == 0
+    r = run("restore", newer, "--force", db=str(target))
+    assert r.code == 0, r
+    assert _trail(str(target))[:-1] == _trail(str(newer))
+    assert run("check", db=str(target)).code == 0

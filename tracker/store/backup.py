@@ -226,13 +226,15 @@ def _prepare(tmp: Path, backup_file: Path, info: BackupInfo, trail: list[dict] |
             restored = [dict(zip(fields, r)) for r in
                         conn.execute(select(*(getattr(AuditEntry, f) for f in fields)).order_by(AuditEntry.id))]  # fmt: skip
             carried = []
-            if trail is not None:
+            if trail:  # the database being replaced has history: keep all of it
                 common = 0
                 for old, new in zip(trail, restored):
                     if any(old[f] != new[f] for f in audit.HASHED):
                         break
                     common += 1
-                if common < len(restored):
+                # One trail must begin the other: the backup is older (entries to carry over) or newer
+                # (the database's whole trail is already in it); anything else is another database.
+                if common < min(len(trail), len(restored)):
                     raise UserError(
                         f"{backup_file}: its audit trail differs from the database's at entry "
                         f"{restored[common]['id']}: it is not a backup of this database (restore it to a new "
