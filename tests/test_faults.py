@@ -321,3 +321,31 @@ def test_restore_to_a_new_file_and_onto_an_older_copy(mini_db, tmp_path, run):
     assert r.code == 0, r
     assert _trail(str(target))[:-1] == _trail(str(newer))
     assert run("check", db=str(target)).code == 0
+
+
+def test_restore_of_a_backup_from_an_older_schema_upgrades_the_restored_copy(mini_db, tmp_path, run):
+    import json
+
+    from tracker.store import migrate
+    from tracker.store.database import locate, make_engine
+
+    old = str(tmp_path / "old.sqlite")
+    src, dst = sqlite3.connect(mini_db), sqlite3.connect(old)
+    src.backup(dst)
+    src.close()
+    dst.close()
+    engine = make_engine(locate(old))
+    migrate.downgrade(engine, "0005")
+    engine.dispose()
+    backup = tmp_path / "at-0005.sqlite"
+    assert run("backup", backup, db=old).code == 0
+    backup_bytes = backup.read_bytes()
+    assert run("edit", "person", "T1-07", "--set", "notes=later", "--reason", "r", db=mini_db).code == 0
+    trail = _trail(mini_db)
+    r = run("restore", backup, "--force", "--json", db=mini_db)
+    assert r.code == 0, r
+    out = json.loads(r.out)
+    assert out["upgraded_from"] == "0005" and out["revision"] == migrate.head_revision()
+    assert _trail(mini_db)[:-1] == trail
+    assert backup.read_bytes() == backup_bytes  # the backup itself is never changed
+    assert run("check", db=mini_db).code == 0
