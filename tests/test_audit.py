@@ -418,3 +418,33 @@ def test_upgrade_hashes_existing_entries_in_order(loaded_db, run):
     assert after == before and all(h and len(h) == 64 for _i, h in after)
     assert _check(run, loaded_db) == (0, [])
     engine.dispose()
+
+
+@pytest.mark.parametrize("newest", [1, 2])
+def test_check_finds_the_newest_entries_removed(loaded_db, run, newest):
+    """Removing the newest entries leaves a valid chain; the imports and removals they recorded show it."""
+    _js(run("remove", "person", "T1-08", "--reason", "entered twice", "--json", db=loaded_db))
+    engine = _engine(loaded_db)
+    assert _check(run, loaded_db) == (0, [])
+    with reading(engine) as conn:
+        ids = [r[0] for r in conn.execute(text("SELECT id FROM audit_entry ORDER BY id"))]
+    _drop_triggers(engine)
+    _raw(engine, *[f"DELETE FROM audit_entry WHERE id = {i}" for i in ids[-newest:]])
+    # Put the triggers back, as someone covering their tracks would.
+    if engine.dialect.name == "postgresql":
+        _raw(engine, "CREATE TRIGGER audit_entry_no_change BEFORE UPDATE OR DELETE ON audit_entry "
+                     "FOR EACH ROW EXECUTE FUNCTION audit_entry_refuse()",
+             "CREATE TRIGGER audit_entry_no_truncate BEFORE TRUNCATE ON audit_entry "
+             "FOR EACH STATEMENT EXECUTE FUNCTION audit_entry_refuse()")  # fmt: skip
+    else:
+        msg = "audit_entry is append-only: rows are never changed or deleted"
+        _raw(engine, *[f"CREATE TRIGGER audit_entry_no_{v.lower()} BEFORE {v} ON audit_entry "
+                       f"BEGIN SELECT RAISE(ABORT, '{msg}'); END" for v in ("UPDATE", "DELETE")],
+             "CREATE TRIGGER audit_entry_no_replace BEFORE INSERT ON audit_entry WHEN EXISTS "
+             f"(SELECT 1 FROM audit_entry WHERE id = NEW.id) BEGIN SELECT RAISE(ABORT, '{msg}'); END")  # fmt: skip
+    code, findings = _check(run, loaded_db)
+    wheres = {f["where"] for f in _audit_found(findings)}
+    assert code == 1 and "table person" in wheres
+    if newest == 2:
+        assert "table import_run" in wheres
+    engine.dispose()
