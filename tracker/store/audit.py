@@ -12,7 +12,7 @@ with ``Z``.  ``before`` / ``after`` are JSON objects of the changed fields
 
 The trail is tamper-evident: each entry carries ``entry_hash``, the SHA-256 of
 the previous entry's hash and the entry's own content (:func:`entry_hash`,
-migration 0006); ``tracker check`` recomputes the chain
+migration 0007); ``tracker check`` recomputes the chain
 (:func:`tracker.store.checks.audit_findings`).  The canonical serialisation is
 defined here and in docs/corrections-and-audit.md, and is identical on SQLite
 and PostgreSQL because it uses only values both store exactly: integers, text
@@ -51,7 +51,7 @@ def now_utc() -> dt.datetime:
 
 
 # The hash chain.  Changing any of this breaks every stored chain: it is frozen (a copy lives in
-# migration 0006, which hashes the entries written before the chain existed).
+# migration 0007, which hashes the entries written before the chain existed).
 CHAIN_VERSION = "tracker-audit-chain-1"
 GENESIS = "0" * 64  # the "previous hash" of the first entry
 HASHED = ("id", "at", "actor", "action", "table_name", "row_id", "family_code", "person_code",

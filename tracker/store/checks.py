@@ -53,7 +53,7 @@ def _existing(conn: Connection) -> set[str]:
     return set(inspect(conn).get_table_names())
 
 
-# The triggers that keep the audit trail append-only (migrations 0004 and 0006), by backend.
+# The triggers that keep the audit trail append-only (migrations 0004 and 0007), by backend.
 AUDIT_TRIGGERS = {
     "sqlite": ("audit_entry_no_update", "audit_entry_no_delete", "audit_entry_no_replace"),
     "postgresql": ("audit_entry_no_change", "audit_entry_no_truncate"),

@@ -306,7 +306,7 @@ class AuditEntry(Base):
 
     Append-only: a database trigger (migration 0004) refuses every UPDATE and
     DELETE of this table, on SQLite and on PostgreSQL (and, on SQLite, an INSERT
-    over an existing id: migration 0006).  ``entry_hash`` chains the entries
+    over an existing id: migration 0007).  ``entry_hash`` chains the entries
     (:func:`tracker.store.audit.entry_hash`).  ``before`` and ``after``
     are JSON objects (text); an import is one entry per file (name, SHA-256 and
     counts), because imported rows are never changed except by audited edits.
