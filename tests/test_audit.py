@@ -246,3 +246,205 @@ def test_edit_assessment_records_a_risk_answer(loaded_db, run):
     err = _one_line(run("edit", "assessment", "T2-01", "2021-01-20", "--set", "nsvt=perhaps", "--reason", "r",
                         db=loaded_db))  # fmt: skip
     assert "nsvt: the value given" in err and "not yes, no or empty" in err
+
+
+# --------------------------------------------------------------------------- tamper evidence
+
+
+def _check(run, db):
+    r = run("check", "--json", db=db)
+    return r.code, json.loads(r.out)["findings"]
+
+
+def _audit_found(findings):
+    return [f for f in findings if f["check"] == "audit"]
+
+
+def _raw(engine, *statements):
+    """Run statements outside the tool, as someone editing the database by hand would."""
+    with engine.begin() as conn:
+        for sql in statements:
+            conn.execute(text(sql))
+
+
+def _drop_triggers(engine):
+    if engine.dialect.name == "postgresql":
+        _raw(engine, "DROP TRIGGER audit_entry_no_change ON audit_entry",
+             "DROP TRIGGER audit_entry_no_truncate ON audit_entry")  # fmt: skip
+    else:
+        _raw(engine, "DROP TRIGGER audit_entry_no_update", "DROP TRIGGER audit_entry_no_delete",
+             "DROP TRIGGER audit_entry_no_replace")  # fmt: skip
+
+
+def _trail_with_edits(db, run):
+    for i in range(3):
+        _js(run("edit", "person", "T1-07", "--set", f"notes=call {i}", "--reason", "r", "--json", db=db))
+    engine = _engine(db)
+    with reading(engine) as conn:
+        ids = [r[0] for r in conn.execute(text("SELECT id FROM audit_entry ORDER BY id"))]
+    return engine, ids
+
+
+def test_check_passes_on_an_untouched_trail(loaded_db, run):
+    engine, ids = _trail_with_edits(loaded_db, run)
+    assert len(ids) >= 5
+    assert _check(run, loaded_db) == (0, [])
+    engine.dispose()
+
+
+def test_check_finds_missing_triggers(loaded_db, run):
+    engine, _ids = _trail_with_edits(loaded_db, run)
+    _drop_triggers(engine)
+    code, findings = _check(run, loaded_db)
+    assert code == 1 and len(_audit_found(findings)) == 1
+    assert "triggers" in findings[0]["message"] and findings[0]["where"] == "table audit_entry"
+    engine.dispose()
+
+
+@pytest.mark.parametrize("which", ["first", "middle", "last"])
+def test_check_finds_a_rewritten_entry_with_its_id(loaded_db, run, which):
+    engine, ids = _trail_with_edits(loaded_db, run)
+    target = {"first": ids[0], "middle": ids[len(ids) // 2], "last": ids[-1]}[which]
+    _drop_triggers(engine)
+    _raw(engine, f"UPDATE audit_entry SET what = 'nothing happened' WHERE id = {target}")
+    code, findings = _check(run, loaded_db)
+    assert code == 1
+    chain = [f for f in _audit_found(findings) if "hash chain" in f["message"]]
+    assert [f["where"] for f in chain] == [f"audit entry {target}"]
+    engine.dispose()
+
+
+@pytest.mark.parametrize("which", ["first", "middle"])
+def test_check_finds_a_deleted_entry_at_the_next_id(loaded_db, run, which):
+    engine, ids = _trail_with_edits(loaded_db, run)
+    k = {"first": 0, "middle": len(ids) // 2}[which]
+    _drop_triggers(engine)
+    _raw(engine, f"DELETE FROM audit_entry WHERE id = {ids[k]}")
+    code, findings = _check(run, loaded_db)
+    chain = [f for f in _audit_found(findings) if "hash chain" in f["message"]]
+    assert code == 1 and [f["where"] for f in chain] == [f"audit entry {ids[k + 1]}"]
+    engine.dispose()
+
+
+@pytest.mark.parametrize("change", ["entry_hash = '0000000000000000000000000000000000000000000000000000000000000000'",
+                                    "at = '2020-01-01 00:00:00'", "actor = actor || ' '", "before = NULL"])
+def test_check_finds_any_changed_column(loaded_db, run, change):
+    engine, ids = _trail_with_edits(loaded_db, run)
+    _drop_triggers(engine)
+    _raw(engine, f"UPDATE audit_entry SET {change} WHERE id = {ids[-2]}")
+    chain = [f["where"] for f in _audit_found(_check(run, loaded_db)[1]) if "hash chain" in f["message"]]
+    assert chain == [f"audit entry {ids[-2]}"]
+    engine.dispose()
+
+
+def test_sqlite_insert_or_replace_is_refused_and_found_when_forced(sqlite_db, run):
+    assert run("init", db=sqlite_db).code == 0
+    assert run("import", "all", MINI, db=sqlite_db).code == 0
+    engine, ids = _trail_with_edits(sqlite_db, run)
+    replace = (f"INSERT OR REPLACE INTO audit_entry (id, at, actor, action, table_name, what, entry_hash) "
+               f"SELECT id, at, 'someone', action, table_name, 'nothing', entry_hash FROM audit_entry "
+               f"WHERE id = {ids[2]}")  # fmt: skip
+    with pytest.raises(Exception, match="append-only"):
+        _raw(engine, replace)
+    assert _check(run, sqlite_db) == (0, [])
+    _raw(engine, "DROP TRIGGER audit_entry_no_replace")
+    _raw(engine, replace)
+    code, findings = _check(run, sqlite_db)
+    wheres = [f["where"] for f in _audit_found(findings)]
+    assert code == 1 and wheres == ["table audit_entry", f"audit entry {ids[2]}"]
+    engine.dispose()
+
+
+def test_postgresql_upsert_over_an_entry_is_refused(db_url, run):
+    if not db_url.startswith("postgresql"):
+        pytest.skip("PostgreSQL's upsert")
+    assert run("init", db=db_url).code == 0
+    assert run("import", "all", MINI, db=db_url).code == 0
+    engine = _engine(db_url)
+    with pytest.raises(Exception, match="append-only"):
+        _raw(engine, "INSERT INTO audit_entry (id, at, actor, action, table_name, what) "
+                     "SELECT id, at, 'someone', action, table_name, 'nothing' FROM audit_entry WHERE id = 1 "
+                     "ON CONFLICT (id) DO UPDATE SET what = EXCLUDED.what")  # fmt: skip
+    assert _check(run, db_url) == (0, [])
+    engine.dispose()
+
+
+def test_check_finds_a_dropped_audit_table(loaded_db, run):
+    engine = _engine(loaded_db)
+    _raw(engine, "DROP TABLE audit_entry")
+    code, findings = _check(run, loaded_db)
+    assert code == 1 and _audit_found(findings) == [
+        {"check": "audit", "where": "table audit_entry", "message": "the audit trail is missing (the table was dropped)"}
+    ]
+    engine.dispose()
+
+
+def test_chain_hash_is_the_documented_serialisation_on_both_backends(db_url, run):
+    """Known answer: the first entry's hash from the bytes docs/corrections-and-audit.md defines,
+    spelled out here by hand (microseconds, non-ASCII text, JSON text and nulls)."""
+    import datetime as dt
+    import hashlib
+
+    assert run("init", db=db_url).code == 0
+    engine = _engine(db_url)
+    with writing(engine) as conn:
+        audit.record(conn, action="edit", table="person", what="notes of T9-01 changed", user="nurse.ä",
+                     row_id=7, family="FAM-T9", person="T9-01", before={"notes": "old"},
+                     after={"notes": "née 2001-02-03"}, reason=None, at=dt.datetime(2026, 1, 2, 3, 4, 5, 678901))  # fmt: skip
+        audit.record(conn, action="edit", table="person", what="second", user="x", at=dt.datetime(2026, 1, 2))
+    body = ('["tracker-audit-chain-1",1,"2026-01-02T03:04:05.678901","nurse.ä","edit","person",7,"FAM-T9",'
+            '"T9-01","notes of T9-01 changed","{\\"notes\\": \\"old\\"}","{\\"notes\\": \\"née 2001-02-03\\"}",null]')
+    first = hashlib.sha256(("0" * 64 + "\n").encode() + body.encode("utf-8")).hexdigest()
+    body2 = ('["tracker-audit-chain-1",2,"2026-01-02T00:00:00.000000","x","edit","person",null,null,null,'
+             '"second",null,null,null]')
+    second = hashlib.sha256((first + "\n").encode() + body2.encode("utf-8")).hexdigest()
+    with reading(engine) as conn:
+        stored = [tuple(r) for r in conn.execute(text("SELECT id, entry_hash FROM audit_entry ORDER BY id"))]
+    assert stored == [(1, first), (2, second)]
+    assert _check(run, db_url) == (0, [])
+    engine.dispose()
+
+
+def test_upgrade_hashes_existing_entries_in_order(loaded_db, run):
+    engine, ids = _trail_with_edits(loaded_db, run)
+    with reading(engine) as conn:
+        before = [tuple(r) for r in conn.execute(text("SELECT id, entry_hash FROM audit_entry ORDER BY id"))]
+    migrate.downgrade(engine, "0005")
+    with reading(engine) as conn:
+        assert conn.execute(text("SELECT count(*) FROM audit_entry")).scalar() == len(ids)
+    migrate.upgrade(engine)
+    with reading(engine) as conn:
+        after = [tuple(r) for r in conn.execute(text("SELECT id, entry_hash FROM audit_entry ORDER BY id"))]
+    assert after == before and all(h and len(h) == 64 for _i, h in after)
+    assert _check(run, loaded_db) == (0, [])
+    engine.dispose()
+
+
+@pytest.mark.parametrize("newest", [1, 2])
+def test_check_finds_the_newest_entries_removed(loaded_db, run, newest):
+    """Removing the newest entries leaves a valid chain; the imports and removals they recorded show it."""
+    _js(run("remove", "person", "T1-08", "--reason", "entered twice", "--json", db=loaded_db))
+    engine = _engine(loaded_db)
+    assert _check(run, loaded_db) == (0, [])
+    with reading(engine) as conn:
+        ids = [r[0] for r in conn.execute(text("SELECT id FROM audit_entry ORDER BY id"))]
+    _drop_triggers(engine)
+    _raw(engine, *[f"DELETE FROM audit_entry WHERE id = {i}" for i in ids[-newest:]])
+    # Put the triggers back, as someone covering their tracks would.
+    if engine.dialect.name == "postgresql":
+        _raw(engine, "CREATE TRIGGER audit_entry_no_change BEFORE UPDATE OR DELETE ON audit_entry "
+                     "FOR EACH ROW EXECUTE FUNCTION audit_entry_refuse()",
+             "CREATE TRIGGER audit_entry_no_truncate BEFORE TRUNCATE ON audit_entry "
+             "FOR EACH STATEMENT EXECUTE FUNCTION audit_entry_refuse()")  # fmt: skip
+    else:
+        msg = "audit_entry is append-only: rows are never changed or deleted"
+        _raw(engine, *[f"CREATE TRIGGER audit_entry_no_{v.lower()} BEFORE {v} ON audit_entry "
+                       f"BEGIN SELECT RAISE(ABORT, '{msg}'); END" for v in ("UPDATE", "DELETE")],
+             "CREATE TRIGGER audit_entry_no_replace BEFORE INSERT ON audit_entry WHEN EXISTS "
+             f"(SELECT 1 FROM audit_entry WHERE id = NEW.id) BEGIN SELECT RAISE(ABORT, '{msg}'); END")  # fmt: skip
+    code, findings = _check(run, loaded_db)
+    wheres = {f["where"] for f in _audit_found(findings)}
+    assert code == 1 and "table person" in wheres
+    if newest == 2:
+        assert "table import_run" in wheres
+    engine.dispose()

@@ -168,3 +168,36 @@ def test_migration_killed_part_way_leaves_the_database_as_it_was(loaded_db):
     assert _tracker("init", "--db", loaded_db).returncode == 0
     r = _tracker("check", "--db", loaded_db)
     assert r.returncode == 0, r.stdout + r.stderr
+
+
+def _fill(fs: Path, leave: int) -> Path:
+    filler = fs / "filler"
+    free = os.statvfs(fs).f_bavail * os.statvfs(fs).f_frsize
+    filler.write_bytes(b"\0" * max(free - leave, 0))
+    return filler
+
+
+def test_backup_onto_a_full_disk_is_one_line_and_leaves_nothing(small_fs, tmp_path):
+    db = _mini_at(tmp_path / "clinic.sqlite")
+    filler = _fill(small_fs, 64 * 1024)  # less than the database's size
+    _one_line(_tracker("backup", small_fs / "bk#1.sqlite", "--db", db), "disk is full", "nothing was written")
+    assert sorted(p.name for p in small_fs.iterdir()) == ["filler"]
+    filler.unlink()
+    assert _tracker("backup", small_fs / "bk#1.sqlite", "--db", db).returncode == 0
+
+
+def test_restore_onto_a_full_disk_is_one_line_and_changes_nothing(small_fs, tmp_path):
+    db = _mini_at(small_fs / "clinic.sqlite")
+    backup = tmp_path / "backup.sqlite"
+    assert _tracker("backup", backup, "--db", db).returncode == 0
+    src = tmp_path / "families.csv"
+    src.write_text("family,condition,notes\nFAM-T9,hypertrophic cardiomyopathy,\n")
+    assert _tracker("import", "families", src, "--db", db).returncode == 0
+    before = dump(db)
+    names = sorted(p.name for p in small_fs.iterdir())
+    filler = _fill(small_fs, 64 * 1024)
+    _one_line(_tracker("restore", backup, "--force", "--db", db), "disk is full", "nothing was written")
+    filler.unlink()
+    assert sorted(p.name for p in small_fs.iterdir()) == names
+    assert dump(db) == before
+    assert _tracker("check", "--db", db).returncode == 0

@@ -59,6 +59,7 @@ import numpy as np
 import pandas as pd
 
 from tracker.domain.dates import DAYS_PER_YEAR
+from tracker.outfiles import output_path
 from tracker.io.columns import format_cell
 from tracker.io.layouts import LAYOUTS
 
@@ -893,7 +894,7 @@ def write_csv(frame: pd.DataFrame, columns: list[str], path: Path) -> None:
     exporter writes them (``63`` for 63.0, else the shortest repr).
     """
     cells = [_column_text(frame[c]) for c in columns]
-    with open(path, "w", encoding="utf-8", newline="") as fh:
+    with output_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
         fh.write(",".join(columns) + "\n")
         for start in range(0, len(frame), CHUNK_ROWS):
             rows = zip(*(col[start : start + CHUNK_ROWS].tolist() for col in cells))

@@ -8,13 +8,15 @@ from typing import Annotated
 
 import typer
 
-from tracker.cli.common import engine_for, DbOption, JsonOption, open_store, print_json, print_table
+from tracker.cli.common import engine_for, DbOption, JsonOption, UserOption, open_store, print_json, print_table
 from tracker.cli.common import SettingsOption
 from tracker.domain.genetics import SRC_REREVIEW
 from tracker.settings import load_settings
 from tracker.store import migrate
 from tracker.store import repository as repo
-from tracker.store.database import locate, make_engine, reading, writing
+from sqlalchemy.exc import DBAPIError
+
+from tracker.store.database import DatabaseUnreadable, locate, make_engine, reading, unreadable_reason
 
 
 def init(db: DbOption = None, json_out: JsonOption = False) -> None:
@@ -93,25 +95,16 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
     from tracker.store import checks
 
     location = locate(db)
-    engine = engine_for(db)
-    with reading(engine) as conn:
-        findings = checks.integrity_findings(conn) + checks.schema_findings(conn)
-        reminders = []
-        if not findings:
-            findings += checks.orphan_findings(conn)
-            people = repo.load_people(conn)
-            studies = repo.load_studies(conn, entered=False)
-            assessments = repo.load_assessments(conn)
-            results = repo.load_genetic_results(conn)
-            findings += dc.pedigree_findings(people)
-            findings += dc.date_findings(people, studies, assessments, results)
-            findings += dc.record_findings(people)
-            findings += dc.range_findings(studies, repo.load_measures(conn))
-            findings += dc.placeholder_findings(people, studies, assessments, results)
-            findings += _recall_findings(people, repo.load_variants(conn), results, assessments, studies)
-            # re-review reminders: listed apart, not findings
-            reminders = checks.variant_rereview_reminders(
-                conn, dt.date.today(), load_settings(settings).cascade.variant_rereview_months)
+    reminders = []
+    try:
+        findings, reminders = _check_findings(db, dc, checks, load_settings(settings).cascade.variant_rereview_months)
+    except DatabaseUnreadable as exc:  # not a SQLite file at all: that is the finding
+        findings = [dc.Finding("integrity", "database file", str(exc))]
+    except DBAPIError as exc:
+        reason = unreadable_reason(exc)
+        if reason is None:
+            raise
+        findings = [dc.Finding("integrity", "database file", f"{location.describe()}: {reason}")]
     result = {"database": location.describe(), "ok": not findings,
               "findings": [f.as_dict() for f in findings],
               "reminders": [dict(f.as_dict(), source=SRC_REREVIEW) for f in reminders]}  # fmt: skip
@@ -128,6 +121,29 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
         typer.echo(f"  source: {SRC_REREVIEW}")
     if findings:
         raise typer.Exit(1)
+
+
+def _check_findings(db, dc, checks, rereview_months: int) -> tuple[list, list]:
+    engine = engine_for(db)
+    reminders = []
+    with reading(engine) as conn:
+        findings = checks.integrity_findings(conn) + checks.schema_findings(conn)
+        if not findings:
+            findings += checks.audit_findings(conn)
+            findings += checks.orphan_findings(conn)
+            people = repo.load_people(conn)
+            studies = repo.load_studies(conn, entered=False)
+            assessments = repo.load_assessments(conn)
+            results = repo.load_genetic_results(conn)
+            findings += dc.pedigree_findings(people)
+            findings += dc.date_findings(people, studies, assessments, results)
+            findings += dc.record_findings(people)
+            findings += dc.range_findings(studies, repo.load_measures(conn))
+            findings += dc.placeholder_findings(people, studies, assessments, results)
+            findings += _recall_findings(people, repo.load_variants(conn), results, assessments, studies)
+            # re-review reminders: listed apart, not findings
+            reminders = checks.variant_rereview_reminders(conn, dt.date.today(), rereview_months)
+    return findings, reminders
 
 
 def _recall_findings(people, variants, results, assessments, studies):
@@ -165,33 +181,27 @@ def restore_(
     backup_file: Annotated[Path, typer.Argument(help="Backup file made by `tracker backup`.")],
     force: Annotated[bool, typer.Option("--force", help="Replace the existing database.")] = False,
     db: DbOption = None,
+    user: UserOption = None,
     json_out: JsonOption = False,
 ) -> None:
     """Restore a database from a backup, after verifying the backup. Refuses to replace an
-    existing database without --force.
+    existing database without --force. The audit trail is never rolled back: every entry of the
+    replaced database is kept, followed by a "restore" entry naming the backup.
 
     Example: tracker restore backups/clinic-2026-12-01.sqlite --db clinic.sqlite --force
     """
     from tracker.store import backup
 
     location = locate(db)
-    info = backup.restore(location, backup_file, force=force)
-    _audit_restore(db, info)
+    info = backup.restore(location, backup_file, force=force, user=user)
     if json_out:
-        print_json({"database": location.describe(), "restored_from": info.file, "revision": info.revision})
-    else:
-        typer.echo(f"{location.describe()}: restored from {info.file} (schema revision {info.revision})")
-
-
-def _audit_restore(db: str | None, info) -> None:
-    """Note the restore in the restored database's own audit trail (when it has one)."""
-    from tracker.store import audit
-
-    engine = engine_for(db)
-    with writing(engine) as conn:
-        if migrate.current_revision(conn) == migrate.head_revision():
-            audit.record(conn, action="restore", table="database", what=f"restored from backup {info.file}",
-                         after={"backup": str(info.file), "revision": info.revision})  # fmt: skip
+        print_json({"database": location.describe(), **info.as_dict()})
+        return
+    typer.echo(f"{location.describe()}: restored from {info.file} (schema revision {info.revision}"
+               + (f", upgraded from {info.upgraded_from}" if info.upgraded_from else "") + "); "
+               f"{info.carried_over} later audit entries kept; restore noted as audit entry {info.restore_entry}")
+    if info.previous_file_kept_as:
+        typer.echo(f"the replaced file could not be read; it is kept as {info.previous_file_kept_as}")
 
 
 def register(app: typer.Typer) -> None:

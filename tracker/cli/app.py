@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import sys
 
 import typer
@@ -63,43 +64,59 @@ def main(argv: list[str] | None = None) -> int:
 
 
 def _run(argv: list[str] | None) -> int:
+    args = list(sys.argv[1:] if argv is None else argv)
     try:
         code = app(args=argv, standalone_mode=False)
         if isinstance(code, int):  # typer.Exit(n) inside a command, returned by click
             return code
     except InputRejected as exc:
-        problems = exc.problems
+        problems = [_one_line(str(p)) for p in exc.problems]
         for p in problems[:50]:
-            sys.stderr.write(f"error: {_one_line(str(p))}\n")
+            sys.stderr.write(f"error: {p}\n")
         if len(problems) > 50:
             sys.stderr.write(f"error: ... and {len(problems) - 50} more problems\n")
+        summary = problems[0] if len(problems) == 1 else f"{len(problems)} problems; nothing was written"
         if len(problems) > 1:
-            sys.stderr.write(f"error: {len(problems)} problems; nothing was written\n")
+            sys.stderr.write(f"error: {summary}\n")
+        _json_error(args, summary, 1, problems=problems)
         return 1
     except UserError as exc:
-        sys.stderr.write(f"error: {_one_line(str(exc))}\n")
-        return 1
+        return _fail(args, _one_line(str(exc)))
     except typer.Exit as exc:
         return exc.exit_code
     except typer.Abort:
-        sys.stderr.write("error: aborted\n")
-        return 1
+        return _fail(args, "aborted")
     except KeyboardInterrupt:
-        sys.stderr.write("error: interrupted; nothing was written by the interrupted command\n")
-        return 130
+        return _fail(args, "interrupted; nothing was written by the interrupted command", 130)
     except _click_errors() as exc:
         exc.show()
+        _json_error(args, _one_line(exc.format_message()), exc.exit_code)
         return exc.exit_code
     except OSError as exc:
-        sys.stderr.write(f"error: {_one_line(_os_message(exc))}\n")
-        return 1
-    except Exception as exc:  # the store refused a write (disk full, read-only, lock)
+        return _fail(args, _one_line(_os_message(exc)))
+    except Exception as exc:  # the store refused a write (disk full, read-only, lock) or cannot be read
         message = _store_message(exc)
         if message is None:
             raise
-        sys.stderr.write(f"error: {message}\n")
-        return 1
+        return _fail(args, message)
     return 0
+
+
+def _fail(args: list[str], message: str, code: int = 1) -> int:
+    """One line on stderr; with --json also a JSON object on stdout, so a script can tell failure
+    from an empty result."""
+    sys.stderr.write(f"error: {message}\n")
+    _json_error(args, message, code)
+    return code
+
+
+def _json_error(args: list[str], message: str, code: int, problems: list[str] | None = None) -> None:
+    if "--json" not in args[: args.index("--") if "--" in args else len(args)]:
+        return
+    data = {"error": message, "exit_code": code}
+    if problems is not None:
+        data["problems"] = problems
+    sys.stdout.write(json.dumps(data, ensure_ascii=False) + "\n")
 
 
 def _click_errors() -> tuple[type, ...]:
@@ -113,8 +130,14 @@ def _os_message(exc: OSError) -> str:
 
 
 def _store_message(exc: Exception) -> str | None:
-    from sqlalchemy.exc import OperationalError
+    from sqlalchemy.exc import DBAPIError, OperationalError
 
+    from tracker.cli.common import current_database
+    from tracker.store.database import unreadable_reason
+
+    reason = unreadable_reason(exc) if isinstance(exc, DBAPIError) else None
+    if reason is not None:
+        return f"{current_database()}: {reason}"
     if not isinstance(exc, OperationalError):
         return None
     text = str(exc.orig) if getattr(exc, "orig", None) is not None else str(exc)

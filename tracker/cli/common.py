@@ -45,18 +45,27 @@ err = Console(stderr=True, highlight=False)
 
 
 _engines: list[Engine] = []
+_databases: list[str] = []
 
 
 def engine_for(db: str | None, *, create: bool = False) -> Engine:
     """An engine for ``--db``; every engine made here is disposed when the command ends."""
-    engine = make_engine(locate(db), create=create)
+    location = locate(db)
+    _databases.append(location.describe())
+    engine = make_engine(location, create=create)
     _engines.append(engine)
     return engine
+
+
+def current_database() -> str:
+    """The database the command opened last (for error messages), else "--db"."""
+    return _databases[-1] if _databases else "--db"
 
 
 def dispose_engines() -> None:
     while _engines:
         _engines.pop().dispose()
+    _databases.clear()
 
 
 def open_store(db: str | None) -> Engine:

@@ -6,8 +6,6 @@ writes the file and reports what was written.
 
 from __future__ import annotations
 
-import os
-import tempfile
 from pathlib import Path
 from typing import Annotated
 
@@ -16,22 +14,15 @@ from sqlalchemy import Connection
 
 from tracker.cli.common import DbOption, JsonOption, open_store, print_json
 from tracker.errors import UserError
+from tracker.outfiles import check_output, write_output
 from tracker.outputs import fhir
 from tracker.store import repository as repo
 from tracker.store.database import reading
 
 
-def _write_atomic(path: Path, text: str) -> None:
-    """Write ``text`` to ``path`` through a temporary file in the same folder (no half-written file)."""
-    folder = path.parent if str(path.parent) else Path(".")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+def _write_atomic(path: Path, text: str, force: bool = True) -> None:
+    """Write ``text`` to ``path`` through a private temporary file in the same folder (no half-written file)."""
+    write_output(path, text, force=force, newline="\n")
 
 
 def export_fhir(
@@ -41,6 +32,7 @@ def export_fhir(
     *,
     include_names: bool = False,
     claim_profiles: bool = False,
+    force: bool = True,
 ) -> dict:
     """Write ``family`` as a FHIR R4B collection Bundle (JSON) to ``out_path``; returns a summary.
 
@@ -54,6 +46,7 @@ def export_fhir(
         raise UserError(f"--out {out_path} is a folder; give a file name")
     if not out_path.parent.exists() and str(out_path.parent):
         raise UserError(f"--out {out_path}: folder {out_path.parent} does not exist")
+    check_output(out_path, force=force)
     families = repo.load_families(conn)
     if family not in set(families["family"]):
         raise UserError(f"family {family} is not in the database")
@@ -74,7 +67,7 @@ def export_fhir(
         )
     except ValueError as exc:  # PedigreeError is a ValueError
         raise UserError(f"family {family}: {exc}") from exc
-    _write_atomic(out_path, fhir.bundle_json(bundle))
+    _write_atomic(out_path, fhir.bundle_json(bundle), force)
     codes = set(people.loc[people["family"] == family, "person"])
     return {
         "family": family,
@@ -105,6 +98,7 @@ def export_fhir_command(
     ] = False,
     db: DbOption = None,
     json_out: JsonOption = False,
+    force: bool = True,
 ) -> None:
     """Write one family as an HL7 FHIR R4B Bundle (JSON): Patients, family history, measurements, genetics.
 
@@ -116,7 +110,8 @@ def export_fhir_command(
     """
     engine = open_store(db)
     with reading(engine) as conn:
-        summary = export_fhir(conn, family, out, include_names=include_names, claim_profiles=claim_profiles)
+        summary = export_fhir(conn, family, out, include_names=include_names, claim_profiles=claim_profiles,
+                              force=force)  # fmt: skip
     if json_out:
         print_json(summary)
         return

@@ -21,6 +21,7 @@ from tracker.cli.common import (
     print_table,
 )
 from tracker.errors import UserError
+from tracker.outfiles import check_output
 from tracker.io import csv_import, export, pseudonymise
 from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
 from tracker.outputs import summary
@@ -150,10 +151,12 @@ def export_(
                      "gene with fewer people (default: settings, else 5)."),
     ] = None,
     settings: SettingsOption = None,
+    force: Annotated[bool, typer.Option("--force", help="Replace existing files.")] = False,
     db: DbOption = None,
     json_out: JsonOption = False,
 ) -> None:
     """Write stored records in the import layout (import -> export -> import is exact).
+    An existing file is replaced only with --force.
 
     With --pseudonymise, write a pseudonymised research extract to a folder. With
     --fhir FAMILY, write that family as an HL7 FHIR R4B Bundle (as `tracker export-fhir`).
@@ -170,7 +173,7 @@ def export_(
         from tracker.cli.export_fhir import export_fhir_command
 
         export_fhir_command(fhir_family, out, include_names=include_names, claim_profiles=claim_profiles,
-                            db=db, json_out=json_out)  # fmt: skip
+                            db=db, json_out=json_out, force=force)  # fmt: skip
         return
     if kind is None:
         raise UserError("say what to export: a layout name, `all`, or --fhir FAMILY")
@@ -182,13 +185,15 @@ def export_(
         return
     if dates is not None or min_cell is not None:
         raise UserError("--dates and --min-cell need --pseudonymise")
+    if kind != "all":
+        if out.is_dir():
+            raise UserError(f"--out {out} is a folder; give a file name")
+        check_output(out, force=force)
     engine = open_store(db)
     with reading(engine) as conn:
         if kind == "all":
-            counts = export.export_all(conn, out)
+            counts = export.export_all(conn, out, force=force)
         else:
-            if out.is_dir():
-                raise UserError(f"--out {out} is a folder; give a file name")
             counts = {kind: export.export_kind(conn, kind, out)}
     if json_out:
         print_json({"out": str(out), "rows": counts})

@@ -50,9 +50,10 @@ from tracker.outputs import ics, worklist_csv
 from tracker.outputs.worklist_pdf import GAP_WORDS, booked_text, flag_words, waiting_text
 from tracker.rules import available_rule_sets, load_rule_set
 from tracker.settings import Settings, load_settings
+from tracker.outfiles import write_output
 from tracker.store import audit
 from tracker.store import repository as repo
-from tracker.store.database import reading, writing
+from tracker.store.database import check_row_id, reading, writing
 from tracker.store.models import Family, ImpactItem, Person, Variant, VariantClassification
 
 AcmgClass = Enum("AcmgClass", {c: c for c in ACMG_CLASSES}, type=str)
@@ -672,6 +673,7 @@ def tasks_done(
     """
     if not note.strip():
         raise UserError("--note must not be empty")
+    check_row_id(task_id, "TASK_ID")
     engine = open_store(db)
     with writing(engine) as conn:
         row = conn.execute(select(ImpactItem.id, ImpactItem.done_on, ImpactItem.person_id, ImpactItem.change)
@@ -997,8 +999,8 @@ def worklist(
 
     files = {"csv": None, "ics": None}
     if csv_out is not None:
-        csv_out.write_text(worklist_csv.worklist_csv(due_rows + affected_rows + gap_rows, cautions=CAUTIONS),
-                           encoding="utf-8")
+        write_output(csv_out, worklist_csv.worklist_csv(due_rows + affected_rows + gap_rows, cautions=CAUTIONS),
+                     where="--csv", newline=None)
         files["csv"] = str(csv_out)
     if ics_out is not None:
         visits = [
@@ -1006,7 +1008,7 @@ def worklist(
                               f"{r['waiting'][0].upper()}{r['waiting'][1:]}. {r['reason']}" if r["waiting"] else r["reason"])
             for r in due_rows + affected_rows
         ]  # fmt: skip
-        ics_out.write_bytes(ics.calendar_bytes(visits, caution=" ".join(CAUTIONS)))
+        write_output(ics_out, ics.calendar_bytes(visits, caution=" ".join(CAUTIONS)), where="--ics")
         files["ics"] = str(ics_out)
 
     # variant re-review reminders (data only; see _variant_rereview)

@@ -16,6 +16,7 @@ from typing import Annotated
 import typer
 
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
+from tracker.outfiles import output_path
 from tracker.domain.dates import parse_date
 from tracker.engines import family_state as fs
 from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
@@ -148,7 +149,8 @@ def letter(
     out.mkdir(parents=True, exist_ok=True)
     path = out / f"letter-{person}.pdf"
     replaced = path.exists()
-    write_letter_pdf(composed, path)
+    with output_path(path) as tmp:
+        write_letter_pdf(composed, tmp)
     r = composed.readability
     template_name = str(template) if template is not None else plan.default_template
     if json_out:

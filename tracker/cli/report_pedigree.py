@@ -8,6 +8,7 @@ from typing import Annotated
 import typer
 
 from tracker.cli.common import DbOption, JsonOption, open_store, print_json
+from tracker.outfiles import output_path
 from tracker.errors import UserError
 from tracker.outputs.pedigree_drawing import write_pedigree_pdf
 from tracker.store import repository as repo
@@ -46,7 +47,8 @@ def pedigree_(
         raise UserError(f"--out {out} is a file; give a folder")
     out.mkdir(parents=True, exist_ok=True)
     path = out / f"pedigree-{family}.pdf"
-    drawing = write_pedigree_pdf(path, family, people, results, assessments, variants, names=names)
+    with output_path(path) as tmp:
+        drawing = write_pedigree_pdf(tmp, family, people, results, assessments, variants, names=names)
     if json_out:
         print_json(
             {"file": str(path), "family": family, "members": drawing.members, "warnings": list(drawing.warnings)}

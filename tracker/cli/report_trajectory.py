@@ -38,6 +38,7 @@ from tracker.cli import recall as R
 from tracker.cli import review as RV
 from tracker.cli import risk_view as RK
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
+from tracker.outfiles import output_path
 from tracker.engines import family_state as fs
 from tracker.engines import review, risk, trends
 from tracker.engines.schedule import propose_recall
@@ -322,7 +323,8 @@ def trajectory_report(
     out.mkdir(parents=True, exist_ok=True)
     path = out / T.file_name(person)
     replaced = path.exists()
-    T.write_trajectory_pdf(doc, path)
+    with output_path(path) as tmp:
+        T.write_trajectory_pdf(doc, tmp)
     pages = _page_count(path)
     if json_out:
         print_json(

@@ -18,6 +18,7 @@ import typer
 
 from tracker.cli import recall as R
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
+from tracker.outfiles import output_path
 from tracker.engines.schedule import CAUTIONS
 from tracker.errors import UserError
 from tracker.outputs import worklist_pdf as W
@@ -78,7 +79,8 @@ def worklist_report(
     out.mkdir(parents=True, exist_ok=True)
     path = out / W.file_name(start, end)
     replaced = path.exists()
-    W.write_worklist_pdf(doc, path)
+    with output_path(path) as tmp:
+        W.write_worklist_pdf(doc, tmp)
     if json_out:
         print_json(
             {

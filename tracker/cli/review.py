@@ -19,6 +19,7 @@ from rich.table import Table
 
 from tracker.cli import risk_view as RK
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
+from tracker.outfiles import output_path
 from tracker.domain.dates import age_at, parse_partial_date
 from tracker.engines import review
 from tracker.errors import UserError
@@ -437,7 +438,8 @@ def trends_(
         t = t[t["measure"] == measure]
     rows = _records(t, TREND_JSON_KEYS)
     if csv_path is not None:
-        pd.DataFrame(rows, columns=TREND_JSON_KEYS).assign(caution=review.CAUTION).to_csv(csv_path, index=False)
+        with output_path(csv_path, where="--csv") as tmp:
+            pd.DataFrame(rows, columns=TREND_JSON_KEYS).assign(caution=review.CAUTION).to_csv(tmp, index=False)
         typer.echo(f"wrote {len(rows)} rows to {csv_path}", err=True)
     result = {"guideline": _guideline(s), "horizon_years": horizon, "family": family, "measure": measure,
               "rows": rows, "not_pooled": review.NOT_POOLED, "caution": review.CAUTION}  # fmt: skip

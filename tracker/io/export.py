@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import csv
 import io
-import os
 from pathlib import Path
 
 import pandas as pd
@@ -19,6 +18,7 @@ from sqlalchemy import Connection
 import re
 
 from tracker.io.columns import PROTECTED, format_cell
+from tracker.outfiles import check_output, write_output
 from tracker.io.layouts import LAYOUTS
 from tracker.store import repository as repo
 
@@ -47,10 +47,7 @@ def to_csv_text(frame: pd.DataFrame, kind: str) -> str:
 
 def write_private(path: Path, text: str) -> None:
     """Write a UTF-8 text file readable by its owner only (0600): exports hold health data."""
-    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
-    with os.fdopen(fd, "w", encoding="utf-8", newline="") as f:
-        f.write(text)
-    os.chmod(path, 0o600)  # an existing file keeps its old mode on open: set it
+    write_output(path, text)
 
 
 def export_kind(conn: Connection, kind: str, path: Path) -> int:
@@ -60,7 +57,9 @@ def export_kind(conn: Connection, kind: str, path: Path) -> int:
     return len(frame)
 
 
-def export_all(conn: Connection, folder: Path) -> dict[str, int]:
-    """Write every kind into ``folder`` under its layout file name."""
+def export_all(conn: Connection, folder: Path, *, force: bool = True) -> dict[str, int]:
+    """Write every kind into ``folder`` under its layout file name (refuses to replace a file without ``force``)."""
     folder.mkdir(parents=True, exist_ok=True)
+    for kind in LAYOUTS:
+        check_output(folder / LAYOUTS[kind].file_name, force=force)
     return {kind: export_kind(conn, kind, folder / LAYOUTS[kind].file_name) for kind in LAYOUTS}

@@ -9,12 +9,22 @@ Who is the ``--user`` given to the command, else the operating-system user
 (:func:`actor`).  When is UTC, stored without a zone and shown as ISO 8601
 with ``Z``.  ``before`` / ``after`` are JSON objects of the changed fields
 (dates as ISO text).
+
+The trail is tamper-evident: each entry carries ``entry_hash``, the SHA-256 of
+the previous entry's hash and the entry's own content (:func:`entry_hash`,
+migration 0007); ``tracker check`` recomputes the chain
+(:func:`tracker.store.checks.audit_findings`).  The canonical serialisation is
+defined here and in docs/corrections-and-audit.md, and is identical on SQLite
+and PostgreSQL because it uses only values both store exactly: integers, text
+as stored (``before``/``after`` are the stored JSON text, never re-encoded),
+and ``at`` written as ``YYYY-MM-DDTHH:MM:SS.ffffff`` (six fraction digits always).
 """
 
 from __future__ import annotations
 
 import datetime as dt
 import getpass
+import hashlib
 import json
 from typing import Any
 
@@ -38,6 +48,62 @@ def actor(user: str | None) -> str:
 
 def now_utc() -> dt.datetime:
     return dt.datetime.now(dt.timezone.utc).replace(tzinfo=None, microsecond=0)
+
+
+# The hash chain.  Changing any of this breaks every stored chain: it is frozen (a copy lives in
+# migration 0007, which hashes the entries written before the chain existed).
+CHAIN_VERSION = "tracker-audit-chain-1"
+GENESIS = "0" * 64  # the "previous hash" of the first entry
+HASHED = ("id", "at", "actor", "action", "table_name", "row_id", "family_code", "person_code",
+          "what", "before", "after", "reason")  # fmt: skip
+
+
+def canonical(entry: dict[str, Any]) -> bytes:
+    """The bytes hashed for one entry: a compact JSON array, UTF-8.
+
+    ``[CHAIN_VERSION, id, at, actor, action, table_name, row_id, family_code,
+    person_code, what, before, after, reason]`` with ``at`` as
+    ``YYYY-MM-DDTHH:MM:SS.ffffff`` (UTC, no zone), integers as integers, absent
+    values as ``null``, text exactly as stored; ``json.dumps`` with
+    ``ensure_ascii=False`` and separators ``","`` / ``":"``.
+    """
+    at = entry["at"]
+    values = [CHAIN_VERSION, int(entry["id"]), at.strftime("%Y-%m-%dT%H:%M:%S.%f")]
+    for k in HASHED[2:]:
+        v = entry[k]
+        values.append(int(v) if k == "row_id" and v is not None else v)
+    return json.dumps(values, ensure_ascii=False, separators=(",", ":")).encode("utf-8")
+
+
+def entry_hash(previous: str, entry: dict[str, Any]) -> str:
+    """SHA-256 (hex) of the previous entry's hash, a newline, and :func:`canonical` of this entry."""
+    return hashlib.sha256(previous.encode("ascii") + b"\n" + canonical(entry)).hexdigest()
+
+
+def last_link(conn: Connection) -> tuple[int, str]:
+    """(id, hash) of the newest entry, or (0, GENESIS) for an empty trail."""
+    row = conn.execute(select(AuditEntry.id, AuditEntry.entry_hash).order_by(AuditEntry.id.desc()).limit(1)).first()
+    if row is None:
+        return 0, GENESIS
+    return int(row[0]), row[1] or GENESIS
+
+
+def append_raw(conn: Connection, entry: dict[str, Any]) -> tuple[int, str]:
+    """Append one entry (its fields as in :data:`HASHED`, without ``id``) at the end of the chain.
+
+    The caller holds the write lock (:func:`tracker.store.database.writing`), so the
+    newest entry cannot change between reading it and appending.
+    """
+    last_id, previous = last_link(conn)
+    row = {k: entry.get(k) for k in HASHED[1:]}
+    row["id"] = last_id + 1
+    at = row["at"]
+    if at.tzinfo is not None:
+        at = at.astimezone(dt.timezone.utc).replace(tzinfo=None)
+    row["at"] = at
+    row["entry_hash"] = entry_hash(previous, row)
+    conn.execute(insert(AuditEntry), row)
+    return row["id"], row["entry_hash"]
 
 
 def _json(values: dict[str, Any] | None) -> str | None:
@@ -72,8 +138,8 @@ def record(
     """Append one entry inside the caller's transaction; returns its id."""
     if action not in ACTIONS:
         raise ValueError(f"unknown audit action {action!r}")
-    return conn.execute(
-        insert(AuditEntry).returning(AuditEntry.id),
+    entry_id, _ = append_raw(
+        conn,
         dict(
             at=at or now_utc(),
             actor=actor(user),
@@ -87,7 +153,8 @@ def record(
             after=_json(after),
             reason=reason,
         ),
-    ).scalar_one()
+    )
+    return entry_id
 
 
 COLUMNS = ["id", "at", "actor", "action", "table", "family", "person", "what", "before", "after", "reason"]

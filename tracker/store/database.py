@@ -3,14 +3,19 @@
 A plain path means a SQLite file; a URL (``postgresql+psycopg://...``) means
 that server.  The same code runs on both.
 
-SQLite connections get: foreign keys on, WAL journal (readers do not block
-the writer), a busy timeout, and explicit ``BEGIN`` statements so that a
-whole import or migration is one transaction, including its DDL.
+SQLite connections get: foreign keys on, a busy timeout, and explicit
+``BEGIN`` statements so that a whole import or migration is one transaction,
+including its DDL.  A file is switched to the WAL journal (readers do not
+block the writer) the first time the tool writes to it; a command that only
+reads leaves the file exactly as it found it.  Every SQLite file is opened
+through one ``file:`` URI built by :func:`sqlite_uri`, so any character in a
+path (``#``, ``?``, ``%``, spaces, non-ASCII) names that file and nothing else.
 """
 
 from __future__ import annotations
 
 import os
+import sqlite3
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
@@ -18,7 +23,7 @@ from typing import Iterator
 from urllib.parse import quote
 
 from sqlalchemy import Connection, Engine, create_engine, event, text
-from sqlalchemy.engine import make_url
+from sqlalchemy.engine import URL, make_url
 from sqlalchemy.exc import ArgumentError
 
 from tracker.errors import UserError
@@ -26,6 +31,68 @@ from tracker.errors import UserError
 DEFAULT_FILE = "tracker.sqlite"
 ENV_VAR = "TRACKER_DB"
 BUSY_TIMEOUT_MS = 5000
+SQLITE_HEADER = b"SQLite format 3\x00"
+# Row ids are Integer columns: 32-bit on PostgreSQL; SQLite's 64-bit integers hold them too.
+ROW_ID_MAX = 2**31 - 1
+
+
+def check_row_id(value: int, where: str) -> int:
+    """Refuse an id no row can have (zero, negative, or beyond a 32-bit integer) before it reaches the store."""
+    if not 1 <= value <= ROW_ID_MAX:
+        raise UserError(f"{where}: {value} is not a valid number (1 to {ROW_ID_MAX})")
+    return value
+
+
+class DatabaseUnreadable(UserError):
+    """The database file is not a SQLite database, or is damaged (named in the message)."""
+
+
+def unreadable_reason(exc: BaseException) -> str | None:
+    """What is wrong with a database file that SQLite cannot read, from its error (else None)."""
+    orig = getattr(exc, "orig", exc)
+    if not isinstance(orig, sqlite3.DatabaseError):
+        return None
+    low = str(orig).lower()
+    for words, reason in (
+        (("malformed", "corrupt"), "the database file is damaged (SQLite: database disk image is malformed)"),
+        (("not a database",), "not a SQLite database file"),
+        (("disk i/o error",), "the database file cannot be read (disk I/O error)"),
+    ):
+        if any(w in low for w in words):
+            return reason
+    return None
+
+
+def sqlite_uri(path: Path, **params: str) -> str:
+    """The ``file:`` URI of ``path`` with every special character percent-encoded.
+
+    SQLite reads ``?`` as the start of the parameters and ``#`` as the end of the
+    name, and decodes ``%XX``; an unquoted path holding any of them opens another
+    file.  The absolute path is quoted byte by byte (UTF-8), keeping only ``/``.
+    """
+    uri = "file:" + quote(str(Path(path).absolute()), safe="/")
+    if params:
+        uri += "?" + "&".join(f"{k}={quote(str(v), safe='')}" for k, v in params.items())
+    return uri
+
+
+def sqlite_connect(path: Path, **params: str) -> sqlite3.Connection:
+    """A sqlite3 connection to exactly ``path`` (see :func:`sqlite_uri`), autocommit, busy timeout set."""
+    conn = sqlite3.connect(sqlite_uri(path, **params), uri=True, timeout=BUSY_TIMEOUT_MS / 1000,
+                           isolation_level=None, check_same_thread=False)  # fmt: skip
+    conn.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
+    return conn
+
+
+def check_sqlite_file(path: Path, where: str = "--db") -> None:
+    """Refuse a file that is not a SQLite database (an empty file is a new database)."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(100)
+    except IsADirectoryError:
+        raise UserError(f"{where} {path}: is a folder, not a database file") from None
+    if head and (len(head) < 100 or not head.startswith(SQLITE_HEADER)):
+        raise DatabaseUnreadable(f"{where} {path}: not a SQLite database file (or its header is damaged)")
 
 
 @dataclass(frozen=True)
@@ -57,6 +124,11 @@ def locate(db: str | None) -> Location:
         if url.get_backend_name() == "sqlite":
             path = Path(url.database or "").expanduser()
             return Location(f"sqlite:///{path}", path)
+        if url.get_backend_name() != "postgresql":
+            raise UserError(
+                f"--db: unknown database kind {url.get_backend_name()!r}: give a SQLite file path "
+                "or a postgresql+psycopg://... URL"
+            )
         return Location(target, None)
     path = Path(target).expanduser()
     return Location(f"sqlite:///{path}", path)
@@ -82,15 +154,23 @@ def make_engine(location: Location, *, create: bool = False) -> Engine:
                     "(or `tracker demo`) first, or give --db"
                 )
             _make_private(location.sqlite_path)
-        url = _read_only_url(location.sqlite_path) or location.url
-        engine = create_engine(url, connect_args={"timeout": BUSY_TIMEOUT_MS / 1000})
+        path = location.sqlite_path
+        check_sqlite_file(path)
+        params = _read_only_params(path)
+        # The URL only tells SQLAlchemy a file (not memory) is used; the file itself is opened
+        # through its quoted URI, whatever characters its path holds.
+        engine = create_engine(URL.create("sqlite", database=str(path.absolute())),
+                               creator=lambda: sqlite_connect(path, **params))  # fmt: skip
         _configure_sqlite(engine)
         return engine
-    return create_engine(location.url, pool_pre_ping=True)
+    try:
+        return create_engine(location.url, pool_pre_ping=True)
+    except (ArgumentError, ImportError) as exc:
+        raise UserError(f"--db: cannot use {location.describe()} ({' '.join(str(exc).split())})") from None
 
 
-def _read_only_url(path: Path) -> str | None:
-    """A read-only URL for a file this process cannot write, else None.
+def _read_only_params(path: Path) -> dict[str, str]:
+    """URI parameters for a file this process cannot write (else none).
 
     SQLite in WAL mode writes ``-wal`` and ``-shm`` files beside the database even
     to read it.  A file that cannot be written (permissions, a read-only mount) is
@@ -99,13 +179,13 @@ def _read_only_url(path: Path) -> str | None:
     also opened ``immutable`` (safe only when no ``-wal`` file holds pending pages).
     """
     if os.access(path, os.W_OK) and os.access(path.parent, os.W_OK):
-        return None
-    params = "mode=ro"
+        return {}
+    params = {"mode": "ro"}
     read_only_fs = bool(os.statvfs(path.parent).f_flag & os.ST_RDONLY)
     wal = path.with_name(path.name + "-wal")
     if read_only_fs and not (wal.exists() and wal.stat().st_size > 0):
-        params += "&immutable=1"
-    return f"sqlite:///file:{quote(str(path.resolve()))}?{params}&uri=true"
+        params["immutable"] = "1"
+    return params
 
 
 def _configure_sqlite(engine: Engine) -> None:
@@ -116,10 +196,6 @@ def _configure_sqlite(engine: Engine) -> None:
         cur = dbapi_conn.cursor()
         cur.execute("PRAGMA foreign_keys = ON")
         cur.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
-        try:
-            cur.execute("PRAGMA journal_mode = WAL")
-        except Exception:  # a read-only file cannot switch journal mode
-            pass
         cur.close()
 
     @event.listens_for(engine, "begin")
@@ -139,11 +215,25 @@ def writing(engine: Engine) -> Iterator[Connection]:
     """
     with engine.connect() as conn:
         if engine.dialect.name == "sqlite":
+            use_wal(conn)
             conn = conn.execution_options(sqlite_begin="IMMEDIATE")
         with conn.begin():
             if engine.dialect.name == "postgresql":
                 _take_write_lock(conn)
             yield conn
+
+
+def use_wal(conn: Connection) -> None:
+    """Switch a SQLite file to the WAL journal (kept in the file), before a write transaction.
+
+    Only writers do this: a command that only reads never changes the file's journal mode.
+    """
+    raw = conn.connection.driver_connection
+    try:
+        if raw.execute("PRAGMA journal_mode").fetchone()[0] != "wal":
+            raw.execute("PRAGMA journal_mode = WAL")
+    except sqlite3.OperationalError:  # a read-only file cannot switch; the write then fails clearly
+        pass
 
 
 # The PostgreSQL advisory lock every writer of this tool takes: one per schema (a server may

@@ -322,7 +322,9 @@ class AuditEntry(Base):
     """One write to the store: who, when, what, for whom, the values before and after, why.
 
     Append-only: a database trigger (migration 0004) refuses every UPDATE and
-    DELETE of this table, on SQLite and on PostgreSQL.  ``before`` and ``after``
+    DELETE of this table, on SQLite and on PostgreSQL (and, on SQLite, an INSERT
+    over an existing id: migration 0007).  ``entry_hash`` chains the entries
+    (:func:`tracker.store.audit.entry_hash`).  ``before`` and ``after``
     are JSON objects (text); an import is one entry per file (name, SHA-256 and
     counts), because imported rows are never changed except by audited edits.
     """
@@ -341,3 +343,4 @@ class AuditEntry(Base):
     before: Mapped[str | None] = mapped_column(Text)
     after: Mapped[str | None] = mapped_column(Text)
     reason: Mapped[str | None] = mapped_column(Text)
+    entry_hash: Mapped[str | None] = mapped_column(String(64))
