@@ -195,10 +195,31 @@ def test_reclassify_upgrade_then_downgrade(prac_db, run, tmp_path):
     assert "declined on 2017-05-01" in dec["what_changes"] and "do not re-approach" in dec["action"]
     assert ("PR-08", "unscheduled_review") not in changes  # not recalled
     assert ("PR-11", "offer_diagnostic_testing") in changes  # affected, untested
-    # the stored task keeps the precise code in its text
+    # the stored task holds the precise code (schema revision 0008)
     tasks = js(run, "tasks", "--family", "PRAC1", db=prac_db)["tasks"]
-    assert any(t["person"] == "PR-06" and t["what_changes"].startswith("[predictive_testing_deferred]")
-               for t in tasks)
+    stored = {(t["person"], t["change"]) for t in tasks}
+    assert {("PR-06", "predictive_testing_deferred"), ("PR-08", "declined_not_reapproached"),
+            ("PR-11", "offer_diagnostic_testing")} <= stored  # fmt: skip
+    assert not any(t["what_changes"].startswith("[") for t in tasks)
+
+    # Downgrading below 0008 keeps every task: the precise code moves to the front of the text
+    # under the nearest older code, and the upgrade moves it back (nothing lost either way).
+    from conftest import dump
+    from tracker.store import migrate
+    from tracker.store.database import locate, make_engine
+
+    before = dump(prac_db)
+    engine = make_engine(locate(prac_db))
+    migrate.downgrade(engine, "0007")
+    with engine.connect() as conn:
+        from sqlalchemy import text as sql
+
+        old = {r[0]: r[1] for r in conn.execute(sql("SELECT change, what_changes FROM impact_item "
+                                                    "WHERE what_changes LIKE '[predictive_testing_deferred]%'"))}
+    assert list(old) == ["offer_predictive_testing"]
+    migrate.upgrade(engine)
+    engine.dispose()
+    assert dump(prac_db) == before
 
     # released again, now on the class of 2025-06-01; recall says so
     r = js(run, "recall", "PR-10", "--as-of", "2025-07-01", "--settings", s, db=prac_db)

@@ -521,9 +521,7 @@ def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on
     now = dt.datetime.now(dt.timezone.utc).replace(tzinfo=None, microsecond=0)
     rows = []
     for it in items:
-        stored, what = _stored_change(it.change), it.what_changes
-        if stored != it.change:
-            what = f"[{it.change}] {what}"
+        stored, what = it.change, it.what_changes
         iid = conn.execute(
             insert(ImpactItem).returning(ImpactItem.id),
             dict(
@@ -552,23 +550,6 @@ def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on
         "items": rows,
         "notes": notes,
     }
-
-
-# Impact codes the schema's task list does not hold yet, and the stored code nearest in action
-# (the precise code is kept at the start of ``what_changes``).
-_STORED_AS = {
-    "predictive_testing_deferred": "offer_predictive_testing",
-    "offer_diagnostic_testing": "offer_predictive_testing",
-    "declined_not_reapproached": "offer_predictive_testing",
-    "no_longer_at_risk": "result_reinterpreted_negative",
-}
-
-
-def _stored_change(change: str) -> str:
-    """The task code stored for an impact code (see ``_STORED_AS``)."""
-    from tracker.store.models import IMPACT_CHANGES
-
-    return change if change in IMPACT_CHANGES else _STORED_AS[change]
 
 
 # --------------------------------------------------------------------------- tasks

@@ -266,7 +266,7 @@ class ImportRun(Base):
 
 
 # Codes of :class:`tracker.engines.reclassification.ImpactItem.change` (the CHECK constraint of
-# migration 0003 holds the same list).
+# migration 0008 holds the same list).
 IMPACT_CHANGES = (
     "recounsel_family",
     "return_to_surveillance",
@@ -279,6 +279,10 @@ IMPACT_CHANGES = (
     "result_reinterpreted_negative",
     "obligate_carrier",
     "unscheduled_review",
+    "predictive_testing_deferred",
+    "offer_diagnostic_testing",
+    "declined_not_reapproached",
+    "no_longer_at_risk",
 )
 
 
