@@ -64,10 +64,7 @@ from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import asdict, dataclass
 from fractions import Fraction
 
-import pandas as pd
-
 from tracker.domain.dates import PRECISIONS
-from tracker.domain.records import frame_records
 from tracker.domain.vocabulary import ADOPTION as ADOPTIONS
 from tracker.domain.vocabulary import CONTACT_STATUS as CONTACT_STATUSES
 from tracker.domain.vocabulary import SEX_AT_BIRTH as SEXES
@@ -140,6 +137,8 @@ class Relationship:
 
 
 def _blank(v: object) -> bool:
+    import pandas as pd
+
     if v is None:
         return True
     try:
@@ -168,6 +167,8 @@ def _flag(v: object) -> bool:
 
 
 def _date(v: object, precision: str | None) -> tuple[dt.date | None, str | None]:
+    import pandas as pd
+
     if _blank(v):
         return None, None
     if isinstance(v, pd.Timestamp):
@@ -194,6 +195,8 @@ def _choice(v: object, allowed: tuple[str, ...], column: str, person: str, defau
 
 
 def _members_from_frame(people: pd.DataFrame) -> list[Member]:
+    from tracker.domain.records import frame_records
+
     if "person" not in people.columns:
         raise PedigreeError("the people frame needs a 'person' column")
     return _members_from_rows(frame_records(people))
@@ -858,4 +861,6 @@ class Pedigree:
 
     def frame(self) -> pd.DataFrame:
         """The members as a frame (recorded links), input order."""
+        import pandas as pd
+
         return pd.DataFrame([asdict(self._members[p]) for p in self._order])

@@ -28,7 +28,6 @@ import hashlib
 import json
 from typing import Any
 
-import pandas as pd
 from sqlalchemy import Connection, insert, select
 
 from tracker.store.models import AuditEntry
@@ -187,6 +186,8 @@ def load(
         stmt = stmt.where(a.at < dt.datetime.combine(until + dt.timedelta(days=1), dt.time()))
     if action is not None:
         stmt = stmt.where(a.action == action)
+    import pandas as pd
+
     rows = conn.execute(stmt).all()
     frame = pd.DataFrame([tuple(r) for r in rows], columns=COLUMNS, dtype=object)
     frame["at"] = [t.isoformat() + "Z" for t in frame["at"]]
