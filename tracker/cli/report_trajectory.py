@@ -36,7 +36,8 @@ import typer
 
 from tracker.cli import recall as R
 from tracker.cli import review as RV
-from tracker.cli import risk_view as RK
+from tracker.services import review as SR
+from tracker.services import risk as RK
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
 from tracker.outfiles import output_path
 from tracker.engines import family_state as fs
@@ -67,7 +68,7 @@ _STRAIN_INDICES = ("gls_segavg", "gls_segavg_n", "relaps", "mech_dispersion", "p
 
 
 def _f(v: Any) -> float | None:
-    v = RV._clean(v)
+    v = SR.clean(v)
     return None if v is None else float(v)
 
 
@@ -89,10 +90,10 @@ def _tables(a: pd.DataFrame, labels: dict[str, str]) -> tuple[T.ModalityTable, .
         for m, derived, unit in measures[["measure", "derived", "unit"]].itertuples(index=False):
             cells: list[T.Cell | None] = [None] * len(dates)
             for r in rows[rows["measure"] == m].itertuples(index=False):
-                meets = RV._clean(r.meets_criteria)
+                meets = SR.clean(r.meets_criteria)
                 cells[col[r.study_date]] = T.Cell(
                     float(r.value), T.limit_text(_f(r.lower), _f(r.upper), None),
-                    T.marks(RV._clean(r.assessment), meets is True), _f(r.z),
+                    T.marks(SR.clean(r.assessment), meets is True), _f(r.z),
                 )  # fmt: skip
             table_rows.append(T.TableRow(m, labels.get(m, ""), unit, bool(derived), tuple(cells)))
         out.append(T.ModalityTable(modality, tuple(d.isoformat() for d in dates),
@@ -183,7 +184,7 @@ def _flags(trend_records: list[dict]) -> tuple[T.FlagRow, ...]:
 def _conversion(conv: pd.DataFrame) -> str:
     if conv is None or conv.empty:
         return "Conversion: no assessable maximal wall thickness."
-    c = RV._records(conv, RV.CONVERSION_KEYS)[0]
+    c = SR.records(conv, SR.CONVERSION_KEYS)[0]
     if c["ever_met"]:
         extra = " REVIEW: met criteria earlier but not at the latest study." if c["review_flag"] else ""
         return (f"Conversion: first met the wall-thickness criteria on {c['first_met_date']} (age "
@@ -274,7 +275,7 @@ def trajectory_report(
     results = fs.records_up_to(frames.results, "test_date", on)
     variants = fs.records_up_to(frames.variants, "classified_on", on)
     ctx = review.clinical_context(people[people["family"] == family], results, variants, assessments)
-    rel, pos = RV._status_sets(ctx)
+    rel, pos = SR.status_sets(ctx)
     kw = dict(guideline=gid, relative_of_affected=rel, genotype_positive=pos)
     mine = studies[studies["person"] == person] if studies is not None and len(studies) else None
     m = review.build_measurements(people, mine) if mine is not None and len(mine) else None
@@ -284,10 +285,10 @@ def trajectory_report(
         a = review.assess_measurements(m, **kw)
         t = review.trend_table(a, **kw, clinic_repeatability=conf.repeatability or None, horizon_years=horizon)
         conv = review.conversions(a)
-    identity = {k: RV._clean(v) for k, v in RV._identity(person, people, ctx, on).items()}
-    trend_records = RV._records(t, RV.TREND_JSON_KEYS) if t is not None else []
+    identity = {k: SR.clean(v) for k, v in SR.person_identity(person, people, ctx, on).items()}
+    trend_records = SR.records(t, SR.TREND_JSON_KEYS) if t is not None else []
     trend_rows = {r["measure"]: r for r in trend_records}
-    g = RV._guideline(dataclasses.replace(conf, guideline=gid))
+    g = SR.guideline(dataclasses.replace(conf, guideline=gid))
 
     # --- the recall proposal, as `tracker recall`
     st = R._family_state(frames, family, on)

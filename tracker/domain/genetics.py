@@ -91,6 +91,8 @@ the current guideline.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import datetime as dt
 from collections import deque
 from collections.abc import Iterator, Mapping
@@ -98,6 +100,10 @@ from dataclasses import dataclass, field
 from fractions import Fraction
 
 from tracker.domain.pedigree import Pedigree, _blank  # one definition of an empty cell
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import numpy as np
+    import pandas as pd
 
 ACMG_CLASSES = (
     "pathogenic",

@@ -57,6 +57,8 @@ nearer degree is given.  A monozygotic co-twin is first degree (r = 1).
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import datetime as dt
 import math
 from collections import deque
@@ -70,6 +72,9 @@ from tracker.domain.vocabulary import CONTACT_STATUS as CONTACT_STATUSES
 from tracker.domain.vocabulary import SEX_AT_BIRTH as SEXES
 from tracker.domain.vocabulary import TWIN_TYPE as TWIN_TYPES
 from tracker.domain.vocabulary import VITAL_STATUS as VITAL_STATUSES
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import pandas as pd
 
 _VIRTUAL_PREFIX = "~"  # never a valid person code (codes: letters, digits, - _ .)
 

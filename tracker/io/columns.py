@@ -12,11 +12,17 @@ when empty), yes/no cells are booleans.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import datetime as dt
 import math
 from dataclasses import dataclass, field
 
 from tracker.domain.dates import PartialDate, parse_partial_date
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import numpy as np
+    import pandas as pd
 
 # A text cell starting with one of these is run as a formula by spreadsheets.
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")

@@ -46,6 +46,8 @@ can link them back.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import csv
 import datetime as dt
 import hashlib
@@ -61,6 +63,10 @@ from tracker.io.columns import PROTECTED, format_cell
 from tracker.io.layouts import LAYOUTS
 from tracker.io.export import write_private
 from tracker.settings import DEFAULT_SMALL_CELL, MIN_KEY_CHARS
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import numpy as np
+    import pandas as pd
 
 PERSON_PREFIX, PERSON_HEX = "P-", 12  # 48 bits
 FAMILY_PREFIX, FAMILY_HEX = "F-", 10  # 40 bits

@@ -26,11 +26,14 @@ import datetime as dt
 import getpass
 import hashlib
 import json
-from typing import Any
+from typing import Any, TYPE_CHECKING
 
 from sqlalchemy import Connection, insert, select
 
 from tracker.store.models import AuditEntry
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import pandas as pd
 
 ACTIONS = ("import", "edit", "remove", "reinstate", "reclassify", "task_done", "restore")
 
