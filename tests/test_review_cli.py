@@ -13,7 +13,7 @@ import json
 
 import pytest
 
-from tracker.cli import review as review_cli
+from tracker.services import review as review_service
 from tracker.cli.app import main
 
 PERSON_KEYS = {
@@ -66,7 +66,7 @@ def test_person_json_for_a_carrier_child(loaded_db, run):
     assert d["conversion"]["first_met_date"] == "2022-05-03"
     trend = {t["measure"]: t for t in d["trends"]}["mwt_echo"]
     assert trend["n"] == 3 and trend["z_n"] == 3 and trend["z_model"] == "phn2017"
-    assert set(trend) == set(review_cli.TREND_JSON_KEYS)
+    assert set(trend) == set(review_service.TREND_JSON_KEYS)
 
 
 def test_unknown_person_is_one_line_exit_1(loaded_db, run):
@@ -79,7 +79,7 @@ def test_trends_json_filters_and_csv(loaded_db, run, tmp_path):
     r = run("trends", "--json", db=loaded_db)
     d = json.loads(r.out)
     assert set(d) == TRENDS_KEYS and d["guideline"]["id"] == "esc_2023"
-    assert d["rows"] and all(set(row) == set(review_cli.TREND_JSON_KEYS) for row in d["rows"])
+    assert d["rows"] and all(set(row) == set(review_service.TREND_JSON_KEYS) for row in d["rows"])
     assert all(row["n"] >= 2 for row in d["rows"])
     fam = json.loads(run("trends", "--family", "FAM-T2", "--json", db=loaded_db).out)
     assert fam["family"] == "FAM-T2" and fam["rows"] == []  # FAM-T2 has no repeated measurement

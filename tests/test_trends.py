@@ -321,3 +321,22 @@ def test_progression_flags():
     assert fl.loc["P", "projected_age"] == pytest.approx(36.0)
     assert not trends.progression_flags(t, ch, pr, within_years=1.0).set_index("person").loc[
         "P", "projected_crossing_within_years"]
+
+
+def test_t_quantile_and_tail_agree_with_scipy_stats():
+    """The t quantile and upper tail used for slope intervals (scipy.special, which keeps
+    scipy.stats out of start-up) equal scipy.stats.t.ppf / t.sf to 1e-12 over a grid of
+    degrees of freedom and probabilities (reference library: scipy.stats)."""
+    import numpy as np
+    from scipy import stats
+
+    from tracker.engines.trends import t_quantile, t_sf
+
+    for df in (1, 2, 3, 4, 5, 7, 10, 15, 20, 30, 50, 100, 1000, 2.5, 17.3):
+        for p in (0.5, 0.6, 0.75, 0.9, 0.95, 0.975, 0.99, 0.995, 0.999, 0.025, 0.1):
+            assert abs(t_quantile(p, df) - stats.t.ppf(p, df)) <= 1e-12 * max(1.0, abs(stats.t.ppf(p, df)))
+        for x in (0.0, 0.1, 0.5, 1.0, 1.96, 2.5, 4.0, 8.0):
+            assert abs(float(t_sf(x, df)) - stats.t.sf(x, df)) <= 1e-12
+    # arrays, as the trend table passes them
+    dfs = np.array([2.0, 5.0, 30.0])
+    assert np.allclose(t_quantile(0.975, dfs), stats.t.ppf(0.975, dfs), rtol=1e-12, atol=0)

@@ -10,10 +10,7 @@ import typer
 
 from tracker.cli.common import engine_for, DbOption, JsonOption, UserOption, open_store, print_json, print_table
 from tracker.cli.common import SettingsOption
-from tracker.domain.genetics import SRC_REREVIEW
-from tracker.settings import load_settings
 from tracker.store import migrate
-from tracker.store import repository as repo
 from sqlalchemy.exc import DBAPIError
 
 from tracker.store.database import DatabaseUnreadable, locate, make_engine, reading, unreadable_reason
@@ -43,6 +40,8 @@ def measures(db: DbOption = None, json_out: JsonOption = False) -> None:
 
     Example: tracker measures --json
     """
+    from tracker.store import repository as repo
+
     engine = open_store(db)
     with reading(engine) as conn:
         frame = repo.load_measures(conn)
@@ -92,6 +91,8 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
     Example: tracker check --json
     """
     from tracker.domain import consistency as dc
+    from tracker.domain.genetics import SRC_REREVIEW
+    from tracker.settings import load_settings
     from tracker.store import checks
 
     location = locate(db)
@@ -124,6 +125,8 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
 
 
 def _check_findings(db, dc, checks, rereview_months: int) -> tuple[list, list]:
+    from tracker.store import repository as repo
+
     engine = engine_for(db)
     reminders = []
     with reading(engine) as conn:

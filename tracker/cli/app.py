@@ -11,7 +11,6 @@ from tracker import __version__
 from tracker.cli import admin, audit, edits, families, recall, reports, review
 from tracker.cli.common import dispose_engines
 from tracker.errors import UserError
-from tracker.io.reading import InputRejected
 
 app = typer.Typer(
     name="tracker",
@@ -69,7 +68,7 @@ def _run(argv: list[str] | None) -> int:
         code = app(args=argv, standalone_mode=False)
         if isinstance(code, int):  # typer.Exit(n) inside a command, returned by click
             return code
-    except InputRejected as exc:
+    except _input_rejected() as exc:
         problems = [_one_line(str(p)) for p in exc.problems]
         for p in problems[:50]:
             sys.stderr.write(f"error: {p}\n")
@@ -100,6 +99,17 @@ def _run(argv: list[str] | None) -> int:
             raise
         return _fail(args, message)
     return 0
+
+
+class _NeverRaised(Exception):
+    pass
+
+
+def _input_rejected() -> type[Exception]:
+    """The importer's refusal class, if the importer was loaded (only then can it have been raised);
+    importing it here would load pandas at every start."""
+    module = sys.modules.get("tracker.io.reading")
+    return module.InputRejected if module is not None else _NeverRaised
 
 
 def _fail(args: list[str], message: str, code: int = 1) -> int:

@@ -12,7 +12,9 @@ import typer
 
 from tracker.cli.common import DbOption, JsonOption, UserOption, open_store, print_json, print_table
 from tracker.errors import UserError
-from tracker.store import edits
+from tracker.lazy import lazy_module
+
+edits = lazy_module("tracker.store.edits")
 from tracker.store.database import reading, writing
 
 edit_app = typer.Typer(

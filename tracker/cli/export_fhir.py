@@ -15,8 +15,6 @@ from sqlalchemy import Connection
 from tracker.cli.common import DbOption, JsonOption, open_store, print_json
 from tracker.errors import UserError
 from tracker.outfiles import check_output, write_output
-from tracker.outputs import fhir
-from tracker.store import repository as repo
 from tracker.store.database import reading
 
 
@@ -41,6 +39,9 @@ def export_fhir(
     :class:`~tracker.errors.UserError` for an unknown family, a folder as ``out_path`` or a
     pedigree that cannot be built.
     """
+    from tracker.outputs import fhir
+    from tracker.store import repository as repo
+
     out_path = Path(out_path)
     if out_path.is_dir():
         raise UserError(f"--out {out_path} is a folder; give a file name")

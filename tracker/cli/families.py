@@ -22,13 +22,16 @@ from tracker.cli.common import (
 )
 from tracker.errors import UserError
 from tracker.outfiles import check_output
-from tracker.io import csv_import, export, pseudonymise
 from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
-from tracker.outputs import summary
+from tracker.lazy import lazy_module
 from tracker.store import migrate
-from tracker.store import repository as repo
-from tracker.settings import load_settings
 from tracker.store.database import locate, make_engine, reading, writing
+
+csv_import = lazy_module("tracker.io.csv_import")
+export = lazy_module("tracker.io.export")
+pseudonymise = lazy_module("tracker.io.pseudonymise")
+summary = lazy_module("tracker.outputs.summary")
+repo = lazy_module("tracker.store.repository")
 
 ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all")}, type=str)
 ExportKind = Enum("ExportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all")}, type=str)
@@ -111,7 +114,9 @@ def _report(summaries, dry_run: bool, json_out: bool) -> None:
         typer.echo("dry run: nothing was written")
 
 
-DatesMode = Enum("DatesMode", {m: m for m in pseudonymise.DATE_MODES}, type=str)
+# The same modes as tracker.io.pseudonymise.DATE_MODES (tests/test_startup.py checks), written out so that
+# listing the options does not load the extract code.
+DatesMode = Enum("DatesMode", {m: m for m in ("ages", "shift")}, type=str)
 
 
 def export_(
@@ -205,6 +210,8 @@ def export_(
 def _export_pseudonymised(kind, out: Path, dates: str, min_cell, settings_path, db, json_out: bool) -> None:
     if kind != "all":
         raise UserError("--pseudonymise writes a whole extract: use `tracker export all --out FOLDER --pseudonymise`")
+    from tracker.settings import load_settings
+
     conf = load_settings(settings_path).privacy
     key = conf.key()
     threshold = min_cell if min_cell is not None else conf.small_cell_threshold

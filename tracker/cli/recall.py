@@ -16,24 +16,18 @@ import math
 from dataclasses import dataclass
 from enum import Enum
 from pathlib import Path
-from typing import Annotated, Any
+from typing import TYPE_CHECKING, Annotated, Any
 
-import numpy as np
-import pandas as pd
 import typer
 from sqlalchemy import Connection, insert, select, update
 
-from tracker.cli import risk_view as RK
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json, print_table
 from tracker.gcpause import gc_paused
 from tracker.domain.dates import parse_date
 from tracker.domain.genetics import ACMG_CLASSES
 from tracker.domain.genetics import CAUTION as GENOTYPE_CAUTION
-from tracker.engines import family_state as fs
 from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
 from tracker.engines.cascade import plan_cascade
-from tracker.engines.reclassification import CAUTION as RECLASSIFICATION_CAUTION
-from tracker.engines.reclassification import impact_of_reclassification
 from tracker.engines.schedule import CAUTIONS, Policy, Proposal, never_screened_text, propose_recall
 from tracker.engines.worklist import (
     contact_gaps,
@@ -45,16 +39,19 @@ from tracker.engines.worklist import (
     week_starts,
 )
 from tracker.errors import UserError
-from tracker.normals.criteria import NOT_ASSESSABLE
 from tracker.outputs import ics, worklist_csv
-from tracker.outputs.worklist_pdf import GAP_WORDS, booked_text, flag_words, waiting_text
 from tracker.rules import available_rule_sets, load_rule_set
 from tracker.settings import Settings, load_settings
 from tracker.outfiles import write_output
 from tracker.store import audit
-from tracker.store import repository as repo
 from tracker.store.database import check_row_id, reading, writing
 from tracker.store.models import Family, ImpactItem, Person, Variant, VariantClassification
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import numpy as np
+    import pandas as pd
+    from tracker.store import repository as repo
+    from tracker.engines import family_state as fs
 
 AcmgClass = Enum("AcmgClass", {c: c for c in ACMG_CLASSES}, type=str)
 
@@ -110,6 +107,8 @@ class _Frames:
 
 
 def _load(conn: Connection) -> _Frames:
+    from tracker.store import repository as repo
+
     return _Frames(
         families=repo.load_families(conn),
         people=repo.load_people(conn),
@@ -122,6 +121,8 @@ def _load(conn: Connection) -> _Frames:
 
 
 def _family_state(frames: _Frames, family: str, as_of: dt.date | None) -> fs.FamilyState:
+    from tracker.engines import family_state as fs
+
     if family not in set(frames.families["family"]):
         raise UserError(f"unknown family {family!r}")
     if family not in set(frames.people["family"]):
@@ -142,6 +143,10 @@ def _with_trends(
     frames: _Frames, states: dict[str, fs.FamilyState], rule_set_id: str, settings: Settings, as_of: dt.date
 ) -> tuple[dict[str, fs.FamilyState], dict]:
     """Fill progression / projected crossing from the trend engine, if it is installed."""
+    import numpy as np
+    import pandas as pd
+    from tracker.engines import family_state as fs
+
     try:
         from tracker.engines import repeatability, review
         from tracker.normals.criteria import RULE_SETS as CRITERIA
@@ -221,6 +226,8 @@ def with_trend_texts(p: Proposal, facts: fs.PersonFacts) -> Proposal:
 
 def _batches(batch: np.ndarray) -> dict[int, np.ndarray]:
     """Batch number -> positions of its rows, in their original order (negative numbers: no batch)."""
+    import numpy as np
+
     order = np.argsort(batch, kind="stable")
     keys, starts = np.unique(batch[order], return_index=True)
     ends = np.append(starts[1:], len(order))
@@ -355,6 +362,8 @@ def cascade(
 
 def _variant_rereview(frames: _Frames, on: dt.date, months: int) -> list[dict]:
     """Re-review reminders of every family's variants on ``on`` (classifications up to that day)."""
+    from tracker.engines import family_state as fs
+
     from tracker.domain.genetics import rereview_reminder
 
     variants = fs.records_up_to(frames.variants, "classified_on", on)
@@ -400,6 +409,8 @@ def _sources(items: list[dict]) -> None:
 
 def _targets(frames: _Frames, target: str) -> list[fs.VariantInfo]:
     """The variant(s) a TARGET names: a family code (its only variant) or transcript:c.change."""
+    from tracker.engines import family_state as fs
+
     by_family = fs.family_variants(frames.variants)
     if ":" in target:
         found = [v for vs in by_family.values() for v in vs if v.key == target]
@@ -438,6 +449,8 @@ def reclassify(
 
     Example: tracker reclassify HV03 --to likely_pathogenic --date 2026-11-30 --reason "laboratory re-review" --dry-run
     """
+    from tracker.engines.reclassification import CAUTION as RECLASSIFICATION_CAUTION
+
     new_class = to.value
     on = _day(date, "--date")
     if on > dt.date.today():
@@ -492,6 +505,9 @@ def reclassify(
 
 def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on: dt.date, reason: str,
                     who: str, rule_set, policy: Policy, conf: Settings) -> dict:  # fmt: skip
+    from tracker.engines import family_state as fs
+    from tracker.engines.reclassification import impact_of_reclassification
+
     state = _family_state(frames, v.family, None)
     proposals = fs.propose_for_family(state, rule_set, policy, on)
     screening = fs.screening_states(proposals)
@@ -613,6 +629,8 @@ def tasks_list(
 
     Example: tracker tasks --family HV03 --json
     """
+    from tracker.engines.reclassification import CAUTION as RECLASSIFICATION_CAUTION
+
     if ctx.invoked_subcommand is not None:
         return
     engine = open_store(db)
@@ -781,6 +799,8 @@ def recall(
 
     Example: tracker recall HV01-IV-1 --settings demo_family/clinic.toml
     """
+    from tracker.services import risk as RK
+
     on = _day(as_of, "--as-of", dt.date.today())
     conf, rule_set, policy = _recall_rules(settings, guideline)
     engine = open_store(db)
@@ -840,6 +860,9 @@ def recall(
 
 def _risk_scd(frames: _Frames, person: str, family: str, st: fs.FamilyState, on: dt.date) -> dict:
     """HCM Risk-SCD of the person from the records up to ``on``, as `tracker person` shows it."""
+    from tracker.services import risk as RK
+    from tracker.engines import family_state as fs
+
     people = frames.people[frames.people["family"] == family]
     facts = st.facts.get(person)
     pr = RK.person_risk(person, people, fs.records_up_to(frames.assessments, "assessment_date", on),
@@ -852,6 +875,8 @@ def _risk_scd(frames: _Frames, person: str, family: str, st: fs.FamilyState, on:
 
 
 def _entry(p: Proposal, family: str, lst: str) -> dict:
+    from tracker.normals.criteria import NOT_ASSESSABLE
+
     reason, source = _reason(p)
     return {
         "list": lst, "person": p.person_code, "family": family, "status": p.status, "due": _iso(p.due),
@@ -872,6 +897,8 @@ def due_proposals(frames, conf, rule_set, policy, start: dt.date, end: dt.date, 
     Shared by ``tracker worklist`` and ``tracker report worklist``.  The cyclic garbage
     collector is paused while every family's state is built (see :mod:`tracker.gcpause`).
     """
+    from tracker.engines import family_state as fs
+
     with gc_paused():
         states = fs.build_family_states(
             frames.people, frames.variants, frames.results, frames.assessments, frames.studies,
@@ -964,6 +991,8 @@ def worklist(
 
     Example: tracker worklist --from 2026-12-07 --to 2027-01-31 --slots-per-week 4 --ics recalls.ics
     """
+    from tracker.outputs.worklist_pdf import GAP_WORDS, booked_text, flag_words, waiting_text
+
     start, end = _day(from_, "--from"), _day(to, "--to")
     if end < start:
         raise UserError("--to is before --from")
@@ -1055,6 +1084,8 @@ def worklist(
 
 
 def _worklist_table(title: str, rows: list[dict], booked: bool) -> None:
+    from tracker.outputs.worklist_pdf import GAP_WORDS, booked_text, flag_words, waiting_text
+
     if not rows:
         typer.echo(f"{title}: none")
         return

@@ -9,6 +9,8 @@ figures.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import datetime as dt
 from pathlib import Path
 from typing import Annotated
@@ -18,17 +20,19 @@ import typer
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
 from tracker.outfiles import output_path
 from tracker.domain.dates import parse_date
-from tracker.engines import family_state as fs
 from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
 from tracker.errors import UserError
-from tracker.outputs import letter as L
-from tracker.outputs.letter_pdf import write_letter_pdf
 from tracker.settings import load_settings
-from tracker.store import repository as repo
 from tracker.store.database import reading
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    from tracker.engines import family_state as fs
+    from tracker.outputs import letter as L
 
 
 def _letter_variant(v: fs.VariantInfo | None) -> L.LetterVariant | None:
+    from tracker.outputs import letter as L
+
     if v is None:
         return None
     return L.LetterVariant(v.gene, v.transcript, v.hgvs_c, v.hgvs_p, v.zygosity, v.current_class, v.classified_on)
@@ -42,6 +46,9 @@ def _stored_name(people, person: str) -> str | None:
 
 def _standing(state: fs.FamilyState, person: str) -> L.Standing:
     """Where ``person`` stands with the clinic, from the family state's facts and results."""
+    from tracker.engines import family_state as fs
+    from tracker.outputs import letter as L
+
     f = state.facts.get(person)
     results = state.results
     dates = []
@@ -111,6 +118,11 @@ def letter(
 
     Example: tracker report letter HV01-III-6 --out letters/
     """
+    from tracker.engines import family_state as fs
+    from tracker.outputs import letter as L
+    from tracker.outputs.letter_pdf import write_letter_pdf
+    from tracker.store import repository as repo
+
     on = dt.date.today()
     if date is not None:
         try:

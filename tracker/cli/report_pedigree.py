@@ -10,8 +10,6 @@ import typer
 from tracker.cli.common import DbOption, JsonOption, open_store, print_json
 from tracker.outfiles import output_path
 from tracker.errors import UserError
-from tracker.outputs.pedigree_drawing import write_pedigree_pdf
-from tracker.store import repository as repo
 from tracker.store.database import reading
 
 
@@ -32,6 +30,9 @@ def pedigree_(
 
     Example: tracker report pedigree HV01 --out letters/
     """
+    from tracker.outputs.pedigree_drawing import write_pedigree_pdf
+    from tracker.store import repository as repo
+
     engine = open_store(db)
     with reading(engine) as conn:
         families = repo.load_families(conn)

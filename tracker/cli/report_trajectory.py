@@ -23,6 +23,8 @@ The file is DIR/trajectory-PERSON.pdf (the code only, never a name).
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import dataclasses
 import datetime as dt
 import math
@@ -30,25 +32,23 @@ import re
 from pathlib import Path
 from typing import Annotated, Any
 
-import numpy as np
-import pandas as pd
 import typer
 
 from tracker.cli import recall as R
 from tracker.cli import review as RV
-from tracker.cli import risk_view as RK
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
 from tracker.outfiles import output_path
-from tracker.engines import family_state as fs
-from tracker.engines import review, risk, trends
 from tracker.engines.schedule import propose_recall
-from tracker.engines.trend_band import mean_line_band
 from tracker.errors import UserError
 from tracker.outputs import ics
-from tracker.outputs import trajectory_pdf as T
-from tracker.store import repository as repo
 from tracker.store.database import reading
 
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import pandas as pd
+
+    from tracker.engines import risk
+    from tracker.outputs import trajectory_pdf as T
 
 CHART_TITLES = {
     "mwt_echo": "Maximal LV wall thickness, echo",
@@ -67,11 +67,17 @@ _STRAIN_INDICES = ("gls_segavg", "gls_segavg_n", "relaps", "mech_dispersion", "p
 
 
 def _f(v: Any) -> float | None:
-    v = RV._clean(v)
+    from tracker.services import review as SR
+
+    v = SR.clean(v)
     return None if v is None else float(v)
 
 
 def _tables(a: pd.DataFrame, labels: dict[str, str]) -> tuple[T.ModalityTable, ...]:
+    from tracker.services import review as SR
+    from tracker.engines import review, risk, trends
+    from tracker.outputs import trajectory_pdf as T
+
     out = []
     shown = a[~a["measure"].astype(str).str.startswith(review._SEGMENT_PREFIXES) & ~a["measure"].isin(review.NOT_TRENDED)]
     order = {m: i for i, m in enumerate(T.ROW_ORDER)}
@@ -89,10 +95,10 @@ def _tables(a: pd.DataFrame, labels: dict[str, str]) -> tuple[T.ModalityTable, .
         for m, derived, unit in measures[["measure", "derived", "unit"]].itertuples(index=False):
             cells: list[T.Cell | None] = [None] * len(dates)
             for r in rows[rows["measure"] == m].itertuples(index=False):
-                meets = RV._clean(r.meets_criteria)
+                meets = SR.clean(r.meets_criteria)
                 cells[col[r.study_date]] = T.Cell(
                     float(r.value), T.limit_text(_f(r.lower), _f(r.upper), None),
-                    T.marks(RV._clean(r.assessment), meets is True), _f(r.z),
+                    T.marks(SR.clean(r.assessment), meets is True), _f(r.z),
                 )  # fmt: skip
             table_rows.append(T.TableRow(m, labels.get(m, ""), unit, bool(derived), tuple(cells)))
         out.append(T.ModalityTable(modality, tuple(d.isoformat() for d in dates),
@@ -102,12 +108,17 @@ def _tables(a: pd.DataFrame, labels: dict[str, str]) -> tuple[T.ModalityTable, .
 
 def _fit(a: pd.DataFrame, trow: dict) -> tuple[pd.DataFrame, pd.DataFrame] | None:
     """The trend engine's fit of the trend row's window and its band, or None (one study, children)."""
+    import numpy as np
+    from tracker.engines.trend_band import mean_line_band
+
     if trow is None or trow["n"] < 2 or trow["window"] == _CHILD_WINDOW:
         return None
     if "pregnant" in a.columns:  # studies during pregnancy are left out of the trend's fit
         a = a[~a["pregnant"].astype(bool)]
     rows = a[(a["measure"] == trow["measure"]) & (a["age_years"] >= trow["first_age"] - 1e-9)
              & (a["age_years"] <= trow["last_age"] + 1e-9)]  # fmt: skip
+    from tracker.engines import trends
+
     ols = trends.per_person_ols(rows[["person", "measure", "modality", "study_date", "age_years", "value"]])
     if len(ols) != 1 or not math.isclose(float(ols["slope"].iloc[0]), float(trow["slope_per_year"]), rel_tol=1e-9,
                                          abs_tol=1e-12):  # fmt: skip
@@ -117,6 +128,10 @@ def _fit(a: pd.DataFrame, trow: dict) -> tuple[pd.DataFrame, pd.DataFrame] | Non
 
 
 def _charts(a: pd.DataFrame, trend_rows: dict[str, dict], guideline_label: str) -> tuple[T.Chart, ...]:
+    import numpy as np
+    from tracker.engines import review, risk, trends
+    from tracker.outputs import trajectory_pdf as T
+
     out = []
     for m in T.KEY_MEASURES:
         rows = a[a["measure"] == m].sort_values("age_years")
@@ -157,6 +172,10 @@ def _charts(a: pd.DataFrame, trend_rows: dict[str, dict], guideline_label: str) 
 def _flags(trend_records: list[dict]) -> tuple[T.FlagRow, ...]:
     """One row per trended measure: every key measure with 2 or more studies, other measures when flagged;
     flagged measures first (the trend engine's order within each group)."""
+    from tracker.cli import review as RV
+    from tracker.engines import review, risk, trends
+    from tracker.outputs import trajectory_pdf as T
+
     rows = []
     key = set(T.KEY_MEASURES)
     for r in trend_records:
@@ -181,9 +200,12 @@ def _flags(trend_records: list[dict]) -> tuple[T.FlagRow, ...]:
 
 
 def _conversion(conv: pd.DataFrame) -> str:
+    from tracker.cli import review as RV
+    from tracker.services import review as SR
+
     if conv is None or conv.empty:
         return "Conversion: no assessable maximal wall thickness."
-    c = RV._records(conv, RV.CONVERSION_KEYS)[0]
+    c = SR.records(conv, SR.CONVERSION_KEYS)[0]
     if c["ever_met"]:
         extra = " REVIEW: met criteria earlier but not at the latest study." if c["review_flag"] else ""
         return (f"Conversion: first met the wall-thickness criteria on {c['first_met_date']} (age "
@@ -192,11 +214,15 @@ def _conversion(conv: pd.DataFrame) -> str:
 
 
 def risk_section(pr: risk.PersonRisk) -> T.RiskSection:
+    from tracker.outputs import trajectory_pdf as T
+
     return T.RiskSection(pr.status, pr.headline, pr.risk_5y_pct, pr.inputs_text, pr.reasons, pr.bands,
                          pr.validated_ranges, pr.caution, pr.model, conflicts=pr.conflicts)  # fmt: skip
 
 
 def _strain(m: pd.DataFrame, a: pd.DataFrame) -> tuple[T.StrainMap | None, str]:
+    from tracker.outputs import trajectory_pdf as T
+
     if m is None or m.empty:
         return None, "No segmental strain values recorded."
     codes = m["measure"].astype(str)
@@ -219,6 +245,8 @@ def _strain(m: pd.DataFrame, a: pd.DataFrame) -> tuple[T.StrainMap | None, str]:
 def _sources(a: pd.DataFrame) -> tuple[tuple[str, str], ...]:
     """(measure, source text) for every distinct limit, criterion or formula source of a measure, over all its
     studies (a series that starts in childhood has the child z-score source and the adult one)."""
+    from tracker.engines import review, risk, trends
+
     out: dict[str, dict[str, None]] = {}
     keep = a[~a["measure"].astype(str).str.startswith(review._SEGMENT_PREFIXES)]
     for r in keep.itertuples():
@@ -253,6 +281,15 @@ def trajectory_report(
 
     Example: tracker report trajectory HV02-III-2 --out reports/ --as-of 2026-12-01
     """
+    from tracker.cli import recall as R
+    from tracker.cli import review as RV
+    from tracker.services import review as SR
+    from tracker.services import risk as RK
+    from tracker.engines import family_state as fs
+    from tracker.engines import review, risk, trends
+    from tracker.outputs import trajectory_pdf as T
+    from tracker.store import repository as repo
+
     on = R._day(as_of, "--as-of", dt.date.today())
     conf, rule_set, policy = R._recall_rules(settings, guideline)
     gid = rule_set.id
@@ -274,7 +311,7 @@ def trajectory_report(
     results = fs.records_up_to(frames.results, "test_date", on)
     variants = fs.records_up_to(frames.variants, "classified_on", on)
     ctx = review.clinical_context(people[people["family"] == family], results, variants, assessments)
-    rel, pos = RV._status_sets(ctx)
+    rel, pos = SR.status_sets(ctx)
     kw = dict(guideline=gid, relative_of_affected=rel, genotype_positive=pos)
     mine = studies[studies["person"] == person] if studies is not None and len(studies) else None
     m = review.build_measurements(people, mine) if mine is not None and len(mine) else None
@@ -284,10 +321,10 @@ def trajectory_report(
         a = review.assess_measurements(m, **kw)
         t = review.trend_table(a, **kw, clinic_repeatability=conf.repeatability or None, horizon_years=horizon)
         conv = review.conversions(a)
-    identity = {k: RV._clean(v) for k, v in RV._identity(person, people, ctx, on).items()}
-    trend_records = RV._records(t, RV.TREND_JSON_KEYS) if t is not None else []
+    identity = {k: SR.clean(v) for k, v in SR.person_identity(person, people, ctx, on).items()}
+    trend_records = SR.records(t, SR.TREND_JSON_KEYS) if t is not None else []
     trend_rows = {r["measure"]: r for r in trend_records}
-    g = RV._guideline(dataclasses.replace(conf, guideline=gid))
+    g = SR.guideline(dataclasses.replace(conf, guideline=gid))
 
     # --- the recall proposal, as `tracker recall`
     st = R._family_state(frames, family, on)

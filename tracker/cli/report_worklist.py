@@ -21,7 +21,6 @@ from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store,
 from tracker.outfiles import output_path
 from tracker.engines.schedule import CAUTIONS
 from tracker.errors import UserError
-from tracker.outputs import worklist_pdf as W
 from tracker.store.database import reading
 
 
@@ -57,6 +56,8 @@ def worklist_report(
 
     Example: tracker report worklist --from 2026-12-01 --to 2027-03-01 --slots-per-week 4 --out lists/
     """
+    from tracker.outputs import worklist_pdf as W
+
     start, end = R._day(from_, "--from"), R._day(to, "--to")
     if end < start:
         raise UserError("--to is before --from")

@@ -6,26 +6,17 @@ names the guideline, the source of every limit and the caution.
 
 from __future__ import annotations
 
-import datetime as dt
-import math
 import shutil
 from pathlib import Path
 from typing import Annotated, Any
 
-import pandas as pd
 import typer
 from rich.console import Console
 from rich.table import Table
 
-from tracker.cli import risk_view as RK
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
 from tracker.outfiles import output_path
-from tracker.domain.dates import age_at, parse_partial_date
-from tracker.engines import review
-from tracker.errors import UserError
-from tracker.normals.criteria import RULE_SETS
 from tracker.settings import load_settings
-from tracker.store import repository as repo
 from tracker.store.database import reading
 
 HorizonOption = Annotated[
@@ -34,60 +25,22 @@ HorizonOption = Annotated[
                  "threshold crossing is flagged (default 3; a straight line is not extrapolated further)."),
 ]  # fmt: skip
 
-TREND_JSON_KEYS = [c for c in review.TREND_COLUMNS if c != "caution"]
 
 
 # --------------------------------------------------------------------------- loading
 
 
-def _load(db: str | None) -> dict[str, pd.DataFrame]:
-    engine = open_store(db)
-    with reading(engine) as conn:
-        return {
-            "people": repo.load_people(conn),
-            "studies": repo.load_studies(conn, entered=False),
-            "results": repo.load_genetic_results(conn),
-            "variants": repo.load_variants(conn),
-            "assessments": repo.load_assessments(conn),
-            "measures": repo.load_measures(conn),
-        }
 
 
-def _status_sets(ctx: pd.DataFrame) -> tuple[set[str], set[str]]:
-    rel = set(ctx.loc[ctx["first_degree_relative_of_affected"], "person"])
-    pos = set(ctx.loc[ctx["genotype_status"] == "carrier", "person"])
-    return rel, pos
 
 
-def _guideline(settings) -> dict[str, Any]:
-    gid = settings.guideline
-    rs = RULE_SETS.get(gid)
-    return {
-        "id": gid,
-        "name": f"{rs.name} ({rs.citation})" if rs else gid,
-        "criteria_encoded": rs is not None,
-        "settings": settings.source,
-    }
 
 
 # --------------------------------------------------------------------------- formatting
 
 
-def _clean(v: Any) -> Any:
-    """JSON-safe scalar: NaN/NA -> None, dates -> ISO 8601, numpy -> Python."""
-    if v is None or v is pd.NA or v is pd.NaT:
-        return None
-    if isinstance(v, (dt.date, pd.Timestamp)):
-        return v.isoformat()[:10]
-    if hasattr(v, "item"):
-        v = v.item()
-    if isinstance(v, float) and math.isnan(v):
-        return None
-    return v
 
 
-def _records(df: pd.DataFrame, columns: list[str]) -> list[dict[str, Any]]:
-    return [{c: _clean(v) for c, v in zip(columns, row)} for row in df[columns].itertuples(index=False)]
 
 
 def _console() -> Console:
@@ -102,6 +55,12 @@ def print_table(title: str | None, columns: list[str], rows: list[list[Any]]) ->
     for r in rows:
         table.add_row(*["" if v is None else str(v) for v in r])
     _console().print(table)
+
+
+def _clean(v: Any) -> Any:
+    from tracker.services.review import clean
+
+    return clean(v)
 
 
 def _num(x: Any, nd: int = 1) -> str:
@@ -134,6 +93,8 @@ def _limit(r: dict) -> str:
 
 
 def _criteria_text(r: dict) -> str:
+    from tracker.engines import review
+
     if r["measure"] not in review.DIAGNOSTIC_MEASURES:
         return ""
     if r["meets_criteria"] is None:
@@ -143,6 +104,8 @@ def _criteria_text(r: dict) -> str:
 
 
 def _projection_text(r: dict) -> str:
+    from tracker.engines import review
+
     if r["projected_age"] is None:
         return r["projection_reason"] if r["measure"] in review.DIAGNOSTIC_MEASURES else ""
     ci = f" (95% CI {_num(r['projected_age_ci_low'])}-{_num(r['projected_age_ci_high'])})"
@@ -167,6 +130,8 @@ def _change_text(r: dict) -> str:
 def lsc_default_notes(rows: list[dict]) -> list[str]:
     """One line naming the measures of ``rows`` (trend records) whose least significant change is a
     packaged default (placeholder or provisional), or no line."""
+    from tracker.engines import review
+
     parts = []
     for status in review.LSC_DEFAULT_NOTES:
         used = sorted({r["measure"] for r in rows if r.get("lsc_status") == status and r.get("last_change") is not None})
@@ -181,67 +146,12 @@ def lsc_default_notes(rows: list[dict]) -> list[str]:
 # --------------------------------------------------------------------------- person
 
 
-VALUE_KEYS = [
-    "measure", "value", "unit", "derived", "derivation", "z", "lower", "upper", "assessment", "grade",
-    "flag", "reference_set", "source", "note", "meets_criteria", "threshold", "threshold_unit",
-    "comparison", "criteria_rule", "borderline", "criteria_source", "criteria_note",
-]  # fmt: skip
-STUDY_KEYS = ["study_date", "modality", "site", "age_years", "age_uncertainty_years", "height_cm", "weight_kg",
-              "bsa_m2", "bsa_formula"]  # fmt: skip
-CONVERSION_KEYS = [c for c in review.CONVERSION_COLUMNS if c not in ("person", "caution")]
 
 
-def _identity(code: str, people: pd.DataFrame, ctx: pd.DataFrame, today: dt.date) -> dict[str, Any]:
-    p = people.set_index("person").loc[code]
-    c = ctx.set_index("person").loc[code]
-    age = unc = None
-    if _clean(p["birth_date"]):
-        birth = parse_partial_date(p["birth_date"])
-        end = today
-        if _clean(p["death_date"]):
-            end = parse_partial_date(p["death_date"]).value
-        a = age_at(birth, end)
-        age, unc = round(a.years, 2), a.uncertainty_years
-    return {
-        "person": code,
-        "family": p["family"],
-        "sex_at_birth": p["sex_at_birth"],
-        "vital_status": p["vital_status"],
-        "age_years": age,
-        "age_uncertainty_years": unc,
-        "age_on": (today if p["vital_status"] != "deceased" else None),
-        "placeholder": bool(p["placeholder"]),
-        "genotype_status": c["genotype_status"],
-        "genotype_reason": c["genotype_reason"],
-        "variant": c["variant"],
-        "variant_class": c["variant_class"],
-        "affected_status": c["affected_status"],
-        "affected_status_date": c["affected_status_date"],
-        "first_degree_relative_of_affected": bool(c["first_degree_relative_of_affected"]),
-        "affected_first_degree_relatives": c["affected_first_degree_relatives"],
-    }
 
 
-RECORD_KEYS = ["death_cause", "death_age", "diagnosis_age", "diagnosis_place", "icd_date", "pacemaker_date"]
 
 
-def _record(code: str, people: pd.DataFrame, assessments: pd.DataFrame | None) -> dict[str, Any]:
-    """Cause and age of death, diagnosis (possibly elsewhere), devices, and atrial fibrillation (the latest
-    recorded answer and the first assessment recording it)."""
-    p = people.set_index("person").loc[code]
-    out = {k: _clean(p.get(k)) for k in RECORD_KEYS}
-    for k in ("death_age", "diagnosis_age"):
-        out[k] = None if out[k] is None else int(out[k])
-    af = {"latest": None, "latest_on": None, "first_recorded_on": None}
-    if assessments is not None and len(assessments) and "atrial_fibrillation" in assessments.columns:
-        mine = assessments[(assessments["person"] == code) & assessments["atrial_fibrillation"].notna()]
-        mine = mine.sort_values("assessment_date")
-        if len(mine):
-            af["latest"], af["latest_on"] = bool(mine["atrial_fibrillation"].iloc[-1]), mine["assessment_date"].iloc[-1]
-            yes = mine[mine["atrial_fibrillation"].astype(bool)]
-            af["first_recorded_on"] = yes["assessment_date"].iloc[0] if len(yes) else None
-    out["atrial_fibrillation"] = af
-    return out
 
 
 def _record_text(r: dict[str, Any]) -> str:
@@ -262,47 +172,11 @@ def _record_text(r: dict[str, Any]) -> str:
     return "Record: " + ("; ".join(parts) if parts else "no cause of death, diagnosis elsewhere, device or AF recorded")
 
 
-def _person_data(code: str, data: dict, settings, horizon: float) -> dict[str, Any]:
-    people = data["people"]
-    if code not in set(people["person"]):
-        raise UserError(f"unknown person code {code!r}")
-    family = people.loc[people["person"] == code, "family"].iloc[0]
-    ctx = review.clinical_context(people[people["family"] == family], data["results"], data["variants"],
-                                  data["assessments"])  # fmt: skip
-    rel, pos = _status_sets(ctx)
-    kw = dict(guideline=settings.guideline, relative_of_affected=rel, genotype_positive=pos)
-    m = review.mark_pregnancy(review.build_measurements(people, data["studies"][data["studies"]["person"] == code]),
-                              data["assessments"])
-    a = review.assess_measurements(m, **kw)
-    t = review.trend_table(a, **kw, clinic_repeatability=settings.repeatability, horizon_years=horizon)
-    conv = review.conversions(a)
-    studies = []
-    for (date, modality), rows in a.groupby(["study_date", "modality"], sort=True):
-        first = rows.iloc[0]
-        s = {k: _clean(first[k]) for k in STUDY_KEYS}
-        s["values"] = _records(rows, VALUE_KEYS)
-        studies.append(s)
-    conversion = _records(conv, CONVERSION_KEYS)[0] if len(conv) else None
-    identity = _identity(code, people, ctx, dt.date.today())
-    pr = RK.person_risk(code, people[people["family"] == family], data["assessments"],
-                        _clean(identity["affected_status"]), dt.date.today(), assessed=a)  # fmt: skip
-    return {
-        **{k: _clean(v) for k, v in identity.items()},
-        "record": _record(code, people, data["assessments"]),
-        "risk_scd": pr.as_dict(),
-        "guideline": _guideline(settings),
-        "horizon_years": horizon,
-        "bsa_formula": "mosteller",
-        "studies": studies,
-        "trends": _records(t[(t["n"] >= 2) | t["criteria_not_assessable"].astype(bool)], TREND_JSON_KEYS),
-        "conversion": conversion,
-        "review_flags": list(review.criteria_review_flags(a)["flag"]),
-        "not_pooled": review.NOT_POOLED,
-        "caution": review.CAUTION,
-    }
 
 
 def _print_person(d: dict) -> None:
+    from tracker.services import risk as RK
+
     age = "age unknown" if d["age_years"] is None else f"age {d['age_years']:.1f} y"
     if d["age_uncertainty_years"]:
         age += f" (+/- {d['age_uncertainty_years']:g} y: year of birth only)"
@@ -389,8 +263,11 @@ def person(
 
     Example: tracker person HV01-IV-2 --db tracker.sqlite
     """
+    from tracker.services import review as service
+
     s = load_settings(settings)
-    d = _person_data(code, _load(db), s, horizon)
+    with reading(open_store(db)) as conn:
+        d = service.person_review(conn, code, s, horizon)
     if json_out:
         print_json(d)
     else:
@@ -418,31 +295,19 @@ def trends_(
 
     Example: tracker trends --family HV01 --measure mwt_echo --csv trends.csv
     """
+    import pandas as pd
+
+    from tracker.engines import review
+    from tracker.services import review as service
+
     s = load_settings(settings)
-    data = _load(db)
-    people = data["people"]
-    if family is not None:
-        if family not in set(people["family"]):
-            raise UserError(f"unknown family code {family!r}")
-        people = people[people["family"] == family]
-    if measure is not None and measure not in set(data["measures"]["code"]):
-        raise UserError(f"unknown measure code {measure!r} (see `tracker measures`)")
-    ctx = review.clinical_context(people, data["results"], data["variants"], data["assessments"])
-    rel, pos = _status_sets(ctx)
-    studies = data["studies"][data["studies"]["person"].isin(set(people["person"]))]
-    m = review.mark_pregnancy(review.build_measurements(people, studies), data["assessments"])
-    t = review.trend_table(m, guideline=s.guideline, relative_of_affected=rel, genotype_positive=pos,
-                           clinic_repeatability=s.repeatability, horizon_years=horizon)  # fmt: skip
-    t = t[(t["n"] >= 2) | t["criteria_not_assessable"].astype(bool)]
-    if measure is not None:
-        t = t[t["measure"] == measure]
-    rows = _records(t, TREND_JSON_KEYS)
+    with reading(open_store(db)) as conn:
+        result = service.trends(conn, family, measure, s, horizon)
+    rows = result["rows"]
     if csv_path is not None:
         with output_path(csv_path, where="--csv") as tmp:
-            pd.DataFrame(rows, columns=TREND_JSON_KEYS).assign(caution=review.CAUTION).to_csv(tmp, index=False)
+            pd.DataFrame(rows, columns=service.TREND_JSON_KEYS).assign(caution=review.CAUTION).to_csv(tmp, index=False)
         typer.echo(f"wrote {len(rows)} rows to {csv_path}", err=True)
-    result = {"guideline": _guideline(s), "horizon_years": horizon, "family": family, "measure": measure,
-              "rows": rows, "not_pooled": review.NOT_POOLED, "caution": review.CAUTION}  # fmt: skip
     if json_out:
         print_json(result)
         return

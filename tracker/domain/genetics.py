@@ -91,17 +91,19 @@ the current guideline.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import datetime as dt
 from collections import deque
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
 from fractions import Fraction
 
-import numpy as np
-import pandas as pd
-
 from tracker.domain.pedigree import Pedigree, _blank  # one definition of an empty cell
-from tracker.domain.records import frame_records
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import numpy as np
+    import pandas as pd
 
 ACMG_CLASSES = (
     "pathogenic",
@@ -222,6 +224,8 @@ class FamilyGenotypes(Mapping):
         """Columns: person, status, probability (float or NaN), probability_text,
         basis, inferred, reason, tested_result, test_date, inferred_from,
         nearest_carrier."""
+        import pandas as pd
+
         rows = []
         for s in self._statuses.values():
             rows.append(
@@ -250,6 +254,8 @@ class FamilyGenotypes(Mapping):
 
 
 def _as_date(v: object) -> dt.date | None:
+    import pandas as pd
+
     if _blank(v):
         return None
     if isinstance(v, pd.Timestamp):
@@ -271,6 +277,8 @@ class _Own:
 
 
 def _read_results(ped: Pedigree, results: pd.DataFrame | None, variant: str | None) -> dict[str, _Own]:
+    from tracker.domain.records import frame_records
+
     own: dict[str, _Own] = {}
     if results is None or len(results) == 0:
         return own
@@ -363,6 +371,8 @@ def _tree_posterior(ped: Pedigree, root: str, order: list[str], obs: Mapping[str
 
 def _loop_posterior(ped: Pedigree, root: str, order: list[str], members: set[str], obs: Mapping[str, int]):
     """Exact enumeration when some node has both parents below ``root``."""
+    import numpy as np
+
     if obs.get(root) == 0:
         return Fraction(0), {}
     free = [n for n in order if n != root and obs.get(n) is None]

@@ -57,6 +57,8 @@ nearer degree is given.  A monozygotic co-twin is first degree (r = 1).
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import datetime as dt
 import math
 from collections import deque
@@ -64,15 +66,15 @@ from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import asdict, dataclass
 from fractions import Fraction
 
-import pandas as pd
-
 from tracker.domain.dates import PRECISIONS
-from tracker.domain.records import frame_records
 from tracker.domain.vocabulary import ADOPTION as ADOPTIONS
 from tracker.domain.vocabulary import CONTACT_STATUS as CONTACT_STATUSES
 from tracker.domain.vocabulary import SEX_AT_BIRTH as SEXES
 from tracker.domain.vocabulary import TWIN_TYPE as TWIN_TYPES
 from tracker.domain.vocabulary import VITAL_STATUS as VITAL_STATUSES
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import pandas as pd
 
 _VIRTUAL_PREFIX = "~"  # never a valid person code (codes: letters, digits, - _ .)
 
@@ -140,6 +142,8 @@ class Relationship:
 
 
 def _blank(v: object) -> bool:
+    import pandas as pd
+
     if v is None:
         return True
     try:
@@ -168,6 +172,8 @@ def _flag(v: object) -> bool:
 
 
 def _date(v: object, precision: str | None) -> tuple[dt.date | None, str | None]:
+    import pandas as pd
+
     if _blank(v):
         return None, None
     if isinstance(v, pd.Timestamp):
@@ -194,6 +200,8 @@ def _choice(v: object, allowed: tuple[str, ...], column: str, person: str, defau
 
 
 def _members_from_frame(people: pd.DataFrame) -> list[Member]:
+    from tracker.domain.records import frame_records
+
     if "person" not in people.columns:
         raise PedigreeError("the people frame needs a 'person' column")
     return _members_from_rows(frame_records(people))
@@ -858,4 +866,6 @@ class Pedigree:
 
     def frame(self) -> pd.DataFrame:
         """The members as a frame (recorded links), input order."""
+        import pandas as pd
+
         return pd.DataFrame([asdict(self._members[p]) for p in self._order])

@@ -79,12 +79,12 @@ protocols and the current guideline.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import datetime as dt
 from collections.abc import Iterable, Mapping
 from dataclasses import asdict, dataclass
 from fractions import Fraction
-
-import pandas as pd
 
 from tracker.domain.dates import PartialDate, age_at, birthday_at_age, completed_years
 from tracker.domain.genetics import (
@@ -108,6 +108,9 @@ CAUTION = (
     "diagnosis or an instruction. The treating clinician decides with the family, following local "
     "protocols and the current guideline. Advise earlier review for new symptoms or new family events."
 )
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import pandas as pd
 
 ADULT_AGE_YEARS = 18  # adult / child boundary for ESC 2023 strength wording: common practice
 
@@ -329,6 +332,8 @@ class CascadePlan:
     def frames(self) -> dict[str, pd.DataFrame]:
         """One frame per list: testing, deferred, segregation, screening,
         released, gaps (columns = the dataclass fields; probability as float)."""
+        import pandas as pd
+
 
         def frame(items, cls) -> pd.DataFrame:
             cols = list(cls.__dataclass_fields__)

@@ -22,7 +22,8 @@ from collections.abc import Mapping
 
 import numpy as np
 import pandas as pd
-from scipy import stats
+
+from tracker.engines.trends import t_quantile
 
 BAND_COLUMNS = ["age_years", "fit", "low", "high"]
 
@@ -36,7 +37,7 @@ def mean_line_band(ols_row: Mapping[str, float] | pd.Series, ages, level: float 
     sxx, s = float(ols_row["sxx"]), float(ols_row["resid_sd"])
     fit = ybar + b * (a - abar)
     if n > 2 and np.isfinite(s) and sxx > 0:
-        t = stats.t.ppf(0.5 + level / 2.0, n - 2.0)
+        t = t_quantile(0.5 + level / 2.0, n - 2.0)
         half = t * s * np.sqrt(1.0 / n + (a - abar) ** 2 / sxx)
     else:
         half = np.full(a.shape, np.nan)

@@ -28,7 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from scipy import stats
+from scipy import special
 
 from tracker.engines import repeatability
 
@@ -102,6 +102,19 @@ class _Series:
     def ends(self) -> np.ndarray:
         return self.starts + self.n - 1
 
+
+
+def t_quantile(p, df):
+    """Student's t quantile (inverse CDF) at probability ``p`` with ``df`` degrees of freedom.
+
+    scipy.special's incomplete-beta inverse, the same function scipy.stats.t.ppf evaluates,
+    without loading scipy.stats (tests/test_trends.py checks the two agree to 1e-12)."""
+    return special.stdtrit(df, p)
+
+
+def t_sf(x, df):
+    """Student's t upper tail probability P(T > x) with ``df`` degrees of freedom."""
+    return special.stdtr(df, -np.asarray(x, dtype=float))
 
 def _within_group_change(codes: np.ndarray, same_group: np.ndarray) -> np.ndarray:
     """Positions i (sorted) where codes[i+1] != codes[i] inside one group."""
@@ -225,8 +238,8 @@ def per_person_ols(df: pd.DataFrame, y: str = "value", level: float = 0.95) -> p
         se_int = np.sqrt(s2 * (1.0 / n + mx * mx / sxx))
         tval = slope / se_slope
         dof_safe = np.where(has_df, dof, 1.0)
-        tcrit = np.where(has_df, stats.t.ppf(0.5 + level / 2.0, dof_safe), np.nan)
-        pval = np.where(has_df, 2.0 * stats.t.sf(np.abs(tval), dof_safe), np.nan)
+        tcrit = np.where(has_df, t_quantile(0.5 + level / 2.0, dof_safe), np.nan)
+        pval = np.where(has_df, 2.0 * t_sf(np.abs(tval), dof_safe), np.nan)
     frame = s.frame
     if "study_date" in frame.columns:
         dates = frame["study_date"].to_numpy()
@@ -513,7 +526,7 @@ def project_crossings(
 
     with np.errstate(divide="ignore", invalid="ignore"):
         dof = np.where(n > 2, n - 2, 1.0)
-        tq = stats.t.ppf(0.5 + level / 2.0, dof)
+        tq = t_quantile(0.5 + level / 2.0, dof)
         u0 = (thr - ybar) / b
         g = (tq * se / b) ** 2
         half = (tq * s / np.abs(b)) * np.sqrt(u0 * u0 / sxx + (1.0 - g) / n)

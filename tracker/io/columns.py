@@ -12,14 +12,17 @@ when empty), yes/no cells are booleans.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import datetime as dt
 import math
 from dataclasses import dataclass, field
 
-import numpy as np
-import pandas as pd
-
 from tracker.domain.dates import PartialDate, parse_partial_date
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import numpy as np
+    import pandas as pd
 
 # A text cell starting with one of these is run as a formula by spreadsheets.
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
@@ -78,6 +81,8 @@ class Column:
 
 
 def _no_errors(index) -> pd.Series:
+    import pandas as pd
+
     return pd.Series([None] * len(index), index=index, dtype=object)
 
 
@@ -89,6 +94,8 @@ def parse(col: Column, cells: pd.Series, today: dt.date) -> Parsed:
     once and its value and reason are taken back to every row holding it: a
     long-layout file repeats codes, dates, sites and units on most of its rows.
     """
+    import pandas as pd
+
     codes, distinct = _distinct(cells)
     values, errors = _parse_distinct(col, pd.Series(distinct, dtype=object), today)
     values = pd.Series(values.to_numpy()[codes], index=cells.index, name=cells.name, dtype=values.dtype)
@@ -98,6 +105,9 @@ def parse(col: Column, cells: pd.Series, today: dt.date) -> Parsed:
 
 def _distinct(cells: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     """(position of each cell's text in ``distinct``, the distinct texts); missing counts as ""."""
+    import numpy as np
+    import pandas as pd
+
     if isinstance(cells.dtype, pd.CategoricalDtype):
         codes = cells.cat.codes.to_numpy()
         distinct = cells.cat.categories.to_numpy(dtype=object)
@@ -112,6 +122,8 @@ def _distinct(cells: pd.Series) -> tuple[np.ndarray, np.ndarray]:
 
 def _parse_distinct(col: Column, cells: pd.Series, today: dt.date) -> tuple[pd.Series, pd.Series]:
     """Values and reasons (None = fine) for a Series of distinct text cells."""
+    import pandas as pd
+
     empty = cells == ""
     errors = _no_errors(cells.index)
     if col.required:
@@ -183,6 +195,8 @@ def _yesno(col, cells, empty, today):
 
 def _dates(cells: pd.Series, allow_year: bool, today: dt.date):
     """Return (iso text or None, reason or None) for each cell."""
+    import pandas as pd
+
     bad = _no_errors(cells.index)
     day = cells.str.fullmatch(_ISO_DAY)
     year = cells.str.fullmatch(_YEAR) if allow_year else pd.Series(False, index=cells.index)
@@ -211,6 +225,8 @@ def _date(col, cells, empty, today):
 
 def _answer(col, cells, empty, today):
     """yes / no / empty (not recorded) -> True / False / None."""
+    import pandas as pd
+
     bad = _no_errors(cells.index)
     lowered = cells.str.lower()
     ok = lowered.isin(("yes", "no")) | empty
@@ -225,6 +241,9 @@ def _partial_date(col, cells, empty, today):
 
 
 def _number(col, cells, empty, today):
+    import numpy as np
+    import pandas as pd
+
     bad = _no_errors(cells.index)
     numbers = pd.to_numeric(cells.where(~empty, None), errors="coerce").astype(float)
     not_number = numbers.isna() & ~empty
@@ -248,6 +267,9 @@ MAX_AGE_YEARS = 130
 
 def _years(col, cells, empty, today):
     """Whole years of age, 0 to MAX_AGE_YEARS -> float (NaN when empty)."""
+    import numpy as np
+    import pandas as pd
+
     bad = _no_errors(cells.index)
     numbers = pd.to_numeric(cells.where(~empty, None), errors="coerce").astype(float)
     not_number = numbers.isna() & ~empty
@@ -277,6 +299,8 @@ _HANDLERS = {
 
 def format_cell(value) -> str:
     """Clean value -> CSV text (the inverse of :func:`parse`)."""
+    import numpy as np
+
     if value is None:
         return ""
     if isinstance(value, (bool, np.bool_)):

@@ -46,6 +46,8 @@ can link them back.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import csv
 import datetime as dt
 import hashlib
@@ -55,15 +57,16 @@ import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
-import numpy as np
-import pandas as pd
-
 from tracker.domain.dates import DAYS_PER_YEAR, YEAR, PartialDate, parse_partial_date
 from tracker.errors import UserError
 from tracker.io.columns import PROTECTED, format_cell
 from tracker.io.layouts import LAYOUTS
 from tracker.io.export import write_private
 from tracker.settings import DEFAULT_SMALL_CELL, MIN_KEY_CHARS
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import numpy as np
+    import pandas as pd
 
 PERSON_PREFIX, PERSON_HEX = "P-", 12  # 48 bits
 FAMILY_PREFIX, FAMILY_HEX = "F-", 10  # 40 bits
@@ -224,6 +227,8 @@ def _partial(text) -> PartialDate | None:
 
 def _days(series: pd.Series) -> pd.Series:
     """ISO day text -> datetime64 (NaT when empty)."""
+    import pandas as pd
+
     return pd.to_datetime(series.where(series.notna(), None), format="%Y-%m-%d", errors="coerce")
 
 
@@ -232,6 +237,8 @@ def _years(delta: pd.Series) -> pd.Series:
 
 
 def _shift_days(series: pd.Series, shift: pd.Series) -> pd.Series:
+    import pandas as pd
+
     moved = _days(series) + pd.to_timedelta(shift.astype(float), unit="D")
     return moved.map(lambda d: d.strftime("%Y-%m-%d") if pd.notna(d) else None).astype(object)
 
@@ -261,6 +268,8 @@ def pseudonymise(
     ``today`` is the extract date (for the age bands of the small-cell count).
     Raises :class:`UserError` for a bad key or option, or a pseudonym collision.
     """
+    import pandas as pd
+
     if dates not in DATE_MODES:
         raise UserError(f"--dates must be one of {', '.join(DATE_MODES)}")
     if min_cell < 1:
@@ -321,6 +330,8 @@ def pseudonymise(
 
 
 def _shift_column(kind, col, src, family_of, shifts) -> pd.Series:
+    import pandas as pd
+
     fam = src["family"] if "family" in src.columns else src["person"].map(family_of)
     shift = fam.map(shifts)
     if kind == "people" and col in ("birth_date", "death_date"):
@@ -330,6 +341,8 @@ def _shift_column(kind, col, src, family_of, shifts) -> pd.Series:
 
 
 def _age_columns(kind, col, src, birth) -> dict[str, pd.Series]:
+    import pandas as pd
+
     if kind == "variants":  # a family-level date: years since the variant's first classification
         day = _days(src[col])
         first = day.groupby([src["family"], src["transcript"], src["hgvs_c"]]).transform("min")
@@ -352,6 +365,8 @@ def _age_columns(kind, col, src, birth) -> dict[str, pd.Series]:
 
 def age_band(age_years: float | None) -> str:
     """``"30-39"`` for 34.2; ``"unknown"`` without an age."""
+    import numpy as np
+
     if age_years is None or not np.isfinite(age_years):
         return "unknown"
     lo = int(age_years // AGE_BAND_YEARS) * AGE_BAND_YEARS
@@ -360,6 +375,8 @@ def age_band(age_years: float | None) -> str:
 
 def small_cells(people: pd.DataFrame, variants: pd.DataFrame, today: dt.date, threshold: int) -> SmallCells:
     """Count people by sex x age band x family gene; cells under ``threshold`` are reported."""
+    import pandas as pd
+
     genes = variants.groupby("family")["gene"].agg(lambda g: "+".join(sorted(set(g)))).to_dict()
     keys = []
     for sex, b, d, fam in zip(people["sex_at_birth"], people["birth_date"], people["death_date"], people["family"]):

@@ -26,12 +26,14 @@ import datetime as dt
 import getpass
 import hashlib
 import json
-from typing import Any
+from typing import Any, TYPE_CHECKING
 
-import pandas as pd
 from sqlalchemy import Connection, insert, select
 
 from tracker.store.models import AuditEntry
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import pandas as pd
 
 ACTIONS = ("import", "edit", "remove", "reinstate", "reclassify", "task_done", "restore")
 
@@ -187,6 +189,8 @@ def load(
         stmt = stmt.where(a.at < dt.datetime.combine(until + dt.timedelta(days=1), dt.time()))
     if action is not None:
         stmt = stmt.where(a.action == action)
+    import pandas as pd
+
     rows = conn.execute(stmt).all()
     frame = pd.DataFrame([tuple(r) for r in rows], columns=COLUMNS, dtype=object)
     frame["at"] = [t.isoformat() + "Z" for t in frame["at"]]

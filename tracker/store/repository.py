@@ -41,12 +41,47 @@ def _iso(series: pd.Series) -> pd.Series:
     return series.map(lambda d: d.isoformat() if d is not None else None).astype(object)
 
 
-def load_families(conn: Connection) -> pd.DataFrame:
+class Scope:
+    """Which records a reader returns: the whole cohort (``Scope()``), or the families with the
+    given codes (``Scope.families(...)``; one person's review reads their family, the pedigree
+    context, and no one else's records). A family-scoped read goes through the family and
+    person indexes (migration 0009) instead of reading every row."""
+
+    __slots__ = ("family_codes",)
+
+    def __init__(self, family_codes: frozenset[str] | None = None) -> None:
+        self.family_codes = family_codes
+
+    @classmethod
+    def families(cls, codes) -> Scope:
+        return cls(frozenset(codes))
+
+    @property
+    def cohort(self) -> bool:
+        return self.family_codes is None
+
+    def family_ids(self):
+        """A sub-select of the family row ids in scope."""
+        return select(Family.id).where(Family.code.in_(sorted(self.family_codes))).scalar_subquery()
+
+
+COHORT = Scope()
+
+
+def _in_scope(stmt, scope: Scope | None, family_id_column):
+    if scope is None or scope.cohort:
+        return stmt
+    return stmt.where(family_id_column.in_(scope.family_ids()))
+
+
+def load_families(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
     stmt = select(Family.code, Family.condition, Family.notes).order_by(Family.code)
+    if scope is not None and not scope.cohort:
+        stmt = stmt.where(Family.code.in_(sorted(scope.family_codes)))
     return _frame(conn, stmt, ["family", "condition", "notes"])
 
 
-def load_people(conn: Connection) -> pd.DataFrame:
+def load_people(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
     mother, father, twin = aliased(Person), aliased(Person), aliased(Person)
     stmt = (
         select(
@@ -87,6 +122,7 @@ def load_people(conn: Connection) -> pd.DataFrame:
         .where(Person.removed_at.is_(None))
         .order_by(Person.code)
     )
+    stmt = _in_scope(stmt, scope, Person.family_id)
     cols = [
         "person", "family", "given_name", "family_name", "sex_at_birth", "gender_identity",
         "_birth", "_birth_p", "vital_status", "_death", "_death_p", "mother", "father",
@@ -116,7 +152,7 @@ _PEOPLE_ORDER = [
 ]  # fmt: skip
 
 
-def load_variants(conn: Connection) -> pd.DataFrame:
+def load_variants(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
     """One row per classification event (the class history), oldest first."""
     stmt = (
         select(
@@ -134,6 +170,7 @@ def load_variants(conn: Connection) -> pd.DataFrame:
         .join(VariantClassification, VariantClassification.variant_id == Variant.id)
         .order_by(Family.code, Variant.transcript, Variant.hgvs_c, VariantClassification.classified_on)
     )
+    stmt = _in_scope(stmt, scope, Variant.family_id)
     cols = ["family", "gene", "transcript", "hgvs_c", "hgvs_p", "zygosity", "acmg_class",
             "classified_on", "reason"]  # fmt: skip
     df = _frame(conn, stmt, cols)
@@ -141,7 +178,7 @@ def load_variants(conn: Connection) -> pd.DataFrame:
     return df
 
 
-def load_genetic_results(conn: Connection) -> pd.DataFrame:
+def load_genetic_results(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
     stmt = (
         select(
             Person.code,
@@ -158,6 +195,7 @@ def load_genetic_results(conn: Connection) -> pd.DataFrame:
         .where(Person.removed_at.is_(None))
         .order_by(Person.code, GeneticResult.test_date, GeneticResult.test_type)
     )
+    stmt = _in_scope(stmt, scope, Person.family_id)
     cols = ["person", "test_date", "test_type", "_tx", "_c", "result", "lab", "report_reference"]
     df = _frame(conn, stmt, cols)
     df["test_date"] = _iso(df["test_date"])
@@ -172,7 +210,7 @@ RISK_ANSWERS = ("family_history_scd", "nsvt", "unexplained_syncope", "prior_arre
 OTHER_ANSWERS = ("atrial_fibrillation",)
 
 
-def load_assessments(conn: Connection) -> pd.DataFrame:
+def load_assessments(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
     stmt = (
         select(
             Person.code,
@@ -190,6 +228,7 @@ def load_assessments(conn: Connection) -> pd.DataFrame:
         .where(Person.removed_at.is_(None))
         .order_by(Person.code, Assessment.assessment_date)
     )
+    stmt = _in_scope(stmt, scope, Person.family_id)
     cols = ["person", "assessment_date", "affected_status", "symptoms", "competitive_athlete",
             "pregnant", "hypertension", "notes", *RISK_ANSWERS, *OTHER_ANSWERS]  # fmt: skip
     df = _frame(conn, stmt, cols)
@@ -199,7 +238,7 @@ def load_assessments(conn: Connection) -> pd.DataFrame:
     return df
 
 
-def load_studies(conn: Connection, *, entered: bool = True) -> pd.DataFrame:
+def load_studies(conn: Connection, *, entered: bool = True, scope: Scope | None = None) -> pd.DataFrame:
     """Studies in the long layout, one row per value (a study without values: one row).
 
     With ``entered`` the value and unit are as entered (the CSV layout);
@@ -232,6 +271,7 @@ def load_studies(conn: Connection, *, entered: bool = True) -> pd.DataFrame:
         .where(Study.removed_at.is_(None), Person.removed_at.is_(None))
         .order_by(Person.code, Study.study_date, Study.modality, Measurement.measure_code)
     )
+    stmt = _in_scope(stmt, scope, Person.family_id)
     return _typed_frame(conn, stmt, _STUDY_TEXT, _STUDY_NUMBERS)
 
 
