@@ -88,7 +88,6 @@ def test_marks_of_the_hv01_family(frames):
     # placeholders: ordinary symbols, code only
     assert m["HV01-I-1"].placeholder and m["HV01-I-1"].lines == ("HV01-I-1",)
     assert m["HV01-I-1"].deceased and m["HV01-I-1"].shape == "square" and m["HV01-I-2"].shape == "circle"
-    # deceased with year-only birth: age at death is approximate
     # the demo records the cause and age at death (death_cause, death_age): both are printed
     assert ("b. 1938", "d. 41 y (1979), sudden") == m["HV01-II-1"].lines[1:3]
     # an at-risk relative never assessed shows '?'; a married-in partner never assessed is open
