@@ -180,13 +180,24 @@ def _names(row: dict) -> list[dict]:
     return [name]
 
 
-def _patient(row: dict, include_names: bool) -> dict:
+def _assessment_extensions(assessments: list[tuple[str, str]]) -> list[dict]:
+    """One local complex extension per clinic assessment (date, affected status), oldest first."""
+    return [
+        {"url": fc.EXT_ASSESSMENT, "extension": [{"url": "date", "valueDate": day},
+                                                 {"url": "affected-status", "valueCode": status}]}
+        for day, status in assessments
+    ]  # fmt: skip
+
+
+def _patient(row: dict, include_names: bool, assessments: list[tuple[str, str]] = ()) -> dict:
     code = row["person"]
     res: dict = {
         "resourceType": "Patient",
         "id": resource_id("Patient", code),
-        "identifier": [{"system": fc.LOCAL_PERSON, "value": code}],
     }
+    if assessments:
+        res["extension"] = _assessment_extensions(list(assessments))
+    res["identifier"] = [{"system": fc.LOCAL_PERSON, "value": code}]
     if include_names and (names := _names(row)):
         res["name"] = names
     res["gender"] = fc.GENDER.get(_text(row.get("sex_at_birth")) or "unknown", "unknown")
@@ -223,9 +234,35 @@ def _co_parent_words(ped: Pedigree, proband: str, relative: str) -> str | None:
     return "co-parent of the proband's child (not a blood relative)" if shared else None
 
 
+def _fmh_extensions(row: dict, fmh_ids: dict[str, str], patient_ids: dict[str, str],
+                    sexes: dict[str, str]) -> list[dict]:  # fmt: skip
+    """Patient-record link, genetic parents and co-twin of one relative (links to the proband are in
+    ``relationship``: the extensions reference FamilyMemberHistory resources only)."""
+    out: list[dict] = []
+    code = row["person"]
+    if code in patient_ids:
+        out.append({"url": fc.EXT_FMH_PATIENT_RECORD, "valueReference": _ref(patient_ids[code])})
+    for role in ("mother", "father"):
+        parent = _text(row.get(role))
+        if parent in fmh_ids:
+            kind = fc.ROLE_CODES[fc.PARENT_TYPE[role]]
+            out.append({"url": fc.EXT_FMH_PARENT, "extension": [
+                {"url": "type", "valueCodeableConcept": _cc(kind)},
+                {"url": "reference", "valueReference": _ref(fmh_ids[parent])}]})  # fmt: skip
+    twin = _text(row.get("twin_of"))
+    if twin in fmh_ids:
+        female, male, neutral = fc.TWIN_TYPE_ROLE.get(_text(row.get("twin_type")) or "unknown",
+                                                      fc.TWIN_TYPE_ROLE["unknown"])  # fmt: skip
+        kind = fc.ROLE_CODES[{"female": female, "male": male}.get(sexes.get(twin, "unknown"), neutral)]
+        out.append({"url": fc.EXT_FMH_SIBLING, "extension": [
+            {"url": "type", "valueCodeableConcept": _cc(kind)},
+            {"url": "reference", "valueReference": _ref(fmh_ids[twin])}]})  # fmt: skip
+    return out
+
+
 def _family_member_history(
     row: dict, ped: Pedigree, proband: str, proband_id: str, affected: bool, condition: str | None,
-    include_names: bool,
+    include_names: bool, extensions: list[dict] | None = None,
 ) -> dict:
     code = row["person"]
     rel = ped.relationship(proband, code)
@@ -237,6 +274,7 @@ def _family_member_history(
     res: dict = {
         "resourceType": "FamilyMemberHistory",
         "id": resource_id("FamilyMemberHistory", proband, code),
+        **({"extension": extensions} if extensions else {}),
         "identifier": [{"system": fc.LOCAL_RELATIVE, "value": code}],
         "status": "completed",
         "patient": _ref(proband_id),
@@ -390,6 +428,7 @@ def _variant_observation(row: dict, variant: dict | None, patient_id: str, prese
     )
     if lab := _text(row.get("lab")):
         res["performer"] = [{"display": lab}]
+    res["method"] = {"coding": [{"system": fc.LOCAL_TEST_TYPE, "code": row["test_type"]}]}
     res["valueCodeableConcept"] = _cc(fc.PRESENT if present else fc.ABSENT)
     components = []
     gene = _text(variant.get("gene")) if variant else None
@@ -548,18 +587,27 @@ def build_family_bundle(
     seen = seen_members(members, results, assessments, studies)
     patient_ids = {p: resource_id("Patient", p) for p in seen}
     by_code = {r["person"]: r for r in members.to_dict("records")}
-    entries: list[dict] = [_patient(by_code[p], include_names) for p in seen]
+    assessed: dict[str, list[tuple[str, str]]] = {}
+    if len(assessments):
+        for rec in assessments.sort_values(["person", "assessment_date"], kind="stable").to_dict("records"):
+            assessed.setdefault(rec["person"], []).append((rec["assessment_date"], rec["affected_status"]))
+    entries: list[dict] = [_patient(by_code[p], include_names, assessed.get(p, [])) for p in seen]
 
     probands = [p for p in codes if bool(by_code[p]["proband"])]
     if probands:
         proband = probands[0]
-        ped = Pedigree(_clean_links(members))
+        linked = _clean_links(members)
+        ped = Pedigree(linked)
+        linked_rows = {r["person"]: r for r in linked.to_dict("records")}
+        sexes = {p: _text(r.get("sex_at_birth")) or "unknown" for p, r in linked_rows.items()}
+        fmh_ids = {p: resource_id("FamilyMemberHistory", proband, p) for p in codes if p != proband}
         affected = _latest_affected(assessments)
         for p in codes:
             if p != proband:
+                ext = _fmh_extensions(linked_rows[p], fmh_ids, patient_ids, sexes)
                 entries.append(
                     _family_member_history(by_code[p], ped, proband, patient_ids[proband], p in affected,
-                                           condition, include_names)
+                                           condition, include_names, ext)
                 )
 
     if len(values):
