@@ -30,7 +30,7 @@ from tracker.store import repository as repo
 from tracker.settings import load_settings
 from tracker.store.database import locate, make_engine, reading, writing
 
-ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all")}, type=str)
+ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all", "fhir")}, type=str)
 ExportKind = Enum("ExportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all")}, type=str)
 
 PROGRESS_THRESHOLD = 20_000  # rows; smaller files finish before a bar would be seen
@@ -53,8 +53,9 @@ def _progress_bar(total: int):
 
 
 def import_(
-    kind: Annotated[ImportKind, typer.Argument(help="What the file holds; `all` reads a folder of layout files.")],
-    path: Annotated[Path, typer.Argument(help="CSV file (or folder for `all`).")],
+    kind: Annotated[ImportKind, typer.Argument(help="What the file holds; `all` reads a folder of layout files; "
+                                               "`fhir` an HL7 FHIR R4B Bundle (JSON) of one family.")],
+    path: Annotated[Path, typer.Argument(help="CSV file (folder for `all`, JSON file for `fhir`).")],
     dry_run: Annotated[bool, typer.Option("--dry-run", help="Check only; write nothing.")] = False,
     user: Annotated[str | None, typer.Option("--user", help="Who is importing (default: the OS user).")] = None,
     db: DbOption = None,
@@ -66,17 +67,23 @@ def import_(
     twice adds nothing. Layouts: docs/data-layouts.md.
 
     Example: tracker import people demo_family/people.csv --dry-run
+
+    Example: tracker import fhir HV01.fhir.json
     """
     engine = open_store(db)
     kind = kind.value
-    total = _count_rows(path)
+    total = _count_rows(path) if kind != "fhir" else 0
     summaries: list[csv_import.ImportSummary] = []
     with _progress_bar(total) as bar:
         task = bar.add_task(f"importing {path.name}", total=total)
         advance = lambda n: bar.advance(task, n)  # noqa: E731
         try:
             with writing(engine) as conn:
-                if kind == "all":
+                if kind == "fhir":
+                    from tracker.io import fhir_import
+
+                    summaries = fhir_import.import_bundle(conn, path, user=user)
+                elif kind == "all":
                     summaries = csv_import.import_folder(conn, path, user=user, progress=advance)
                 else:
                     summaries = [csv_import.import_file(conn, kind, path, user=user, progress=advance)]

@@ -245,7 +245,8 @@ def _fmh_extensions(row: dict, fmh_ids: dict[str, str], patient_ids: dict[str, s
     for role in ("mother", "father"):
         parent = _text(row.get(role))
         if parent in fmh_ids:
-            kind = fc.ROLE_CODES[fc.PARENT_TYPE[role]]
+            adopted = _text(row.get("adoption")) == "in"  # the recorded parents are then the adoptive ones
+            kind = fc.ROLE_CODES[(fc.ADOPTIVE_PARENT_TYPE if adopted else fc.PARENT_TYPE)[role]]
             out.append({"url": fc.EXT_FMH_PARENT, "extension": [
                 {"url": "type", "valueCodeableConcept": _cc(kind)},
                 {"url": "reference", "valueReference": _ref(fmh_ids[parent])}]})  # fmt: skip

@@ -315,6 +315,7 @@ ROLE_CODES: dict[str, Code] = {
 }
 # genetics-parent extension type by the parent's role in the person record.
 PARENT_TYPE = {"mother": "NMTH", "father": "NFTH"}
+ADOPTIVE_PARENT_TYPE = {"mother": "ADOPTM", "father": "ADOPTF"}  # for a person adopted in
 # genetics-sibling extension type of a co-twin link, by the recorded twin_type (then the sex of the co-twin).
 TWIN_TYPE_ROLE: dict[str, tuple[str, str, str]] = {
     "monozygotic": ("ITWINSIS", "ITWINBRO", "ITWIN"),
