@@ -131,6 +131,16 @@ def export_(
         typer.Option("--fhir", metavar="FAMILY", help="Write this family as an HL7 FHIR R4B Bundle (JSON) instead "
                      "of CSV: the same as `tracker export-fhir FAMILY`."),
     ] = None,
+    phenopacket_family: Annotated[
+        str | None,
+        typer.Option("--phenopacket", metavar="FAMILY", help="Write this family as a GA4GH Phenopackets v2 Family "
+                     "(JSON); with --pseudonymise, codes are keyed-hash codes."),
+    ] = None,
+    ped_family: Annotated[
+        str | None,
+        typer.Option("--ped", metavar="FAMILY", help="Write this family as a six-column PED/LINKAGE file "
+                     "(family, person, father, mother, sex, affection); with --pseudonymise, keyed-hash codes."),
+    ] = None,
     include_names: Annotated[
         bool, typer.Option("--include-names", help="With --fhir: put given and family names in the file.")
     ] = False,
@@ -174,6 +184,10 @@ def export_(
 
     Example: tracker export --fhir HV01 --out HV01.fhir.json
     """
+    if phenopacket_family is not None or ped_family is not None:
+        _export_family_file(phenopacket_family, ped_family, kind, out, pseudonymise_, fhir_family, include_names,
+                            claim_profiles, dates, min_cell, settings, force, db, json_out)  # fmt: skip
+        return
     if fhir_family is not None:
         if kind is not None or pseudonymise_ or dates is not None or min_cell is not None:
             raise UserError("--fhir writes one family's FHIR Bundle: give no CSV kind, --pseudonymise, --dates or --min-cell")
@@ -207,6 +221,29 @@ def export_(
     else:
         for k, n in counts.items():
             typer.echo(f"{k}: {n} rows written")
+
+
+def _export_family_file(phenopacket_family, ped_family, kind, out: Path, pseudonymise_: bool, fhir_family,
+                        include_names, claim_profiles, dates, min_cell, settings_path, force, db, json_out) -> None:  # fmt: skip
+    from tracker.cli.export_family import export_family_file
+
+    if phenopacket_family is not None and ped_family is not None:
+        raise UserError("give one of --phenopacket and --ped")
+    option = "--phenopacket" if phenopacket_family is not None else "--ped"
+    if kind is not None or fhir_family is not None or include_names or claim_profiles or dates or min_cell:
+        raise UserError(f"{option} writes one family's file: give no CSV kind, --fhir, --include-names, "
+                        "--claim-profiles, --dates or --min-cell")  # fmt: skip
+    key = load_settings(settings_path).privacy.key() if pseudonymise_ else None
+    fmt, family = ("phenopacket", phenopacket_family) if phenopacket_family is not None else ("ped", ped_family)
+    engine = open_store(db)
+    with reading(engine) as conn:
+        summary = export_family_file(conn, fmt, family, out, key=key, force=force)
+    if json_out:
+        print_json(summary)
+    else:
+        what = "GA4GH Phenopackets v2 Family" if fmt == "phenopacket" else "PED/LINKAGE pedigree"
+        pseudo = " (pseudonymised codes)" if key else ""
+        typer.echo(f"{summary['out']}: {what} of family {family}, {summary['members']} members{pseudo}")
 
 
 def _export_pseudonymised(kind, out: Path, dates: str, min_cell, settings_path, db, json_out: bool) -> None:
