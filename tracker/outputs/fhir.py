@@ -14,7 +14,8 @@ What is mapped
   sex-at-birth element in R4B Patient; administrative gender is the nearest, a compromise);
   ``birthDate`` to the day or to the year as recorded; ``deceasedDateTime`` (day or year) when a
   death date is recorded, else ``deceasedBoolean``; nothing when the vital status is unknown.
-  Names only with ``include_names=True``.
+  Names only with ``include_names=True``.  Each clinic assessment (date, affected status) is
+  a local complex extension ``urn:tracker:assessment``.
 * **FamilyMemberHistory**: every other member (placeholders and partners included), with
   ``patient`` = the proband.  ``relationship`` carries the plain words of
   :meth:`~tracker.domain.pedigree.Pedigree.relationship` (and the degree) as text, coded with
@@ -26,7 +27,13 @@ What is mapped
   HCM (SNOMED CT 233873004 and HPO HP:0001639) when the relative's latest assessment is
   "affected" or an age at diagnosis is recorded (then ``onsetAge``, UCUM ``a``), and Sudden
   cardiac death (HPO HP:0001645, ``contributedToDeath`` true, ``onsetAge`` = age at death) when
-  the recorded cause of death is "sudden".  No FamilyMemberHistory is made when the family has no recorded proband.
+  the recorded cause of death is "sudden".  Extensions of the FHIR core registry:
+  ``familymemberhistory-patient-record`` when the relative is also a Patient;
+  ``family-member-history-genetics-parent`` (type NMTH/NFTH, or ADOPTM/ADOPTF for a person
+  adopted in; reference = the parent's FamilyMemberHistory) for each recorded parent other
+  than the proband; ``family-member-history-genetics-sibling`` (a twin code by zygosity) for
+  a co-twin other than the proband.  Links to the proband are in ``relationship``.
+  No FamilyMemberHistory is made when the family has no recorded proband.
 * **Observation per stored measurement** (catalogue unit): ``status`` final, ``category``
   imaging (echo, CMR) or procedure (ECG), ``code`` = LOINC when the catalogue has one *and* it
   is listed in the reference notes (standards.md 4a/4b), plus always the local system
@@ -36,7 +43,8 @@ What is mapped
 * **Genetic findings**, shaped after the HL7 Genomics Reporting IG: per *carrier* result a
   variant Observation (LOINC 69548-6, value LA9633-4 Present; components gene studied 48018-6
   (HGNC id where known, else the symbol as text), c.HGVS 48004-6, p.HGVS 48005-3, transcript
-  51958-7, allelic state 53034-5 = LA6706-1 Heterozygous) and a diagnostic-implication
+  51958-7, allelic state 53034-5 = LA6706-1 Heterozygous; ``method`` = the test type in the
+  local system ``urn:tracker:test-type``) and a diagnostic-implication
   Observation (components clinical significance 53037-8 with the LL4034-6 answer of the
   variant's *current* ACMG/AMP class, associated phenotype 81259-4 = HCM; ``derivedFrom`` the
   variant Observation; ``effectiveDateTime`` = the date of that classification; earlier classes
@@ -65,7 +73,7 @@ are as pseudonymous as the codes, no more: they are not a de-identification.
 Profiles
 --------
 ``meta.profile`` (Genomics Reporting ``variant`` / ``diagnostic-implication``) is set only
-with ``claim_profiles=True``: the canonical URLs were seen in the IG source, but the exported
+with ``claim_profiles=True`` (:func:`claimed_profiles` lists what a Bundle claims): the canonical URLs were seen in the IG source, but the exported
 resources have not been checked with the HL7 validator against a given IG release.
 
 Decision support only: classes are as recorded in this clinic's store; confirm against the
@@ -643,6 +651,20 @@ def bundle_json(bundle: Bundle) -> str:
     """The Bundle as FHIR JSON text (UTF-8, two-space indent, stable key order), ending in a newline."""
     data = json.loads(bundle.model_dump_json())
     return json.dumps(data, indent=2, ensure_ascii=False) + "\n"
+
+
+def claimed_profiles(bundle: Bundle) -> dict[str, list[str]]:
+    """Kind of resource (as in :func:`resource_counts`) -> the profile URLs its ``meta.profile`` claims."""
+    out: dict[str, list[str]] = {}
+    for entry in bundle.entry or []:
+        res = entry.resource
+        profiles = list(res.meta.profile or []) if res.meta is not None else []
+        if profiles:
+            kind = next(iter(resource_counts(Bundle.model_construct(entry=[entry]))))
+            for url in profiles:
+                if url not in out.setdefault(kind, []):
+                    out[kind].append(url)
+    return out
 
 
 def resource_counts(bundle: Bundle) -> dict[str, int]:
