@@ -249,3 +249,22 @@ def test_stored_record_with_other_values_is_refused(source, sqlite_db, run, tmp_
     r = run("import", "fhir", _write(tmp_path, bundle), db=sqlite_db)
     assert r.code == 1
     assert f"Patient/{patient['id']} birthDate: differs from the stored record" in r.err, r.err
+
+
+def test_round_trip_with_claimed_profiles_and_dry_run(source, sqlite_db, run, tmp_path):
+    claimed = tmp_path / "claimed.json"
+    assert run("export", "--fhir", FAMILY, "--out", claimed, "--claim-profiles", db=source["db"]).code == 0
+    run("init", db=sqlite_db)
+    before = dump(sqlite_db)
+    r = run("import", "fhir", claimed, "--dry-run", db=sqlite_db)
+    assert r.code == 0 and "dry run: nothing was written" in r.out, r
+    assert dump(sqlite_db) == before
+    assert run("import", "fhir", claimed, db=sqlite_db).code == 0
+    again = tmp_path / "again.json"
+    r = run("export", "--fhir", FAMILY, "--out", again, "--claim-profiles", "--json", db=sqlite_db)
+    assert again.read_bytes() == claimed.read_bytes()
+    assert json.loads(r.out)["profiles"] == {
+        "Observation (variant)": ["http://hl7.org/fhir/uv/genomics-reporting/StructureDefinition/variant"],
+        "Observation (diagnostic implication)": [
+            "http://hl7.org/fhir/uv/genomics-reporting/StructureDefinition/diagnostic-implication"],
+    }
