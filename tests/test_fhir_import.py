@@ -207,13 +207,20 @@ def _other_resource(b):
     return "Condition/c1 resourceType: this resource type is not imported", "c1"
 
 
+def _duplicate_patient(b):
+    patient = copy.deepcopy(_res(b, "Patient"))
+    patient["id"] = "copy-1"
+    b["entry"].append({"fullUrl": "urn:uuid:22222222-2222-2222-2222-222222222222", "resource": patient})
+    return f"Patient/copy-1 identifier: person {patient['identifier'][0]['value']} is also in Patient/", "copy-1"
+
+
 def _no_family(b):
     del b["identifier"]
     return "Bundle identifier: no family code", "Bundle"
 
 
 @pytest.mark.parametrize("mutate", [_unknown_loinc, _implausible, _missing_reference, _unknown_answer,
-                                    _unknown_extension, _other_resource, _no_family])  # fmt: skip
+                                    _unknown_extension, _other_resource, _duplicate_patient, _no_family])  # fmt: skip
 def test_malformed_bundle_is_refused_and_nothing_is_written(source, db_url, run, tmp_path, mutate):
     assert run("init", db=db_url).code == 0
     before = dump(db_url)

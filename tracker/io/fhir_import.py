@@ -252,6 +252,13 @@ class _Reader:
                 self.person_of[id(res)] = code
         people: dict[str, tuple[dict, str, dict]] = {}  # code -> (cells, label, paths)
         proband = None
+        for group in (patients, histories):  # one Patient and one FamilyMemberHistory per person at most
+            first: dict[str, str] = {}
+            for label, res in group:
+                code = self.person_of.get(id(res))
+                if code is not None and code in first:
+                    self.problem(label, "identifier", f"person {code} is also in {first[code]}")
+                first.setdefault(code, label)
         for label, res in patients:
             if id(res) in self.person_of:
                 people[self.person_of[id(res)]] = self._patient(label, res)
