@@ -124,7 +124,7 @@ def test_round_trip_keeps_the_pedigree_links(source, sqlite_db, run):
     assert got["ZQ07-II-3"][:5] == ("ZQ07-I-2", "ZQ07-I-1", "ZQ07-II-2", "dizygotic", None)  # parent/sibling ext.
     assert got["ZQ07-III-1"][0] == "ZQ07-II-1" and got["ZQ07-III-1"][4] == "in"  # adopted-in child (DAUADOPT)
     assert bool(got["ZQ07-II-1"][5]) and got["ZQ07-II-3"][8] == 40  # HCM condition onsetAge
-    assert got["ZQ07-II-1"][8] is None  # the proband's age at diagnosis is not in the Bundle (docs/data-layouts.md)
+    assert got["ZQ07-II-1"][8] == 31  # the proband's HCM Condition onsetAge
     assert got["ZQ07-I-2"][6:8] == ("sudden", 47)
 
 
@@ -202,9 +202,9 @@ def _unknown_extension(b):
 
 def _other_resource(b):
     b["entry"].append({"fullUrl": "urn:uuid:11111111-1111-1111-1111-111111111111",
-                       "resource": {"resourceType": "Condition", "id": "c1",
+                       "resource": {"resourceType": "Procedure", "id": "pr1", "status": "completed",
                                     "subject": {"reference": "urn:uuid:x"}}})  # fmt: skip
-    return "Condition/c1 resourceType: this resource type is not imported", "c1"
+    return "Procedure/pr1 resourceType: this resource type is not imported", "pr1"
 
 
 def _duplicate_patient(b):

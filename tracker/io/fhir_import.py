@@ -234,7 +234,7 @@ class _Reader:
         histories = [(lb, r) for lb, r in self.entries if r.get("resourceType") == "FamilyMemberHistory"]
         observations = [(lb, r) for lb, r in self.entries if r.get("resourceType") == "Observation"]
         for label, res in self.entries:
-            if res.get("resourceType") not in ("Patient", "FamilyMemberHistory", "Observation"):
+            if res.get("resourceType") not in ("Patient", "FamilyMemberHistory", "Observation", "Condition"):
                 self.problem(label, "resourceType", "this resource type is not imported")
         self.person_of: dict[int, str] = {}  # id(resource) -> person code
         for label, res in patients:
@@ -308,15 +308,38 @@ class _Reader:
                         cells["adoption"] = "in"
                 elif role in _TWIN_OF_ROLE and cells.get("twin_of") is None:
                     cells["twin_of"], cells["twin_type"] = proband, _TWIN_OF_ROLE[role]
+        for label, res in self.entries:
+            if res.get("resourceType") == "Condition":
+                self._condition(label, res, people)
         if self.family is not None:
             for code, (cells, label, paths) in people.items():
                 self.tables["people"].add({"person": code, "family": self.family, **cells}, label, paths)
             self._family(observations, histories)
         self._observations(observations)
 
+    def _condition(self, label: str, res: dict, people: dict) -> None:
+        """A Patient's HCM (onsetAge = age at diagnosis) or sudden cardiac death (onsetAge = age at death)."""
+        found = self.target(label, "subject", res.get("subject"), "Patient")
+        code = self.person_of.get(id(found[1])) if found else None
+        if code not in people:
+            return
+        cells, cc = people[code][0], res.get("code")
+        if _has(cc, fc.SCD_HPO):
+            cells["death_cause"] = "sudden"
+            if (age := _years(res.get("onsetAge"))) is not None:
+                cells["death_age"] = age
+        elif _has(cc, fc.HCM_SNOMED) or _has(cc, fc.HCM_HPO) or (cc or {}).get("text"):
+            cells["diagnosis_age"] = _years(res.get("onsetAge")) or ""
+        else:
+            self.problem(label, "code", f"{_shown(cc)} is not a condition the importer reads")
+
     def _family(self, observations, histories) -> None:
         condition = None
         for _, res in [*observations, *histories]:
+            for cond in res.get("condition", []):  # a relative's condition that is not HCM-coded names it
+                cc = cond.get("code") or {}
+                if not (_has(cc, fc.HCM_SNOMED) or _has(cc, fc.HCM_HPO) or _has(cc, fc.SCD_HPO)) and cc.get("text"):
+                    condition = cc["text"]
             for comp in res.get("component", []):
                 if _has(comp.get("code"), fc.ASSOCIATED_PHENOTYPE):
                     cc = comp.get("valueCodeableConcept") or {}

@@ -33,7 +33,8 @@ What is mapped
   adopted in; reference = the parent's FamilyMemberHistory) for each recorded parent other
   than the proband; ``family-member-history-genetics-sibling`` (a twin code by zygosity) for
   a co-twin other than the proband.  Links to the proband are in ``relationship``.
-  No FamilyMemberHistory is made when the family has no recorded proband.
+  The proband's own HCM (with the age at diagnosis) and recorded sudden death are **Condition**
+  resources with the same codes and ``onsetAge``.  No FamilyMemberHistory is made when the family has no recorded proband.
 * **Observation per stored measurement** (catalogue unit): ``status`` final, ``category``
   imaging (echo, CMR) or procedure (ECG), ``code`` = LOINC when the catalogue has one *and* it
   is listed in the reference notes (standards.md 4a/4b), plus always the local system
@@ -319,6 +320,26 @@ def _family_member_history(
     if bool(row.get("placeholder")):
         res["note"] = [{"text": "placeholder: drawn to connect the pedigree"}]
     return res
+
+
+def _proband_conditions(row: dict, patient_id: str, affected: bool, condition: str | None) -> list[dict]:
+    """Condition resources of the proband (who has no FamilyMemberHistory): HCM with the recorded age at
+    diagnosis as its onset, and a recorded sudden death with the age at death, as for a relative."""
+    code, out = row["person"], []
+    diagnosis_age = _whole_years(row.get("diagnosis_age"))
+    if affected or diagnosis_age is not None:
+        res = {"resourceType": "Condition", "id": resource_id("Condition", code, "hcm"),
+               "code": _condition_cc(condition), "subject": _ref(patient_id)}  # fmt: skip
+        if diagnosis_age is not None:
+            res["onsetAge"] = _age(diagnosis_age)
+        out.append(res)
+    if _text(row.get("death_cause")) == "sudden":
+        res = {"resourceType": "Condition", "id": resource_id("Condition", code, "sudden-death"),
+               "code": _cc(fc.SCD_HPO, text="Sudden cardiac death"), "subject": _ref(patient_id)}  # fmt: skip
+        if (death_age := _whole_years(row.get("death_age"))) is not None:
+            res["onsetAge"] = _age(death_age)
+        out.append(res)
+    return out
 
 
 # ---------------------------------------------------------------------------
@@ -618,6 +639,7 @@ def build_family_bundle(
                     _family_member_history(by_code[p], ped, proband, patient_ids[proband], p in affected,
                                            condition, include_names, ext)
                 )
+        entries.extend(_proband_conditions(by_code[proband], patient_ids[proband], proband in affected, condition))
 
     if len(values):
         values = values.sort_values(["person", "study_date", "modality", "measure"], kind="stable")
