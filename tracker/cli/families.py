@@ -153,7 +153,8 @@ def export_(
         typer.Option(
             "--pseudonymise",
             help="Write a research extract instead (with `all`): keyed-hash codes, dates as ages "
-            "or shifted, free text dropped, a README and a small-cell check. Needs the settings "
+            "or shifted, free text dropped, a README and a small-cell check. With --phenopacket or "
+            "--ped: keyed-hash family and person codes. Needs the settings "
             "privacy section (pseudonym_key_file). See docs/privacy.md.",
         ),
     ] = False,
@@ -183,6 +184,10 @@ def export_(
     Example: tracker export all --out extract/ --pseudonymise --dates shift --settings clinic.toml
 
     Example: tracker export --fhir HV01 --out HV01.fhir.json
+
+    Example: tracker export --phenopacket HV01 --out HV01.phenopacket.json
+
+    Example: tracker export --ped HV01 --out HV01.ped
     """
     if phenopacket_family is not None or ped_family is not None:
         _export_family_file(phenopacket_family, ped_family, kind, out, pseudonymise_, fhir_family, include_names,
@@ -197,7 +202,7 @@ def export_(
                             db=db, json_out=json_out, force=force)  # fmt: skip
         return
     if kind is None:
-        raise UserError("say what to export: a layout name, `all`, or --fhir FAMILY")
+        raise UserError("say what to export: a layout name, `all`, --fhir FAMILY, --phenopacket FAMILY or --ped FAMILY")
     if include_names or claim_profiles:
         raise UserError("--include-names and --claim-profiles need --fhir")
     kind = kind.value
