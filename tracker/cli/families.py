@@ -231,6 +231,7 @@ def export_(
 def _export_family_file(phenopacket_family, ped_family, kind, out: Path, pseudonymise_: bool, fhir_family,
                         include_names, claim_profiles, dates, min_cell, settings_path, force, db, json_out) -> None:  # fmt: skip
     from tracker.cli.export_family import export_family_file
+    from tracker.settings import load_settings
 
     if phenopacket_family is not None and ped_family is not None:
         raise UserError("give one of --phenopacket and --ped")
