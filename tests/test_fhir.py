@@ -14,6 +14,7 @@ import pandas as pd
 import pytest
 import typer
 from fhir.resources.R4B.bundle import Bundle
+from fhir.resources.R4B.condition import Condition
 from fhir.resources.R4B.familymemberhistory import FamilyMemberHistory
 from fhir.resources.R4B.observation import Observation
 from fhir.resources.R4B.patient import Patient
@@ -141,7 +142,7 @@ def test_bundle_parses_back_with_the_r4b_models(exported, fam):
     assert bundle.type == "collection"
     assert bundle.identifier.value == fam
     kinds = {type(e.resource) for e in bundle.entry}
-    assert kinds <= {Patient, FamilyMemberHistory, Observation}
+    assert kinds <= {Patient, FamilyMemberHistory, Observation, Condition}  # Condition: the proband's own
     # a second round trip gives the same JSON
     assert json.loads(bundle.model_dump_json()) == json.loads(exported[fam]["text"])
 

@@ -80,6 +80,7 @@ def export_fhir(
         "not_exported": fhir.unexported_results(results[results["person"].isin(codes)]),
         "names_included": include_names,
         "profiles_claimed": claim_profiles,
+        "profiles": fhir.claimed_profiles(bundle),
     }
 
 
@@ -121,5 +122,9 @@ def export_fhir_command(
         typer.echo(f"  {kind}: {n}")
     for item in summary["not_exported"]:
         typer.echo(f"  not exported: {item['person']} {item['test_date']} ({item['reason']})")
+    for kind, urls in summary["profiles"].items():
+        typer.echo(f"  {kind} claims {', '.join(urls)} (not checked with the HL7 validator)")
+    if not summary["profiles"]:
+        typer.echo("  no resource claims a profile (--claim-profiles claims the Genomics Reporting IG ones)")
     if include_names:
         typer.echo("  names included: keep this file as confidential as the clinical record")

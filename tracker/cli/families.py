@@ -33,7 +33,7 @@ pseudonymise = lazy_module("tracker.io.pseudonymise")
 summary = lazy_module("tracker.outputs.summary")
 repo = lazy_module("tracker.store.repository")
 
-ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all")}, type=str)
+ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all", "fhir")}, type=str)
 ExportKind = Enum("ExportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all")}, type=str)
 
 PROGRESS_THRESHOLD = 20_000  # rows; smaller files finish before a bar would be seen
@@ -56,8 +56,9 @@ def _progress_bar(total: int):
 
 
 def import_(
-    kind: Annotated[ImportKind, typer.Argument(help="What the file holds; `all` reads a folder of layout files.")],
-    path: Annotated[Path, typer.Argument(help="CSV file (or folder for `all`).")],
+    kind: Annotated[ImportKind, typer.Argument(help="What the file holds; `all` reads a folder of layout files; "
+                                               "`fhir` an HL7 FHIR R4B Bundle (JSON) of one family.")],
+    path: Annotated[Path, typer.Argument(help="CSV file (folder for `all`, JSON file for `fhir`).")],
     dry_run: Annotated[bool, typer.Option("--dry-run", help="Check only; write nothing.")] = False,
     user: Annotated[str | None, typer.Option("--user", help="Who is importing (default: the OS user).")] = None,
     db: DbOption = None,
@@ -69,17 +70,23 @@ def import_(
     twice adds nothing. Layouts: docs/data-layouts.md.
 
     Example: tracker import people demo_family/people.csv --dry-run
+
+    Example: tracker import fhir HV01.fhir.json
     """
     engine = open_store(db)
     kind = kind.value
-    total = _count_rows(path)
+    total = _count_rows(path) if kind != "fhir" else 0
     summaries: list[csv_import.ImportSummary] = []
     with _progress_bar(total) as bar:
         task = bar.add_task(f"importing {path.name}", total=total)
         advance = lambda n: bar.advance(task, n)  # noqa: E731
         try:
             with writing(engine) as conn:
-                if kind == "all":
+                if kind == "fhir":
+                    from tracker.io import fhir_import
+
+                    summaries = fhir_import.import_bundle(conn, path, user=user)
+                elif kind == "all":
                     summaries = csv_import.import_folder(conn, path, user=user, progress=advance)
                 else:
                     summaries = [csv_import.import_file(conn, kind, path, user=user, progress=advance)]
@@ -129,6 +136,16 @@ def export_(
         typer.Option("--fhir", metavar="FAMILY", help="Write this family as an HL7 FHIR R4B Bundle (JSON) instead "
                      "of CSV: the same as `tracker export-fhir FAMILY`."),
     ] = None,
+    phenopacket_family: Annotated[
+        str | None,
+        typer.Option("--phenopacket", metavar="FAMILY", help="Write this family as a GA4GH Phenopackets v2 Family "
+                     "(JSON); with --pseudonymise, codes are keyed-hash codes."),
+    ] = None,
+    ped_family: Annotated[
+        str | None,
+        typer.Option("--ped", metavar="FAMILY", help="Write this family as a six-column PED/LINKAGE file "
+                     "(family, person, father, mother, sex, affection); with --pseudonymise, keyed-hash codes."),
+    ] = None,
     include_names: Annotated[
         bool, typer.Option("--include-names", help="With --fhir: put given and family names in the file.")
     ] = False,
@@ -141,7 +158,8 @@ def export_(
         typer.Option(
             "--pseudonymise",
             help="Write a research extract instead (with `all`): keyed-hash codes, dates as ages "
-            "or shifted, free text dropped, a README and a small-cell check. Needs the settings "
+            "or shifted, free text dropped, a README and a small-cell check. With --phenopacket or "
+            "--ped: keyed-hash family and person codes. Needs the settings "
             "privacy section (pseudonym_key_file). See docs/privacy.md.",
         ),
     ] = False,
@@ -171,7 +189,15 @@ def export_(
     Example: tracker export all --out extract/ --pseudonymise --dates shift --settings clinic.toml
 
     Example: tracker export --fhir HV01 --out HV01.fhir.json
+
+    Example: tracker export --phenopacket HV01 --out HV01.phenopacket.json
+
+    Example: tracker export --ped HV01 --out HV01.ped
     """
+    if phenopacket_family is not None or ped_family is not None:
+        _export_family_file(phenopacket_family, ped_family, kind, out, pseudonymise_, fhir_family, include_names,
+                            claim_profiles, dates, min_cell, settings, force, db, json_out)  # fmt: skip
+        return
     if fhir_family is not None:
         if kind is not None or pseudonymise_ or dates is not None or min_cell is not None:
             raise UserError("--fhir writes one family's FHIR Bundle: give no CSV kind, --pseudonymise, --dates or --min-cell")
@@ -181,7 +207,7 @@ def export_(
                             db=db, json_out=json_out, force=force)  # fmt: skip
         return
     if kind is None:
-        raise UserError("say what to export: a layout name, `all`, or --fhir FAMILY")
+        raise UserError("say what to export: a layout name, `all`, --fhir FAMILY, --phenopacket FAMILY or --ped FAMILY")
     if include_names or claim_profiles:
         raise UserError("--include-names and --claim-profiles need --fhir")
     kind = kind.value
@@ -205,6 +231,30 @@ def export_(
     else:
         for k, n in counts.items():
             typer.echo(f"{k}: {n} rows written")
+
+
+def _export_family_file(phenopacket_family, ped_family, kind, out: Path, pseudonymise_: bool, fhir_family,
+                        include_names, claim_profiles, dates, min_cell, settings_path, force, db, json_out) -> None:  # fmt: skip
+    from tracker.cli.export_family import export_family_file
+    from tracker.settings import load_settings
+
+    if phenopacket_family is not None and ped_family is not None:
+        raise UserError("give one of --phenopacket and --ped")
+    option = "--phenopacket" if phenopacket_family is not None else "--ped"
+    if kind is not None or fhir_family is not None or include_names or claim_profiles or dates or min_cell:
+        raise UserError(f"{option} writes one family's file: give no CSV kind, --fhir, --include-names, "
+                        "--claim-profiles, --dates or --min-cell")  # fmt: skip
+    key = load_settings(settings_path).privacy.key() if pseudonymise_ else None
+    fmt, family = ("phenopacket", phenopacket_family) if phenopacket_family is not None else ("ped", ped_family)
+    engine = open_store(db)
+    with reading(engine) as conn:
+        summary = export_family_file(conn, fmt, family, out, key=key, force=force)
+    if json_out:
+        print_json(summary)
+    else:
+        what = "GA4GH Phenopackets v2 Family" if fmt == "phenopacket" else "PED/LINKAGE pedigree"
+        pseudo = " (pseudonymised codes)" if key else ""
+        typer.echo(f"{summary['out']}: {what} of family {family}, {summary['members']} members{pseudo}")
 
 
 def _export_pseudonymised(kind, out: Path, dates: str, min_cell, settings_path, db, json_out: bool) -> None:

@@ -112,6 +112,34 @@ def import_file(
     return summary
 
 
+def import_cells(
+    conn: Connection,
+    kind: str,
+    cells: pd.DataFrame,
+    *,
+    path: Path,
+    ctx: validation.Context,
+    user: str | None = None,
+    progress: Progress | None = None,
+) -> ImportSummary:
+    """Check and write rows of ``kind`` given as text cells read from another format (``path``).
+
+    The same parsing, checks, comparison with the store and writer as a CSV file of the layout;
+    ``cells`` has the layout's columns (text, "" = empty) and any integer index, which problems
+    name as their row.  The import run and audit entry carry ``path``'s SHA-256.
+    """
+    layout = LAYOUTS[kind]
+    with gc_paused():
+        checked = validation.parse_cells(layout, path.name, cells[layout.names], ctx.today)
+        validation.CHECKS[kind](checked, ctx)
+        if checked.problems:
+            raise InputRejected(checked.problems)
+        added, already = _WRITERS[kind](conn, checked, progress or (lambda n: None), ctx)
+    summary = ImportSummary(kind, path.name, len(checked.rows), added, already)
+    _record_run(conn, summary, path, user)
+    return summary
+
+
 def _record_run(conn: Connection, summary: ImportSummary, path: Path, user: str | None) -> None:
     """The import_run row and the audit entry of one imported file (in the import's transaction)."""
     kind, added, already = summary.kind, summary.rows_added, summary.rows_already_stored
@@ -538,4 +566,4 @@ _WRITERS = {
     "studies": _write_studies,
 }
 
-__all__ = ["import_file", "import_folder", "check_file", "ImportSummary", "InputRejected", "Layout"]
+__all__ = ["import_file", "import_folder", "import_cells", "check_file", "ImportSummary", "InputRejected", "Layout"]

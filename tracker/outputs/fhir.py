@@ -14,7 +14,8 @@ What is mapped
   sex-at-birth element in R4B Patient; administrative gender is the nearest, a compromise);
   ``birthDate`` to the day or to the year as recorded; ``deceasedDateTime`` (day or year) when a
   death date is recorded, else ``deceasedBoolean``; nothing when the vital status is unknown.
-  Names only with ``include_names=True``.
+  Names only with ``include_names=True``.  Each clinic assessment (date, affected status) is
+  a local complex extension ``urn:tracker:assessment``.
 * **FamilyMemberHistory**: every other member (placeholders and partners included), with
   ``patient`` = the proband.  ``relationship`` carries the plain words of
   :meth:`~tracker.domain.pedigree.Pedigree.relationship` (and the degree) as text, coded with
@@ -26,7 +27,14 @@ What is mapped
   HCM (SNOMED CT 233873004 and HPO HP:0001639) when the relative's latest assessment is
   "affected" or an age at diagnosis is recorded (then ``onsetAge``, UCUM ``a``), and Sudden
   cardiac death (HPO HP:0001645, ``contributedToDeath`` true, ``onsetAge`` = age at death) when
-  the recorded cause of death is "sudden".  No FamilyMemberHistory is made when the family has no recorded proband.
+  the recorded cause of death is "sudden".  Extensions of the FHIR core registry:
+  ``familymemberhistory-patient-record`` when the relative is also a Patient;
+  ``family-member-history-genetics-parent`` (type NMTH/NFTH, or ADOPTM/ADOPTF for a person
+  adopted in; reference = the parent's FamilyMemberHistory) for each recorded parent other
+  than the proband; ``family-member-history-genetics-sibling`` (a twin code by zygosity) for
+  a co-twin other than the proband.  Links to the proband are in ``relationship``.
+  The proband's own HCM (with the age at diagnosis) and recorded sudden death are **Condition**
+  resources with the same codes and ``onsetAge``.  No FamilyMemberHistory is made when the family has no recorded proband.
 * **Observation per stored measurement** (catalogue unit): ``status`` final, ``category``
   imaging (echo, CMR) or procedure (ECG), ``code`` = LOINC when the catalogue has one *and* it
   is listed in the reference notes (standards.md 4a/4b), plus always the local system
@@ -36,7 +44,8 @@ What is mapped
 * **Genetic findings**, shaped after the HL7 Genomics Reporting IG: per *carrier* result a
   variant Observation (LOINC 69548-6, value LA9633-4 Present; components gene studied 48018-6
   (HGNC id where known, else the symbol as text), c.HGVS 48004-6, p.HGVS 48005-3, transcript
-  51958-7, allelic state 53034-5 = LA6706-1 Heterozygous) and a diagnostic-implication
+  51958-7, allelic state 53034-5 = LA6706-1 Heterozygous; ``method`` = the test type in the
+  local system ``urn:tracker:test-type``) and a diagnostic-implication
   Observation (components clinical significance 53037-8 with the LL4034-6 answer of the
   variant's *current* ACMG/AMP class, associated phenotype 81259-4 = HCM; ``derivedFrom`` the
   variant Observation; ``effectiveDateTime`` = the date of that classification; earlier classes
@@ -65,7 +74,7 @@ are as pseudonymous as the codes, no more: they are not a de-identification.
 Profiles
 --------
 ``meta.profile`` (Genomics Reporting ``variant`` / ``diagnostic-implication``) is set only
-with ``claim_profiles=True``: the canonical URLs were seen in the IG source, but the exported
+with ``claim_profiles=True`` (:func:`claimed_profiles` lists what a Bundle claims): the canonical URLs were seen in the IG source, but the exported
 resources have not been checked with the HL7 validator against a given IG release.
 
 Decision support only: classes are as recorded in this clinic's store; confirm against the
@@ -180,13 +189,24 @@ def _names(row: dict) -> list[dict]:
     return [name]
 
 
-def _patient(row: dict, include_names: bool) -> dict:
+def _assessment_extensions(assessments: list[tuple[str, str]]) -> list[dict]:
+    """One local complex extension per clinic assessment (date, affected status), oldest first."""
+    return [
+        {"url": fc.EXT_ASSESSMENT, "extension": [{"url": "date", "valueDate": day},
+                                                 {"url": "affected-status", "valueCode": status}]}
+        for day, status in assessments
+    ]  # fmt: skip
+
+
+def _patient(row: dict, include_names: bool, assessments: list[tuple[str, str]] = ()) -> dict:
     code = row["person"]
     res: dict = {
         "resourceType": "Patient",
         "id": resource_id("Patient", code),
-        "identifier": [{"system": fc.LOCAL_PERSON, "value": code}],
     }
+    if assessments:
+        res["extension"] = _assessment_extensions(list(assessments))
+    res["identifier"] = [{"system": fc.LOCAL_PERSON, "value": code}]
     if include_names and (names := _names(row)):
         res["name"] = names
     res["gender"] = fc.GENDER.get(_text(row.get("sex_at_birth")) or "unknown", "unknown")
@@ -223,9 +243,36 @@ def _co_parent_words(ped: Pedigree, proband: str, relative: str) -> str | None:
     return "co-parent of the proband's child (not a blood relative)" if shared else None
 
 
+def _fmh_extensions(row: dict, fmh_ids: dict[str, str], patient_ids: dict[str, str],
+                    sexes: dict[str, str]) -> list[dict]:  # fmt: skip
+    """Patient-record link, genetic parents and co-twin of one relative (links to the proband are in
+    ``relationship``: the extensions reference FamilyMemberHistory resources only)."""
+    out: list[dict] = []
+    code = row["person"]
+    if code in patient_ids:
+        out.append({"url": fc.EXT_FMH_PATIENT_RECORD, "valueReference": _ref(patient_ids[code])})
+    for role in ("mother", "father"):
+        parent = _text(row.get(role))
+        if parent in fmh_ids:
+            adopted = _text(row.get("adoption")) == "in"  # the recorded parents are then the adoptive ones
+            kind = fc.ROLE_CODES[(fc.ADOPTIVE_PARENT_TYPE if adopted else fc.PARENT_TYPE)[role]]
+            out.append({"url": fc.EXT_FMH_PARENT, "extension": [
+                {"url": "type", "valueCodeableConcept": _cc(kind)},
+                {"url": "reference", "valueReference": _ref(fmh_ids[parent])}]})  # fmt: skip
+    twin = _text(row.get("twin_of"))
+    if twin in fmh_ids:
+        female, male, neutral = fc.TWIN_TYPE_ROLE.get(_text(row.get("twin_type")) or "unknown",
+                                                      fc.TWIN_TYPE_ROLE["unknown"])  # fmt: skip
+        kind = fc.ROLE_CODES[{"female": female, "male": male}.get(sexes.get(twin, "unknown"), neutral)]
+        out.append({"url": fc.EXT_FMH_SIBLING, "extension": [
+            {"url": "type", "valueCodeableConcept": _cc(kind)},
+            {"url": "reference", "valueReference": _ref(fmh_ids[twin])}]})  # fmt: skip
+    return out
+
+
 def _family_member_history(
     row: dict, ped: Pedigree, proband: str, proband_id: str, affected: bool, condition: str | None,
-    include_names: bool,
+    include_names: bool, extensions: list[dict] | None = None,
 ) -> dict:
     code = row["person"]
     rel = ped.relationship(proband, code)
@@ -237,6 +284,7 @@ def _family_member_history(
     res: dict = {
         "resourceType": "FamilyMemberHistory",
         "id": resource_id("FamilyMemberHistory", proband, code),
+        **({"extension": extensions} if extensions else {}),
         "identifier": [{"system": fc.LOCAL_RELATIVE, "value": code}],
         "status": "completed",
         "patient": _ref(proband_id),
@@ -272,6 +320,26 @@ def _family_member_history(
     if bool(row.get("placeholder")):
         res["note"] = [{"text": "placeholder: drawn to connect the pedigree"}]
     return res
+
+
+def _proband_conditions(row: dict, patient_id: str, affected: bool, condition: str | None) -> list[dict]:
+    """Condition resources of the proband (who has no FamilyMemberHistory): HCM with the recorded age at
+    diagnosis as its onset, and a recorded sudden death with the age at death, as for a relative."""
+    code, out = row["person"], []
+    diagnosis_age = _whole_years(row.get("diagnosis_age"))
+    if affected or diagnosis_age is not None:
+        res = {"resourceType": "Condition", "id": resource_id("Condition", code, "hcm"),
+               "code": _condition_cc(condition), "subject": _ref(patient_id)}  # fmt: skip
+        if diagnosis_age is not None:
+            res["onsetAge"] = _age(diagnosis_age)
+        out.append(res)
+    if _text(row.get("death_cause")) == "sudden":
+        res = {"resourceType": "Condition", "id": resource_id("Condition", code, "sudden-death"),
+               "code": _cc(fc.SCD_HPO, text="Sudden cardiac death"), "subject": _ref(patient_id)}  # fmt: skip
+        if (death_age := _whole_years(row.get("death_age"))) is not None:
+            res["onsetAge"] = _age(death_age)
+        out.append(res)
+    return out
 
 
 # ---------------------------------------------------------------------------
@@ -390,6 +458,7 @@ def _variant_observation(row: dict, variant: dict | None, patient_id: str, prese
     )
     if lab := _text(row.get("lab")):
         res["performer"] = [{"display": lab}]
+    res["method"] = {"coding": [{"system": fc.LOCAL_TEST_TYPE, "code": row["test_type"]}]}
     res["valueCodeableConcept"] = _cc(fc.PRESENT if present else fc.ABSENT)
     components = []
     gene = _text(variant.get("gene")) if variant else None
@@ -548,19 +617,29 @@ def build_family_bundle(
     seen = seen_members(members, results, assessments, studies)
     patient_ids = {p: resource_id("Patient", p) for p in seen}
     by_code = {r["person"]: r for r in members.to_dict("records")}
-    entries: list[dict] = [_patient(by_code[p], include_names) for p in seen]
+    assessed: dict[str, list[tuple[str, str]]] = {}
+    if len(assessments):
+        for rec in assessments.sort_values(["person", "assessment_date"], kind="stable").to_dict("records"):
+            assessed.setdefault(rec["person"], []).append((rec["assessment_date"], rec["affected_status"]))
+    entries: list[dict] = [_patient(by_code[p], include_names, assessed.get(p, [])) for p in seen]
 
     probands = [p for p in codes if bool(by_code[p]["proband"])]
     if probands:
         proband = probands[0]
-        ped = Pedigree(_clean_links(members))
+        linked = _clean_links(members)
+        ped = Pedigree(linked)
+        linked_rows = {r["person"]: r for r in linked.to_dict("records")}
+        sexes = {p: _text(r.get("sex_at_birth")) or "unknown" for p, r in linked_rows.items()}
+        fmh_ids = {p: resource_id("FamilyMemberHistory", proband, p) for p in codes if p != proband}
         affected = _latest_affected(assessments)
         for p in codes:
             if p != proband:
+                ext = _fmh_extensions(linked_rows[p], fmh_ids, patient_ids, sexes)
                 entries.append(
                     _family_member_history(by_code[p], ped, proband, patient_ids[proband], p in affected,
-                                           condition, include_names)
+                                           condition, include_names, ext)
                 )
+        entries.extend(_proband_conditions(by_code[proband], patient_ids[proband], proband in affected, condition))
 
     if len(values):
         values = values.sort_values(["person", "study_date", "modality", "measure"], kind="stable")
@@ -594,6 +673,20 @@ def bundle_json(bundle: Bundle) -> str:
     """The Bundle as FHIR JSON text (UTF-8, two-space indent, stable key order), ending in a newline."""
     data = json.loads(bundle.model_dump_json())
     return json.dumps(data, indent=2, ensure_ascii=False) + "\n"
+
+
+def claimed_profiles(bundle: Bundle) -> dict[str, list[str]]:
+    """Kind of resource (as in :func:`resource_counts`) -> the profile URLs its ``meta.profile`` claims."""
+    out: dict[str, list[str]] = {}
+    for entry in bundle.entry or []:
+        res = entry.resource
+        profiles = list(res.meta.profile or []) if res.meta is not None else []
+        if profiles:
+            kind = next(iter(resource_counts(Bundle.model_construct(entry=[entry]))))
+            for url in profiles:
+                if url not in out.setdefault(kind, []):
+                    out[kind].append(url)
+    return out
 
 
 def resource_counts(bundle: Bundle) -> dict[str, int]:

@@ -61,6 +61,18 @@ LOCAL_FAMILY = "urn:tracker:family"  # Bundle.identifier: the family code
 LOCAL_RELATIVE = "urn:tracker:family-member"  # FamilyMemberHistory.identifier: the relative's person code
 LOCAL_MEASURE = "urn:tracker:measure"  # Observation.code: the measure catalogue code
 LOCAL_LAB_REPORT = "urn:tracker:lab-report"  # variant Observation.identifier: the laboratory report reference
+LOCAL_TEST_TYPE = "urn:tracker:test-type"  # variant Observation.method: diagnostic_panel or predictive
+# Patient.extension (complex): one per clinic assessment, sub-extensions "date" (valueDate) and
+# "affected-status" (valueCode: affected, unaffected, uncertain).  Local to this tool.
+EXT_ASSESSMENT = "urn:tracker:assessment"
+
+# FamilyMemberHistory extensions of the FHIR core extension registry ([V] the FHIR extension pages
+# for family-member-history-genetics-parent (sub-extensions type and reference, the reference to the
+# parent's FamilyMemberHistory) and familymemberhistory-patient-record (valueReference Patient)).
+EXT_FMH_PARENT = "http://hl7.org/fhir/StructureDefinition/family-member-history-genetics-parent"
+EXT_FMH_PATIENT_RECORD = "http://hl7.org/fhir/StructureDefinition/familymemberhistory-patient-record"
+# Same registry and shape as the parent extension (type, reference): from memory, verify [M].
+EXT_FMH_SIBLING = "http://hl7.org/fhir/StructureDefinition/family-member-history-genetics-sibling"
 
 # Namespace for the uuid5 resource ids (any fixed UUID works; changing it changes every id).
 ID_NAMESPACE_NAME = "urn:tracker:fhir"
@@ -296,7 +308,19 @@ ROLE_CODES: dict[str, Code] = {
         _rc("ADOPTM", "adoptive mother", "[V2]"),
         _rc("ADOPTF", "adoptive father", "[V2]"),
         _rc("ADOPTP", "adoptive parent", "[V2]"),
+        # Parent types of the genetics-parent extension: natural mother/father, from memory, verify.
+        _rc("NMTH", "natural mother", "[M]"),
+        _rc("NFTH", "natural father", "[M]"),
     )
+}
+# genetics-parent extension type by the parent's role in the person record.
+PARENT_TYPE = {"mother": "NMTH", "father": "NFTH"}
+ADOPTIVE_PARENT_TYPE = {"mother": "ADOPTM", "father": "ADOPTF"}  # for a person adopted in
+# genetics-sibling extension type of a co-twin link, by the recorded twin_type (then the sex of the co-twin).
+TWIN_TYPE_ROLE: dict[str, tuple[str, str, str]] = {
+    "monozygotic": ("ITWINSIS", "ITWINBRO", "ITWIN"),
+    "dizygotic": ("FTWINSIS", "FTWINBRO", "FTWIN"),
+    "unknown": ("TWINSIS", "TWINBRO", "TWIN"),
 }
 
 # Relationship words of :meth:`tracker.domain.pedigree.Pedigree.relationship` (what the relative
