@@ -30,7 +30,7 @@ from tracker.store import repository as repo
 from tracker.settings import load_settings
 from tracker.store.database import locate, make_engine, reading, writing
 
-ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all")}, type=str)
+ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all", "dicom-sr")}, type=str)
 ExportKind = Enum("ExportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all")}, type=str)
 
 PROGRESS_THRESHOLD = 20_000  # rows; smaller files finish before a bar would be seen
@@ -53,10 +53,14 @@ def _progress_bar(total: int):
 
 
 def import_(
-    kind: Annotated[ImportKind, typer.Argument(help="What the file holds; `all` reads a folder of layout files.")],
-    path: Annotated[Path, typer.Argument(help="CSV file (or folder for `all`).")],
+    kind: Annotated[ImportKind, typer.Argument(help="What the file holds; `all` reads a folder of layout files; "
+                                               "`dicom-sr` reads DICOM echocardiography measurement reports.")],
+    paths: Annotated[list[Path], typer.Argument(help="CSV file (or folder for `all`; one or more files for "
+                                                "`dicom-sr`).", metavar="PATH...")],
     dry_run: Annotated[bool, typer.Option("--dry-run", help="Check only; write nothing.")] = False,
     user: Annotated[str | None, typer.Option("--user", help="Who is importing (default: the OS user).")] = None,
+    person: Annotated[str | None, typer.Option("--person", metavar="CODE", help="With dicom-sr: the person the "
+                                               "reports are for (else matched by their stored external_id).")] = None,
     db: DbOption = None,
     json_out: JsonOption = False,
 ) -> None:
@@ -67,6 +71,15 @@ def import_(
 
     Example: tracker import people demo_family/people.csv --dry-run
     """
+    if kind.value == "dicom-sr":
+        from tracker.cli.import_dicom import import_dicom_sr
+
+        return import_dicom_sr(paths, person=person, dry_run=dry_run, user=user, db=db, json_out=json_out)
+    if person is not None:
+        raise UserError("option --person: is only for `import dicom-sr`")
+    if len(paths) != 1:
+        raise UserError(f"import {kind.value}: give one {'folder' if kind.value == 'all' else 'CSV file'}")
+    path = paths[0]
     engine = open_store(db)
     kind = kind.value
     total = _count_rows(path)
