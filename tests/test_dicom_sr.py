@@ -313,3 +313,47 @@ def test_code_map_is_verified_in_pydicom_and_names_catalogue_measures(sqlite_db,
     for r in rows:
         assert r.measure in catalogue and not catalogue[r.measure]["derived"], r
         assert catalogue[r.measure]["modality"] == "echo", r
+
+
+def test_external_id_is_one_person_each_and_private(store, run, tmp_path):
+    # Another person with a stored identifier, and two rows of one file with one identifier.
+    extra = tmp_path / "more.csv"
+    extra.write_text(_HEADER + "DS-4,FAM-DS,,,female,,2003-05-05,alive,,,,no,no,,,,,,,H100234\n"
+                     + "DS-5,FAM-DS,,,female,,2004-05-05,alive,,,,no,no,,,,,,,H200200\n"
+                     + "DS-6,FAM-DS,,,female,,2005-05-05,alive,,,,no,no,,,,,,,H200200\n")  # fmt: skip
+    r = run("import", "people", extra, db=store)
+    assert r.code == 1
+    assert "more.csv:2: column 'external_id': belongs to another person in the database" in r.err
+    assert "more.csv:4: column 'external_id': is given to another row of this file" in r.err
+    assert "H100234" not in r.err and "H200200" not in r.err
+    # Exported in the people layout (import -> export -> import is exact).
+    out = tmp_path / "people-out.csv"
+    assert run("export", "people", "--out", out, db=store).code == 0
+    import csv
+
+    exported = {r["person"]: r["external_id"] for r in csv.DictReader(out.open())}
+    assert exported == {"DS-1": "H100234", "DS-2": "H100777", "DS-3": ""}
+
+
+def test_csv_kinds_take_one_file_and_no_person_option(store, run, tmp_path):
+    (tmp_path / "f2.csv").write_text(FAMILIES)
+    r = run("import", "families", tmp_path / "f2.csv", tmp_path / "f2.csv", db=store)
+    assert r.code == 1 and "give one CSV file" in r.err
+    r = run("import", "families", tmp_path / "f2.csv", "--person", "DS-1", db=store)
+    assert r.code == 1 and "option --person" in r.err
+
+
+def test_downgrade_sets_external_ids_aside_and_upgrade_puts_them_back(store):
+    from tracker.store import migrate
+
+    engine = make_engine(locate(store))
+    migrate.downgrade(engine, "0008")
+    with engine.connect() as conn:
+        assert "external_id" not in {c["name"] for c in __import__("sqlalchemy").inspect(conn).get_columns("person")}
+        kept = conn.execute(text("SELECT count(*) FROM person_external_id_kept")).scalar()
+    assert kept == 2
+    migrate.upgrade(engine)
+    with engine.connect() as conn:
+        ids = dict(conn.execute(text("SELECT code, external_id FROM person")).all())
+    engine.dispose()
+    assert ids == {"DS-1": "H100234", "DS-2": "H100777", "DS-3": None}
