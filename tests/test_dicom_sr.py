@@ -357,3 +357,26 @@ def test_downgrade_sets_external_ids_aside_and_upgrade_puts_them_back(store):
         ids = dict(conn.execute(text("SELECT code, external_id FROM person")).all())
     engine.dispose()
     assert ids == {"DS-1": "H100234", "DS-2": "H100777", "DS-3": None}
+
+
+def test_two_reports_of_one_study_with_different_values_are_refused_before_writing(store, run, tmp_path):
+    a = tid5200(tmp_path / "first.dcm", ivsd=("1.3", "cm"))
+    b = tid5200(tmp_path / "second.dcm", ivsd=("14", "mm"))
+    before = _counts(store)
+    r = run("import", "dicom-sr", a, b, db=store)
+    assert r.code == 1
+    assert "second.dcm: content item 1.2.1 'Interventricular Septum Diastolic Thickness' (LN 18154-5) -> ivsd: " \
+           "differs from content item 1.2.1" in r.err and "of first.dcm" in r.err
+    assert _counts(store) == before
+    # The same values twice in one import: taken once.
+    r = run("import", "dicom-sr", a, tid5200(tmp_path / "copy.dcm"), db=store)
+    assert r.code == 0, r
+    assert "copy.dcm" in r.out and "added 0, 4 already stored" in r.out
+
+
+def test_edit_external_id_is_private_and_unique(store, run):
+    r = run("edit", "person", "DS-3", "--set", "external_id=H300300", "--reason", "hospital number added", db=store)
+    assert r.code == 0, r
+    assert "H300300" not in r.out and "external_id changed" in r.out
+    r = run("edit", "person", "DS-3", "--set", "external_id=H100234", "--reason", "typo", db=store)
+    assert r.code == 1 and "external_id: belongs to another person" in r.err and "H100234" not in r.err

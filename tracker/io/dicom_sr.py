@@ -434,6 +434,21 @@ def _locate(problems: list[Problem], taken: list[tuple[Item, MapRow]], file: str
     return out
 
 
+def _conflicts(prepared: list[_Prepared]) -> list[Problem]:
+    """Reports of one import that give the same study's value differently (checked before any write)."""
+    out, first = [], {}
+    for p in prepared:
+        rows = p.checked.rows
+        for n, (item, row) in enumerate(p.taken, start=1):
+            key = (p.person, p.report.study_date, row.measure)
+            mine = (rows.at[n, "_value"], p.report.file, item.label)
+            seen = first.setdefault(key, mine)
+            if seen is not mine and seen[0] != mine[0]:
+                out.append(ItemProblem(p.report.file, None, f"{item.label} -> {row.measure}",
+                                       f"differs from {seen[2]} of {seen[1]} (same person, study date and measure)"))
+    return out
+
+
 def import_reports(
     conn: Connection,
     paths: list[Path],
@@ -453,6 +468,7 @@ def import_reports(
                 prepared.append(_prepare(conn, path, ctx, person, code_map))
             except InputRejected as exc:
                 problems.extend(exc.problems)
+        problems.extend(_conflicts(prepared))
         if problems:
             raise InputRejected(problems)
         out = []

@@ -243,7 +243,7 @@ def check_people(c: Checked, ctx: Context) -> None:
     # An external identifier names one person only (in the file and against the store).
     ext = rows["external_id"]
     given_ext = ext.notna() & (ext != "")
-    c.add(given_ext & ext.duplicated(keep="first") & given_ext, "external_id", "is given to another row of this file")
+    c.add(given_ext & ext.duplicated(keep="first"), "external_id", "is given to another row of this file")
     held = stored[stored["external_id"].notna() & ~stored.index.isin(incoming.index)]
     c.add(given_ext & ext.isin(set(held["external_id"])), "external_id", "belongs to another person in the database")
     c.add(rows["placeholder"] & rows["proband"], "proband", "a placeholder member cannot be the proband")
