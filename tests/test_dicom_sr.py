@@ -380,3 +380,23 @@ def test_edit_external_id_is_private_and_unique(store, run):
     assert "H300300" not in r.out and "external_id changed" in r.out
     r = run("edit", "person", "DS-3", "--set", "external_id=H100234", "--reason", "typo", db=store)
     assert r.code == 1 and "external_id: belongs to another person" in r.err and "H100234" not in r.err
+
+
+def test_pseudonymised_extract_leaves_external_id_out():
+    import datetime as dt
+
+    import pandas as pd
+
+    from conftest import MINI
+    from tracker.io import pseudonymise as ps
+    from tracker.io.layouts import LAYOUTS
+
+    frames = {}
+    for kind, layout in LAYOUTS.items():
+        df = pd.read_csv(MINI / layout.file_name, dtype=str, keep_default_na=False)
+        frames[kind] = df.replace({"": None}).astype(object)
+    assert "external_id" in frames["people"].columns
+    frames["people"]["external_id"] = [f"H9{i:05d}" for i in range(len(frames["people"]))]
+    ex = ps.pseudonymise(frames, "k3y-for-tests-only-0123456789abcdef0123456789", today=dt.date(2025, 1, 1))
+    assert "external_id" in ex.dropped["people"] and "external_id" not in ex.frames["people"].columns
+    assert "H900001" not in "".join(ps.csv_text(f) for f in ex.frames.values())
