@@ -400,3 +400,11 @@ def test_pseudonymised_extract_leaves_external_id_out():
     ex = ps.pseudonymise(frames, "k3y-for-tests-only-0123456789abcdef0123456789", today=dt.date(2025, 1, 1))
     assert "external_id" in ex.dropped["people"] and "external_id" not in ex.frames["people"].columns
     assert "H900001" not in "".join(ps.csv_text(f) for f in ex.frames.values())
+
+
+def test_study_date_before_birth_names_the_attribute(store, run, tmp_path):
+    report = tid5300(tmp_path / "early.dcm", patient_id="H100777", study_date="19950101")  # DS-2 born 1998
+    r = run("import", "dicom-sr", report, db=store)
+    assert r.code == 1
+    assert r.err.strip() == ("error: early.dcm: attribute Study Date (0008,0020): "
+                             "is before the person's date of birth")

@@ -161,13 +161,15 @@ def read_report(path: Path) -> Report:
     except InvalidDicomError:
         raise InputRejected([Problem(name, None, None, "is not a DICOM file (no DICM preamble)")]) from None
     except Exception as exc:  # truncated or corrupt data elements
-        raise InputRejected([Problem(name, None, None, f"is not a readable DICOM file ({type(exc).__name__})")]) from None
+        message = f"is not a readable DICOM file ({type(exc).__name__})"
+        raise InputRejected([Problem(name, None, None, message)]) from None
     try:
         return _report(name, ds)
     except InputRejected:
         raise
     except Exception as exc:  # a data element whose value cannot be decoded
-        raise InputRejected([Problem(name, None, None, f"is a malformed structured report ({type(exc).__name__})")]) from None
+        message = f"is a malformed structured report ({type(exc).__name__})"
+        raise InputRejected([Problem(name, None, None, message)]) from None
 
 
 def _report(name: str, ds) -> Report:
@@ -326,7 +328,8 @@ def _person(report: Report, people: pd.DataFrame, person: str | None) -> str | N
     if person is not None:
         row = people[people["person"] == person]
         if row.empty:
-            problems.append(ItemProblem(report.file, None, "option --person", f"person {person!r} is not in the database"))
+            problems.append(ItemProblem(report.file, None, "option --person",
+                                        f"person {person!r} is not in the database"))  # fmt: skip
             return None
         stored = row["external_id"].iloc[0] if "external_id" in row else None
         if isinstance(stored, str) and stored and report.patient_id != stored:
@@ -337,8 +340,9 @@ def _person(report: Report, people: pd.DataFrame, person: str | None) -> str | N
         if not isinstance(stored, str) and report.patient_id:  # no stored ID: the report's must be no one else's
             other = people[(ext == report.patient_id).to_numpy()] if len(ext) else people.iloc[0:0]
             if len(other):
+                holder = other["person"].iloc[0]
                 problems.append(ItemProblem(report.file, None, where,
-                                            f"is the external_id of person {other['person'].iloc[0]}, not of {person}"))  # fmt: skip
+                                            f"is the external_id of person {holder}, not of {person}"))  # fmt: skip
                 return None
         return person
     if not report.patient_id:
@@ -406,7 +410,8 @@ def _stored_study(conn: Connection, person: str, study_date: str) -> dict:
     studies = repo.load_studies(conn)
     if studies.empty:
         return {}
-    mine = studies[(studies["person"] == person) & (studies["study_date"] == study_date) & (studies["modality"] == "echo")]
+    same = (studies["person"] == person) & (studies["study_date"] == study_date) & (studies["modality"] == "echo")
+    mine = studies[same]
     return {} if mine.empty else {k: mine[k].iloc[0] for k in ("site", "height_cm", "weight_kg")}
 
 
