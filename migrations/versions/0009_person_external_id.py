@@ -16,7 +16,7 @@ from __future__ import annotations
 import sqlalchemy as sa
 from alembic import op
 
-revision = "0010"
+revision = "0009"
 down_revision = "0008"
 branch_labels = None
 depends_on = None
