@@ -33,7 +33,7 @@ pseudonymise = lazy_module("tracker.io.pseudonymise")
 summary = lazy_module("tracker.outputs.summary")
 repo = lazy_module("tracker.store.repository")
 
-ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all", "fhir")}, type=str)
+ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all", "fhir", "dicom-sr")}, type=str)
 ExportKind = Enum("ExportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all")}, type=str)
 
 PROGRESS_THRESHOLD = 20_000  # rows; smaller files finish before a bar would be seen
@@ -57,10 +57,14 @@ def _progress_bar(total: int):
 
 def import_(
     kind: Annotated[ImportKind, typer.Argument(help="What the file holds; `all` reads a folder of layout files; "
-                                               "`fhir` an HL7 FHIR R4B Bundle (JSON) of one family.")],
-    path: Annotated[Path, typer.Argument(help="CSV file (folder for `all`, JSON file for `fhir`).")],
+                                               "`fhir` an HL7 FHIR R4B Bundle (JSON) of one family; "
+                                               "`dicom-sr` reads DICOM echocardiography measurement reports.")],
+    paths: Annotated[list[Path], typer.Argument(help="CSV file (folder for `all`, JSON file for `fhir`; one or more "
+                                                "files for `dicom-sr`).", metavar="PATH...")],
     dry_run: Annotated[bool, typer.Option("--dry-run", help="Check only; write nothing.")] = False,
     user: Annotated[str | None, typer.Option("--user", help="Who is importing (default: the OS user).")] = None,
+    person: Annotated[str | None, typer.Option("--person", metavar="CODE", help="With dicom-sr: the person the "
+                                               "reports are for (else matched by their stored external_id).")] = None,
     db: DbOption = None,
     json_out: JsonOption = False,
 ) -> None:
@@ -73,6 +77,15 @@ def import_(
 
     Example: tracker import fhir HV01.fhir.json
     """
+    if kind.value == "dicom-sr":
+        from tracker.cli.import_dicom import import_dicom_sr
+
+        return import_dicom_sr(paths, person=person, dry_run=dry_run, user=user, db=db, json_out=json_out)
+    if person is not None:
+        raise UserError("option --person: is only for `import dicom-sr`")
+    if len(paths) != 1:
+        raise UserError(f"import {kind.value}: give one {'folder' if kind.value == 'all' else 'file'}")
+    path = paths[0]
     engine = open_store(db)
     kind = kind.value
     total = _count_rows(path) if kind != "fhir" else 0

@@ -15,6 +15,7 @@ _ALIASES = {
     "ms": "ms",
     "mmhg": "mmHg",
     "mm hg": "mmHg",
+    "mm[hg]": "mmHg",  # UCUM (DICOM reports)
     "cm/s": "cm/s",
     "cm/sec": "cm/s",
     "m/s": "m/s",
@@ -27,6 +28,7 @@ _ALIASES = {
     "ml": "mL",
     "ratio": "ratio",
     "1": "ratio",
+    "{ratio}": "ratio",  # UCUM annotation (DICOM reports)
     "mv": "mV",
 }
 

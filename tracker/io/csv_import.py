@@ -319,7 +319,7 @@ _PERSON_COLUMNS = [
     "birth_date_precision", "vital_status", "death_date", "death_date_precision", "is_placeholder", "is_proband",
     "twin_type", "adoption", "contact_status", "contact_status_date", "notes",
     "death_cause", "death_age", "diagnosis_age", "diagnosis_place", "icd_date", "icd_date_precision",
-    "pacemaker_date", "pacemaker_date_precision",
+    "pacemaker_date", "pacemaker_date_precision", "external_id",
 ]  # fmt: skip
 
 
@@ -348,7 +348,7 @@ def _write_people(conn, checked, progress, ctx):
             [bool(v) for v in c["placeholder"]], [bool(v) for v in c["proband"]], c["twin_type"], c["adoption"],
             c["contact_status"], c["contact_status_date"], c["notes"],
             c["death_cause"], _whole(c["death_age"]), _whole(c["diagnosis_age"]), c["diagnosis_place"],
-            icd, icd_p, pacemaker, pacemaker_p,
+            icd, icd_p, pacemaker, pacemaker_p, c["external_id"],
         ]  # fmt: skip
         _bulk_insert(conn, "person", _PERSON_COLUMNS, list(zip(*cols)))
         # Parent and twin links, now that every person has an id: one executemany.

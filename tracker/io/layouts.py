@@ -72,6 +72,9 @@ PEOPLE = Layout(
         Column("diagnosis_place", "text", max_length=200, header_optional=True),
         Column("icd_date", "partial_date", header_optional=True),
         Column("pacemaker_date", "partial_date", header_optional=True),
+        # Added with schema revision 0009: an identifier from another system (e.g. the hospital number),
+        # unique per person, private like the names; it matches imported DICOM reports to the person.
+        Column("external_id", "text", max_length=64, private=True, header_optional=True),
     ),
     key=("person",),
 )

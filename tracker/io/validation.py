@@ -240,6 +240,12 @@ def check_people(c: Checked, ctx: Context) -> None:
         m[known_twin] = diff_sex
         c.add(m, "twin_type", "monozygotic twins recorded with different sex at birth")
 
+    # An external identifier names one person only (in the file and against the store).
+    ext = rows["external_id"]
+    given_ext = ext.notna() & (ext != "")
+    c.add(given_ext & ext.duplicated(keep="first"), "external_id", "is given to another row of this file")
+    held = stored[stored["external_id"].notna() & ~stored.index.isin(incoming.index)]
+    c.add(given_ext & ext.isin(set(held["external_id"])), "external_id", "belongs to another person in the database")
     c.add(rows["placeholder"] & rows["proband"], "proband", "a placeholder member cannot be the proband")
     probands = pd.concat(
         [

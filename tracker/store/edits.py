@@ -164,12 +164,17 @@ def edit_person(conn: Connection, code: str, changes: dict[str, str], *, reason:
             values[field] = None if value is None else int(value)
         else:
             values[_PERSON_COLUMNS.get(field, field)] = value
+    if values.get("external_id") is not None and conn.execute(
+        select(Person.code).where(Person.external_id == values["external_id"], Person.id != row.id)
+    ).first():
+        raise UserError("external_id: belongs to another person in the database")
     conn.execute(update(Person).where(Person.id == row.id).values(**values))
     _refuse_new_findings(conn, family, checks_before)
     new = _person_frame_row(conn, code)
     before = {f: _plain(old[f]) for f in changes}
     after = {f: _plain(new[f]) for f in changes}
-    what = f"person {code}: " + ", ".join(f"{f} {before[f]!r} -> {after[f]!r}" for f in changes)
+    what = f"person {code}: " + ", ".join(f"{f} changed (private: value not shown)" if PERSON_FIELDS[f].private
+                                          else f"{f} {before[f]!r} -> {after[f]!r}" for f in changes)  # fmt: skip
     entry = audit.record(conn, action="edit", table="person", row_id=row.id, family=family, person=code,
                          what=f"corrected {', '.join(changes)} of person {code}", before=before, after=after,
                          reason=reason, user=user)  # fmt: skip

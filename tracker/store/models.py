@@ -105,6 +105,8 @@ class Person(Base):
     icd_date_precision: Mapped[str | None] = mapped_column(String(4))
     pacemaker_date: Mapped[dt.date | None] = mapped_column(Date)
     pacemaker_date_precision: Mapped[str | None] = mapped_column(String(4))
+    # Migration 0009: an identifier from another system (e.g. the hospital number); private like the names.
+    external_id: Mapped[str | None] = mapped_column(String(64), index=True, unique=True)
 
 
 class Assessment(Base):

@@ -114,6 +114,7 @@ def load_people(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
             Person.icd_date_precision,
             Person.pacemaker_date,
             Person.pacemaker_date_precision,
+            Person.external_id,
         )
         .join(Family, Person.family_id == Family.id)
         .outerjoin(mother, Person.mother_id == mother.id)
@@ -128,7 +129,7 @@ def load_people(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
         "_birth", "_birth_p", "vital_status", "_death", "_death_p", "mother", "father",
         "placeholder", "proband", "twin_of", "twin_type", "adoption", "contact_status",
         "contact_status_date", "notes", "death_cause", "death_age", "diagnosis_age", "diagnosis_place",
-        "_icd", "_icd_p", "_pacemaker", "_pacemaker_p",
+        "_icd", "_icd_p", "_pacemaker", "_pacemaker_p", "external_id",
     ]  # fmt: skip
     df = _frame(conn, stmt, cols)
     df["birth_date"] = [partial_from_storage(d, p) for d, p in zip(df["_birth"], df["_birth_p"])]
@@ -149,6 +150,7 @@ _PEOPLE_ORDER = [
     "birth_date", "vital_status", "death_date", "mother", "father", "placeholder", "proband",
     "twin_of", "twin_type", "adoption", "contact_status", "contact_status_date", "notes",
     "death_cause", "death_age", "diagnosis_age", "diagnosis_place", "icd_date", "pacemaker_date",
+    "external_id",
 ]  # fmt: skip
 
 
