@@ -84,7 +84,8 @@ def import_(
     if person is not None:
         raise UserError("option --person: is only for `import dicom-sr`")
     if len(paths) != 1:
-        raise UserError(f"import {kind.value}: give one {'folder' if kind.value == 'all' else 'file'}")
+        raise UserError(f"import {kind.value}: give one "
+                        f"{ {'all': 'folder', 'fhir': 'JSON file'}.get(kind.value, 'CSV file') }")
     path = paths[0]
     engine = open_store(db)
     kind = kind.value
