@@ -856,7 +856,7 @@ def _entry(p: Proposal, family: str, lst: str) -> dict:
     return {
         "list": lst, "person": p.person_code, "family": family, "status": p.status, "due": _iso(p.due),
         "days_overdue": p.days_overdue, "never_screened": p.never_screened, "eligible_since": _iso(p.eligible_since),
-        "gap_reason": p.gap_reason if p.never_screened else (None if p.contact_status == "contactable" else p.contact_status),
+        "gap_reason": p.gap_reason,
         "waiting": never_screened_text(p), "contact_status": p.contact_status,
         "interval_months": p.interval_months, "rule_id": p.rule_id,
         "needs": list(p.needs), "consider": list(p.consider), "reason": reason, "source": source,
