@@ -360,6 +360,18 @@ def _demo(run, tmp_path) -> str:
     return db
 
 
+def test_person_shows_the_genotype_status_the_recall_uses_without_a_plp_variant(run, tmp_path):
+    """docs/recall-and-cascade.md §2: without a P/LP variant a blood relative of an affected member is
+    at risk, untested (no variant found; HV05) or uncertain (VUS; HV03); a married-in member is not at risk."""
+    db = _demo(run, tmp_path)
+    want = {"HV05-III-2": "at_risk_untested", "HV05-II-2": "not_at_risk", "HV03-III-1": "uncertain",
+            "HV03-III-3": "not_at_risk"}  # fmt: skip
+    for p, status in want.items():
+        shown = _json(run, "person", p, "--settings", SETTINGS, db=db)[1]["genotype_status"]
+        recalled = _json(run, "recall", p, "--as-of", AS_OF, "--settings", SETTINGS, db=db)[1]["state"]["genotype"]
+        assert (shown, recalled) == (status, status), p
+
+
 def test_recall_names_the_contact_gap_of_someone_seen_before_as_the_worklist_does(run, tmp_path):
     """HV01-IV-4 was screened before and is lost to follow-up: recall and worklist give the same gap."""
     db = _demo(run, tmp_path)
@@ -373,4 +385,20 @@ def test_recall_names_the_contact_gap_of_someone_seen_before_as_the_worklist_doe
     assert declined["gap_reason"] == "declined"
     seen = _json(run, "recall", "HV01-IV-1", *s, db=db)[1]  # contactable, screened: no gap
     assert seen["gap_reason"] is None
+
+
+def test_reclassify_announces_the_statuses_the_recall_shows_after_the_change(run, tmp_path):
+    """A downgrade of HV04's variant: the married-in wife of the proband is not a blood relative of an
+    affected member, so she is not at risk after it, as the recall then shows; blood relatives are uncertain."""
+    db = _demo(run, tmp_path)
+    args = ("reclassify", "HV04", "--to", "uncertain_significance", "--date", AS_OF, "--reason", "x",
+            "--settings", SETTINGS)  # fmt: skip
+    dry = _json(run, *args, "--dry-run", db=db)[1]
+    after = {i["person"]: i["status_after"] for r in dry["reclassifications"] for i in r["items"] if i["person"]}
+    assert after["HV04-III-2"] == "not_at_risk"
+    assert after["HV04-IV-2"] == "uncertain"
+    assert run(*args, db=db).code == 0
+    for p in ("HV04-III-2", "HV04-IV-2"):
+        st = _json(run, "recall", p, "--as-of", AS_OF, "--settings", SETTINGS, db=db)[1]["state"]
+        assert st["genotype"] == after[p], p
 

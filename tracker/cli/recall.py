@@ -496,11 +496,11 @@ def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on
     proposals = fs.propose_for_family(state, rule_set, policy, on)
     screening = fs.screening_states(proposals)
     items, notes = fs.task_items(
-        impact_of_reclassification(
+        fs.with_shown_statuses(impact_of_reclassification(
             state.pedigree, state.results, v.current_class, new_class, screening, variant=v.key,
             affected=state.affected, history=v.history, contact_dates=_contact_dates(frames, v.family),
             declined_reapproach_months=conf.cascade.declined_reapproach_months, on=on,
-        ),
+        ), state, v.current_class, new_class),
         state,
     )  # fmt: skip
     variant_id = conn.execute(
