@@ -350,6 +350,56 @@ def _codes(people_csv: Path) -> tuple[list[str], list[str]]:
     return [r["person"] for r in rows], sorted({r["family"] for r in rows})
 
 
+# --------------------------------------------------------------------------- tests
+
+
+def test_demo_commands_agree_on_every_person(run, tmp_path):
+    db = str(tmp_path / "demo.sqlite")
+    r = run("demo", db=db)
+    assert r.code == 0, r
+    people, families = _codes(ROOT / "demo_family" / "people.csv")
+    bad = _disagreements(run, db, people, families, tmp_path)
+    assert not bad, "commands disagree:\n" + "\n".join(bad)
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "open: in a family without a P/LP variant the recall screens every blood relative of an affected "
+    "member (HV03-IV-1, HV03-IV-2: grandchildren of the proband through an unaffected parent), while the "
+    "cascade plan and the letter list first-degree relatives (second-degree only through a deceased one)"))
+def test_everyone_recalled_for_screening_is_on_the_cascade_plan(run, tmp_path):
+    db = str(tmp_path / "demo.sqlite")
+    assert run("demo", db=db).code == 0
+    people, families = _codes(ROOT / "demo_family" / "people.csv")
+    s = ("--as-of", AS_OF, "--settings", SETTINGS)
+    got = {"recall": {p: _json(run, "recall", p, *s, db=db) for p in people},
+           "cascade": {f: _json(run, "cascade", f, *s, db=db) for f in families}}  # fmt: skip
+    bad: list[str] = []
+    _plan_membership_checks(got, bad)
+    assert not bad, "recall and cascade disagree:\n" + "\n".join(bad)
+
+
+def test_invented_family_commands_agree_on_every_person(run, tmp_path):
+    folder = tmp_path / "agr1"
+    folder.mkdir()
+    for name, text in AGR1.items():
+        (folder / name).write_text(text, encoding="utf-8")
+    db = str(tmp_path / "agr1.sqlite")
+    assert run("init", db=db).code == 0
+    r = run("import", "all", folder, db=db)
+    assert r.code == 0, r
+    people, families = _codes(folder / "people.csv")
+    got_recall = {p: _json(run, "recall", p, "--as-of", AS_OF, "--settings", SETTINGS, db=db)[1] for p in people}
+    # the family holds the states it was written for
+    assert got_recall["AG-05"]["state"]["phenotype"] == "borderline"  # borderline carrier
+    assert got_recall["AG-05"]["rule_id"] == "esc23.borderline"
+    assert got_recall["AG-09"]["state"]["review_flags"]  # child, thick wall, no body size
+    assert got_recall["AG-06"]["never_screened"]  # never-screened adult
+    assert got_recall["AG-07"]["status"] == "not_recalled"  # declined
+    assert got_recall["AG-08"]["status"] == "released"  # released non-carrier
+    bad = _disagreements(run, db, people, families, tmp_path)
+    assert not bad, "commands disagree:\n" + "\n".join(bad)
+
+
 # --------------------------------------------------------------------------- one test per fixed disagreement
 
 
@@ -401,4 +451,3 @@ def test_reclassify_announces_the_statuses_the_recall_shows_after_the_change(run
     for p in ("HV04-III-2", "HV04-IV-2"):
         st = _json(run, "recall", p, "--as-of", AS_OF, "--settings", SETTINGS, db=db)[1]["state"]
         assert st["genotype"] == after[p], p
-
