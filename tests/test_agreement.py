@@ -391,7 +391,7 @@ def test_invented_family_commands_agree_on_every_person(run, tmp_path):
     got_recall = {p: _json(run, "recall", p, "--as-of", AS_OF, "--settings", SETTINGS, db=db)[1] for p in people}
     # the family holds the states it was written for
     assert got_recall["AG-05"]["state"]["phenotype"] == "borderline"  # borderline carrier
-    assert got_recall["AG-05"]["rule_id"] == "esc23.borderline"
+    assert got_recall["AG-05"]["rule_id"].endswith(".borderline")
     assert got_recall["AG-09"]["state"]["review_flags"]  # child, thick wall, no body size
     assert got_recall["AG-06"]["never_screened"]  # never-screened adult
     assert got_recall["AG-07"]["status"] == "not_recalled"  # declined
