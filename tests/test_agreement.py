@@ -435,6 +435,8 @@ def test_recall_names_the_contact_gap_of_someone_seen_before_as_the_worklist_doe
     assert declined["gap_reason"] == "declined"
     seen = _json(run, "recall", "HV01-IV-1", *s, db=db)[1]  # contactable, screened: no gap
     assert seen["gap_reason"] is None
+    for p in ("HV01-II-2", "HV01-III-6"):  # released; not at risk: no contact status recorded, nobody to reach
+        assert _json(run, "recall", p, *s, db=db)[1]["gap_reason"] is None, p
 
 
 def test_reclassify_announces_the_statuses_the_recall_shows_after_the_change(run, tmp_path):
