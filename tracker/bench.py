@@ -688,9 +688,11 @@ def _impact(frames, family: str, new_class: str, rule_set, policy, on: dt.date):
     proposals = fs.propose_for_family(state, rule_set, policy, on)
     screening = fs.screening_states(proposals)
     items, _notes = fs.task_items(
-        impact_of_reclassification(state.pedigree, state.results, v.current_class, new_class, screening, variant=v.key,
-                                   affected=state.affected, history=v.history,
-                                   contact_dates=recall._contact_dates(frames, family), on=on),
+        fs.with_shown_statuses(
+            impact_of_reclassification(state.pedigree, state.results, v.current_class, new_class, screening,
+                                       variant=v.key, affected=state.affected, history=v.history,
+                                       contact_dates=recall._contact_dates(frames, family), on=on),
+            state, v.current_class, new_class),
         state,
     )  # fmt: skip
     return len(items)

@@ -512,11 +512,11 @@ def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on
     proposals = fs.propose_for_family(state, rule_set, policy, on)
     screening = fs.screening_states(proposals)
     items, notes = fs.task_items(
-        impact_of_reclassification(
+        fs.with_shown_statuses(impact_of_reclassification(
             state.pedigree, state.results, v.current_class, new_class, screening, variant=v.key,
             affected=state.affected, history=v.history, contact_dates=_contact_dates(frames, v.family),
             declined_reapproach_months=conf.cascade.declined_reapproach_months, on=on,
-        ),
+        ), state, v.current_class, new_class),
         state,
     )  # fmt: skip
     variant_id = conn.execute(
@@ -881,7 +881,7 @@ def _entry(p: Proposal, family: str, lst: str) -> dict:
     return {
         "list": lst, "person": p.person_code, "family": family, "status": p.status, "due": _iso(p.due),
         "days_overdue": p.days_overdue, "never_screened": p.never_screened, "eligible_since": _iso(p.eligible_since),
-        "gap_reason": p.gap_reason if p.never_screened else (None if p.contact_status == "contactable" else p.contact_status),
+        "gap_reason": p.gap_reason,
         "waiting": never_screened_text(p), "contact_status": p.contact_status,
         "interval_months": p.interval_months, "rule_id": p.rule_id,
         "needs": list(p.needs), "consider": list(p.consider), "reason": reason, "source": source,

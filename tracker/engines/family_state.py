@@ -78,7 +78,7 @@ from __future__ import annotations
 
 import datetime as dt
 import re
-from collections.abc import Iterable, Mapping
+from collections.abc import Collection, Iterable, Mapping
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -186,6 +186,7 @@ class FamilyState:
     not_scheduled: Mapping[str, str]
     results: pd.DataFrame = field(repr=False, default_factory=pd.DataFrame)
     notes: tuple[str, ...] = ()
+    blood: frozenset[str] = frozenset()  # at risk by blood (:func:`at_risk_by_blood`)
 
     @property
     def variant_class(self) -> str | None:
@@ -518,6 +519,21 @@ def _blood_at_risk(ped: Pedigree, anchors: list[str]) -> set[str]:
     return {p for p in ped.people if any(p == a or ped.kinship(p, a) > 0 for a in anchors)}
 
 
+def at_risk_by_blood(ped: Pedigree, affected: Mapping[str, str | None]) -> frozenset[str]:
+    """Members related by blood to an affected member (latest status in ``affected``), or to the
+    proband when nobody is affected: who is at risk when the variant does not predict disease."""
+    anchors = [p for p, s in affected.items() if s == "affected" and p in ped]
+    if not anchors:
+        anchors = [p for p in ped.people if ped.member(p).proband]
+    return frozenset(_blood_at_risk(ped, anchors))
+
+
+def shown_genotype(status: str | None, variant_class: str | None, person: str, blood: Collection[str]) -> str | None:
+    """The genotype status every command shows (the scheduler's, :func:`genotype_for_schedule`) from the
+    pedigree computation's ``status`` under ``variant_class``; ``blood``: :func:`at_risk_by_blood`."""
+    return status if status is None else genotype_for_schedule(status, variant_class, person in blood)
+
+
 def genotype_for_schedule(
     status: str, variant_class: str | None, at_risk_by_blood: bool
 ) -> str:
@@ -628,10 +644,7 @@ def _family_state(
     present = [d for d in first_dates if d is not None]
     eligible_since = min(present) if present else None
 
-    anchors = [p for p, f in facts.items() if f.affected_status == "affected"]
-    if not anchors:
-        anchors = [r["person"] for r in members if _flag(r["proband"])]
-    blood = _blood_at_risk(ped, anchors)
+    blood = at_risk_by_blood(ped, {p: f.affected_status for p, f in facts.items()})
     changed_on = variant.class_changed_on if variant else None
 
     states: dict[str, PersonState] = {}
@@ -688,6 +701,7 @@ def _family_state(
         not_scheduled=not_scheduled,
         results=fam_results,
         notes=tuple(notes) + tuple(genotypes.notes),
+        blood=blood,
     )
 
 
@@ -869,6 +883,18 @@ def task_items(items: Iterable, state: FamilyState) -> tuple[list, list[str]]:
         who = ", ".join(dict.fromkeys(left))
         notes.append(f"no tasks for placeholders or deceased members ({who}): the family-level task covers the record")
     return kept, notes
+
+
+def with_shown_statuses(items: Iterable, state: FamilyState, old_class: str | None, new_class: str | None) -> list:
+    """Reclassification items with ``status_before``/``status_after`` as the recall shows them before and
+    after the change (:func:`shown_genotype`: a married-in member of a family whose variant no longer
+    predicts disease is not at risk, a blood relative is uncertain or at risk, untested)."""
+    return [
+        replace(it, status_before=shown_genotype(it.status_before, old_class, it.person, state.blood),
+                status_after=shown_genotype(it.status_after, new_class, it.person, state.blood))
+        if it.person else it
+        for it in items
+    ]  # fmt: skip
 
 
 def unscheduled_at_risk(state: FamilyState, people: pd.DataFrame) -> list[tuple[str, str]]:

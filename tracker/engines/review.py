@@ -37,6 +37,7 @@ from tracker.engines import derived as dv
 from tracker.engines import repeatability, trends
 from tracker.engines.cohort_model import empirical_bayes_slopes
 from tracker.engines.deformation import derive_deformation
+from tracker.engines.family_state import at_risk_by_blood, shown_genotype
 from tracker.normals import paediatric
 from tracker.normals.assess import ADULT_FROM_YEARS, assess_frame
 from tracker.normals.bsa import HAYCOCK, bsa
@@ -149,7 +150,10 @@ def clinical_context(
     - affected_status: from the person's latest assessment (None if never assessed).
     - genotype_status: :func:`tracker.domain.genetics.genotype_statuses` for the
       family variant at its current class (carrier, non_carrier, at_risk_untested,
-      not_at_risk, uncertain); with several variants in one family the texts are joined
+      not_at_risk, uncertain), shown as the recall shows it
+      (:func:`tracker.engines.family_state.shown_genotype`: without a P/LP variant a
+      blood relative of an affected member is uncertain (VUS) or at risk, untested,
+      anyone else not at risk); with several variants in one family the texts are joined
       and the person counts as a carrier when a carrier of any P/LP variant.
     - first_degree_relative_of_affected: a first-degree relative (pedigree degree 1)
       of a member whose latest assessment is "affected".
@@ -173,10 +177,12 @@ def clinical_context(
         for a in affected:
             for q in ped.first_degree_relatives(a):
                 near.setdefault(q, []).append(a)
+        blood = at_risk_by_blood(ped, {p: "affected" for p in affected})
         for p in members["person"]:
             g = [(key, cls, fg[p]) for key, cls, fg in statuses]
             carrier = any(s.status == "carrier" and cls in ACTIONABLE_CLASSES for _, cls, s in g)
-            status = "carrier" if carrier else "; ".join(dict.fromkeys(s.status for _, _, s in g))
+            shown = (shown_genotype(s.status, cls, p, blood) for _, cls, s in g)
+            status = "carrier" if carrier else "; ".join(dict.fromkeys(shown))
             rows.append(
                 {
                     "person": p,

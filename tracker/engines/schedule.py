@@ -241,9 +241,12 @@ class Proposal:
     ``routine_due`` the routine date before any trigger.
 
     ``never_screened``: no screening visit on record (then ``eligible_since``
-    is the day the person became eligible, and ``gap_reason`` the contact
-    status behind the gap: ``not_contacted``, ``declined``,
-    ``lost_to_follow_up`` or ``contactable``; see :data:`GAP_REASONS`).
+    is the day the person became eligible).  ``gap_reason``: the contact
+    status behind a gap: ``not_contacted``, ``declined`` or
+    ``lost_to_follow_up`` for anyone recalled (due, overdue, not recalled)
+    who cannot be reached, ``contactable`` for a never-screened person who
+    can, None otherwise, also for people released or not scheduled (see
+    :data:`GAP_REASONS`); recall and worklist both show it.
     ``contact_status`` is the person's contact status (booking uses it).
     """
 
@@ -658,7 +661,9 @@ def _proposal(ctx: _Ctx, status: str, due, months, routine_due, rule, progressio
         cautions=tuple(cautions),
         never_screened=never,
         eligible_since=ctx.eligible if never else None,
-        gap_reason=ctx.state.contact_status if never else None,
+        gap_reason=(ctx.state.contact_status
+                    if status in ("due", "overdue", "not_recalled")
+                    and (never or ctx.state.contact_status != "contactable") else None),
         contact_status=ctx.state.contact_status,
     )
 
