@@ -138,40 +138,12 @@ def cascade(
         raise UserError(
             f"no cascade rule set for guideline {gid!r}: give --guideline one of {', '.join(CASCADE_RULE_SETS)}"
         )
+    from tracker.services import cascade as SC
+
     engine = open_store(db)
     with reading(engine) as conn:
-        frames = _load(conn)
-    st = _family_state(frames, family, on)
-    plan = plan_cascade(
-        st.pedigree, st.genotypes, st.variant_class, on, gid, st.affected, st.seen,
-        early_onset_family="early_onset" in st.features,
-        class_history=st.variant.history if st.variant else None,
-        contact_dates=_contact_dates(frames, family),
-        declined_reapproach_months=conf.cascade.declined_reapproach_months,
-        rereview_months=conf.cascade.variant_rereview_months,
-    )  # fmt: skip
-    notes = list(st.notes) + list(plan.notes)
-    if "early_onset" in st.features:
-        notes.append("early-onset disease in the family derived from the records: " + st.feature_reasons["early_onset"])
-    result = {
-        "family": family,
-        "as_of": on.isoformat(),
-        "guideline": gid,
-        "guideline_title": CASCADE_RULE_SETS[gid].title,
-        "variant": _variant_dict(st.variant),
-        "family_features": dict(sorted(st.feature_reasons.items())),
-        "predictive_testing": [_testing_item(c) for c in plan.testing],
-        "deferred": [_testing_item(c) for c in plan.deferred],
-        "segregation_testing": [_testing_item(c) for c in plan.segregation],
-        "clinical_screening": [_screening_item(c) for c in plan.screening],
-        "released": [_screening_item(c) for c in plan.released],
-        "gaps": [{"person": g.person, "gap": g.gap, "reason": g.reason, "recalled": g.gap != "declined"}
-                 for g in plan.gaps],  # fmt: skip
-        "variant_rereview": _rereview_dict(plan.rereview, st.variant.key if st.variant else None),
-        "declined_policy": conf.cascade.declined_words(),
-        "notes": notes,
-        "caution": plan.caution + " " + GENOTYPE_CAUTION,
-    }
+        result = SC.family_cascade(conn, family, on, conf, gid)
+    notes = result["notes"]
     if json_out:
         print_json(result)
         return
@@ -436,24 +408,12 @@ def recall(
 
     on = _day(as_of, "--as-of", dt.date.today())
     conf, rule_set, policy = _recall_rules(settings, guideline)
+    from tracker.services import recall as SV
+
     engine = open_store(db)
     with reading(engine) as conn:
-        frames = _load(conn)
-    fam = frames.people.loc[frames.people["person"] == person, "family"]
-    if fam.empty:
-        raise UserError(f"unknown person {person!r}")
-    st = _family_state(frames, fam.iloc[0], on)
-    states, trend = _with_trends(frames, {st.family: st}, rule_set.id, conf, on)
-    st = states[st.family]
-    if person in st.states:
-        result = _proposal_dict(propose_recall(st.states[person], rule_set, policy, on), st)
-    else:
-        result = _unscheduled_dict(person, st, on, rule_set.id)
-    result["rule_set_title"] = rule_set.title
-    result["policy"] = policy.point
-    result["trend_modifiers"] = trend
-    result["release_basis"] = _release_basis(st, person)
-    result["risk_scd"] = _risk_scd(frames, person, fam.iloc[0], st, on)
+        result = SV.person_recall(conn, person, on, conf, rule_set, policy)
+    trend = result["trend_modifiers"]
     if json_out:
         print_json(result)
         return

@@ -7,10 +7,14 @@ import datetime as dt
 from tracker.domain.dates import parse_date
 from typing import TYPE_CHECKING
 
-from tracker.services.recall import _Frames, _iso
+from sqlalchemy import Connection
+
+from tracker.services.recall import _family_state, _Frames, _iso, _load, family_scope
+from tracker.settings import Settings
 
 if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
     from tracker.engines import family_state as fs
+    from tracker.store.repository import Scope
 
 
 def _testing_item(c) -> dict:
@@ -74,3 +78,50 @@ def _variant_rereview(frames: _Frames, on: dt.date, months: int) -> list[dict]:
             if r is not None:
                 out.append(_rereview_dict(r))
     return out
+
+
+def cascade_data(frames: _Frames, family: str, on: dt.date, conf: Settings, gid: str) -> dict:
+    """A family's cascade plan (what `tracker cascade --json` prints) from ``frames`` (the family, or more)."""
+    from tracker.domain.genetics import CAUTION as GENOTYPE_CAUTION
+    from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
+    from tracker.engines.cascade import plan_cascade
+
+    st = _family_state(frames, family, on)
+    plan = plan_cascade(
+        st.pedigree, st.genotypes, st.variant_class, on, gid, st.affected, st.seen,
+        early_onset_family="early_onset" in st.features,
+        class_history=st.variant.history if st.variant else None,
+        contact_dates=_contact_dates(frames, family),
+        declined_reapproach_months=conf.cascade.declined_reapproach_months,
+        rereview_months=conf.cascade.variant_rereview_months,
+    )  # fmt: skip
+    notes = list(st.notes) + list(plan.notes)
+    if "early_onset" in st.features:
+        notes.append("early-onset disease in the family derived from the records: " + st.feature_reasons["early_onset"])
+    result = {
+        "family": family,
+        "as_of": on.isoformat(),
+        "guideline": gid,
+        "guideline_title": CASCADE_RULE_SETS[gid].title,
+        "variant": _variant_dict(st.variant),
+        "family_features": dict(sorted(st.feature_reasons.items())),
+        "predictive_testing": [_testing_item(c) for c in plan.testing],
+        "deferred": [_testing_item(c) for c in plan.deferred],
+        "segregation_testing": [_testing_item(c) for c in plan.segregation],
+        "clinical_screening": [_screening_item(c) for c in plan.screening],
+        "released": [_screening_item(c) for c in plan.released],
+        "gaps": [{"person": g.person, "gap": g.gap, "reason": g.reason, "recalled": g.gap != "declined"}
+                 for g in plan.gaps],  # fmt: skip
+        "variant_rereview": _rereview_dict(plan.rereview, st.variant.key if st.variant else None),
+        "declined_policy": conf.cascade.declined_words(),
+        "notes": notes,
+        "caution": plan.caution + " " + GENOTYPE_CAUTION,
+    }
+    return result
+
+
+def family_cascade(conn: Connection, family: str, on: dt.date, conf: Settings, gid: str,
+                   scope: Scope | None = None) -> dict:  # fmt: skip
+    """A family's cascade plan, reading only that family's records (``scope``: read these families
+    instead, e.g. the cohort ``Scope()``; the result is the same)."""
+    return cascade_data(_load(conn, scope if scope is not None else family_scope(family)), family, on, conf, gid)

@@ -54,18 +54,22 @@ class _Frames:
     pending: frozenset[str]
 
 
-def _load(conn: Connection) -> _Frames:
+def _load(conn: Connection, scope: Scope | None = None) -> _Frames:
+    """The frames a family state is built from, for the families in ``scope`` (default: the cohort)."""
     from tracker.store import repository as repo
 
     return _Frames(
-        families=repo.load_families(conn),
-        people=repo.load_people(conn),
-        variants=repo.load_variants(conn),
-        results=repo.load_genetic_results(conn),
-        assessments=repo.load_assessments(conn),
-        studies=repo.load_studies(conn, entered=False),
-        pending=frozenset(_open_task_people(conn)),
+        families=repo.load_families(conn, scope),
+        people=repo.load_people(conn, scope),
+        variants=repo.load_variants(conn, scope),
+        results=repo.load_genetic_results(conn, scope),
+        assessments=repo.load_assessments(conn, scope),
+        studies=repo.load_studies(conn, entered=False, scope=scope),
+        pending=frozenset(_open_task_people(conn, scope)),
     )
+
+
+load = _load
 
 
 def _family_state(frames: _Frames, family: str, as_of: dt.date | None) -> fs.FamilyState:
@@ -182,12 +186,14 @@ def _batches(batch: np.ndarray) -> dict[int, np.ndarray]:
     return {int(k): order[a:e] for k, a, e in zip(keys, starts, ends) if k >= 0}
 
 
-def _open_task_people(conn: Connection) -> set[str]:
+def _open_task_people(conn: Connection, scope: Scope | None = None) -> set[str]:
     stmt = (
         select(Person.code)
         .join(ImpactItem, ImpactItem.person_id == Person.id)
         .where(ImpactItem.done_on.is_(None))
     )
+    if scope is not None and not scope.cohort:
+        stmt = stmt.where(Person.family_id.in_(scope.family_ids()))
     return {r[0] for r in conn.execute(stmt).all()}
 
 
@@ -286,3 +292,54 @@ def _risk_scd(frames: _Frames, person: str, family: str, st: fs.FamilyState, on:
                         facts.affected_status if facts else None, on,
                         studies=fs.records_up_to(frames.studies, "study_date", on))  # fmt: skip
     return pr.as_dict()
+
+
+# --------------------------------------------------------------------------- one person's recall
+
+
+def person_family(conn: Connection, code: str) -> str:
+    """The family code of person ``code`` (not removed), else a one-line error."""
+    from tracker.store.models import Family
+
+    row = conn.execute(select(Family.code).join(Person, Person.family_id == Family.id)
+                       .where(Person.code == code, Person.removed_at.is_(None))).first()  # fmt: skip
+    if row is None:
+        raise UserError(f"unknown person {code!r}")
+    return row[0]
+
+
+def family_scope(family: str) -> Scope:
+    """The records a family's state reads: that family's own (links to other families are not used)."""
+    from tracker.store.repository import Scope
+
+    return Scope.families([family])
+
+
+def recall_data(frames: _Frames, person: str, on: dt.date, conf: Settings, rule_set, policy: Policy) -> dict:
+    """One person's recall (what `tracker recall --json` prints) from ``frames`` (the person's family,
+    or more)."""
+    fam = frames.people.loc[frames.people["person"] == person, "family"]
+    if fam.empty:
+        raise UserError(f"unknown person {person!r}")
+    st = _family_state(frames, fam.iloc[0], on)
+    states, trend = _with_trends(frames, {st.family: st}, rule_set.id, conf, on)
+    st = states[st.family]
+    if person in st.states:
+        result = _proposal_dict(propose_recall(st.states[person], rule_set, policy, on), st)
+    else:
+        result = _unscheduled_dict(person, st, on, rule_set.id)
+    result["rule_set_title"] = rule_set.title
+    result["policy"] = policy.point
+    result["trend_modifiers"] = trend
+    result["release_basis"] = _release_basis(st, person)
+    result["risk_scd"] = _risk_scd(frames, person, fam.iloc[0], st, on)
+    return result
+
+
+def person_recall(conn: Connection, person: str, on: dt.date, conf: Settings, rule_set, policy: Policy,
+                  scope: Scope | None = None) -> dict:  # fmt: skip
+    """One person's recall, reading only their family's records (``scope``: read these families
+    instead, e.g. the cohort ``Scope()``; the result is the same)."""
+    if scope is None:
+        scope = family_scope(person_family(conn, person))
+    return recall_data(_load(conn, scope), person, on, conf, rule_set, policy)
