@@ -222,30 +222,16 @@ def reclassify(
         raise UserError("--reason must not be empty")
     conf, rule_set, policy = _recall_rules(settings, guideline)
     who = audit.actor(user)
+    from tracker.services import reclassification as SRC
+
     engine = open_store(db)
-    out: list[dict] = []
-    try:
-        with writing(engine) as conn:
-            frames = _load(conn)
-            variants = _targets(frames, target)
-            for v in variants:
-                if on <= v.classified_on:
-                    raise UserError(
-                        f"{v.family} {v.key}: --date {on.isoformat()} is not after the latest classification "
-                        f"({v.classified_on.isoformat()}, {v.current_class}); the class history is kept in date order"
-                    )
-                if new_class == v.current_class:
-                    raise UserError(f"{v.family} {v.key} is already classified {new_class} (since {v.classified_on.isoformat()})")
-            for v in variants:
-                out.append(_reclassify_one(conn, frames, v, new_class, on, reason.strip(), who, rule_set, policy,
-                                           conf))  # fmt: skip
-            if dry_run:
-                raise _DryRun
-    except _DryRun:
-        for r in out:
-            r["classification_id"] = None
-            for i in r["items"]:
-                i["id"] = None
+    with reading(engine) as conn:  # read and work out the impact before taking the write lock
+        planned = SRC.plan(conn, target, new_class, on, reason.strip(), rule_set, policy, conf)
+    if dry_run:
+        out = SRC.dry_run(planned)
+    else:
+        with writing(engine) as conn:  # re-checks that the records read are unchanged
+            out = SRC.write(conn, planned, who)
     result = {"dry_run": dry_run, "reclassifications": out, "caution": RECLASSIFICATION_CAUTION}
     if json_out:
         print_json(result)
