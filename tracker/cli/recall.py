@@ -1,34 +1,28 @@
 """Commands for cascade testing, reclassification and recalls: cascade, reclassify, tasks, recall, worklist.
 
-Thin: each command loads the store frames, builds the family state
-(:mod:`tracker.engines.family_state`), calls the engines (cascade,
-reclassification, schedule, worklist) and renders a table or JSON.  The only
-store access beyond the repository loaders is the reclassification task list
-(table ``impact_item``) and the new classification row, both written with
-SQLAlchemy Core inside one transaction.
+Thin: parsing, rendering and exit codes. ``recall``, ``cascade`` and ``reclassify`` get their data
+from the service layer (:mod:`tracker.services.recall`, :mod:`tracker.services.cascade`,
+:mod:`tracker.services.reclassification`), which reads only the families concerned; the worklist
+reads the cohort. The task list (table ``impact_item``) is read and marked done here with
+SQLAlchemy Core.
 """
 
 from __future__ import annotations
 
-import dataclasses
 import datetime as dt
 import math
-from dataclasses import dataclass
 from enum import Enum
 from pathlib import Path
-from typing import TYPE_CHECKING, Annotated, Any
+from typing import Annotated
 
 import typer
-from sqlalchemy import Connection, insert, select, update
+from sqlalchemy import select, update
 
-from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json, print_table
+from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, parse_day, print_json, print_table
 from tracker.gcpause import gc_paused
-from tracker.domain.dates import parse_date
 from tracker.domain.genetics import ACMG_CLASSES
-from tracker.domain.genetics import CAUTION as GENOTYPE_CAUTION
 from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
-from tracker.engines.cascade import plan_cascade
-from tracker.engines.schedule import CAUTIONS, Policy, Proposal, never_screened_text, propose_recall
+from tracker.engines.schedule import CAUTIONS, Proposal, never_screened_text
 from tracker.engines.worklist import (
     contact_gaps,
     lost_to_follow_up,
@@ -40,8 +34,7 @@ from tracker.engines.worklist import (
 )
 from tracker.errors import UserError
 from tracker.outputs import ics, worklist_csv
-from tracker.rules import available_rule_sets, load_rule_set
-from tracker.settings import Settings, load_settings
+from tracker.settings import load_settings
 from tracker.outfiles import write_output
 from tracker.store import audit
 from tracker.store.database import check_row_id, reading, writing
@@ -74,11 +67,6 @@ from tracker.services.recall import (  # noqa: F401
     with_trend_texts,
 )
 
-if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
-    import numpy as np
-    import pandas as pd
-    from tracker.store import repository as repo
-    from tracker.engines import family_state as fs
 
 AcmgClass = Enum("AcmgClass", {c: c for c in ACMG_CLASSES}, type=str)
 
@@ -92,22 +80,10 @@ GuidelineOption = Annotated[
 ]
 
 
-class _DryRun(Exception):
-    """Raised inside the transaction to roll back a dry run."""
-
-
 # --------------------------------------------------------------------------- small helpers
 
 
-def _day(text: str | None, option: str, default: dt.date | None = None) -> dt.date:
-    if text is None:
-        if default is None:
-            raise UserError(f"{option} is required (YYYY-MM-DD)")
-        return default
-    try:
-        return parse_date(text)
-    except ValueError as exc:
-        raise UserError(f"{option}: {exc}") from None
+_day = parse_day  # the name this module's commands use
 
 
 # --------------------------------------------------------------------------- cascade

@@ -43,6 +43,9 @@ def _recall_rules(settings_path: Path | None, guideline: str | None) -> tuple[Se
     return settings, load_rule_set(gid), Policy(point=settings.policy)
 
 
+recall_rules = _recall_rules
+
+
 @dataclass
 class _Frames:
     families: pd.DataFrame
