@@ -167,13 +167,16 @@ class Plan:
     reason: str
     planned: list[Planned]
     read_state: dict
+    scope: Scope
 
 
 def plan(conn: Connection, target: str, new_class: str, on: dt.date, reason: str, rule_set, policy: Policy,
          conf: Settings, scope: Scope | None = None) -> Plan:  # fmt: skip
     """Read the records of the families concerned (``scope``: these families instead, e.g. the cohort
     ``Scope()``) and work out every relative's impact; one-line error if the date or class is refused."""
-    frames = _load(conn, scope if scope is not None else target_scope(conn, target))
+    scope = scope if scope is not None else target_scope(conn, target)
+    marks = audit_marks(conn, scope)  # before the records are read: a write after this moves the mark
+    frames = _load(conn, scope)
     variants = _targets(frames, target)
     for v in variants:
         if on <= v.classified_on:
@@ -184,16 +187,35 @@ def plan(conn: Connection, target: str, new_class: str, on: dt.date, reason: str
         if new_class == v.current_class:
             raise UserError(f"{v.family} {v.key} is already classified {new_class} (since {v.classified_on.isoformat()})")
     planned = [Planned(v, *_impact(frames, v, new_class, on, rule_set, policy, conf)) for v in variants]
-    return Plan(new_class, on, reason, planned, read_state(conn, variants))
+    return Plan(new_class, on, reason, planned, read_state(conn, variants, marks), scope)
 
 
-def read_state(conn: Connection, variants) -> dict:
+def audit_marks(conn: Connection, scope: Scope) -> dict[str | None, int | None]:
+    """The last audit entry of each family in ``scope`` (key None: the whole cohort) counting entries
+    with no family (imports); every write to the store adds an entry in its own transaction."""
+    from sqlalchemy import func, or_
+
+    from tracker.store.models import AuditEntry
+
+    def mark(family: str | None):
+        stmt = select(func.max(AuditEntry.id))
+        if family is not None:
+            stmt = stmt.where(or_(AuditEntry.family_code == family, AuditEntry.family_code.is_(None)))
+        return conn.execute(stmt).scalar_one()
+
+    if scope.cohort:
+        return {None: mark(None)}
+    return {f: mark(f) for f in sorted(scope.family_codes)}
+
+
+def read_state(conn: Connection, variants, marks: dict | None = None) -> dict:
     """What a reclassification depends on, per family: the latest classification row of each variant,
     the number of people and of genetic results, and the last audit entry of the family or of an
     import (every write to the store is audited)."""
-    from sqlalchemy import func, or_
+    from sqlalchemy import func
 
-    from tracker.store.models import AuditEntry, GeneticResult
+    from tracker.store.models import GeneticResult
+    from tracker.store.repository import Scope
 
     out = {}
     for v in variants:
@@ -210,8 +232,10 @@ def read_state(conn: Connection, variants) -> dict:
                               .where(Person.family_id == fam_id, Person.removed_at.is_(None))).scalar_one()  # fmt: skip
         results = conn.execute(select(func.count()).select_from(GeneticResult).join(Person)
                                .where(Person.family_id == fam_id)).scalar_one()  # fmt: skip
-        audit_mark = conn.execute(select(func.max(AuditEntry.id)).where(
-            or_(AuditEntry.family_code == v.family, AuditEntry.family_code.is_(None)))).scalar_one()  # fmt: skip
+        if marks is None:
+            audit_mark = audit_marks(conn, Scope.families([v.family]))[v.family]
+        else:  # read before the records (a cohort-wide mark stands for every family)
+            audit_mark = marks[v.family] if v.family in marks else marks[None]
         out[f"{v.family} {v.key}"] = {
             "latest classification": tuple(latest) if latest else None, "people": people,
             "genetic results": results, "last audit entry": audit_mark,
@@ -222,7 +246,7 @@ def read_state(conn: Connection, variants) -> dict:
 def write(conn: Connection, p: Plan, who: str) -> list[dict]:
     """Write a plan inside the caller's write transaction, after checking that the records it was
     worked out from are unchanged; else a one-line error and nothing is written."""
-    now = read_state(conn, [x.variant for x in p.planned])
+    now = read_state(conn, [x.variant for x in p.planned], audit_marks(conn, p.scope))
     for key, before in p.read_state.items():
         changed = [k for k, v in before.items() if now.get(key, {}).get(k) != v]
         if changed:
