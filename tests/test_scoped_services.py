@@ -137,3 +137,18 @@ def test_a_reclassification_writes_when_nothing_changed(store):
         (written,) = SRC.write(conn, planned, "tester")
     assert written["classification_id"] is not None and written["to_class"] == new
     assert _classifications(engine) == before + 1
+
+
+def test_a_change_in_another_family_does_not_stop_a_reclassification(store):
+    db, engine, frames, conf, rule_set, policy = store
+    families = _single_variant_families(frames)
+    mine, other = families[1], families[2]
+    with reading(engine) as conn:
+        planned = SRC.plan(conn, mine, _other_class(frames, mine), dt.date(2026, 11, 4), "re-review", rule_set,
+                           policy, conf)  # fmt: skip
+    assert _main("reclassify", other, "--to", _other_class(frames, other), "--date", "2026-11-04", "--reason",
+                 "other user", "--db", db) == 0  # fmt: skip
+    before = _classifications(engine)
+    with writing(engine) as conn:
+        (written,) = SRC.write(conn, planned, "tester")
+    assert written["family"] == mine and _classifications(engine) == before + 1
