@@ -68,7 +68,7 @@ def test_every_kth_family_keeps_whole_families(tmp_path):
 def _run_whole_bench(tmp_path, *extra: str) -> dict:
     report = tmp_path / "bench.json"
     code = bench.main(["--families", "30", "--sample", "200", "--workdir", str(tmp_path / "work"),
-                       "--json", str(report), *extra])  # fmt: skip
+                       "--per-person-sizes", "4,8", "--json", str(report), *extra])  # fmt: skip
     assert code == 0
     return json.loads(report.read_text(encoding="utf-8"))
 
@@ -85,6 +85,11 @@ def _check_report(report: dict) -> None:
     low, high = w["growth_exponent_ci95"]
     assert low <= w["growth_exponent"] <= high
     assert figures["reclassification"]["tasks_agree"] is True
+    p = figures["per_person"]
+    assert p["sizes"] == [4, 8]
+    for name in ("person", "recall", "cascade", "reclassify_dry_run", "report_trajectory"):
+        assert p[f"{name}_4_s"] > 0 and p[f"{name}_8_s"] > 0
+        assert p[f"{name}_ratio_8_over_4"] == pytest.approx(p[f"{name}_8_s"] / p[f"{name}_4_s"])
     assert {t["figure"] for t in report["targets"]} == {name for _s, name, *_ in bench.TARGETS}
 
 

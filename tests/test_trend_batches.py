@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from tracker.cli import recall
+from tracker.services import recall
 
 
 @pytest.fixture

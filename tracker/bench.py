@@ -45,6 +45,12 @@ reclassification
             what ``tracker reclassify --dry-run`` computes for the variant of the
             largest single-variant family (impact on each relative, tasks), with
             a 1x store (every tenth family, plus that family) and the whole one
+per_person  ``tracker person``, ``recall``, ``cascade``, ``reclassify --dry-run`` and
+            ``report trajectory`` (in-process, ``--json``, best of three after one
+            untimed run) on the largest single-variant family and its member with the
+            most studies, in new stores of ``--per-person-sizes`` families (default 100
+            and 1,000; synthetic, same seed); each time, and each size's time over the
+            smallest's (the stores are made first, then timed in rounds over the sizes)
 memory      peak resident memory of this process (getrusage ru_maxrss)
 
 The database is a new SQLite file in a temporary folder unless ``--db`` says
@@ -723,6 +729,94 @@ def step_reclassification(r: Run) -> dict:
     }  # fmt: skip
 
 
+PER_PERSON_ROUNDS = 3  # timed runs of each command; the shortest counts
+
+
+def _cli(argv: list[str]) -> int:
+    """Run one command in-process as a user would (output discarded); its exit code."""
+    import contextlib
+
+    from tracker.cli.app import main as cli_main
+
+    with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(io.StringIO()):
+        return cli_main(argv)
+
+
+def _per_person_store(r: Run, n: int) -> str:
+    """A new SQLite store of a synthetic cohort of ``n`` families (seed of the run), imported by the CLI."""
+    folder = r.workdir / f"per-person-{n}"
+    synth.write(synth.generate(n, r.args.seed), folder / "cohort")
+    db = str(folder / "store.sqlite")
+    for argv in (["init", "--db", db], ["import", "all", str(folder / "cohort"), "--db", db]):
+        if _cli(argv) != 0:
+            raise SystemExit(f"per_person: `tracker {' '.join(argv)}` failed")
+    return db
+
+
+def _per_person_subject(db: str) -> tuple[str, str, str]:
+    """(family, person, new class): the largest family with one variant, its member with the most studies."""
+    from tracker.engines import family_state as fs
+    from tracker.store import repository as repo
+    from tracker.store.database import locate, make_engine, reading
+
+    engine = make_engine(locate(db))
+    with reading(engine) as conn:
+        people, variants = repo.load_people(conn), repo.load_variants(conn)
+        studies = repo.load_studies(conn, entered=False)
+    engine.dispose()
+    one = {f for f, vs in fs.family_variants(variants).items() if len(vs) == 1}
+    sizes = people[people["family"].isin(one)].groupby("family").size()
+    family = str(sizes.sort_values(ascending=False, kind="stable").index[0])
+    members = set(people.loc[people["family"] == family, "person"])
+    counts = studies[studies["person"].isin(members)].groupby("person")["study_date"].nunique()
+    person = str(counts.sort_values(ascending=False, kind="stable").index[0]) if len(counts) else sorted(members)[0]
+    current = fs.family_variants(variants)[family][0].current_class
+    return family, person, "uncertain_significance" if current != "uncertain_significance" else "likely_pathogenic"
+
+
+def step_per_person(r: Run) -> dict:
+    """Per-person and per-family commands (person, recall, cascade, reclassify --dry-run, report
+    trajectory) on one person/family of stores of each size in ``--per-person-sizes``: each reads
+    only the family, so the time should hardly grow with the store. The stores are made first, then
+    every command is timed in rounds over the sizes (a change in the machine's load falls on every
+    size alike); the shortest time counts."""
+    sizes = [int(x) for x in r.args.per_person_sizes.split(",")]
+    today = dt.date.today().isoformat()
+    out: dict = {"sizes": sizes}
+    runs: dict[int, dict[str, list[str]]] = {}
+    for n in sizes:
+        db = _per_person_store(r, n)
+        family, person, new = _per_person_subject(db)
+        pdf_dir = str(r.workdir / f"per-person-{n}" / "reports")
+        commands = {
+            "person": ["person", person],
+            "recall": ["recall", person],
+            "cascade": ["cascade", family],
+            "reclassify_dry_run": ["reclassify", family, "--to", new, "--date", today, "--reason", "benchmark",
+                                   "--dry-run"],
+            "report_trajectory": ["report", "trajectory", person, "--out", pdf_dir],
+        }  # fmt: skip
+        out[f"subject_{n}"] = f"{family} / {person}"
+        runs[n] = {name: argv + ["--db", db, "--json"] for name, argv in commands.items()}
+        for argv in runs[n].values():
+            code = _cli(argv)  # warm-up (imports, caches), not timed
+            if code != 0:
+                raise SystemExit(f"per_person: `tracker {' '.join(argv)}` exited {code}")
+    best: dict[tuple[str, int], float] = {}
+    for _ in range(PER_PERSON_ROUNDS):
+        for n in sizes:
+            for name, argv in runs[n].items():
+                _, t = _timed(_cli, argv)
+                best[name, n] = min(best.get((name, n), float("inf")), t)
+    names = list(runs[sizes[0]])
+    for n in sizes:
+        for name in names:
+            out[f"{name}_{n}_s"] = best[name, n]
+    for n in sizes[1:]:
+        for name in names:
+            out[f"{name}_ratio_{n}_over_{sizes[0]}"] = best[name, n] / best[name, sizes[0]]
+    return out
+
 def step_memory(r: Run) -> dict:
     return {"peak_rss_mb": _rss_mb()}
 
@@ -739,6 +833,8 @@ STEPS: list[Step] = [
          step_worklist, uses=("recall", "recall_load_s")),
     Step("reclassification", "reclassification impact for the variant of the largest family, 1/10 vs all",
          step_reclassification, uses=("recall", "recall_load_s")),
+    Step("per_person", "person, recall, cascade, reclassify --dry-run and report trajectory on one person/family, "
+         "stores of --per-person-sizes families", step_per_person),
     Step("memory", "peak resident memory of the process", step_memory),
 ]
 
@@ -793,6 +889,8 @@ def parse_args(argv: list[str] | None = None) -> argparse.Namespace:
     p.add_argument("--worklist-max-families", type=int, default=None,
                    help="worklist step: time at most this many families as the 10x cohort (every k-th family; "
                    "default: the whole cohort), and a tenth of them as the 1x cohort")
+    p.add_argument("--per-person-sizes", default="100,1000",
+                   help="per_person step: comma-separated store sizes in families (default 100,1000)")
     p.add_argument("--keep", action="store_true", help="keep the PostgreSQL schema (and the temp folder)")
     p.add_argument("--existing-db", default=None,
                    help="run the read/trends/statsmodels steps on this database instead of importing "

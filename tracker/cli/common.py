@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime as dt
 import json
 import sys
 from pathlib import Path
@@ -12,6 +13,7 @@ from rich.console import Console
 from rich.table import Table
 from sqlalchemy import Engine
 
+from tracker.errors import UserError
 from tracker.store import migrate
 from tracker.store.database import ENV_VAR, locate, make_engine, reading
 
@@ -93,3 +95,17 @@ def print_table(title: str | None, columns: list[str], rows: list[list[Any]]) ->
     for r in cells:
         table.add_row(*r)
     out.print(table)
+
+
+def parse_day(text: str | None, option: str, default: dt.date | None = None) -> dt.date:
+    """The date an option gives (YYYY-MM-DD), ``default`` when absent, else a one-line error naming the option."""
+    from tracker.domain.dates import parse_date
+
+    if text is None:
+        if default is None:
+            raise UserError(f"{option} is required (YYYY-MM-DD)")
+        return default
+    try:
+        return parse_date(text)
+    except ValueError as exc:
+        raise UserError(f"{option}: {exc}") from None

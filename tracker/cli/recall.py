@@ -1,34 +1,28 @@
 """Commands for cascade testing, reclassification and recalls: cascade, reclassify, tasks, recall, worklist.
 
-Thin: each command loads the store frames, builds the family state
-(:mod:`tracker.engines.family_state`), calls the engines (cascade,
-reclassification, schedule, worklist) and renders a table or JSON.  The only
-store access beyond the repository loaders is the reclassification task list
-(table ``impact_item``) and the new classification row, both written with
-SQLAlchemy Core inside one transaction.
+Thin: parsing, rendering and exit codes. ``recall``, ``cascade`` and ``reclassify`` get their data
+from the service layer (:mod:`tracker.services.recall`, :mod:`tracker.services.cascade`,
+:mod:`tracker.services.reclassification`), which reads only the families concerned; the worklist
+reads the cohort. The task list (table ``impact_item``) is read and marked done here with
+SQLAlchemy Core.
 """
 
 from __future__ import annotations
 
-import dataclasses
 import datetime as dt
 import math
-from dataclasses import dataclass
 from enum import Enum
 from pathlib import Path
-from typing import TYPE_CHECKING, Annotated, Any
+from typing import Annotated
 
 import typer
-from sqlalchemy import Connection, insert, select, update
+from sqlalchemy import select, update
 
-from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json, print_table
+from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, parse_day, print_json, print_table
 from tracker.gcpause import gc_paused
-from tracker.domain.dates import parse_date
 from tracker.domain.genetics import ACMG_CLASSES
-from tracker.domain.genetics import CAUTION as GENOTYPE_CAUTION
 from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
-from tracker.engines.cascade import plan_cascade
-from tracker.engines.schedule import CAUTIONS, Policy, Proposal, never_screened_text, propose_recall
+from tracker.engines.schedule import CAUTIONS, Proposal, never_screened_text
 from tracker.engines.worklist import (
     contact_gaps,
     lost_to_follow_up,
@@ -40,18 +34,39 @@ from tracker.engines.worklist import (
 )
 from tracker.errors import UserError
 from tracker.outputs import ics, worklist_csv
-from tracker.rules import available_rule_sets, load_rule_set
-from tracker.settings import Settings, load_settings
+from tracker.settings import load_settings
 from tracker.outfiles import write_output
 from tracker.store import audit
 from tracker.store.database import check_row_id, reading, writing
 from tracker.store.models import Family, ImpactItem, Person, Variant, VariantClassification
+from tracker.services.cascade import (  # noqa: F401  (moved to the service layer; names kept for callers)
+    _contact_dates,
+    _rereview_dict,
+    _screening_item,
+    _testing_item,
+    _variant_dict,
+    _variant_rereview,
+)
+from tracker.services.reclassification import _reclassify_one, _targets  # noqa: F401
+from tracker.services.recall import (  # noqa: F401
+    TREND_CHUNK_PEOPLE,
+    _batches,
+    _family_state,
+    _Frames,
+    _iso,
+    _load,
+    _open_task_people,
+    _progression_text,
+    _proposal_dict,
+    _reason,
+    _recall_rules,
+    _release_basis,
+    _risk_scd,
+    _unscheduled_dict,
+    _with_trends,
+    with_trend_texts,
+)
 
-if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
-    import numpy as np
-    import pandas as pd
-    from tracker.store import repository as repo
-    from tracker.engines import family_state as fs
 
 AcmgClass = Enum("AcmgClass", {c: c for c in ACMG_CLASSES}, type=str)
 
@@ -65,221 +80,13 @@ GuidelineOption = Annotated[
 ]
 
 
-class _DryRun(Exception):
-    """Raised inside the transaction to roll back a dry run."""
-
-
 # --------------------------------------------------------------------------- small helpers
 
 
-def _day(text: str | None, option: str, default: dt.date | None = None) -> dt.date:
-    if text is None:
-        if default is None:
-            raise UserError(f"{option} is required (YYYY-MM-DD)")
-        return default
-    try:
-        return parse_date(text)
-    except ValueError as exc:
-        raise UserError(f"{option}: {exc}") from None
-
-
-def _iso(d: dt.date | None) -> str | None:
-    return d.isoformat() if d is not None else None
-
-
-def _recall_rules(settings_path: Path | None, guideline: str | None) -> tuple[Settings, Any, Policy]:
-    settings = load_settings(settings_path)
-    gid = guideline or settings.guideline
-    if gid not in available_rule_sets():
-        raise UserError(f"--guideline: {gid!r} is not a rule set (available: {', '.join(available_rule_sets())})")
-    return settings, load_rule_set(gid), Policy(point=settings.policy)
-
-
-@dataclass
-class _Frames:
-    families: pd.DataFrame
-    people: pd.DataFrame
-    variants: pd.DataFrame
-    results: pd.DataFrame
-    assessments: pd.DataFrame
-    studies: pd.DataFrame
-    pending: frozenset[str]
-
-
-def _load(conn: Connection) -> _Frames:
-    from tracker.store import repository as repo
-
-    return _Frames(
-        families=repo.load_families(conn),
-        people=repo.load_people(conn),
-        variants=repo.load_variants(conn),
-        results=repo.load_genetic_results(conn),
-        assessments=repo.load_assessments(conn),
-        studies=repo.load_studies(conn, entered=False),
-        pending=frozenset(_open_task_people(conn)),
-    )
-
-
-def _family_state(frames: _Frames, family: str, as_of: dt.date | None) -> fs.FamilyState:
-    from tracker.engines import family_state as fs
-
-    if family not in set(frames.families["family"]):
-        raise UserError(f"unknown family {family!r}")
-    if family not in set(frames.people["family"]):
-        raise UserError(f"family {family!r} has no members recorded")
-    return fs.build_family_state(
-        family, frames.people, frames.variants, frames.results, frames.assessments, frames.studies,
-        reclassification_pending=frames.pending, as_of=as_of,
-    )  # fmt: skip
-
-
-# --------------------------------------------------------------------------- trend modifiers
-
-
-TREND_CHUNK_PEOPLE = 2_000  # people per batch of the trend engine in _with_trends (memory, not results)
-
-
-def _with_trends(
-    frames: _Frames, states: dict[str, fs.FamilyState], rule_set_id: str, settings: Settings, as_of: dt.date
-) -> tuple[dict[str, fs.FamilyState], dict]:
-    """Fill progression / projected crossing from the trend engine, if it is installed."""
-    import numpy as np
-    import pandas as pd
-    from tracker.engines import family_state as fs
-
-    try:
-        from tracker.engines import repeatability, review
-        from tracker.normals.criteria import RULE_SETS as CRITERIA
-
-        build, flags = review.build_measurements, review.trend_flags
-    except (ImportError, AttributeError):
-        return states, {
-            "applied": False,
-            "note": "trend modifiers not applied: the trend engine (tracker.engines.review) is not available; "
-            "intervals ignore progression and projected threshold crossing",
-        }
-    if rule_set_id not in CRITERIA:
-        return states, {
-            "applied": False,
-            "note": f"trend modifiers not applied: no diagnostic-criteria set for rule set {rule_set_id} "
-            "(guidelines are never blended); intervals ignore progression and projected crossing",
-        }
-    codes = {p for s in states.values() for p in s.states}
-    studies = fs.records_up_to(frames.studies[frames.studies["person"].isin(codes)], "study_date", as_of)
-    if studies is None or not studies["value"].notna().any():
-        return states, {"applied": True, "note": "trend modifiers: no measured values to trend"}
-    relatives = set().union(*(fs.first_degree_of_affected(s) for s in states.values()))
-    positive = set().union(*(fs.genotype_positive(s) for s in states.values()))
-    # Trends are per person: computed a few thousand people at a time, so that memory stays
-    # bounded on a registry-sized cohort (the results are the same as in one go).
-    # Each row is given its batch number once (people in order of first appearance), so a batch
-    # is a slice of one stable sort, not a scan of the whole cohort per batch.
-    person_no, people = pd.factorize(studies["person"].to_numpy(dtype=object))
-    in_batch = _batches(person_no // TREND_CHUNK_PEOPLE)
-    listed = pd.Index(people).get_indexer(frames.people["person"].to_numpy(dtype=object))
-    members = _batches(np.where(listed >= 0, listed // TREND_CHUNK_PEOPLE, -1))
-    parts = []
-    for b in range(-(-len(people) // TREND_CHUNK_PEOPLE)):
-        chunk = studies.iloc[in_batch.get(b, [])]
-        parts.append(flags(
-            review.mark_pregnancy(build(frames.people.iloc[members.get(b, [])], chunk), frames.assessments),
-            guideline=rule_set_id,
-            relative_of_affected=relatives, genotype_positive=positive,
-            clinic_repeatability=settings.repeatability or None,
-        ))  # fmt: skip
-    placeholders = sorted(m for m, r in repeatability.load_repeatability(settings.repeatability or None).items()
-                          if r.status == "placeholder")  # fmt: skip
-    return fs.apply_trends_to_states(states, pd.concat(parts, ignore_index=True)), {
-        "applied": True,
-        "note": f"trend modifiers from the measurement trends ({rule_set_id} thresholds): progression beyond "
-        "measurement variability and projected threshold crossing shorten the interval",
-        "lsc_note": (f"the least significant changes of {', '.join(placeholders)} are packaged placeholders, not the "
-                     "lab's own: set them in the settings [repeatability]") if placeholders else "",
-    }  # fmt: skip
-
-
-PROGRESSION_PREFIX = "Progression on the measurement trends"
-
-
-def _progression_text(rule_text: str, tests: str) -> str:
-    """The rule set's progression modifier text with its opening clause replaced by the tests that
-    fired (slope, last change, z-score slope) and their figures; the interval clause is kept."""
-    if not tests or rule_text.startswith(PROGRESSION_PREFIX):
-        return rule_text
-    tail = rule_text.split(": ", 1)[1] if ": " in rule_text else rule_text
-    return f"{PROGRESSION_PREFIX} ({tests}): {tail}"
-
-
-def with_trend_texts(p: Proposal, facts: fs.PersonFacts) -> Proposal:
-    """``p`` with the progression modifier naming the test that fired, and each "criteria not
-    assessable" review flag in its notes (flag ``criteria_not_assessable``)."""
-    fired = tuple(
-        dataclasses.replace(f, text=_progression_text(f.text, facts.progression_tests))
-        if f.kind == "modifier" and f.code == "progression" else f
-        for f in p.fired
-    )  # fmt: skip
-    review = tuple(x for x in facts.review_flags.split(" | ") if x and x not in p.notes)
-    flags = p.flags + (("criteria_not_assessable",) if facts.review_flags and "criteria_not_assessable" not in p.flags
-                       else ())  # fmt: skip
-    return dataclasses.replace(p, fired=fired, flags=flags, notes=p.notes + review)
-
-
-def _batches(batch: np.ndarray) -> dict[int, np.ndarray]:
-    """Batch number -> positions of its rows, in their original order (negative numbers: no batch)."""
-    import numpy as np
-
-    order = np.argsort(batch, kind="stable")
-    keys, starts = np.unique(batch[order], return_index=True)
-    ends = np.append(starts[1:], len(order))
-    return {int(k): order[a:e] for k, a, e in zip(keys, starts, ends) if k >= 0}
+_day = parse_day  # the name this module's commands use
 
 
 # --------------------------------------------------------------------------- cascade
-
-
-def _testing_item(c) -> dict:
-    return {
-        "person": c.person,
-        "probability": float(c.probability) if c.probability is not None else None,
-        "probability_text": c.probability_text,
-        "age_years": c.age_years,
-        "age_note": c.age_note,
-        "recommendation": c.recommendation,
-        "eligible_from": _iso(c.eligible_from),
-        "reason": c.reason,
-        "source": c.source,
-        "notes": list(c.notes),
-        "wait_for": c.wait_for,
-    }
-
-
-def _screening_item(c) -> dict:
-    return {"person": c.person, "categories": list(c.categories), "reason": c.reason, "source": c.source,
-            "notes": list(c.notes), "released_on": _iso(c.released_on), "relied_on": c.relied_on}  # fmt: skip
-
-
-def _contact_dates(frames: _Frames, family: str) -> dict[str, dt.date | None]:
-    """Person -> date of the recorded contact status (the date of a decline), for one family."""
-    rows = frames.people[frames.people["family"] == family]
-    out = {}
-    for p, d in zip(rows["person"], rows["contact_status_date"]):
-        out[p] = parse_date(d) if isinstance(d, str) and d.strip() else None
-    return out
-
-
-def _rereview_dict(r, variant: str | None = None) -> dict | None:
-    if r is None:
-        return None
-    return {"family": r.family, "variant": r.variant or variant, "acmg_class": r.acmg_class,
-            "classified_on": _iso(r.classified_on), "due": _iso(r.due), "overdue": r.overdue,
-            "text": r.text, "source": r.source}  # fmt: skip
-
-
-def _variant_dict(v: fs.VariantInfo | None) -> dict | None:
-    if v is None:
-        return None
-    return {"gene": v.gene, "variant": v.key, "hgvs_p": v.hgvs_p, "acmg_class": v.current_class,
-            "classified_on": _iso(v.classified_on)}  # fmt: skip
 
 
 def cascade(
@@ -307,40 +114,12 @@ def cascade(
         raise UserError(
             f"no cascade rule set for guideline {gid!r}: give --guideline one of {', '.join(CASCADE_RULE_SETS)}"
         )
+    from tracker.services import cascade as SC
+
     engine = open_store(db)
     with reading(engine) as conn:
-        frames = _load(conn)
-    st = _family_state(frames, family, on)
-    plan = plan_cascade(
-        st.pedigree, st.genotypes, st.variant_class, on, gid, st.affected, st.seen,
-        early_onset_family="early_onset" in st.features,
-        class_history=st.variant.history if st.variant else None,
-        contact_dates=_contact_dates(frames, family),
-        declined_reapproach_months=conf.cascade.declined_reapproach_months,
-        rereview_months=conf.cascade.variant_rereview_months,
-    )  # fmt: skip
-    notes = list(st.notes) + list(plan.notes)
-    if "early_onset" in st.features:
-        notes.append("early-onset disease in the family derived from the records: " + st.feature_reasons["early_onset"])
-    result = {
-        "family": family,
-        "as_of": on.isoformat(),
-        "guideline": gid,
-        "guideline_title": CASCADE_RULE_SETS[gid].title,
-        "variant": _variant_dict(st.variant),
-        "family_features": dict(sorted(st.feature_reasons.items())),
-        "predictive_testing": [_testing_item(c) for c in plan.testing],
-        "deferred": [_testing_item(c) for c in plan.deferred],
-        "segregation_testing": [_testing_item(c) for c in plan.segregation],
-        "clinical_screening": [_screening_item(c) for c in plan.screening],
-        "released": [_screening_item(c) for c in plan.released],
-        "gaps": [{"person": g.person, "gap": g.gap, "reason": g.reason, "recalled": g.gap != "declined"}
-                 for g in plan.gaps],  # fmt: skip
-        "variant_rereview": _rereview_dict(plan.rereview, st.variant.key if st.variant else None),
-        "declined_policy": conf.cascade.declined_words(),
-        "notes": notes,
-        "caution": plan.caution + " " + GENOTYPE_CAUTION,
-    }
+        result = SC.family_cascade(conn, family, on, conf, gid)
+    notes = result["notes"]
     if json_out:
         print_json(result)
         return
@@ -358,24 +137,6 @@ def cascade(
     for n in notes:
         typer.echo(f"note: {n}")
     typer.echo(result["caution"])
-
-
-def _variant_rereview(frames: _Frames, on: dt.date, months: int) -> list[dict]:
-    """Re-review reminders of every family's variants on ``on`` (classifications up to that day)."""
-    from tracker.engines import family_state as fs
-
-    from tracker.domain.genetics import rereview_reminder
-
-    variants = fs.records_up_to(frames.variants, "classified_on", on)
-    out = []
-    if variants is None or not len(variants):
-        return out
-    for fam, vs in sorted(fs.family_variants(variants).items()):
-        for v in vs:
-            r = rereview_reminder(v.current_class, v.classified_on, on, months, family=fam, variant=v.key)
-            if r is not None:
-                out.append(_rereview_dict(r))
-    return out
 
 
 def _testing_table(title: str, items: list[dict]) -> None:
@@ -405,28 +166,6 @@ def _sources(items: list[dict]) -> None:
 
 
 # --------------------------------------------------------------------------- reclassification
-
-
-def _targets(frames: _Frames, target: str) -> list[fs.VariantInfo]:
-    """The variant(s) a TARGET names: a family code (its only variant) or transcript:c.change."""
-    from tracker.engines import family_state as fs
-
-    by_family = fs.family_variants(frames.variants)
-    if ":" in target:
-        found = [v for vs in by_family.values() for v in vs if v.key == target]
-        if not found:
-            raise UserError(f"no family has the variant {target!r} (give transcript:c.change, e.g. NM_000256.3:c.1504C>T)")
-        return found
-    if target not in set(frames.families["family"]):
-        raise UserError(f"unknown family or variant {target!r} (a family code, or transcript:c.change)")
-    vs = by_family.get(target, ())
-    if not vs:
-        raise UserError(f"family {target!r} has no variant recorded: nothing to reclassify")
-    if len(vs) > 1:
-        raise UserError(
-            f"family {target!r} has {len(vs)} variants ({', '.join(v.key for v in vs)}): name one as transcript:c.change"
-        )
-    return list(vs)
 
 
 def reclassify(
@@ -459,30 +198,16 @@ def reclassify(
         raise UserError("--reason must not be empty")
     conf, rule_set, policy = _recall_rules(settings, guideline)
     who = audit.actor(user)
+    from tracker.services import reclassification as SRC
+
     engine = open_store(db)
-    out: list[dict] = []
-    try:
-        with writing(engine) as conn:
-            frames = _load(conn)
-            variants = _targets(frames, target)
-            for v in variants:
-                if on <= v.classified_on:
-                    raise UserError(
-                        f"{v.family} {v.key}: --date {on.isoformat()} is not after the latest classification "
-                        f"({v.classified_on.isoformat()}, {v.current_class}); the class history is kept in date order"
-                    )
-                if new_class == v.current_class:
-                    raise UserError(f"{v.family} {v.key} is already classified {new_class} (since {v.classified_on.isoformat()})")
-            for v in variants:
-                out.append(_reclassify_one(conn, frames, v, new_class, on, reason.strip(), who, rule_set, policy,
-                                           conf))  # fmt: skip
-            if dry_run:
-                raise _DryRun
-    except _DryRun:
-        for r in out:
-            r["classification_id"] = None
-            for i in r["items"]:
-                i["id"] = None
+    with reading(engine) as conn:  # read and work out the impact before taking the write lock
+        planned = SRC.plan(conn, target, new_class, on, reason.strip(), rule_set, policy, conf)
+    if dry_run:
+        out = SRC.dry_run(planned)
+    else:
+        with writing(engine) as conn:  # re-checks that the records read are unchanged
+            out = SRC.write(conn, planned, who)
     result = {"dry_run": dry_run, "reclassifications": out, "caution": RECLASSIFICATION_CAUTION}
     if json_out:
         print_json(result)
@@ -501,71 +226,6 @@ def reclassify(
         for n in r["notes"]:
             typer.echo(f"note: {n}")
     typer.echo(RECLASSIFICATION_CAUTION)
-
-
-def _reclassify_one(conn, frames: _Frames, v: fs.VariantInfo, new_class: str, on: dt.date, reason: str,
-                    who: str, rule_set, policy: Policy, conf: Settings) -> dict:  # fmt: skip
-    from tracker.engines import family_state as fs
-    from tracker.engines.reclassification import impact_of_reclassification
-
-    state = _family_state(frames, v.family, None)
-    proposals = fs.propose_for_family(state, rule_set, policy, on)
-    screening = fs.screening_states(proposals)
-    items, notes = fs.task_items(
-        fs.with_shown_statuses(impact_of_reclassification(
-            state.pedigree, state.results, v.current_class, new_class, screening, variant=v.key,
-            affected=state.affected, history=v.history, contact_dates=_contact_dates(frames, v.family),
-            declined_reapproach_months=conf.cascade.declined_reapproach_months, on=on,
-        ), state, v.current_class, new_class),
-        state,
-    )  # fmt: skip
-    variant_id = conn.execute(
-        select(Variant.id).join(Family, Variant.family_id == Family.id).where(
-            Family.code == v.family, Variant.transcript == v.transcript, Variant.hgvs_c == v.hgvs_c
-        )
-    ).scalar_one()
-    cid = conn.execute(
-        insert(VariantClassification).returning(VariantClassification.id),
-        dict(variant_id=variant_id, classified_on=on, acmg_class=new_class, reason=reason),
-    ).scalar_one()
-    audit.record(conn, action="reclassify", table="variant_classification", row_id=cid, family=v.family,
-                 what=f"{v.gene} {v.key} classified {new_class} on {on.isoformat()}",
-                 before={"acmg_class": v.current_class, "classified_on": v.classified_on},
-                 after={"acmg_class": new_class, "classified_on": on}, reason=reason, user=who)  # fmt: skip
-    person_ids = dict(conn.execute(select(Person.code, Person.id).where(Person.family_id == select(Family.id).where(
-        Family.code == v.family).scalar_subquery())).all())  # fmt: skip
-    now = dt.datetime.now(dt.timezone.utc).replace(tzinfo=None, microsecond=0)
-    rows = []
-    for it in items:
-        stored, what = it.change, it.what_changes
-        iid = conn.execute(
-            insert(ImpactItem).returning(ImpactItem.id),
-            dict(
-                variant_classification_id=cid, person_id=person_ids.get(it.person) if it.person else None,
-                change=stored, what_changes=what, action=it.action, source=it.source,
-                status_before=it.status_before, status_after=it.status_after, created_at=now, created_by=who,
-            ),
-        ).scalar_one()  # fmt: skip
-        audit.record(conn, action="reclassify", table="impact_item", row_id=iid, family=v.family, person=it.person,
-                     what=f"task {iid}: {it.change}", after={"change": it.change, "status_before": it.status_before,
-                     "status_after": it.status_after}, reason=reason, user=who)  # fmt: skip
-        rows.append({
-            "id": iid, "person": it.person, "change": it.change, "what_changes": it.what_changes,
-            "action": it.action, "source": it.source, "status_before": it.status_before,
-            "status_after": it.status_after,
-        })  # fmt: skip
-    return {
-        "family": v.family,
-        "gene": v.gene,
-        "variant": v.key,
-        "from_class": v.current_class,
-        "to_class": new_class,
-        "classified_on": on.isoformat(),
-        "reason": reason,
-        "classification_id": cid,
-        "items": rows,
-        "notes": notes,
-    }
 
 
 # --------------------------------------------------------------------------- tasks
@@ -597,15 +257,6 @@ def _task_dict(r) -> dict:
         "created_by": created_by, "status": "done" if done_on else "open", "done_on": _iso(done_on),
         "done_by": done_by, "done_note": done_note,
     }  # fmt: skip
-
-
-def _open_task_people(conn: Connection) -> set[str]:
-    stmt = (
-        select(Person.code)
-        .join(ImpactItem, ImpactItem.person_id == Person.id)
-        .where(ImpactItem.done_on.is_(None))
-    )
-    return {r[0] for r in conn.execute(stmt).all()}
 
 
 tasks_app = typer.Typer(
@@ -701,90 +352,6 @@ def tasks_done(
 # --------------------------------------------------------------------------- recall
 
 
-def _reason(p: Proposal) -> tuple[str, str]:
-    """Plain reason and sources: triggers, the governing rule or release, applied modifiers, overrides."""
-    order = {"trigger": 0, "rule": 1, "release": 1, "modifier": 2, "override": 3}
-    fired = sorted((f for f in p.fired if f.applied and f.kind in order), key=lambda f: order[f.kind])
-    if not fired:
-        return "; ".join(p.notes[1:] or p.notes), ""
-    return "; ".join(f.text.rstrip(".") for f in fired) + ".", "; ".join(dict.fromkeys(f.source for f in fired))
-
-
-def _proposal_dict(p: Proposal, st: fs.FamilyState) -> dict:
-    person = p.person_code
-    ps, facts, g = st.states[person], st.facts[person], st.genotypes[person]
-    p = with_trend_texts(p, facts)
-    reason, source = _reason(p)
-    return {
-        "person": person,
-        "family": st.family,
-        "as_of": p.today.isoformat(),
-        "rule_set": p.rule_set_id,
-        "status": p.status,
-        "due": _iso(p.due),
-        "days_overdue": p.days_overdue,
-        "never_screened": p.never_screened,
-        "eligible_since": _iso(p.eligible_since),
-        "gap_reason": p.gap_reason,
-        "waiting": never_screened_text(p),
-        "interval_months": p.interval_months,
-        "routine_due": _iso(p.routine_due),
-        "rule_id": p.rule_id,
-        "needs": list(p.needs),
-        "consider": list(p.consider),
-        "reason": reason,
-        "source": source,
-        "fired": [
-            {"kind": f.kind, "code": f.code, "text": f.text, "source": f.source, "tag": f.tag, "applied": f.applied}
-            for f in p.fired
-        ],
-        "triggers": list(p.triggers),
-        "flags": list(p.flags),
-        "notes": list(p.notes),
-        "state": {
-            "genotype": ps.genotype,
-            "genotype_reason": g.reason,
-            "phenotype": ps.phenotype,
-            "affected_status": facts.affected_status,
-            "family_features": sorted(ps.family_features),
-            "last_visit": _iso(ps.last_visit),
-            "athlete": ps.athlete,
-            "contact_status": ps.contact_status,
-            "vital_status": ps.vital_status,
-            "progression": ps.progression,
-            "projected_crossing_age_years": ps.projected_crossing_age_years,
-            "trend_reasons": facts.trend_reasons,
-            "progression_tests": facts.progression_tests,
-            "review_flags": [x for x in facts.review_flags.split(" | ") if x],
-        },
-        "cautions": list(p.cautions),
-    }
-
-
-def _release_basis(st: fs.FamilyState, person: str) -> dict | None:
-    """What a genotype-negative person's release relied on (None if not released on a P/LP class)."""
-    from tracker.domain.genetics import release_basis, result_date_for_release
-
-    if st.variant is None or person not in st.genotypes or st.genotypes[person].status != "non_carrier":
-        return None
-    b = release_basis(st.variant.history, result_date_for_release(st.genotypes, person))
-    if b is None:
-        return None
-    return {"relied_class": b.relied_class, "classified_on": _iso(b.classified_on), "plp_since": _iso(b.plp_since),
-            "released_on": _iso(b.released_on), "words": b.words()}  # fmt: skip
-
-
-def _unscheduled_dict(person: str, st: fs.FamilyState, on: dt.date, rule_set_id: str) -> dict:
-    why = st.not_scheduled[person]
-    return {
-        "person": person, "family": st.family, "as_of": on.isoformat(), "rule_set": rule_set_id,
-        "status": "not_scheduled", "due": None, "days_overdue": None, "never_screened": False, "eligible_since": None,
-        "gap_reason": None, "waiting": None, "interval_months": None, "routine_due": None,
-        "rule_id": None, "needs": [], "consider": [], "reason": why, "source": "", "fired": [], "triggers": [],
-        "flags": [], "notes": [why], "state": None, "cautions": list(CAUTIONS),
-    }  # fmt: skip
-
-
 def recall(
     person: Annotated[str, typer.Argument(help="Person code.")],
     as_of: AsOfOption = None,
@@ -803,24 +370,12 @@ def recall(
 
     on = _day(as_of, "--as-of", dt.date.today())
     conf, rule_set, policy = _recall_rules(settings, guideline)
+    from tracker.services import recall as SV
+
     engine = open_store(db)
     with reading(engine) as conn:
-        frames = _load(conn)
-    fam = frames.people.loc[frames.people["person"] == person, "family"]
-    if fam.empty:
-        raise UserError(f"unknown person {person!r}")
-    st = _family_state(frames, fam.iloc[0], on)
-    states, trend = _with_trends(frames, {st.family: st}, rule_set.id, conf, on)
-    st = states[st.family]
-    if person in st.states:
-        result = _proposal_dict(propose_recall(st.states[person], rule_set, policy, on), st)
-    else:
-        result = _unscheduled_dict(person, st, on, rule_set.id)
-    result["rule_set_title"] = rule_set.title
-    result["policy"] = policy.point
-    result["trend_modifiers"] = trend
-    result["release_basis"] = _release_basis(st, person)
-    result["risk_scd"] = _risk_scd(frames, person, fam.iloc[0], st, on)
+        result = SV.person_recall(conn, person, on, conf, rule_set, policy)
+    trend = result["trend_modifiers"]
     if json_out:
         print_json(result)
         return
@@ -856,19 +411,6 @@ def recall(
         typer.echo(line)
     for c in result["cautions"]:
         typer.echo(f"caution: {c}")
-
-
-def _risk_scd(frames: _Frames, person: str, family: str, st: fs.FamilyState, on: dt.date) -> dict:
-    """HCM Risk-SCD of the person from the records up to ``on``, as `tracker person` shows it."""
-    from tracker.services import risk as RK
-    from tracker.engines import family_state as fs
-
-    people = frames.people[frames.people["family"] == family]
-    facts = st.facts.get(person)
-    pr = RK.person_risk(person, people, fs.records_up_to(frames.assessments, "assessment_date", on),
-                        facts.affected_status if facts else None, on,
-                        studies=fs.records_up_to(frames.studies, "study_date", on))  # fmt: skip
-    return pr.as_dict()
 
 
 # --------------------------------------------------------------------------- worklist

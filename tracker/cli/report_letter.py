@@ -118,10 +118,9 @@ def letter(
 
     Example: tracker report letter HV01-III-6 --out letters/
     """
-    from tracker.engines import family_state as fs
     from tracker.outputs import letter as L
     from tracker.outputs.letter_pdf import write_letter_pdf
-    from tracker.store import repository as repo
+    from tracker.services import documents as SD
 
     on = dt.date.today()
     if date is not None:
@@ -140,14 +139,7 @@ def letter(
     own_template = L.read_template(template) if template is not None else None
     engine = open_store(db)
     with reading(engine) as conn:
-        people = repo.load_people(conn)
-        if person not in set(people["person"]):
-            raise UserError(f"unknown person {person!r}")
-        family = people.loc[people["person"] == person, "family"].iloc[0]
-        state = fs.build_family_state(
-            family, people, repo.load_variants(conn), repo.load_genetic_results(conn),
-            repo.load_assessments(conn), repo.load_studies(conn, entered=False), as_of=on,
-        )  # fmt: skip
+        people, family, state = SD.letter_state(conn, person, on)
     recipient_name = _stored_name(people, person) if names else None
     plan = L.prepare_letter(
         state.pedigree, state.genotypes, _letter_variant(state.variant), person, on, gid, conf.clinic,

@@ -31,17 +31,12 @@ def pedigree_(
     Example: tracker report pedigree HV01 --out letters/
     """
     from tracker.outputs.pedigree_drawing import write_pedigree_pdf
-    from tracker.store import repository as repo
+    from tracker.services import documents as SD
 
     engine = open_store(db)
     with reading(engine) as conn:
-        families = repo.load_families(conn)
-        if family not in set(families["family"]):
-            raise UserError(f"family {family} is not in the database")
-        people = repo.load_people(conn)
-        results = repo.load_genetic_results(conn)
-        assessments = repo.load_assessments(conn)
-        variants = repo.load_variants(conn)
+        frames = SD.pedigree(conn, family)
+    people, results, assessments, variants = frames["people"], frames["results"], frames["assessments"], frames["variants"]
     if not (people["family"] == family).any():
         raise UserError(f"family {family} has no members recorded: nothing to draw")
     if out.exists() and not out.is_dir():

@@ -25,7 +25,6 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-import dataclasses
 import datetime as dt
 import math
 import re
@@ -38,7 +37,6 @@ from tracker.cli import recall as R
 from tracker.cli import review as RV
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
 from tracker.outfiles import output_path
-from tracker.engines.schedule import propose_recall
 from tracker.errors import UserError
 from tracker.outputs import ics
 from tracker.store.database import reading
@@ -281,68 +279,32 @@ def trajectory_report(
 
     Example: tracker report trajectory HV02-III-2 --out reports/ --as-of 2026-12-01
     """
-    from tracker.cli import recall as R
     from tracker.cli import review as RV
-    from tracker.services import review as SR
-    from tracker.services import risk as RK
-    from tracker.engines import family_state as fs
-    from tracker.engines import review, risk, trends
+    from tracker.cli.common import parse_day
+    from tracker.engines import review
     from tracker.outputs import trajectory_pdf as T
-    from tracker.store import repository as repo
+    from tracker.services import documents as SD
+    from tracker.services.recall import recall_rules
 
-    on = R._day(as_of, "--as-of", dt.date.today())
-    conf, rule_set, policy = R._recall_rules(settings, guideline)
+    on = parse_day(as_of, "--as-of", dt.date.today())
+    conf, rule_set, policy = recall_rules(settings, guideline)
     gid = rule_set.id
     if out.exists() and not out.is_dir():
         raise UserError(f"--out {out} is a file; give a folder")
     engine = open_store(db)
     with reading(engine) as conn:
-        frames = R._load(conn)
-        measures = repo.load_measures(conn)
-    labels = dict(zip(measures["code"], measures["label"]))
-    people = frames.people
-    if person not in set(people["person"]):
-        raise UserError(f"unknown person {person!r}")
-    family = people.loc[people["person"] == person, "family"].iloc[0]
-
-    # --- the review, as `tracker person`, on the records up to --as-of
-    studies = fs.records_up_to(frames.studies, "study_date", on)
-    assessments = fs.records_up_to(frames.assessments, "assessment_date", on)
-    results = fs.records_up_to(frames.results, "test_date", on)
-    variants = fs.records_up_to(frames.variants, "classified_on", on)
-    ctx = review.clinical_context(people[people["family"] == family], results, variants, assessments)
-    rel, pos = SR.status_sets(ctx)
-    kw = dict(guideline=gid, relative_of_affected=rel, genotype_positive=pos)
-    mine = studies[studies["person"] == person] if studies is not None and len(studies) else None
-    m = review.build_measurements(people, mine) if mine is not None and len(mine) else None
-    m = review.mark_pregnancy(m, assessments) if m is not None else None
-    a = t = conv = None
-    if m is not None and len(m):
-        a = review.assess_measurements(m, **kw)
-        t = review.trend_table(a, **kw, clinic_repeatability=conf.repeatability or None, horizon_years=horizon)
-        conv = review.conversions(a)
-    identity = {k: SR.clean(v) for k, v in SR.person_identity(person, people, ctx, on).items()}
-    trend_records = SR.records(t, SR.TREND_JSON_KEYS) if t is not None else []
+        data = SD.trajectory(conn, person, on, conf, rule_set, policy, horizon)
+    family, m, a, conv, pr, rec = data.family, data.m, data.assessed, data.conversions, data.risk, data.recall
+    labels, identity, g = data.labels, data.identity, data.guideline
+    trend_records = data.trend_records
     trend_rows = {r["measure"]: r for r in trend_records}
-    g = SR.guideline(dataclasses.replace(conf, guideline=gid))
-
-    # --- the recall proposal, as `tracker recall`
-    st = R._family_state(frames, family, on)
-    states, trend_note = R._with_trends(frames, {st.family: st}, gid, conf, on)
-    st = states[st.family]
-    if person in st.states:
-        rec = R._proposal_dict(propose_recall(st.states[person], rule_set, policy, on), st)
-    else:
-        rec = R._unscheduled_dict(person, st, on, gid)
+    trend_note = data.trend_note
     needs = ics.needs_words(rec["needs"])
     if rec["consider"]:
         needs += f" (consider: {ics.needs_words(rec['consider'])})"
     rec.update(rule_set_title=rule_set.title, policy=policy.point, needs_text=needs,
                notes_shown=[n for n in rec["notes"] if n not in rec["reason"]] + [trend_note["note"]])  # fmt: skip
 
-    # --- risk
-    pr = RK.person_risk(person, people[people["family"] == family], assessments, identity.get("affected_status"), on,
-                        assessed=a)
     risk_shown = risk_section(pr)
 
     short = gid.replace("_", " ").upper().replace("AHA ACC", "AHA/ACC")

@@ -1,0 +1,348 @@
+"""One person's recall (`tracker recall PERSON`) and the family data it is built from, as plain data.
+
+Reads only the scope asked for: a person's recall reads their family's records (people,
+variants, genetic results, assessments, studies, open reclassification tasks). A family's state
+uses its own members only: a parent link to someone recorded in another family is dropped with a
+note (:func:`tracker.engines.family_state.build_family_state`), so no other family is read.
+Shared by `tracker recall`, `tracker cascade`, `tracker reclassify`, the worklist and the
+documents (:mod:`tracker.services.documents`). Heavy modules are loaded where used.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+from dataclasses import dataclass
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from sqlalchemy import Connection, select
+
+from tracker.engines.schedule import CAUTIONS, Policy, Proposal, never_screened_text, propose_recall
+from tracker.errors import UserError
+from tracker.rules import available_rule_sets, load_rule_set
+from tracker.settings import Settings, load_settings
+from tracker.store.models import ImpactItem, Person
+
+if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
+    import numpy as np
+    import pandas as pd
+    from tracker.engines import family_state as fs
+    from tracker.store.repository import Scope
+
+
+def _iso(d: dt.date | None) -> str | None:
+    return d.isoformat() if d is not None else None
+
+
+def _recall_rules(settings_path: Path | None, guideline: str | None) -> tuple[Settings, Any, Policy]:
+    settings = load_settings(settings_path)
+    gid = guideline or settings.guideline
+    if gid not in available_rule_sets():
+        raise UserError(f"--guideline: {gid!r} is not a rule set (available: {', '.join(available_rule_sets())})")
+    return settings, load_rule_set(gid), Policy(point=settings.policy)
+
+
+recall_rules = _recall_rules
+
+
+@dataclass
+class _Frames:
+    families: pd.DataFrame
+    people: pd.DataFrame
+    variants: pd.DataFrame
+    results: pd.DataFrame
+    assessments: pd.DataFrame
+    studies: pd.DataFrame
+    pending: frozenset[str]
+
+
+def _load(conn: Connection, scope: Scope | None = None) -> _Frames:
+    """The frames a family state is built from, for the families in ``scope`` (default: the cohort)."""
+    from tracker.store import repository as repo
+
+    return _Frames(
+        families=repo.load_families(conn, scope),
+        people=repo.load_people(conn, scope),
+        variants=repo.load_variants(conn, scope),
+        results=repo.load_genetic_results(conn, scope),
+        assessments=repo.load_assessments(conn, scope),
+        studies=repo.load_studies(conn, entered=False, scope=scope),
+        pending=frozenset(_open_task_people(conn, scope)),
+    )
+
+
+load = _load
+
+
+def _family_state(frames: _Frames, family: str, as_of: dt.date | None) -> fs.FamilyState:
+    from tracker.engines import family_state as fs
+
+    if family not in set(frames.families["family"]):
+        raise UserError(f"unknown family {family!r}")
+    if family not in set(frames.people["family"]):
+        raise UserError(f"family {family!r} has no members recorded")
+    return fs.build_family_state(
+        family, frames.people, frames.variants, frames.results, frames.assessments, frames.studies,
+        reclassification_pending=frames.pending, as_of=as_of,
+    )  # fmt: skip
+
+
+# --------------------------------------------------------------------------- trend modifiers
+
+
+TREND_CHUNK_PEOPLE = 2_000  # people per batch of the trend engine in _with_trends (memory, not results)
+
+
+def _with_trends(
+    frames: _Frames, states: dict[str, fs.FamilyState], rule_set_id: str, settings: Settings, as_of: dt.date
+) -> tuple[dict[str, fs.FamilyState], dict]:
+    """Fill progression / projected crossing from the trend engine, if it is installed."""
+    import numpy as np
+    import pandas as pd
+    from tracker.engines import family_state as fs
+
+    try:
+        from tracker.engines import repeatability, review
+        from tracker.normals.criteria import RULE_SETS as CRITERIA
+
+        build, flags = review.build_measurements, review.trend_flags
+    except (ImportError, AttributeError):
+        return states, {
+            "applied": False,
+            "note": "trend modifiers not applied: the trend engine (tracker.engines.review) is not available; "
+            "intervals ignore progression and projected threshold crossing",
+        }
+    if rule_set_id not in CRITERIA:
+        return states, {
+            "applied": False,
+            "note": f"trend modifiers not applied: no diagnostic-criteria set for rule set {rule_set_id} "
+            "(guidelines are never blended); intervals ignore progression and projected crossing",
+        }
+    codes = {p for s in states.values() for p in s.states}
+    studies = fs.records_up_to(frames.studies[frames.studies["person"].isin(codes)], "study_date", as_of)
+    if studies is None or not studies["value"].notna().any():
+        return states, {"applied": True, "note": "trend modifiers: no measured values to trend"}
+    relatives = set().union(*(fs.first_degree_of_affected(s) for s in states.values()))
+    positive = set().union(*(fs.genotype_positive(s) for s in states.values()))
+    # Trends are per person: computed a few thousand people at a time, so that memory stays
+    # bounded on a registry-sized cohort (the results are the same as in one go).
+    # Each row is given its batch number once (people in order of first appearance), so a batch
+    # is a slice of one stable sort, not a scan of the whole cohort per batch.
+    person_no, people = pd.factorize(studies["person"].to_numpy(dtype=object))
+    in_batch = _batches(person_no // TREND_CHUNK_PEOPLE)
+    listed = pd.Index(people).get_indexer(frames.people["person"].to_numpy(dtype=object))
+    members = _batches(np.where(listed >= 0, listed // TREND_CHUNK_PEOPLE, -1))
+    parts = []
+    for b in range(-(-len(people) // TREND_CHUNK_PEOPLE)):
+        chunk = studies.iloc[in_batch.get(b, [])]
+        parts.append(flags(
+            review.mark_pregnancy(build(frames.people.iloc[members.get(b, [])], chunk), frames.assessments),
+            guideline=rule_set_id,
+            relative_of_affected=relatives, genotype_positive=positive,
+            clinic_repeatability=settings.repeatability or None,
+        ))  # fmt: skip
+    placeholders = sorted(m for m, r in repeatability.load_repeatability(settings.repeatability or None).items()
+                          if r.status == "placeholder")  # fmt: skip
+    return fs.apply_trends_to_states(states, pd.concat(parts, ignore_index=True)), {
+        "applied": True,
+        "note": f"trend modifiers from the measurement trends ({rule_set_id} thresholds): progression beyond "
+        "measurement variability and projected threshold crossing shorten the interval",
+        "lsc_note": (f"the least significant changes of {', '.join(placeholders)} are packaged placeholders, not the "
+                     "lab's own: set them in the settings [repeatability]") if placeholders else "",
+    }  # fmt: skip
+
+
+PROGRESSION_PREFIX = "Progression on the measurement trends"
+
+
+def _progression_text(rule_text: str, tests: str) -> str:
+    """The rule set's progression modifier text with its opening clause replaced by the tests that
+    fired (slope, last change, z-score slope) and their figures; the interval clause is kept."""
+    if not tests or rule_text.startswith(PROGRESSION_PREFIX):
+        return rule_text
+    tail = rule_text.split(": ", 1)[1] if ": " in rule_text else rule_text
+    return f"{PROGRESSION_PREFIX} ({tests}): {tail}"
+
+
+def with_trend_texts(p: Proposal, facts: fs.PersonFacts) -> Proposal:
+    """``p`` with the progression modifier naming the test that fired, and each "criteria not
+    assessable" review flag in its notes (flag ``criteria_not_assessable``)."""
+    fired = tuple(
+        dataclasses.replace(f, text=_progression_text(f.text, facts.progression_tests))
+        if f.kind == "modifier" and f.code == "progression" else f
+        for f in p.fired
+    )  # fmt: skip
+    review = tuple(x for x in facts.review_flags.split(" | ") if x and x not in p.notes)
+    flags = p.flags + (("criteria_not_assessable",) if facts.review_flags and "criteria_not_assessable" not in p.flags
+                       else ())  # fmt: skip
+    return dataclasses.replace(p, fired=fired, flags=flags, notes=p.notes + review)
+
+
+def _batches(batch: np.ndarray) -> dict[int, np.ndarray]:
+    """Batch number -> positions of its rows, in their original order (negative numbers: no batch)."""
+    import numpy as np
+
+    order = np.argsort(batch, kind="stable")
+    keys, starts = np.unique(batch[order], return_index=True)
+    ends = np.append(starts[1:], len(order))
+    return {int(k): order[a:e] for k, a, e in zip(keys, starts, ends) if k >= 0}
+
+
+def _open_task_people(conn: Connection, scope: Scope | None = None) -> set[str]:
+    stmt = (
+        select(Person.code)
+        .join(ImpactItem, ImpactItem.person_id == Person.id)
+        .where(ImpactItem.done_on.is_(None))
+    )
+    if scope is not None and not scope.cohort:
+        stmt = stmt.where(Person.family_id.in_(scope.family_ids()))
+    return {r[0] for r in conn.execute(stmt).all()}
+
+
+def _reason(p: Proposal) -> tuple[str, str]:
+    """Plain reason and sources: triggers, the governing rule or release, applied modifiers, overrides."""
+    order = {"trigger": 0, "rule": 1, "release": 1, "modifier": 2, "override": 3}
+    fired = sorted((f for f in p.fired if f.applied and f.kind in order), key=lambda f: order[f.kind])
+    if not fired:
+        return "; ".join(p.notes[1:] or p.notes), ""
+    return "; ".join(f.text.rstrip(".") for f in fired) + ".", "; ".join(dict.fromkeys(f.source for f in fired))
+
+
+def _proposal_dict(p: Proposal, st: fs.FamilyState) -> dict:
+    person = p.person_code
+    ps, facts, g = st.states[person], st.facts[person], st.genotypes[person]
+    p = with_trend_texts(p, facts)
+    reason, source = _reason(p)
+    return {
+        "person": person,
+        "family": st.family,
+        "as_of": p.today.isoformat(),
+        "rule_set": p.rule_set_id,
+        "status": p.status,
+        "due": _iso(p.due),
+        "days_overdue": p.days_overdue,
+        "never_screened": p.never_screened,
+        "eligible_since": _iso(p.eligible_since),
+        "gap_reason": p.gap_reason,
+        "waiting": never_screened_text(p),
+        "interval_months": p.interval_months,
+        "routine_due": _iso(p.routine_due),
+        "rule_id": p.rule_id,
+        "needs": list(p.needs),
+        "consider": list(p.consider),
+        "reason": reason,
+        "source": source,
+        "fired": [
+            {"kind": f.kind, "code": f.code, "text": f.text, "source": f.source, "tag": f.tag, "applied": f.applied}
+            for f in p.fired
+        ],
+        "triggers": list(p.triggers),
+        "flags": list(p.flags),
+        "notes": list(p.notes),
+        "state": {
+            "genotype": ps.genotype,
+            "genotype_reason": g.reason,
+            "phenotype": ps.phenotype,
+            "affected_status": facts.affected_status,
+            "family_features": sorted(ps.family_features),
+            "last_visit": _iso(ps.last_visit),
+            "athlete": ps.athlete,
+            "contact_status": ps.contact_status,
+            "vital_status": ps.vital_status,
+            "progression": ps.progression,
+            "projected_crossing_age_years": ps.projected_crossing_age_years,
+            "trend_reasons": facts.trend_reasons,
+            "progression_tests": facts.progression_tests,
+            "review_flags": [x for x in facts.review_flags.split(" | ") if x],
+        },
+        "cautions": list(p.cautions),
+    }
+
+
+def _release_basis(st: fs.FamilyState, person: str) -> dict | None:
+    """What a genotype-negative person's release relied on (None if not released on a P/LP class)."""
+    from tracker.domain.genetics import release_basis, result_date_for_release
+
+    if st.variant is None or person not in st.genotypes or st.genotypes[person].status != "non_carrier":
+        return None
+    b = release_basis(st.variant.history, result_date_for_release(st.genotypes, person))
+    if b is None:
+        return None
+    return {"relied_class": b.relied_class, "classified_on": _iso(b.classified_on), "plp_since": _iso(b.plp_since),
+            "released_on": _iso(b.released_on), "words": b.words()}  # fmt: skip
+
+
+def _unscheduled_dict(person: str, st: fs.FamilyState, on: dt.date, rule_set_id: str) -> dict:
+    why = st.not_scheduled[person]
+    return {
+        "person": person, "family": st.family, "as_of": on.isoformat(), "rule_set": rule_set_id,
+        "status": "not_scheduled", "due": None, "days_overdue": None, "never_screened": False, "eligible_since": None,
+        "gap_reason": None, "waiting": None, "interval_months": None, "routine_due": None,
+        "rule_id": None, "needs": [], "consider": [], "reason": why, "source": "", "fired": [], "triggers": [],
+        "flags": [], "notes": [why], "state": None, "cautions": list(CAUTIONS),
+    }  # fmt: skip
+
+
+def _risk_scd(frames: _Frames, person: str, family: str, st: fs.FamilyState, on: dt.date) -> dict:
+    """HCM Risk-SCD of the person from the records up to ``on``, as `tracker person` shows it."""
+    from tracker.services import risk as RK
+    from tracker.engines import family_state as fs
+
+    people = frames.people[frames.people["family"] == family]
+    facts = st.facts.get(person)
+    pr = RK.person_risk(person, people, fs.records_up_to(frames.assessments, "assessment_date", on),
+                        facts.affected_status if facts else None, on,
+                        studies=fs.records_up_to(frames.studies, "study_date", on))  # fmt: skip
+    return pr.as_dict()
+
+
+# --------------------------------------------------------------------------- one person's recall
+
+
+def person_family(conn: Connection, code: str) -> str:
+    """The family code of person ``code`` (not removed), else a one-line error."""
+    from tracker.store.models import Family
+
+    row = conn.execute(select(Family.code).join(Person, Person.family_id == Family.id)
+                       .where(Person.code == code, Person.removed_at.is_(None))).first()  # fmt: skip
+    if row is None:
+        raise UserError(f"unknown person {code!r}")
+    return row[0]
+
+
+def family_scope(family: str) -> Scope:
+    """The records a family's state reads: that family's own (links to other families are not used)."""
+    from tracker.store.repository import Scope
+
+    return Scope.families([family])
+
+
+def recall_data(frames: _Frames, person: str, on: dt.date, conf: Settings, rule_set, policy: Policy) -> dict:
+    """One person's recall (what `tracker recall --json` prints) from ``frames`` (the person's family,
+    or more)."""
+    fam = frames.people.loc[frames.people["person"] == person, "family"]
+    if fam.empty:
+        raise UserError(f"unknown person {person!r}")
+    st = _family_state(frames, fam.iloc[0], on)
+    states, trend = _with_trends(frames, {st.family: st}, rule_set.id, conf, on)
+    st = states[st.family]
+    if person in st.states:
+        result = _proposal_dict(propose_recall(st.states[person], rule_set, policy, on), st)
+    else:
+        result = _unscheduled_dict(person, st, on, rule_set.id)
+    result["rule_set_title"] = rule_set.title
+    result["policy"] = policy.point
+    result["trend_modifiers"] = trend
+    result["release_basis"] = _release_basis(st, person)
+    result["risk_scd"] = _risk_scd(frames, person, fam.iloc[0], st, on)
+    return result
+
+
+def person_recall(conn: Connection, person: str, on: dt.date, conf: Settings, rule_set, policy: Policy,
+                  scope: Scope | None = None) -> dict:  # fmt: skip
+    """One person's recall, reading only their family's records (``scope``: read these families
+    instead, e.g. the cohort ``Scope()``; the result is the same)."""
+    if scope is None:
+        scope = family_scope(person_family(conn, person))
+    return recall_data(_load(conn, scope), person, on, conf, rule_set, policy)
