@@ -362,10 +362,6 @@ def test_demo_commands_agree_on_every_person(run, tmp_path):
     assert not bad, "commands disagree:\n" + "\n".join(bad)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "open: in a family without a P/LP variant the recall screens every blood relative of an affected "
-    "member (HV03-IV-1, HV03-IV-2: grandchildren of the proband through an unaffected parent), while the "
-    "cascade plan and the letter list first-degree relatives (second-degree only through a deceased one)"))
 def test_everyone_recalled_for_screening_is_on_the_cascade_plan(run, tmp_path):
     db = str(tmp_path / "demo.sqlite")
     assert run("demo", db=db).code == 0

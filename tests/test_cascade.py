@@ -267,10 +267,16 @@ def test_esc_second_degree_through_deceased_relative():
     s = by_person(esc.screening)
     assert s["UNC"].categories == ("second_degree_via_deceased",)
     assert {"GM", "GF"} <= set(s)
-    assert "COUSIN" not in s  # third degree
+    # third degree: not a guideline category; listed only because the family has no P/LP variant, so
+    # the recall schedule screens every blood relative of an affected member (common practice, said so)
+    assert s["COUSIN"].categories == ("blood_relative_of_affected",)
+    assert "third-degree relative of affected PRO" in s["COUSIN"].reason and "common practice" in s["COUSIN"].source
     assert "MUM" in s
     aha = plan_cascade(p, g, None, ON, "aha_acc_2020", affected={"PRO": "affected"})
-    assert "UNC" not in aha.people("screening")
+    # AHA/ACC has no second-degree-through-deceased rule: UNC is listed only as a blood relative of an
+    # affected member of a family without a P/LP variant (common practice, said so), never by the ESC rule
+    a = by_person(aha.screening)
+    assert a["UNC"].categories == ("blood_relative_of_affected",)
 
 
 def test_new_carrier_extends_the_cascade():

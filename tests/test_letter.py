@@ -337,9 +337,10 @@ def test_vus_family_letter_offers_no_predictive_test():
     assert "uncertain significance" in text
     assert "No predictive (cascade) testing for a VUS" in text
     assert "your chance of having this variant" not in text
-    # a grandchild is not on the ESC 2023 screening list (first-degree relatives of the affected)
-    with pytest.raises(L.LetterRefused, match="not on the clinical screening list"):
-        _prepare("QF1-III-1", variant=vus)
+    # a grandchild is beyond the guideline's first degree, but without a P/LP variant every blood relative
+    # of an affected member is screened (common practice, as the recall schedule): the letter is written
+    plan, _ = _prepare("QF1-III-1", variant=vus)
+    assert plan.kind == "vus" and not plan.flags["first_degree"]
 
 
 def test_no_variant_family_letter_is_screening_only():

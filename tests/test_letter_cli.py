@@ -249,7 +249,7 @@ def test_no_variant_letter_is_screening_only(run, demo_db, tmp_path):
         ("HV02-IV-3", "adopted in"),
         ("HV01-IV-3", "not at risk: tested non-carrier"),  # no reminder for a released non-carrier
         ("HV01-III-1", "affected"),
-        ("HV03-IV-1", "not on the clinical screening list"),
+        ("HV03-III-3", "not a blood relative of an affected member"),  # married in, family without P/LP
         ("NOPE-1", "unknown person"),
     ],
 )

@@ -112,6 +112,22 @@ CAUTION = (
 if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
     import pandas as pd
 
+# Screening beyond first-degree relatives in a family without a P/LP variant (plan_cascade).
+SRC_BLOOD_RELATIVES = (
+    "beyond the first degree: common practice, no guideline number (the recall schedule screens every blood "
+    "relative of an affected member while the family's cause is unknown); the treating clinician decides "
+    "whether to offer it"
+)
+_ORDINAL = {2: "second", 3: "third", 4: "fourth", 5: "fifth"}
+
+
+def _degree(pedigree: Pedigree, a: str, q: str) -> int | None:
+    """Degree of relationship of ``q`` to ``a`` (None: not related by blood)."""
+    if pedigree.kinship(a, q) <= 0:
+        return None
+    return pedigree.relationship(a, q).degree
+
+
 ADULT_AGE_YEARS = 18  # adult / child boundary for ESC 2023 strength wording: common practice
 
 
@@ -582,6 +598,22 @@ def plan_cascade(
                     indicate(q, "second_degree_via_deceased",
                              f"second-degree relative of affected {a} through deceased {d}",
                              rules.second_degree_source)
+    if not actionable and affected_people:
+        # Without a P/LP variant the genotype predicts nothing, so the recall schedule screens
+        # every blood relative of an affected member (family_state.at_risk_by_blood); the plan
+        # lists the same people, saying where that goes beyond the guideline's first degree.
+        for q in people:
+            if q in indicated or is_affected(q) or not _listable(pedigree, q):
+                continue
+            nearest = min(affected_people, key=lambda a: (_degree(pedigree, a, q), a))
+            if _degree(pedigree, nearest, q) is None:
+                continue
+            indicate(q, "blood_relative_of_affected",
+                     f"{_ORDINAL.get(_degree(pedigree, nearest, q), 'more distant')}-degree relative of affected "
+                     f"{nearest} in a family "
+                     "without a P/LP variant: a normal screen of a relative in between does not exclude the "
+                     "family's cause (age-related penetrance); screened while the cause is unknown",
+                     f"{rules.screening_source}; {SRC_BLOOD_RELATIVES}")
     if actionable:
         for p in people:
             st = statuses[p]
