@@ -138,9 +138,15 @@ def _store_message(exc: Exception) -> str | None:
     reason = unreadable_reason(exc) if isinstance(exc, DBAPIError) else None
     if reason is not None:
         return f"{current_database()}: {reason}"
+    if isinstance(exc, DBAPIError) and not isinstance(exc, OperationalError):
+        # Data the store refused (a constraint, a type, a length): the server's own words can quote the
+        # row, names and dates included, so only the kind of error is shown.
+        kind = type(getattr(exc, "orig", None) or exc).__name__
+        return f"the database refused the data ({kind}); nothing was written"
     if not isinstance(exc, OperationalError):
         return None
     text = str(exc.orig) if getattr(exc, "orig", None) is not None else str(exc)
+    text = (text.strip().splitlines() or [""])[0]  # the first line: later ones (DETAIL) may quote the row
     low = text.lower()
     if "locked" in low or "busy" in low or "lock timeout" in low:
         return "the database is busy (another user is writing); nothing was written: try again"
