@@ -20,10 +20,10 @@ from conftest import dump
 from tracker.domain.dates import parse_partial_date
 from tracker.errors import UserError
 from tracker.io.columns import MAX_TEXT, parse
-from tracker.io.layouts import LAYOUTS, STORED_AS, TEXT_KINDS, stored_length
-from tracker.regular_file import NotReadable, open_regular, read_regular
+from tracker.io.layouts import LAYOUTS
 
 TODAY = dt.date(2026, 12, 1)
+TEXT_KINDS = ("text", "code", "regex", "choice")  # cells held as text by the store
 PEOPLE_HEADER = ",".join(LAYOUTS["people"].names)
 NAME, SURNAME, BIRTH = "Ysolde", "Tremarrow", "1987-03-19"  # distinctive invented name and date
 
@@ -168,6 +168,8 @@ def test_possible_pedigree_dates_are_accepted(row, loaded_db, run, tmp_path):
 
 
 def test_every_text_column_of_every_layout_is_limited_by_its_store_column():
+    from tracker.io.layouts import STORED_AS, stored_length
+
     for kind, layout in LAYOUTS.items():
         for col in layout.columns:
             if col.kind not in TEXT_KINDS:
@@ -281,6 +283,8 @@ def test_settings_key_files_templates_and_rule_sets_refuse_special_files(fifo, t
 
 
 def test_a_file_replaced_by_a_pipe_after_the_check_is_refused(fifo, monkeypatch):
+    from tracker.regular_file import NotReadable, open_regular, read_regular
+
     regular = os.stat(__file__)
     real_stat = os.stat
     monkeypatch.setattr(os, "stat", lambda p, *a, **k: regular if str(p) == str(fifo) else real_stat(p, *a, **k))
