@@ -41,6 +41,10 @@ from pathlib import Path
 
 from tracker.domain.genetics import DEFAULT_REREVIEW_MONTHS
 from tracker.errors import UserError
+from tracker.regular_file import NotReadable, read_regular_text
+
+# Settings and key files are small; a larger file is refused unread (engineering default).
+SMALL_FILE_BYTES = 16 * 1024**2
 
 ENV_VAR = "TRACKER_SETTINGS"
 DEFAULT_FILE = "tracker.toml"
@@ -88,8 +92,10 @@ class Privacy:
         if self.pseudonym_key_file is not None:
             p = Path(self.pseudonym_key_file)
             try:
-                text = p.read_text(encoding="utf-8").strip()
-            except (OSError, UnicodeDecodeError):
+                text = read_regular_text(p, SMALL_FILE_BYTES).strip()
+            except NotReadable as exc:
+                raise UserError(f"[privacy] pseudonym_key_file {p} cannot be read: {exc.reason}") from None
+            except UnicodeDecodeError:
                 raise UserError(f"[privacy] pseudonym_key_file {p} cannot be read") from None
             where = f"the key file {p}"
         elif self.pseudonym_key is not None:
@@ -146,11 +152,15 @@ def load_settings(path: str | Path | None = None) -> Settings:
             return Settings()
         chosen = DEFAULT_FILE
     p = Path(chosen)
-    if not p.is_file():
-        raise UserError(f"settings file {p} not found")
     try:
-        data = tomllib.loads(p.read_text(encoding="utf-8"))
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        text = read_regular_text(p, SMALL_FILE_BYTES)
+    except NotReadable as exc:
+        raise UserError(f"settings file {p} " + ("not found" if exc.reason == "file not found" else exc.reason)) from None
+    except UnicodeDecodeError:
+        raise UserError(f"{p.name}: not valid TOML (not UTF-8 text)") from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
         raise UserError(f"{p.name}: not valid TOML ({exc})") from None
     return parse_settings(data, p.name, base=p.parent)
 

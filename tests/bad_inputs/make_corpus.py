@@ -23,8 +23,10 @@ H = {
 
 def person(code="T1-20", family="FAM-T1", sex="female", birth="1999-05-05", vital="alive", death="",
            mother="T1-03", father="T1-04", placeholder="no", proband="no", twin="", twin_type="",
-           adoption="", contact="contactable", contact_date="2024-01-01", notes="", given=""):  # fmt: skip
-    return ",".join([code, family, given, "", sex, "", birth, vital, death, mother, father, placeholder,
+           adoption="", contact="contactable", contact_date="2024-01-01", notes="", given="Zephyrine",
+           surname="Quarrendale"):  # fmt: skip
+    # Invented, distinctive names: no message may repeat them (tests/test_private_messages.py).
+    return ",".join([code, family, given, surname, sex, "", birth, vital, death, mother, father, placeholder,
                      proband, twin, twin_type, adoption, contact, contact_date, notes])  # fmt: skip
 
 
@@ -60,10 +62,11 @@ def ass(person="T1-07", date="2024-02-02", status="unaffected", symptoms="", ath
 cases = []
 
 
-def add(name, kind, body, row, column, fragment, header=None, enc=None):
+def add(name, kind, body, row, column, fragment, header=None, enc=None, link=None):
+    """One case; ``link``: the file is a symbolic link to that path instead (a special file)."""
     text = (header if header is not None else H[kind]) + "\n" + body + ("\n" if body else "")
     data = text.encode(enc) if enc else text.encode("utf-8")
-    cases.append((name, kind, data, row, column, fragment))
+    cases.append((name, kind, link if link is not None else data, row, column, fragment))
 
 
 add("people_unknown_column.csv", "people", person() + ",x", 1, "nickname", "unknown column", header=H["people"] + ",nickname")
@@ -81,7 +84,8 @@ add("people_bad_sex.csv", "people", person(sex="F"), 2, "sex_at_birth", "not one
 add("people_mother_male.csv", "people", person(mother="T1-04", father=""), 2, "mother", "sex at birth male")
 add("people_child_before_parent.csv", "people", person(birth="1950-01-01", father=""), 2, "birth_date", "before the birth of the mother")
 add("people_own_ancestor.csv", "people",
-    person(code="T1-30", mother="T1-31", father="") + "\n" + person(code="T1-31", mother="T1-30", father=""),
+    person(code="T1-30", birth="", mother="T1-31", father="") + "\n" + person(code="T1-31", birth="", mother="T1-30",
+                                                                             father=""),
     2, "mother/father", "own ancestor")
 add("people_death_before_birth.csv", "people", person(vital="deceased", death="1990-01-01"), 2, "death_date", "before the date of birth")
 add("people_death_but_alive.csv", "people", person(death="2020-01-01"), 2, "death_date", "vital_status is not deceased")
@@ -185,6 +189,65 @@ add("assessments_bad_status.csv", "assessments", ass(status="affected?"), 2, "af
 add("assessments_bad_yesno.csv", "assessments", ass(ath="sometimes"), 2, "competitive_athlete", "not yes or no")
 add("assessments_missing_date.csv", "assessments", ass(date=""), 2, "assessment_date", "is empty")
 
+# Digits of other scripts (Arabic-Indic, full-width) are not digits of a date, number, code or HGVS.
+AR = str.maketrans("0123456789", "٠١٢٣٤٥٦٧٨٩")
+FW = str.maketrans("0123456789", "０１２３４５６７８９")
+add("people_arabic_indic_year.csv", "people", person(birth="2999".translate(AR), mother="", father=""), 2,
+    "birth_date", "not an ISO 8601 date")
+add("people_fullwidth_death.csv", "people", person(vital="deceased", death="2500-01-01".translate(FW)), 2,
+    "death_date", "not an ISO 8601 date")
+add("people_arabic_indic_contact_date.csv", "people", person(contact_date="2024-01-01".translate(AR)), 2,
+    "contact_status_date", "not an ISO 8601 date")
+add("people_fullwidth_death_age.csv", "people", person_record(vital="deceased", death="", death_age="20".translate(FW)),
+    2, "death_age", "not a whole number of years", header=H["people_record"])
+add("variants_arabic_indic_transcript.csv", "variants", variant(transcript="NM_000256.3".translate(AR)), 2,
+    "transcript", "versioned transcript")
+add("variants_fullwidth_hgvs.csv", "variants", variant(hgvs_c="c.1504C>T".translate(FW)), 2, "hgvs_c",
+    "not an HGVS coding change")
+add("variants_arabic_indic_classified_on.csv", "variants", variant(on="2023-01-01".translate(AR)), 2, "classified_on",
+    "not an ISO 8601 date")
+add("genetic_fullwidth_variant.csv", "genetic-results", gr(variant="NM_000256.3:c.1504C>T".translate(FW)), 2,
+    "variant", "transcript:c.change")
+add("studies_arabic_indic_value.csv", "studies", study(value="12.0".translate(AR)), 2, "value", "not a number")
+add("studies_fullwidth_date.csv", "studies", study(date="2025-01-10".translate(FW)), 2, "study_date",
+    "not an ISO 8601 date")
+# Plausibility across the pedigree (T1-03 born 1968-04-12; T1-04 born 1966-09-30; T1-02 died 2015-06-01;
+# T1-01 died in 2001, a year-only date).
+add("people_mother_aged_4.csv", "people", person(birth="1972-06-01", father=""), 2, "mother", "under 5 years old")
+add("people_father_aged_2.csv", "people", person(birth="1968-12-01", mother=""), 2, "father", "under 9 years old")
+add("people_born_years_after_mother_death.csv", "people", person(birth="2020-01-01", mother="T1-02", father=""), 2,
+    "birth_date", "after the death of the mother")
+add("people_born_years_after_father_death.csv", "people", person(birth="2003-06-01", mother="", father="T1-01"), 2,
+    "birth_date", "after the death of the father")
+add("people_contact_before_birth.csv", "people", person(contact_date="1990-01-01"), 2, "contact_status_date",
+    "before the date of birth")
+add("people_mother_aged_90.csv", "people",
+    person(code="T1-21", birth="1990", mother="T1-20", father="") + "\n" + person(birth="1900", mother="", father=""),
+    2, "mother", "over 80 years old")
+# Longer than the store's column: refused by the check on every backend.
+add("variants_long_transcript.csv", "variants", variant(transcript="NM_" + "0" * 4995 + ".3"), 2, "transcript",
+    "longer than 40 characters")
+add("variants_long_hgvs_position.csv", "variants", variant(hgvs_c="c." + "1" * 300 + "C>T"), 2, "hgvs_c",
+    "longer than 200 characters")
+add("variants_ten_digit_position.csv", "variants", variant(hgvs_c="c.1234567890C>T"), 2, "hgvs_c",
+    "not an HGVS coding change")
+add("people_long_family_name.csv", "people", person(surname="Quarrendale" * 20), 2, "family_name",
+    "longer than 200 characters")
+add("people_long_gender_identity.csv", "people", person() .replace(",female,,", ",female," + "g" * 101 + ",", 1), 2,
+    "gender_identity", "longer than 100 characters")
+add("genetic_long_lab.csv", "genetic-results", gr(lab="L" * 201), 2, "lab", "longer than 200 characters")
+add("studies_long_unit.csv", "studies", study(unit="m" * 21), 2, "unit", "longer than 20 characters")
+add("families_long_condition.csv", "families", "FAM-T9," + "c" * 201 + ",", 2, "condition", "longer than 200")
+# Special files: only regular files are read (a device never ends, a pipe blocks).
+add("people_device.csv", "people", "", None, None, "is a device", link="/dev/zero")
+# A file without its header row: the first record is never shown as column names.
+add("people_no_header.csv", "people", person(code="T1-21"), 1, None, "is not a header row",
+    header=person(birth="1987-03-19"))
+add("people_name_as_column.csv", "people", person() + ",x", 1, "header cell 20", "unknown column",
+    header=H["people"] + ",Zephyrine Quarrendale")
+add("people_date_as_column.csv", "people", person() + ",x", 1, "header cell 20", "unknown column",
+    header=H["people"] + ",1987-03-19")
+
 if __name__ == "__main__":
     for old in HERE.glob("*.csv"):
         old.unlink()
@@ -193,7 +256,10 @@ if __name__ == "__main__":
         fh.write("# Each must be refused with one line naming the file, row and column, exit 1,\n")
         fh.write("# and leave the database unchanged.\n\n")
         for name, kind, data, row, column, frag in cases:
-            (HERE / name).write_bytes(data)
+            if isinstance(data, str):
+                (HERE / name).symlink_to(data)
+            else:
+                (HERE / name).write_bytes(data)
             fh.write(f"[[case]]\nfile = {json.dumps(name)}\nkind = {json.dumps(kind)}\n")
             if row is not None:
                 fh.write(f"row = {row}\n")

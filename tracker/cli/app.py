@@ -139,18 +139,41 @@ def _os_message(exc: OSError) -> str:
     return f"{name}: {exc.strerror}" if name else str(exc.strerror or exc)
 
 
+def _driver_error(exc: Exception) -> bool:
+    """An error class of a database driver (DB-API ``Error``) that reached the command unwrapped."""
+    import sqlite3
+
+    classes: list[type] = [sqlite3.Error]
+    try:
+        import psycopg
+
+        classes.append(psycopg.Error)
+    except ImportError:  # PostgreSQL support not installed
+        pass
+    return isinstance(exc, tuple(classes))
+
+
 def _store_message(exc: Exception) -> str | None:
     from sqlalchemy.exc import DBAPIError, OperationalError
 
     from tracker.cli.common import current_database
     from tracker.store.database import unreadable_reason
 
-    reason = unreadable_reason(exc) if isinstance(exc, DBAPIError) else None
+    raw = _driver_error(exc)  # raised by the driver itself (PostgreSQL COPY), not wrapped by SQLAlchemy
+    reason = unreadable_reason(exc) if isinstance(exc, DBAPIError) or raw else None
     if reason is not None:
         return f"{current_database()}: {reason}"
-    if not isinstance(exc, OperationalError):
+    operational = isinstance(exc, OperationalError) or (
+        raw and any(c.__name__ == "OperationalError" for c in type(exc).__mro__))
+    if (isinstance(exc, DBAPIError) or raw) and not operational:
+        # Data the store refused (a constraint, a type, a length): the server's own words can quote the
+        # row, names and dates included, so only the kind of error is shown.
+        kind = type(getattr(exc, "orig", None) or exc).__name__
+        return f"the database refused the data ({kind}); nothing was written"
+    if not operational:
         return None
     text = str(exc.orig) if getattr(exc, "orig", None) is not None else str(exc)
+    text = (text.strip().splitlines() or [""])[0]  # the first line: later ones (DETAIL) may quote the row
     low = text.lower()
     if "locked" in low or "busy" in low or "lock timeout" in low:
         return "the database is busy (another user is writing); nothing was written: try again"

@@ -19,8 +19,9 @@ DAY = "day"
 YEAR = "year"
 PRECISIONS = (DAY, YEAR)
 
-_YEAR_ONLY = re.compile(r"^(\d{4})$")
-_FULL = re.compile(r"^(\d{4})-(\d{2})-(\d{2})$")
+# ASCII digits only (\d would also take Arabic-Indic or full-width digits, which int() reads).
+_YEAR_ONLY = re.compile(r"^([0-9]{4})$")
+_FULL = re.compile(r"^([0-9]{4})-([0-9]{2})-([0-9]{2})$")
 
 # Mean length of a Gregorian year in days (365.2425 = 146097 / 400).
 DAYS_PER_YEAR = 365.2425

@@ -33,23 +33,27 @@ PROTECTED = r"^'*[=+\-@\t\r]"
 
 MAX_TEXT = 4000  # characters in a free-text cell; longer is refused as a likely paste error
 
+# Digits are ASCII 0-9 in every pattern: Python's \d also matches other scripts' digits (Arabic-Indic,
+# full-width ...), which would slip past the date, year and HGVS checks and be stored.
 CODE_RE = r"[A-Za-z0-9][A-Za-z0-9._-]{0,39}"
 # HGVS syntax pre-check (HGVS nomenclature, varnomen; pattern as in standards.md section 5 [V]).
-TRANSCRIPT_RE = r"(?:(?:NM|NR|NC|NG|XM|XR)_\d+\.\d+)|(?:LRG_\d+(?:t\d+)?)|(?:ENST\d{11}\.\d+)"
-_POS = r"[-*]?\d+(?:[+-]\d+)?"
+TRANSCRIPT_RE = r"(?:(?:NM|NR|NC|NG|XM|XR)_[0-9]+\.[0-9]+)|(?:LRG_[0-9]+(?:t[0-9]+)?)|(?:ENST[0-9]{11}\.[0-9]+)"
+# A position has at most 9 digits: the longest human chromosome (chromosome 1, GRCh38) is 248,956,422
+# bp [M] (Genome Reference Consortium GRCh38 assembly statistics; verify), so a longer number is no position.
+_POS = r"[-*]?[0-9]{1,9}(?:[+-][0-9]{1,9})?"
 HGVS_C_RE = (
     rf"[cgnm]\.{_POS}(?:_{_POS})?"
     r"(?:[ACGT]>[ACGT]|del(?:[ACGT]+)?|dup(?:[ACGT]+)?|ins[ACGT]+|delins[ACGT]+|inv)"
 )
 _AA = "Ala|Arg|Asn|Asp|Cys|Gln|Glu|Gly|His|Ile|Leu|Lys|Met|Phe|Pro|Ser|Thr|Trp|Tyr|Val|Sec|Pyl|Ter"
 HGVS_P_RE = (
-    rf"p\.\(?(?:(?:{_AA})\d+(?:(?:{_AA})|\*|=|fs(?:Ter\d+|\*\d+)?|del|dup|"
-    rf"(?:{_AA})fs(?:Ter\d+|\*\d+)?)|\?|=|0)\)?"
+    rf"p\.\(?(?:(?:{_AA})[0-9]+(?:(?:{_AA})|\*|=|fs(?:Ter[0-9]+|\*[0-9]+)?|del|dup|"
+    rf"(?:{_AA})fs(?:Ter[0-9]+|\*[0-9]+)?)|\?|=|0)\)?"
 )
 GENE_RE = r"[A-Z][A-Z0-9-]{0,19}"
 
-_ISO_DAY = r"\d{4}-\d{2}-\d{2}"
-_YEAR = r"\d{4}"
+_ISO_DAY = r"[0-9]{4}-[0-9]{2}-[0-9]{2}"
+_YEAR = r"[0-9]{4}"
 
 
 @dataclass
@@ -78,6 +82,11 @@ class Column:
     max_length: int = MAX_TEXT
     positive: bool = False
     extra: dict = field(default_factory=dict)
+
+
+def _not_ascii(cells: pd.Series) -> pd.Series:
+    """True for a cell holding any character outside ASCII."""
+    return cells.str.contains(r"[^\x00-\x7f]", regex=True).fillna(False).astype(bool)
 
 
 def _no_errors(index) -> pd.Series:
@@ -128,9 +137,13 @@ def _parse_distinct(col: Column, cells: pd.Series, today: dt.date) -> tuple[pd.S
     errors = _no_errors(cells.index)
     if col.required:
         errors[empty] = "is empty (a value is required)"
+    # Longer than the store's column (or the paste-error limit): refused for every kind of cell, so
+    # that no backend is ever asked to hold more than it can (the message is the same everywhere).
+    too_long = cells.str.len() > col.max_length
+    errors[too_long] = f"is longer than {col.max_length} characters"
     handler = _HANDLERS[col.kind]
     values, bad = handler(col, cells, empty, today)
-    # Required-but-empty beats a type error; keep the first reason.
+    # Required-but-empty and too long beat a type error; keep the first reason.
     errors = errors.where(errors.notna(), bad)
     if col.private:
         # Never repeat a name or a date of birth: drop a quoted copy of the cell from the reason.
@@ -246,6 +259,7 @@ def _number(col, cells, empty, today):
 
     bad = _no_errors(cells.index)
     numbers = pd.to_numeric(cells.where(~empty, None), errors="coerce").astype(float)
+    numbers[_not_ascii(cells)] = np.nan  # digits of other scripts are not read as numbers
     not_number = numbers.isna() & ~empty
     hint = cells[not_number].str.contains(",", regex=False)
     bad[not_number] = [
@@ -272,6 +286,7 @@ def _years(col, cells, empty, today):
 
     bad = _no_errors(cells.index)
     numbers = pd.to_numeric(cells.where(~empty, None), errors="coerce").astype(float)
+    numbers[_not_ascii(cells)] = np.nan  # digits of other scripts are not read as numbers
     not_number = numbers.isna() & ~empty
     bad[not_number] = [f"{v[:40]!r} is not a whole number of years" for v in cells[not_number]]
     finite = numbers.notna() & np.isfinite(numbers)

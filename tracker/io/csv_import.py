@@ -10,7 +10,6 @@ Any problem stops the import before anything is written.
 from __future__ import annotations
 
 import datetime as dt
-import getpass
 import hashlib
 from dataclasses import dataclass
 from pathlib import Path
@@ -25,6 +24,7 @@ from tracker.io import validation
 from tracker.io.columns import partial_to_storage
 from tracker.io.layouts import IMPORT_ORDER, LAYOUTS, Layout
 from tracker.io.reading import InputRejected, Problem, read_table
+from tracker.regular_file import NotReadable, open_regular
 from tracker.store import repository as repo
 from tracker.store import audit
 from tracker.store.models import (
@@ -102,6 +102,7 @@ def import_file(
     several files; it is brought up to date with the rows this file adds.
     """
     today = today or (ctx.today if ctx is not None else dt.date.today())
+    user = audit.actor(user)  # checked (length) before anything is read or written
     with gc_paused():  # millions of short-lived cells and tuples, no cycles (see tracker.gcpause)
         ctx = ctx if ctx is not None else context(conn, today)
         checked = check_file(conn, kind, path, today, ctx)
@@ -151,7 +152,7 @@ def _record_run(conn: Connection, summary: ImportSummary, path: Path, user: str 
             file_name=path.name,
             sha256=digest,
             imported_at=dt.datetime.now(dt.timezone.utc).replace(tzinfo=None),
-            imported_by=user or getpass.getuser(),
+            imported_by=user,
             rows_read=summary.rows_read,
             rows_added=added,
         ),
@@ -162,11 +163,14 @@ def _record_run(conn: Connection, summary: ImportSummary, path: Path, user: str 
 
 
 def _sha256(path: Path) -> str:
-    """SHA-256 of a file, read in blocks (an input file can be hundreds of MB)."""
+    """SHA-256 of a file, read in blocks (an input file can be hundreds of MB); regular files only."""
     h = hashlib.sha256()
-    with path.open("rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            h.update(block)
+    try:
+        with open_regular(path) as fh:
+            for block in iter(lambda: fh.read(1 << 20), b""):
+                h.update(block)
+    except NotReadable as exc:  # replaced after it was read
+        raise InputRejected([Problem(path.name, None, None, exc.reason)]) from None
     return h.hexdigest()
 
 

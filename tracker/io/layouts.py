@@ -6,7 +6,7 @@ that the document and this module list the same columns.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from tracker.domain import vocabulary as V
 from tracker.io.columns import (
@@ -14,6 +14,7 @@ from tracker.io.columns import (
     GENE_RE,
     HGVS_C_RE,
     HGVS_P_RE,
+    MAX_TEXT,
     TRANSCRIPT_RE,
     Column,
 )
@@ -36,7 +37,7 @@ FAMILIES = Layout(
     "families.csv",
     (
         Column("family", "code", required=True),
-        Column("condition", "text", required=True, max_length=200),
+        Column("condition", "text", required=True),
         Column("notes", "text"),
     ),
     key=("family",),
@@ -48,10 +49,10 @@ PEOPLE = Layout(
     (
         Column("person", "code", required=True),
         Column("family", "code", required=True),
-        Column("given_name", "text", max_length=200, private=True),
-        Column("family_name", "text", max_length=200, private=True),
+        Column("given_name", "text", private=True),
+        Column("family_name", "text", private=True),
         Column("sex_at_birth", "choice", required=True, choices=V.SEX_AT_BIRTH),
-        Column("gender_identity", "text", max_length=100),
+        Column("gender_identity", "text"),
         Column("birth_date", "partial_date", private=True),
         Column("vital_status", "choice", required=True, choices=V.VITAL_STATUS),
         Column("death_date", "partial_date", private=True),
@@ -69,7 +70,7 @@ PEOPLE = Layout(
         Column("death_cause", "choice", choices=V.DEATH_CAUSES, header_optional=True),
         Column("death_age", "years", header_optional=True),
         Column("diagnosis_age", "years", header_optional=True),
-        Column("diagnosis_place", "text", max_length=200, header_optional=True),
+        Column("diagnosis_place", "text", header_optional=True),
         Column("icd_date", "partial_date", header_optional=True),
         Column("pacemaker_date", "partial_date", header_optional=True),
         # Added with schema revision 0009: an identifier from another system (e.g. the hospital number),
@@ -127,8 +128,8 @@ GENETIC_RESULTS = Layout(
             what="a variant as transcript:c.change (e.g. NM_000256.3:c.1504C>T)",
         ),
         Column("result", "choice", required=True, choices=V.TEST_RESULTS),
-        Column("lab", "text", max_length=200),
-        Column("report_reference", "text", max_length=200),
+        Column("lab", "text"),
+        Column("report_reference", "text"),
     ),
     key=("person", "test_date", "test_type", "variant"),
 )
@@ -164,20 +165,79 @@ STUDIES = Layout(
         Column("person", "code", required=True),
         Column("study_date", "date", required=True),
         Column("modality", "choice", required=True, choices=V.MODALITIES),
-        Column("site", "text", max_length=200),
+        Column("site", "text"),
         Column("height_cm", "number", positive=True),
         Column("weight_kg", "number", positive=True),
         Column("measure", "code"),
         Column("value", "number"),
-        Column("unit", "text", max_length=20),
+        Column("unit", "text"),
     ),
     key=("person", "study_date", "modality", "measure"),
 )
 
+# Where each text-like cell is stored ("table.column"): the store's column length is the cell's limit
+# (one source of truth, so a cell the store cannot hold is refused by the check, on every backend).
+# Text columns without a length keep the paste-error limit MAX_TEXT.
+STORED_AS = {
+    "families": {"family": "family.code", "condition": "family.condition", "notes": "family.notes"},
+    "people": {
+        "person": "person.code", "family": "family.code", "given_name": "person.given_name",
+        "family_name": "person.family_name", "sex_at_birth": "person.sex_at_birth",
+        "gender_identity": "person.gender_identity", "vital_status": "person.vital_status",
+        "mother": "person.code", "father": "person.code", "twin_of": "person.code", "twin_type": "person.twin_type",
+        "adoption": "person.adoption", "contact_status": "person.contact_status", "notes": "person.notes",
+        "death_cause": "person.death_cause", "diagnosis_place": "person.diagnosis_place",
+    },
+    "variants": {
+        "family": "family.code", "gene": "variant.gene", "transcript": "variant.transcript",
+        "hgvs_c": "variant.hgvs_c", "hgvs_p": "variant.hgvs_p", "zygosity": "variant.zygosity",
+        "acmg_class": "variant_classification.acmg_class", "reason": "variant_classification.reason",
+    },
+    "genetic-results": {
+        "person": "person.code", "variant": ("variant.transcript", "variant.hgvs_c"),
+        "test_type": "genetic_result.test_type", "result": "genetic_result.result", "lab": "genetic_result.lab",
+        "report_reference": "genetic_result.report_reference",
+    },
+    "assessments": {
+        "person": "person.code", "affected_status": "assessment.affected_status", "symptoms": "assessment.symptoms",
+        "notes": "assessment.notes",
+    },
+    "studies": {
+        "person": "person.code", "modality": "study.modality", "site": "study.site",
+        "measure": "measurement.measure_code", "unit": "measurement.entered_unit",
+    },
+}  # fmt: skip
+# Kinds of cell held as text (the others are dates, numbers and yes/no, held in typed columns).
+TEXT_KINDS = ("text", "code", "regex", "choice")
+
+
+def stored_length(where: str | tuple[str, ...]) -> int | None:
+    """The store's length limit for a "table.column" (a tuple: the parts joined by one ':')."""
+    from tracker.store.models import Base
+
+    if isinstance(where, tuple):
+        parts = [stored_length(w) for w in where]
+        return None if None in parts else sum(parts) + len(parts) - 1
+    table, column = where.split(".")
+    return getattr(Base.metadata.tables[table].c[column].type, "length", None)
+
+
+def _with_store_limits(layout: Layout) -> Layout:
+    cols = []
+    for col in layout.columns:
+        where = STORED_AS[layout.kind].get(col.name)
+        if col.kind in TEXT_KINDS and where is None:
+            raise AssertionError(f"{layout.kind}.{col.name}: no store column named in STORED_AS")
+        limit = stored_length(where) if where is not None else None
+        cols.append(replace(col, max_length=min(limit or MAX_TEXT, MAX_TEXT)))
+    return replace(layout, columns=tuple(cols))
+
+
 LAYOUTS = {
-    layout.kind: layout
+    layout.kind: _with_store_limits(layout)
     for layout in (FAMILIES, PEOPLE, VARIANTS, GENETIC_RESULTS, ASSESSMENTS, STUDIES)
 }
+FAMILIES, PEOPLE, VARIANTS, GENETIC_RESULTS, ASSESSMENTS, STUDIES = LAYOUTS.values()
 IMPORT_ORDER = tuple(LAYOUTS)
 
 __all__ = ["LAYOUTS", "IMPORT_ORDER", "Layout", "CODE_RE"]

@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 
 from tracker.io.layouts import Layout
+from tracker.regular_file import NotReadable, read_regular
 
 MAX_FILE_BYTES = 2 * 1024**3  # 2 GiB; larger files are refused before reading
 HEADER_PREFIX = 1 << 16  # characters first tried for reading the header record
@@ -51,13 +52,11 @@ def read_table(path: Path, layout: Layout) -> pd.DataFrame:
     an integer index equal to the spreadsheet row number.
     """
     name = path.name
-    if not path.exists():
-        raise InputRejected([Problem(name, None, None, "file not found")])
-    if path.is_dir():
-        raise InputRejected([Problem(name, None, None, "is a folder, not a CSV file")])
-    if path.stat().st_size > MAX_FILE_BYTES:
-        raise InputRejected([Problem(name, None, None, "file is larger than 2 GiB")])
-    raw = path.read_bytes()
+    try:  # regular files only: a pipe would block and a device never end
+        raw = read_regular(path, MAX_FILE_BYTES)
+    except NotReadable as exc:
+        reason = "is a folder, not a CSV file" if exc.reason.startswith("is a folder") else exc.reason
+        raise InputRejected([Problem(name, None, None, reason)]) from None
     if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
         raise InputRejected([Problem(name, None, None, "file is UTF-16 text; save it as UTF-8")])
     try:
@@ -190,24 +189,42 @@ def _check_header(name: str, header: list[str], layout: Layout) -> None:
         raise InputRejected(
             [Problem(name, 1, None, f"columns look separated by {shown}; the layout uses commas")]
         )
+    known = [h for h in header if h in expected]
+    if len(known) * 2 < len(header):
+        # Most of row 1 is not column names: a file without its header row (row 1 is then a record,
+        # whose names and dates are never repeated in a message).
+        raise InputRejected([Problem(
+            name, 1, None, f"is not a header row for {layout.kind}: {len(header) - len(known)} of its "
+            f"{len(header)} cells are not column names (the first row must name the columns: "
+            f"{', '.join(expected)})")])  # fmt: skip
     problems = []
     seen = set()
-    for h in header:
+    for i, h in enumerate(header, start=1):
         if h in seen:
-            problems.append(Problem(name, 1, h, "column appears twice in the header"))
+            problems.append(Problem(name, 1, _header_label(h, i), "column appears twice in the header"))
         seen.add(h)
-    unknown = [h for h in header if h not in expected]
     optional = {c.name for c in layout.columns if c.header_optional}
     missing = [c for c in expected if c not in header and c not in optional]
-    for h in unknown:
-        label = h if h else "(empty)"
-        problems.append(
-            Problem(name, 1, label, f"unknown column for {layout.kind} (expected: {', '.join(expected)})")
-        )
+    for i, h in enumerate(header, start=1):
+        if h in expected:
+            continue
+        problems.append(Problem(
+            name, 1, _header_label(h, i), f"unknown column for {layout.kind} (expected: {', '.join(expected)})"))  # fmt: skip
     for c in missing:
         problems.append(Problem(name, 1, c, f"missing column for {layout.kind}"))
     if problems:
         raise InputRejected(problems)
+
+
+# A header cell shown as itself: it looks like a column name (lowercase letters, digits, '_', '-', '/').
+# Anything else (a name, a date: perhaps a record in place of the header) is shown by its position only.
+_COLUMN_NAME = re.compile(r"[a-z][a-z0-9_/-]{0,39}")
+
+
+def _header_label(cell: str, position: int) -> str:
+    if not cell:
+        return "(empty)"
+    return cell if _COLUMN_NAME.fullmatch(cell) else f"header cell {position}"
 
 
 def _parse_records(name: str, text: str, width: int) -> pd.DataFrame:

@@ -258,6 +258,72 @@ def check_people(c: Checked, ctx: Context) -> None:
         c.note(int(r), "proband", f"family {fam!r} already has a proband")
 
     _check_cycles(c, everyone)
+    check_pedigree_dates(c, everyone)
+
+
+# Plausibility across a pedigree: data-entry limits that refuse only what is impossible.
+# Youngest mother: the youngest mother on record gave birth aged 5 years 7 months (case report, Lima,
+# 1939 [M], verify); a mother younger than 5 years at the birth is refused (common practice: a limit
+# below the youngest on record).
+MIN_MOTHER_AGE_YEARS = 5
+# Youngest father: fathers aged about 11-12 years are on record [M] (verify); a father younger than
+# 9 years at the birth is refused (common practice: a margin below the youngest on record).
+MIN_FATHER_AGE_YEARS = 9
+# Oldest mother: about 74 years on record (assisted conception) [M] (verify); older than 80 is refused
+# (common practice: a margin above the oldest on record). No upper limit is set for fathers.
+MAX_MOTHER_AGE_YEARS = 80
+# A child may be born after a parent's death within one pregnancy: conception at the latest on the day of
+# the father's death, and delivery after the mother's death with her body supported; a post-term
+# pregnancy is 42 completed weeks or more (WHO / ICD-10 definition [M], verify); 44 weeks (308 days)
+# is allowed (common practice: a margin beyond post-term).
+PREGNANCY_WINDOW_DAYS = 44 * 7
+
+
+def check_pedigree_dates(c: Checked, everyone: pd.DataFrame) -> None:
+    """A parent too young (or a mother too old) at a child's birth, a child born after a parent's death
+    beyond one pregnancy, and a contact-status date before birth.
+
+    Year-only dates stand for any day of their year: a row is refused only when every day the dates
+    allow is impossible.  Parent ages are checked for biological parents (not for a child adopted in,
+    whose mother and father may be the adoptive parents); the death check holds for every parent.
+    """
+    rows = c.rows
+    births = {p: _partial(b) for p, b in zip(everyone.index, everyone["birth_date"])}
+    deaths = {p: _partial(d) for p, d in zip(everyone.index, everyone["death_date"])}
+    window = dt.timedelta(days=PREGNANCY_WINDOW_DAYS)
+    for r, person, birth_iso, adoption, mother, father, contact in zip(
+        rows.index, rows["person"], rows["birth_date"], rows["adoption"], rows["mother"], rows["father"],
+        rows["contact_status_date"],
+    ):  # fmt: skip
+        birth = _partial(birth_iso)
+        if birth is None:
+            continue
+        if isinstance(contact, str) and dt.date.fromisoformat(contact) < birth.earliest():
+            c.note(int(r), "contact_status_date", "is before the date of birth")
+        for link, word, youngest, oldest in (("mother", "mother", MIN_MOTHER_AGE_YEARS, MAX_MOTHER_AGE_YEARS),
+                                             ("father", "father", MIN_FATHER_AGE_YEARS, None)):  # fmt: skip
+            parent = mother if link == "mother" else father
+            if not isinstance(parent, str) or parent == person or parent not in births:
+                continue
+            pb, pd_ = births[parent], deaths[parent]
+            if pb is not None and adoption != "in" and birth.latest() >= pb.earliest():  # (before: see above)
+                if _add_years(pb.earliest(), youngest) > birth.latest():
+                    c.note(int(r), link, f"the {word} ({parent}) is under {youngest} years old at this person's "
+                                         f"birth, below the youngest {word}s on record (data-entry limit)")
+                elif oldest is not None and _add_years(pb.latest(), oldest + 1) <= birth.earliest():
+                    c.note(int(r), link, f"the {word} ({parent}) is over {oldest} years old at this person's "
+                                         f"birth, above the oldest {word}s on record (data-entry limit)")
+            if pd_ is not None and birth.earliest() > pd_.latest() + window:
+                c.note(int(r), "birth_date", f"is more than {PREGNANCY_WINDOW_DAYS // 7} weeks after the death of "
+                                             f"the {word} ({parent})")
+
+
+def _add_years(day: dt.date, years: int) -> dt.date:
+    """The same day ``years`` later (29 February -> 28 February in a common year)."""
+    try:
+        return day.replace(year=day.year + years)
+    except ValueError:
+        return day.replace(year=day.year + years, day=28)
 
 
 def _check_cycles(c: Checked, everyone: pd.DataFrame) -> None:

@@ -124,7 +124,8 @@ from tracker.domain.genetics import ACTIONABLE_CLASSES, FamilyGenotypes
 from tracker.domain.pedigree import Pedigree
 from tracker.engines.cascade import ADULT_AGE_YEARS, RULE_SETS, age_for_rules, plan_cascade
 from tracker.errors import UserError
-from tracker.settings import Clinic
+from tracker.regular_file import NotReadable, read_regular_text
+from tracker.settings import SMALL_FILE_BYTES, Clinic
 
 TEMPLATE_DIR = Path(__file__).resolve().parent / "templates"
 DEFAULT_TEMPLATES = {
@@ -324,10 +325,10 @@ def parse_template(text: str, source: str) -> Template:
 def read_template(path: str | Path) -> Template:
     """Read and parse a template file (UTF-8)."""
     p = Path(path)
-    if not p.is_file():
-        raise UserError(f"template {p} not found")
     try:
-        text = p.read_text(encoding="utf-8")
+        text = read_regular_text(p, SMALL_FILE_BYTES)
+    except NotReadable as exc:
+        raise UserError(f"template {p} " + ("not found" if exc.reason == "file not found" else exc.reason)) from None
     except UnicodeDecodeError:
         raise UserError(f"template {p.name}: not UTF-8 text") from None
     return parse_template(text, p.name)

@@ -17,6 +17,7 @@ from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
 
+from tracker.regular_file import NotReadable, read_regular
 from tracker.rules.model import (
     ACTIONS,
     FAMILY_FEATURES,
@@ -111,8 +112,16 @@ def load_rule_set(rule_set_id: str) -> RuleSet:
 def load_rule_set_file(path: str | Path) -> RuleSet:
     """Load and validate a rule set from a TOML file (e.g. a local protocol)."""
     p = Path(path)
-    with p.open("rb") as fh:
-        data = tomllib.load(fh)
+    try:
+        text = read_regular(p, 16 * 1024**2).decode("utf-8")  # a rule set is small (engineering default)
+    except NotReadable as exc:
+        raise RuleSetError(str(p), [exc.reason]) from None
+    except UnicodeDecodeError:
+        raise RuleSetError(str(p), ["is not UTF-8 text"]) from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise RuleSetError(str(p), [f"is not valid TOML ({exc})"]) from None
     return build_rule_set(data, origin=str(p))
 
 

@@ -30,6 +30,7 @@ from typing import Any, TYPE_CHECKING
 
 from sqlalchemy import Connection, insert, select
 
+from tracker.errors import UserError
 from tracker.store.models import AuditEntry
 
 if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
@@ -41,6 +42,9 @@ ACTIONS = ("import", "edit", "remove", "reinstate", "reclassify", "task_done", "
 def actor(user: str | None) -> str:
     """The name recorded as who made a change: ``--user`` if given, else the OS user."""
     if user is not None and user.strip():
+        limit = AuditEntry.__table__.c.actor.type.length
+        if len(user.strip()) > limit:  # refused before any write, the same on every backend
+            raise UserError(f"option --user: longer than {limit} characters")
         return user.strip()
     try:
         return getpass.getuser()
