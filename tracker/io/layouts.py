@@ -187,6 +187,7 @@ STORED_AS = {
         "mother": "person.code", "father": "person.code", "twin_of": "person.code", "twin_type": "person.twin_type",
         "adoption": "person.adoption", "contact_status": "person.contact_status", "notes": "person.notes",
         "death_cause": "person.death_cause", "diagnosis_place": "person.diagnosis_place",
+        "external_id": "person.external_id",
     },
     "variants": {
         "family": "family.code", "gene": "variant.gene", "transcript": "variant.transcript",
