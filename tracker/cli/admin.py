@@ -140,6 +140,7 @@ def _check_findings(db, dc, checks, rereview_months: int) -> tuple[list, list]:
             findings += dc.record_findings(people)
             findings += dc.range_findings(studies, repo.load_measures(conn))
             findings += dc.placeholder_findings(people, studies, assessments, results)
+            findings += checks.rule_findings(conn)
             findings += _recall_findings(people, repo.load_variants(conn), results, assessments, studies)
             # re-review reminders: listed apart, not findings
             reminders = checks.variant_rereview_reminders(conn, dt.date.today(), rereview_months)
