@@ -499,19 +499,18 @@ def check_result_conflicts(c: Checked, ctx: Context) -> None:
     if not mine.any():
         return
     key = ["person", "test_date", "variant"]
-    parts = [rows.loc[mine, key + ["result"]]]
+    parts = []
     if ctx.results is not None and len(ctx.results):
         stored = ctx.results
-        parts.append(stored.loc[stored["result"].isin(["carrier", "non_carrier"]), key + ["result"]])
+        parts.append(stored.loc[stored["result"].isin(["carrier", "non_carrier"]), key + ["result"]].assign(_row=0))
+    parts.append(rows.loc[mine, key + ["result"]].assign(_row=rows.index[mine]))
     both = pd.concat(parts, ignore_index=True)
-    kinds = both.groupby(key, dropna=False)["result"].nunique()
-    conflicting = kinds[kinds > 1].index
-    if not len(conflicting):
-        return
-    bad = mine & pd.MultiIndex.from_frame(rows[key].astype(object)).isin(conflicting)
-    c.add(pd.Series(bad, index=rows.index), "result",
-          "carrier and non_carrier results for the same variant on the same day (in this file or stored); "
-          "one of them is wrong")
+    # Each row is compared with the first result of its person, day and variant (stored ones first).
+    first = both.groupby(key, dropna=False, sort=False)["result"].transform("first")
+    bad = (both["result"] != first) & (both["_row"] > 0)
+    for r in both.loc[bad, "_row"]:
+        c.note(int(r), "result", "carrier and non_carrier results for the same variant on the same day "
+                                 "(in this file or stored); one of them is wrong")
 
 
 def check_pregnancy_sex(c: Checked, ctx: Context) -> None:
