@@ -141,7 +141,10 @@ def _check_findings(db, dc, checks, rereview_months: int) -> tuple[list, list]:
             findings += dc.range_findings(studies, repo.load_measures(conn))
             findings += dc.placeholder_findings(people, studies, assessments, results)
             findings += checks.rule_findings(conn)
-            findings += _recall_findings(people, repo.load_variants(conn), results, assessments, studies)
+            # Families whose links cannot form a pedigree are reported above; recall needs a pedigree.
+            broken = {f.where.removeprefix("family ") for f in findings if f.check == "pedigree"}
+            findings += _recall_findings(people[~people["family"].isin(broken)], repo.load_variants(conn), results,
+                                         assessments, studies)  # fmt: skip
             # re-review reminders: listed apart, not findings
             reminders = checks.variant_rereview_reminders(conn, dt.date.today(), rereview_months)
     return findings, reminders

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import numpy as np
+import pandas as pd
 from sqlalchemy import Connection, text
 
 from tracker.domain.consistency import Finding
@@ -181,6 +183,15 @@ def _inspect(conn: Connection):
     return inspect(conn)
 
 
+def _cells(values) -> np.ndarray:
+    """Stored values as CSV cells (:func:`tracker.io.columns.format_cell`), formatted once per distinct value."""
+    from tracker.io.columns import format_cell
+
+    codes, distinct = pd.factorize(values.astype(object).to_numpy(dtype=object), use_na_sentinel=True)
+    texts = np.array([format_cell(v) for v in distinct] + [""], dtype=object)
+    return texts[codes]  # code -1 (empty) takes the last text, ""
+
+
 def rule_findings(conn: Connection, family: str | None = None, today=None) -> list[Finding]:
     """The importer's own row, cross-row and store checks run over the stored records.
 
@@ -214,9 +225,10 @@ def rule_findings(conn: Connection, family: str | None = None, today=None) -> li
             frame = frame[frame["family"] == family] if "family" in frame.columns and kind != "people" else frame
             frame = frame[frame["person"].isin(mine)] if "person" in frame.columns else frame
         layout = LAYOUTS[kind]
-        rows = frame[list(layout.names)].reset_index(drop=True).copy()
-        rows.index = rows.index + 2  # row numbers as in a file (row 1 is the header)
-        checked = validation.Checked(layout, kind, rows)
+        # Stored values back to CSV cells, read by the importer's own parsers, then its file checks.
+        cells = pd.DataFrame({c: _cells(frame[c]) for c in layout.names})
+        cells.index = cells.index + 2  # row numbers as in a file (row 1 is the header)
+        checked = validation.parse_cells(layout, kind, cells, ctx.today)
         validation.CHECKS[kind](checked, ctx)
         for p in checked.problems:
             key = where(frame.iloc[p.row - 2]) if p.row is not None else f"{kind}" + (f" of family {family}" if family else "")

@@ -127,7 +127,8 @@ def _refuse_new_findings(conn: Connection, family: str, before: set, renamed: tu
     if renamed is not None:
         new_key, old_key = renamed
         after = {(c, w.replace(new_key, old_key, 1) if w.startswith(new_key) else w, m) for c, w, m in after}
-    new = sorted(after - before)
+    # The importer's own messages first (the same words an import of the edited record would give).
+    new = sorted(after - before, key=lambda f: (f[0] != "rules", f))
     if new:
         check, where, message = new[0]
         more = f" (and {len(new) - 1} more)" if len(new) > 1 else ""
