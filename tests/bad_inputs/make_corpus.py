@@ -23,8 +23,10 @@ H = {
 
 def person(code="T1-20", family="FAM-T1", sex="female", birth="1999-05-05", vital="alive", death="",
            mother="T1-03", father="T1-04", placeholder="no", proband="no", twin="", twin_type="",
-           adoption="", contact="contactable", contact_date="2024-01-01", notes="", given="Zephyrine",
+           adoption="", contact=None, contact_date="2024-01-01", notes="", given="Zephyrine",
            surname="Quarrendale"):  # fmt: skip
+    if contact is None:  # a deceased person or a placeholder is not contactable
+        contact = "not_contacted" if vital == "deceased" or placeholder == "yes" else "contactable"
     # Invented, distinctive names: no message may repeat them (tests/test_private_messages.py).
     return ",".join([code, family, given, surname, sex, "", birth, vital, death, mother, father, placeholder,
                      proband, twin, twin_type, adoption, contact, contact_date, notes])  # fmt: skip
@@ -247,6 +249,40 @@ add("people_name_as_column.csv", "people", person() + ",x", 1, "header cell 20",
     header=H["people"] + ",Zephyrine Quarrendale")
 add("people_date_as_column.csv", "people", person() + ",x", 1, "header cell 20", "unknown column",
     header=H["people"] + ",1987-03-19")
+# Edits and imports share one set of checks: the body size an edit may not store either.
+add("studies_height_5000.csv", "studies", study(h="5000"), 2, "height_cm", "outside the plausible range")
+add("studies_weight_tiny.csv", "studies", study(w="0.001"), 2, "weight_kg", "outside the plausible range")
+# Refused on purpose (docs/data-layouts.md, "Refused on purpose").
+add("people_code_case_only.csv", "people", person(code="t1-05"), 2, "person", "differs only by case")
+add("people_code_case_in_file.csv", "people", person(code="T1-21") + "\n" + person(code="t1-21"), 3, "person",
+    "differs only by case")
+add("families_code_case_only.csv", "families", "fam-t2,hypertrophic cardiomyopathy,", 2, "family",
+    "differs only by case")
+add("people_mz_twins_two_families.csv", "people",
+    person(code="T1-22", birth="1975-05-05", twin="T2-01", twin_type="monozygotic"), 2, "twin_of",
+    "twins are recorded in one family")
+add("people_contactable_deceased.csv", "people", person(vital="deceased", death="2020-01-01", contact="contactable"),
+    2, "contact_status", "person is deceased")
+add("people_contactable_placeholder.csv", "people", person(placeholder="yes", contact="contactable"), 2,
+    "contact_status", "placeholder member")
+add("genetic_carrier_and_non_carrier_stored.csv", "genetic-results",
+    gr(person="T1-06", date="2020-04-01", ttype="diagnostic_panel", result="non_carrier"), 2, "result",
+    "carrier and non_carrier results for the same variant on the same day")
+add("genetic_carrier_and_non_carrier_in_file.csv", "genetic-results",
+    gr(person="T1-07", date="2024-02-02") + "\n" + gr(person="T1-07", date="2024-02-02", ttype="diagnostic_panel",
+                                                        result="non_carrier", ref="IGL-0101"), 3, "result",
+    "carrier and non_carrier results for the same variant on the same day")
+add("assessments_pregnant_male.csv", "assessments", ass(person="T1-05", date="2020-01-01", preg="yes"), 2,
+    "pregnant", "sex at birth is male")
+add("people_bidi_override_name.csv", "people", person(given="Ann\u202eeB"), 2, "given_name", "invisible formatting")
+add("people_zero_width_name.csv", "people", person(given="Ca\u200bi"), 2, "given_name", "invisible formatting")
+add("people_bidi_isolate_notes.csv", "people", person(notes="see \u2067letter\u2069"), 2, "notes",
+    "invisible formatting")
+add("studies_zero_width_site.csv", "studies", study(site="Invented\ufeff Vale"), 2, "site", "invisible formatting")
+add("assessments_bidi_symptoms.csv", "assessments", ass(symptoms="\u202adyspnoea"), 2, "symptoms",
+    "invisible formatting")
+add("variants_zero_width_reason.csv", "variants", variant(reason="re\u2060view", on="2024-01-01"), 2, "reason",
+    "invisible formatting")
 
 if __name__ == "__main__":
     for old in HERE.glob("*.csv"):

@@ -143,7 +143,11 @@ def _check_findings(db, dc, checks, rereview_months: int) -> tuple[list, list]:
             findings += dc.record_findings(people)
             findings += dc.range_findings(studies, repo.load_measures(conn))
             findings += dc.placeholder_findings(people, studies, assessments, results)
-            findings += _recall_findings(people, repo.load_variants(conn), results, assessments, studies)
+            findings += checks.rule_findings(conn)
+            # Families whose links cannot form a pedigree are reported above; recall needs a pedigree.
+            broken = {f.where.removeprefix("family ") for f in findings if f.check == "pedigree"}
+            findings += _recall_findings(people[~people["family"].isin(broken)], repo.load_variants(conn), results,
+                                         assessments, studies)  # fmt: skip
             # re-review reminders: listed apart, not findings
             reminders = checks.variant_rereview_reminders(conn, dt.date.today(), rereview_months)
     return findings, reminders

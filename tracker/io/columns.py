@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING
 
 import datetime as dt
 import math
+import re
 from dataclasses import dataclass, field
 
 from tracker.domain.dates import PartialDate, parse_partial_date
@@ -159,12 +160,36 @@ def _unquoted(reason: str | None, cell: str) -> str | None:
     return reason
 
 
+def _format_characters() -> str:
+    """A regex class of every Unicode format character (category Cf): bidirectional overrides and
+    isolates, zero-width spaces and joiners, the byte-order mark, soft hyphen, tags ..."""
+    import sys
+    import unicodedata
+
+    chars = [chr(i) for i in range(sys.maxunicode + 1) if unicodedata.category(chr(i)) == "Cf"]
+    return "[" + "".join(re.escape(c) for c in chars) + "]"
+
+
+# Invisible characters that change how text is shown or compared without being seen: refused in
+# every text cell (a name that reads the same on screen would be a different name in the store).
+INVISIBLE_RE = _format_characters()
+
+
+def _invisible_message(cell: str) -> str:
+    ch = re.search(INVISIBLE_RE, cell).group(0)
+    return (f"contains an invisible formatting character (U+{ord(ch):04X}, bidirectional control or "
+            "zero-width); retype the text without it")
+
+
 def _text(col, cells, empty, today):
     bad = _no_errors(cells.index)
     too_long = cells.str.len() > col.max_length
     bad[too_long] = f"is longer than {col.max_length} characters"
     control = cells.str.contains(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]", regex=True)
     bad[control & bad.isna()] = "contains control characters"
+    invisible = cells.str.contains(INVISIBLE_RE, regex=True)
+    if invisible.any():
+        bad[invisible & bad.isna()] = [_invisible_message(c) for c in cells[invisible & bad.isna()]]
     # Undo the exporter's protection against spreadsheet formulas ("'=..." -> "=...").
     escaped = cells.str.startswith("'") & cells.str.contains(PROTECTED, regex=True)
     cells = cells.where(~escaped, cells.str[1:])

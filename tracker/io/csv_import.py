@@ -69,6 +69,7 @@ def context(conn: Connection, today: dt.date) -> validation.Context:
         variants=repo.load_variants(conn),
         measures=repo.load_measures(conn),
         today=today,
+        results=repo.load_genetic_results(conn),
     )
 
 
@@ -80,10 +81,41 @@ def check_file(
     cells = read_table(path, layout)
     checked = validation.parse_cells(layout, path.name, cells, today)
     del cells
+    _note_removed(conn, kind, checked)
     validation.CHECKS[kind](checked, ctx if ctx is not None else context(conn, today))
     if checked.problems:
         raise InputRejected(checked.problems)
     return checked
+
+
+def _note_removed(conn: Connection, kind: str, checked: validation.Checked) -> None:
+    """Rows whose key is a removed person or study: refused, naming the reinstate command.
+
+    A removed record is kept in the store (hidden), so importing it again cannot add it a second
+    time; it comes back only with ``tracker reinstate``, which is audited.
+    """
+    if kind not in ("people", "studies", "assessments", "genetic-results"):
+        return
+    rows = checked.rows
+    gone = dict(conn.execute(select(Person.code, Person.removed_at).where(Person.removed_at.is_not(None))).all())
+    columns = ("person", "mother", "father", "twin_of") if kind == "people" else ("person",)
+    for col in columns:
+        hit = rows[col].isin(list(gone)) if gone else pd.Series(False, index=rows.index)
+        for r, code in zip(rows.index[hit.to_numpy()], rows[col][hit]):
+            what = "was removed" if col == "person" else f"{col} {code} was removed"
+            checked.note(int(r), col, f"{what} on {gone[code]:%Y-%m-%d}; to bring it back: "
+                                      f"tracker reinstate person {code} --reason \"...\"")
+    if kind != "studies":
+        return
+    stmt = (select(Person.code, Study.study_date, Study.modality, Study.removed_at)
+            .join(Person, Study.person_id == Person.id).where(Study.removed_at.is_not(None)))  # fmt: skip
+    studies = {(p, d.isoformat(), m): at for p, d, m, at in conn.execute(stmt).all()}
+    if not studies:
+        return
+    hit = pd.MultiIndex.from_frame(rows[["person", "study_date", "modality"]].astype(object)).isin(list(studies))
+    for r, p, d, m in zip(rows.index[hit], rows["person"][hit], rows["study_date"][hit], rows["modality"][hit]):
+        checked.note(int(r), "study_date", f"study {p} {d} {m} was removed on {studies[(p, d, m)]:%Y-%m-%d}; "
+                                           f"to bring it back: tracker reinstate study {p} {d} {m} --reason \"...\"")
 
 
 def import_file(

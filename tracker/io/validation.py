@@ -34,6 +34,8 @@ class Context:
     variants: pd.DataFrame
     measures: pd.DataFrame
     today: dt.date
+    # Stored genetic results (layout form), for results that contradict a stored one; None: not checked.
+    results: pd.DataFrame | None = None
 
 
 @dataclass
@@ -168,6 +170,7 @@ def _iso_days(values: pd.Series) -> pd.Series:
 
 def check_families(c: Checked, ctx: Context) -> None:
     check_duplicates(c)
+    check_code_case(c, "family", ctx.families["family"], "family")
 
 
 # --------------------------------------------------------------------------- people
@@ -259,6 +262,8 @@ def check_people(c: Checked, ctx: Context) -> None:
 
     _check_cycles(c, everyone)
     check_pedigree_dates(c, everyone)
+    check_code_case(c, "person", stored.index, "person")
+    check_person_links_and_contact(c, everyone)
 
 
 # Plausibility across a pedigree: data-entry limits that refuse only what is impossible.
@@ -433,11 +438,13 @@ def check_genetic_results(c: Checked, ctx: Context) -> None:
     missing = has_variant & fam.notna() & ~keyed.isin(known_variants)
     c.add(missing, "variant", [f"{v} is not a variant of family {f} (import variants first)"
                                for v, f in zip(rows["variant"][missing], fam[missing])])
+    check_result_conflicts(c, ctx)
 
 
 def check_assessments(c: Checked, ctx: Context) -> None:
     check_duplicates(c)
     _person_checks(c, ctx, "assessment_date")
+    check_pregnancy_sex(c, ctx)
 
 
 def check_studies(c: Checked, ctx: Context) -> None:
@@ -513,6 +520,79 @@ def check_studies(c: Checked, ctx: Context) -> None:
     rows["_entered_unit"] = entered_unit
     rows["_value"] = value
     rows["_unit"] = cat["unit"]
+
+
+# --------------------------------------------------------------------------- cases refused by decision
+# Each is described, with the reason it is refused, in docs/data-layouts.md ("Refused on purpose").
+
+
+def check_code_case(c: Checked, column: str, stored: pd.Series | pd.Index, kind: str) -> None:
+    """A code that differs only by upper/lower case from a stored code or from a code of an earlier row.
+
+    Codes are compared exactly, so "hv01-ii-3" beside "HV01-II-3" would be a second record of one person.
+    """
+    seen: dict[str, str] = {}
+    for code in pd.unique(pd.Series(stored, dtype=object).dropna().to_numpy(dtype=object)):
+        seen.setdefault(str(code).casefold(), str(code))
+    values = c.rows[column]
+    clash: dict[str, str] = {}
+    for code in pd.unique(values.dropna().to_numpy(dtype=object)):
+        other = seen.setdefault(str(code).casefold(), str(code))
+        if other != code:
+            clash[code] = other
+    if clash:
+        bad = values.isin(list(clash))
+        c.add(bad, column, [f"{v!r} differs only by case from {kind} {clash[v]!r} (stored or in an earlier row); "
+                            f"codes are compared exactly: use the same spelling" for v in values[bad]])
+
+
+def check_person_links_and_contact(c: Checked, everyone: pd.DataFrame) -> None:
+    """Twins recorded in two families; a placeholder or deceased person marked contactable."""
+    rows = c.rows
+    twin = rows["twin_of"]
+    known = twin.notna() & twin.isin(everyone.index) & rows["family"].notna()
+    other_family = twin[known].map(everyone["family"])
+    apart = pd.Series(False, index=rows.index)
+    apart[known] = (other_family != rows["family"][known]).to_numpy()
+    c.add(apart, "twin_of", [f"the co-twin {t!r} is in family {f!r}: twins are recorded in one family"
+                             for t, f in zip(twin[apart], twin[apart].map(everyone["family"]))])
+    contactable = rows["contact_status"] == "contactable"
+    c.add(contactable & rows["placeholder"].fillna(False).astype(bool), "contact_status",
+          "is contactable but the person is a placeholder member (not a real person to contact)")
+    c.add(contactable & (rows["vital_status"] == "deceased"), "contact_status",
+          "is contactable but the person is deceased (contact their relatives under their own records)")
+
+
+def check_result_conflicts(c: Checked, ctx: Context) -> None:
+    """A carrier and a non_carrier result for the same person and variant on the same day (in the
+    file, or against a stored result): one of them is wrong."""
+    rows = c.rows
+    mine = rows["result"].isin(["carrier", "non_carrier"]) & rows["variant"].notna()
+    if not mine.any():
+        return
+    key = ["person", "test_date", "variant"]
+    parts = []
+    if ctx.results is not None and len(ctx.results):
+        stored = ctx.results
+        parts.append(stored.loc[stored["result"].isin(["carrier", "non_carrier"]), key + ["result"]].assign(_row=0))
+    parts.append(rows.loc[mine, key + ["result"]].assign(_row=rows.index[mine]))
+    both = pd.concat(parts, ignore_index=True)
+    # Each row is compared with the first result of its person, day and variant (stored ones first).
+    first = both.groupby(key, dropna=False, sort=False)["result"].transform("first")
+    bad = (both["result"] != first) & (both["_row"] > 0)
+    for r in both.loc[bad, "_row"]:
+        c.note(int(r), "result", "carrier and non_carrier results for the same variant on the same day "
+                                 "(in this file or stored); one of them is wrong")
+
+
+def check_pregnancy_sex(c: Checked, ctx: Context) -> None:
+    """pregnant=yes for a person whose sex at birth is male."""
+    rows = c.rows
+    sex = rows["person"].map(ctx.people.set_index("person")["sex_at_birth"]) if len(ctx.people) else None
+    if sex is None:
+        return
+    c.add(rows["pregnant"].fillna(False).astype(bool) & (sex == "male"), "pregnant",
+          "is yes but the person's sex at birth is male")
 
 
 CHECKS = {

@@ -28,7 +28,7 @@ from tracker.domain import units
 from tracker.errors import UserError
 from tracker.io.columns import partial_to_storage, parse
 from tracker.io.layouts import ASSESSMENTS, PEOPLE, STUDIES
-from tracker.store import audit
+from tracker.store import audit, checks
 from tracker.store import repository as repo
 from tracker.store.models import Assessment, Family, Measure, Measurement, Person, Study
 
@@ -114,11 +114,21 @@ def _findings(conn: Connection, family: str) -> set[tuple[str, str, str]]:
     found = dc.pedigree_findings(people) + dc.date_findings(people, studies, assessments, results)
     found += dc.range_findings(studies, repo.load_measures(conn))
     found += dc.record_findings(people.reset_index(drop=True))
+    found += dc.placeholder_findings(people, studies, assessments, results)
+    # Every check an import of the edited records would make (row, cross-row and against the store).
+    found += checks.rule_findings(conn, family)
     return {(f.check, f.where, f.message) for f in found}
 
 
-def _refuse_new_findings(conn: Connection, family: str, before: set) -> None:
-    new = sorted(_findings(conn, family) - before)
+def _refuse_new_findings(conn: Connection, family: str, before: set, renamed: tuple[str, str] | None = None) -> None:
+    """Refuse the edit if it makes a finding that was not there before (``renamed``: the edited
+    record's key (new, old) when the edit changed it, so its old findings are not counted as new)."""
+    after = _findings(conn, family)
+    if renamed is not None:
+        new_key, old_key = renamed
+        after = {(c, w.replace(new_key, old_key, 1) if w.startswith(new_key) else w, m) for c, w, m in after}
+    # The importer's own messages first (the same words an import of the edited record would give).
+    new = sorted(after - before, key=lambda f: (f[0] != "rules", f))
     if new:
         check, where, message = new[0]
         more = f" (and {len(new) - 1} more)" if len(new) > 1 else ""
@@ -249,7 +259,10 @@ def edit_study(conn: Connection, person: str, study_date: str, modality: str, ch
     except IntegrityError:
         raise UserError(f"study {label}: another {modality.lower()} study of {person} is stored on "
                         f"{changes.get('study_date')}; nothing was changed") from None  # fmt: skip
-    _refuse_new_findings(conn, prow.family, checks_before)
+    renamed = None
+    if "study_date" in values:
+        renamed = (f"study {person} {values['study_date'].isoformat()} ", f"study {person} {study_date} ")
+    _refuse_new_findings(conn, prow.family, checks_before, renamed)
     new = _study_fields(conn, srow.id)
     before = {f: old[f] for f in changes}
     after = {f: new[f] for f in changes}
@@ -288,8 +301,10 @@ def edit_value(conn: Connection, person: str, study_date: str, modality: str, me
     if not cat.plausible_min <= stored <= cat.plausible_max:
         raise UserError(f"value: {number:g} {entered_unit} is outside the plausible range of {measure} "
                         f"({cat.plausible_min:g} to {cat.plausible_max:g} {cat.unit})")  # fmt: skip
+    checks_before = _findings(conn, prow.family)
     conn.execute(update(Measurement).where(Measurement.id == m.id).values(
         value=stored, unit=cat.unit, entered_value=number, entered_unit=entered_unit))
+    _refuse_new_findings(conn, prow.family, checks_before)
     before = {"measure": measure, "value": m.entered_value, "unit": m.entered_unit}
     after = {"measure": measure, "value": number, "unit": entered_unit}
     entry = audit.record(conn, action="edit", table="measurement", row_id=m.id, family=prow.family, person=person,
@@ -326,7 +341,9 @@ def edit_assessment(conn: Connection, person: str, assessment_date: str, changes
         raise UserError(f"assessment {label}: no such assessment")
     old = _assessment_fields(conn, aid)
     values = {f: _cell(f, ASSESSMENT_FIELDS[f], text, today) for f, text in changes.items()}
+    checks_before = _findings(conn, prow.family)
     conn.execute(update(Assessment).where(Assessment.id == aid).values(**values))
+    _refuse_new_findings(conn, prow.family, checks_before)
     new = _assessment_fields(conn, aid)
     before = {f: old[f] for f in changes}
     after = {f: new[f] for f in changes}
