@@ -259,7 +259,7 @@ add("people_code_case_in_file.csv", "people", person(code="T1-21") + "\n" + pers
 add("families_code_case_only.csv", "families", "fam-t2,hypertrophic cardiomyopathy,", 2, "family",
     "differs only by case")
 add("people_mz_twins_two_families.csv", "people",
-    person(code="T1-22", birth="1975-05-05", twin="T2-01", twin_type="monozygotic"), 2, "twin_of",
+    person(code="T1-22", birth="1975-05-05", mother="", father="", twin="T2-01", twin_type="monozygotic"), 2, "twin_of",
     "twins are recorded in one family")
 add("people_contactable_deceased.csv", "people", person(vital="deceased", death="2020-01-01", contact="contactable"),
     2, "contact_status", "person is deceased")

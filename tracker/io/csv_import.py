@@ -176,6 +176,7 @@ def import_cells(
 def _record_run(conn: Connection, summary: ImportSummary, path: Path, user: str | None) -> None:
     """The import_run row and the audit entry of one imported file (in the import's transaction)."""
     kind, added, already = summary.kind, summary.rows_added, summary.rows_already_stored
+    user = audit.actor(user)  # every import path (CSV, FHIR, DICOM SR) records who imported
     digest = _sha256(path)
     conn.execute(
         insert(ImportRun),
