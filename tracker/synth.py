@@ -678,6 +678,8 @@ def generate(families: int, seed: int) -> Cohort:
         # Recorded fields of schema revision 0006: not generated (empty).
         "death_cause": None, "death_age": None, "diagnosis_age": None, "diagnosis_place": None, "icd_date": None,
         "pacemaker_date": None,
+        # The identifier from another system (schema revision 0009): not generated (empty).
+        "external_id": None,
     })  # fmt: skip
 
     # ---- families.csv and variants.csv
