@@ -78,7 +78,14 @@ from reportlab.pdfgen import canvas
 from tracker.domain.dates import PartialDate, completed_years, parse_partial_date
 from tracker.domain.genetics import ACTIONABLE_CLASSES, genotype_statuses
 from tracker.domain.pedigree import Pedigree, _blank  # one definition of an empty cell
-from tracker.outputs.pedigree_layout import Box, PedigreeLayout, PlacedPerson, layout_pedigree, roman
+from tracker.outputs.pedigree_layout import (
+    Box,
+    PedigreeLayout,
+    PlacedPerson,
+    clip_interval,
+    layout_pedigree,
+    roman,
+)
 
 FONT = "Helvetica"
 FONT_BOLD = "Helvetica-Bold"
@@ -418,22 +425,7 @@ class Mark:
 
 def _clip_interval(seg: tuple[float, float, float, float], box: Box) -> tuple[float, float] | None:
     """Parameter interval of ``seg`` inside the closed ``box`` (Liang-Barsky), or None."""
-    x0, y0, x1, y1 = seg
-    t0, t1 = 0.0, 1.0
-    dx, dy = x1 - x0, y1 - y0
-    for p, q in ((-dx, x0 - box.x0), (dx, box.x1 - x0), (-dy, y0 - box.y0), (dy, box.y1 - y0)):
-        if abs(p) < 1e-15:
-            if q < 0:
-                return None
-            continue
-        r = q / p
-        if p < 0:
-            t0 = max(t0, r)
-        else:
-            t1 = min(t1, r)
-        if t0 > t1:
-            return None
-    return t0, t1
+    return clip_interval(*seg, box)
 
 
 def _cut(seg: tuple[float, float, float, float], holes: list[Box]) -> list[tuple[float, float, float, float]]:

@@ -1564,12 +1564,14 @@ def segments_cross(a: Segment, b: Segment) -> bool:
     return not (_is_end(a, hit[1], tol) or _is_end(b, hit[1], tol))
 
 
-def _clip(seg: Segment, box: Box, eps: float = _EPS) -> tuple[float, float] | None:
-    """Parameter interval [t0, t1] of the segment inside the closed box (Liang-Barsky), or None."""
+def clip_interval(x0: float, y0: float, x1: float, y1: float, box: Box,
+                  eps: float = 0.0) -> tuple[float, float] | None:
+    """Parameter interval [t0, t1] of the segment (x0, y0)-(x1, y1) inside the closed box, grown by
+    ``eps`` on every side (Liang-Barsky), or None."""
     t0, t1 = 0.0, 1.0
-    dx, dy = seg.x1 - seg.x0, seg.y1 - seg.y0
-    for p, q in ((-dx, seg.x0 - (box.x0 - eps)), (dx, (box.x1 + eps) - seg.x0),
-                 (-dy, seg.y0 - (box.y0 - eps)), (dy, (box.y1 + eps) - seg.y0)):
+    dx, dy = x1 - x0, y1 - y0
+    for p, q in ((-dx, x0 - (box.x0 - eps)), (dx, (box.x1 + eps) - x0),
+                 (-dy, y0 - (box.y0 - eps)), (dy, (box.y1 + eps) - y0)):
         if abs(p) < 1e-15:
             if q < 0:
                 return None
@@ -1582,6 +1584,11 @@ def _clip(seg: Segment, box: Box, eps: float = _EPS) -> tuple[float, float] | No
         if t0 > t1:
             return None
     return t0, t1
+
+
+def _clip(seg: Segment, box: Box, eps: float = _EPS) -> tuple[float, float] | None:
+    """Parameter interval [t0, t1] of the segment inside the closed box (Liang-Barsky), or None."""
+    return clip_interval(seg.x0, seg.y0, seg.x1, seg.y1, box, eps)
 
 
 def segment_meets_box(seg: Segment, box: Box) -> bool:
