@@ -741,9 +741,9 @@ def trend_table(
     t["criteria_not_assessable"] = t["criteria_flags"] != ""
     a = all_rows
     conv = conversions(a).set_index("person") if a["measure"].isin(DIAGNOSTIC_MEASURES).any() else None
-    t["converted"] = t["person"].map(conv["ever_met"]).fillna(False).astype(bool) if conv is not None else False
+    t["converted"] = t["person"].map(conv["ever_met"]).eq(True).to_numpy(dtype=bool) if conv is not None else False
     t["conversion_date"] = t["person"].map(conv["first_met_date"]) if conv is not None else None
-    t["review_flag"] = t["person"].map(conv["review_flag"]).fillna(False).astype(bool) if conv is not None else False
+    t["review_flag"] = t["person"].map(conv["review_flag"]).eq(True).to_numpy(dtype=bool) if conv is not None else False
     t["first_met_measures"] = t["person"].map(conv["first_met_measures"]) if conv is not None else ""
     t["concern"] = (8 * t["crossing_within_horizon"] + 4 * t["progressing"] + 2 * t["review_flag"]
                     + 2 * t["criteria_not_assessable"] + t["converted"]).astype(int)  # fmt: skip
