@@ -30,7 +30,6 @@ from tracker.store.database import locate, make_engine, reading, writing
 csv_import = lazy_module("tracker.io.csv_import")
 export = lazy_module("tracker.io.export")
 pseudonymise = lazy_module("tracker.io.pseudonymise")
-summary = lazy_module("tracker.outputs.summary")
 repo = lazy_module("tracker.store.repository")
 
 ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all", "fhir", "dicom-sr")}, type=str)
@@ -362,7 +361,7 @@ def _refuse_other_families(db: str | None, location, folder: Path) -> None:
     "Only the demo": every family and person code in the database is one of the demo's
     (records added to demo people since still count as the demo).
     """
-    from sqlalchemy import inspect, text
+    from tracker.services.cohort import stored_codes
 
     if location.sqlite_path is not None and (
         not location.sqlite_path.exists() or location.sqlite_path.stat().st_size == 0
@@ -370,11 +369,10 @@ def _refuse_other_families(db: str | None, location, folder: Path) -> None:
         return
     engine = engine_for(db)
     with engine.connect() as conn:
-        tables = set(inspect(conn).get_table_names())
-        if "family" not in tables:
-            return
-        families = {r[0] for r in conn.execute(text("SELECT code FROM family"))}
-        people = {r[0] for r in conn.execute(text("SELECT code FROM person"))} if "person" in tables else set()
+        codes = stored_codes(conn)
+    if codes is None:
+        return
+    families, people = codes
     others = sorted(families - _demo_codes(folder, "families.csv", "family")) + sorted(
         people - _demo_codes(folder, "people.csv", "person")
     )
@@ -388,16 +386,10 @@ def _refuse_other_families(db: str | None, location, folder: Path) -> None:
 
 
 def _summary(engine) -> dict:
+    from tracker.services.cohort import cohort_summary
+
     with reading(engine) as conn:
-        fams = repo.load_families(conn)
-        people = repo.load_people(conn)
-        variants = repo.load_variants(conn)
-        results = repo.load_genetic_results(conn)
-        studies = repo.load_studies(conn)
-    return {
-        "totals": summary.totals(people, studies, fams),
-        "families": summary.family_rows(fams, people, variants, results, studies),
-    }
+        return cohort_summary(conn)
 
 
 def _print_summary(result: dict) -> None:

@@ -3,8 +3,7 @@
 Thin: parsing, rendering and exit codes. ``recall``, ``cascade`` and ``reclassify`` get their data
 from the service layer (:mod:`tracker.services.recall`, :mod:`tracker.services.cascade`,
 :mod:`tracker.services.reclassification`), which reads only the families concerned; the worklist
-reads the cohort. The task list (table ``impact_item``) is read and marked done here with
-SQLAlchemy Core.
+reads the cohort; the task list (table ``impact_item``) is :mod:`tracker.services.tasks`.
 """
 
 from __future__ import annotations
@@ -16,8 +15,6 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
-from sqlalchemy import select, update
-
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, parse_day, print_json, print_table
 from tracker.gcpause import gc_paused
 from tracker.domain.genetics import ACMG_CLASSES
@@ -38,7 +35,6 @@ from tracker.settings import load_settings
 from tracker.outfiles import write_output
 from tracker.store import audit
 from tracker.store.database import check_row_id, reading, writing
-from tracker.store.models import Family, ImpactItem, Person, Variant, VariantClassification
 from tracker.services.cascade import (  # noqa: F401  (moved to the service layer; names kept for callers)
     _contact_dates,
     _rereview_dict,
@@ -231,34 +227,6 @@ def reclassify(
 # --------------------------------------------------------------------------- tasks
 
 
-def _task_query():
-    return (
-        select(
-            ImpactItem.id, Family.code, Person.code, Variant.gene, Variant.transcript, Variant.hgvs_c,
-            VariantClassification.acmg_class, VariantClassification.classified_on, ImpactItem.change,
-            ImpactItem.what_changes, ImpactItem.action, ImpactItem.source, ImpactItem.created_at,
-            ImpactItem.created_by, ImpactItem.done_on, ImpactItem.done_by, ImpactItem.done_note,
-        )
-        .join(VariantClassification, ImpactItem.variant_classification_id == VariantClassification.id)
-        .join(Variant, VariantClassification.variant_id == Variant.id)
-        .join(Family, Variant.family_id == Family.id)
-        .outerjoin(Person, ImpactItem.person_id == Person.id)
-        .order_by(ImpactItem.id)
-    )  # fmt: skip
-
-
-def _task_dict(r) -> dict:
-    (iid, fam, person, gene, tx, c, cls, on, change, what, action, source, created_at, created_by,
-     done_on, done_by, done_note) = r  # fmt: skip
-    return {
-        "id": iid, "family": fam, "person": person, "variant": f"{tx}:{c}", "gene": gene,
-        "classification": cls, "classified_on": _iso(on), "change": change, "what_changes": what,
-        "action": action, "source": source, "created_at": created_at.isoformat() if created_at else None,
-        "created_by": created_by, "status": "done" if done_on else "open", "done_on": _iso(done_on),
-        "done_by": done_by, "done_note": done_note,
-    }  # fmt: skip
-
-
 tasks_app = typer.Typer(
     name="tasks",
     invoke_without_command=True,
@@ -284,16 +252,11 @@ def tasks_list(
 
     if ctx.invoked_subcommand is not None:
         return
+    from tracker.services import tasks as TS
+
     engine = open_store(db)
     with reading(engine) as conn:
-        if family is not None and conn.execute(select(Family.id).where(Family.code == family)).first() is None:
-            raise UserError(f"unknown family {family!r}")
-        stmt = _task_query()
-        if family is not None:
-            stmt = stmt.where(Family.code == family)
-        if not all_:
-            stmt = stmt.where(ImpactItem.done_on.is_(None))
-        rows = [_task_dict(r) for r in conn.execute(stmt).all()]
+        rows = TS.list_tasks(conn, family, include_done=all_)
     if json_out:
         print_json({"tasks": rows, "caution": RECLASSIFICATION_CAUTION})
         return
@@ -325,24 +288,10 @@ def tasks_done(
         raise UserError("--note must not be empty")
     check_row_id(task_id, "TASK_ID")
     engine = open_store(db)
+    from tracker.services import tasks as TS
+
     with writing(engine) as conn:
-        row = conn.execute(select(ImpactItem.id, ImpactItem.done_on, ImpactItem.person_id, ImpactItem.change)
-                           .where(ImpactItem.id == task_id)).first()  # fmt: skip
-        if row is None:
-            raise UserError(f"no task {task_id}")
-        if row.done_on is not None:
-            raise UserError(f"task {task_id} was already done on {row.done_on.isoformat()}")
-        conn.execute(
-            update(ImpactItem)
-            .where(ImpactItem.id == task_id, ImpactItem.done_on.is_(None))
-            .values(done_on=dt.date.today(), done_by=audit.actor(user), done_note=note.strip())
-        )
-        done = _task_dict(conn.execute(_task_query().where(ImpactItem.id == task_id)).one())
-        audit.record(conn, action="task_done", table="impact_item", row_id=task_id, family=done["family"],
-                     person=done["person"], what=f"task {task_id} done: {row.change}",
-                     before={"done_on": None, "done_by": None, "done_note": None},
-                     after={"done_on": done["done_on"], "done_by": done["done_by"], "done_note": done["done_note"]},
-                     user=user)  # fmt: skip
+        done = TS.mark_done(conn, task_id, note.strip(), user)
     if json_out:
         print_json(done)
     else:
