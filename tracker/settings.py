@@ -24,6 +24,9 @@ else ``./tracker.toml`` if present, else the defaults below.  Example
     variant_rereview_months = 24        # re-review the variant's class after this long
     declined_reapproach_months = 24     # absent: relatives who declined are not re-approached
 
+    [display]                   # terminal tables (--json and --csv always hold every row)
+    table_rows = 50                     # rows shown before "... and N more"; --all shows every row
+
     [privacy]                   # for `tracker export all --pseudonymise` (docs/privacy.md)
     pseudonym_key_file = "pseudonym.key"   # relative to this file; or pseudonym_key = "..."
     small_cell_threshold = 5
@@ -123,6 +126,15 @@ class CascadePolicy:
         return f"clinic policy: relatives who declined may be re-approached {self.declined_reapproach_months} months after"
 
 
+# Rows a terminal table shows before "... and N more" (a display choice of this project).
+DEFAULT_TABLE_ROWS = 50
+
+
+@dataclass(frozen=True)
+class Display:
+    table_rows: int = DEFAULT_TABLE_ROWS
+
+
 @dataclass(frozen=True)
 class Settings:
     clinic: Clinic = field(default_factory=Clinic)
@@ -133,6 +145,7 @@ class Settings:
     source: str = "built-in defaults"
     privacy: Privacy = field(default_factory=Privacy)
     cascade: CascadePolicy = field(default_factory=CascadePolicy)
+    display: Display = field(default_factory=Display)
 
 
 _SECTIONS = {
@@ -141,6 +154,7 @@ _SECTIONS = {
     "repeatability": None,  # any measure code
     "privacy": {"pseudonym_key", "pseudonym_key_file", "small_cell_threshold"},
     "cascade": {"variant_rereview_months", "declined_reapproach_months"},
+    "display": {"table_rows"},
 }
 
 
@@ -198,7 +212,14 @@ def parse_settings(data: dict, name: str = "settings", base: Path | None = None)
             raise UserError(f"{name}: [repeatability] {code} must be a positive number (within-subject SD)")
         rep[code] = float(v)
     return Settings(clinic, guideline, policy, slots, rep, name, _privacy(data.get("privacy", {}), name, base),
-                    _cascade(data.get("cascade", {}), name))
+                    _cascade(data.get("cascade", {}), name), _display(data.get("display", {}), name))
+
+
+def _display(section: dict, name: str) -> Display:
+    rows = section.get("table_rows", DEFAULT_TABLE_ROWS)
+    if not isinstance(rows, int) or isinstance(rows, bool) or rows < 1:
+        raise UserError(f"{name}: [display] table_rows must be a whole number of at least 1")
+    return Display(rows)
 
 
 def _cascade(section: dict, name: str) -> CascadePolicy:

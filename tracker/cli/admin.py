@@ -9,7 +9,7 @@ from typing import Annotated
 import typer
 
 from tracker.cli.common import engine_for, DbOption, JsonOption, UserOption, open_store, print_json, print_table
-from tracker.cli.common import SettingsOption
+from tracker.cli.common import AllOption, SettingsOption, table_limit
 from tracker.store import migrate
 from sqlalchemy.exc import DBAPIError
 
@@ -81,7 +81,8 @@ def schema(db: DbOption = None, json_out: JsonOption = False) -> None:
         typer.echo(f"{location.describe()}: revision {current}; tool needs {head} ({state})")
 
 
-def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsOption = None) -> None:
+def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsOption = None,
+          all_: AllOption = False) -> None:
     """Check the database: file integrity, schema revision, orphan rows, and consistency of the
     records (pedigree cycles, dates out of order, values outside plausible ranges, placeholders
     with clinical data, at-risk relatives with no recall). Exit code 1 when anything is found.
@@ -112,7 +113,7 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
         print_json(result)
     elif findings:
         print_table(f"{len(findings)} findings", ["check", "where", "finding"],
-                    [[f.check, f.where, f.message] for f in findings])  # fmt: skip
+                    [[f.check, f.where, f.message] for f in findings], limit=table_limit(all_, settings))  # fmt: skip
     else:
         typer.echo(f"{location.describe()}: no problems found")
     if reminders and not json_out:

@@ -11,6 +11,7 @@ import typer
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
 from tracker.cli.common import (
+    AllOption,
     DbOption,
     JsonOption,
     SettingsOption,
@@ -19,6 +20,7 @@ from tracker.cli.common import (
     open_store,
     print_json,
     print_table,
+    table_limit,
 )
 from tracker.errors import UserError
 from tracker.outfiles import check_output
@@ -392,7 +394,7 @@ def _summary(engine) -> dict:
         return cohort_summary(conn)
 
 
-def _print_summary(result: dict) -> None:
+def _print_summary(result: dict, limit: int | None = None) -> None:
     t = result["totals"]
     typer.echo(
         f"{t['families']} families, {t['people']} people (+{t['placeholders']} placeholders), "
@@ -405,19 +407,24 @@ def _print_summary(result: dict) -> None:
             [f["family"], f["proband"], f["variant"], f["members"], f["carriers"], f["non_carriers"], f["studies"]]
             for f in result["families"]
         ],
+        limit=limit,
     )
 
 
-def families_(db: DbOption = None, json_out: JsonOption = False) -> None:
+def families_(db: DbOption = None, json_out: JsonOption = False, all_: AllOption = False,
+              settings: SettingsOption = None) -> None:
     """List the families with their variant, members, genotype results and studies.
+
+    The table shows the first families (by code) and a count of the rest; --all shows every one.
 
     Example: tracker families --json
     """
+    limit = None if json_out else table_limit(all_, settings)
     result = _summary(open_store(db))
     if json_out:
         print_json(result)
     else:
-        _print_summary(result)
+        _print_summary(result, limit)
 
 
 def register(app: typer.Typer) -> None:

@@ -16,6 +16,7 @@ from typing import Annotated
 
 import typer
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, parse_day, print_json, print_table
+from tracker.cli.common import AllOption, more_rows_line, table_limit
 from tracker.gcpause import gc_paused
 from tracker.domain.genetics import ACMG_CLASSES
 from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
@@ -240,7 +241,8 @@ tasks_app = typer.Typer(
 def tasks_list(
     ctx: typer.Context,
     family: Annotated[str | None, typer.Option("--family", help="Only this family.")] = None,
-    all_: Annotated[bool, typer.Option("--all", help="Done tasks too.")] = False,
+    all_: Annotated[bool, typer.Option("--all", help="Done tasks too, and every row of the table.")] = False,
+    settings: SettingsOption = None,
     db: DbOption = None,
     json_out: JsonOption = False,
 ) -> None:
@@ -268,6 +270,7 @@ def tasks_list(
         ["task", "family", "person", "change", "action", "status", "done"],
         [[r["id"], r["family"], r["person"] or "(family)", r["change"], r["action"], r["status"],
           f"{r['done_on']} {r['done_by']}: {r['done_note']}" if r["done_on"] else ""] for r in rows],
+        limit=table_limit(all_, settings),
     )  # fmt: skip
     typer.echo(RECLASSIFICATION_CAUTION)
 
@@ -472,6 +475,7 @@ def worklist(
     settings: SettingsOption = None,
     db: DbOption = None,
     json_out: JsonOption = False,
+    all_: AllOption = False,
 ) -> None:
     """Everyone due or overdue by the end of a window, most urgent first, with what the visit needs and why.
 
@@ -479,6 +483,9 @@ def worklist(
     be seen by their due date are listed. Deceased people are never listed;
     people who declined are listed apart, not recalled; affected members are
     listed apart with their follow-up interval.
+
+    Each table shows the most urgent rows and a count of the rest (--all: every row; --json and
+    --csv: every row).
 
     Example: tracker worklist --from 2026-12-07 --to 2027-01-31 --slots-per-week 4 --ics recalls.ics
     """
@@ -535,10 +542,11 @@ def worklist(
     if json_out:
         print_json(result)
         return
+    limit = table_limit(all_, settings)
     typer.echo(f"Worklist {start.isoformat()} to {end.isoformat()} ({weeks} weeks), as of {on.isoformat()}, "
                f"rule set {rule_set.title}, policy {policy.point}")  # fmt: skip
-    _worklist_table("Family screening: due or overdue, most urgent first", due_rows, booking is not None)
-    _worklist_table("Affected members (follow-up interval)", affected_rows, False)
+    _worklist_table("Family screening: due or overdue, most urgent first", due_rows, booking is not None, limit)
+    _worklist_table("Affected members (follow-up interval)", affected_rows, False, limit)
     if booking is not None:
         typer.echo(f"Booking from {booking['first_bookable_day']} ({slots} slots a week); "
                    f"{len(booking['booked_late'])} booked after their due date")  # fmt: skip
@@ -547,6 +555,7 @@ def worklist(
                 "Not booked: no free slot in the window",
                 ["person", "due", "reason"],
                 [[u["person"], u["due"], u["reason"]] for u in booking["not_booked"]],
+                limit=limit, data=_DATA,
             )
     if gap_rows:
         print_table(
@@ -554,6 +563,7 @@ def worklist(
             ["person", "gap", "waiting", "due", "needs", "flags"],
             [[r["person"], GAP_WORDS.get(r["contact_status"], r["contact_status"]), waiting_text(r), r["due"] or "",
               ics.needs_words(r["needs"]), flag_words(r["flags"])] for r in gap_rows],
+            limit=limit, data=_DATA,
         )  # fmt: skip
     else:
         typer.echo("Contact gaps: none")
@@ -561,9 +571,12 @@ def worklist(
         typer.echo("Variant re-review: " + "; ".join(f"{r['family']} {r['acmg_class']} ({r['classified_on']}), "
                                                     f"{'due since' if r['overdue'] else 'by'} {r['due']}"
                                                     for r in rereview))  # fmt: skip
-    for r in due_rows + affected_rows + gap_rows:  # review flags (criteria not assessable): the clinician decides
-        for flag in r["review_flags"]:
-            typer.echo(f"review {r['person']}: {flag}")
+    # review flags (criteria not assessable): the clinician decides
+    flags = [f"review {r['person']}: {flag}" for r in due_rows + affected_rows + gap_rows for flag in r["review_flags"]]
+    for line in flags[:limit]:
+        typer.echo(line)
+    if limit is not None and len(flags) > limit:
+        typer.echo(more_rows_line(len(flags) - limit, _DATA, "more review flags"))
     typer.echo(f"note: {trend['note']}")
     if trend.get("lsc_note"):
         typer.echo(f"note: {trend['lsc_note']}")
@@ -574,7 +587,10 @@ def worklist(
         typer.echo(f"caution: {c}")
 
 
-def _worklist_table(title: str, rows: list[dict], booked: bool) -> None:
+_DATA = "--json or --csv FILE"
+
+
+def _worklist_table(title: str, rows: list[dict], booked: bool, limit: int | None = None) -> None:
     from tracker.outputs.worklist_pdf import GAP_WORDS, booked_text, flag_words, waiting_text
 
     if not rows:
@@ -588,6 +604,7 @@ def _worklist_table(title: str, rows: list[dict], booked: bool) -> None:
         cols,
         [[r["person"], r["status"], r["due"], waiting_text(r), r["interval_months"], ics.needs_words(r["needs"]),
           r["reason"], flag_words(r["flags"])] + ([booked_text(r)] if booked else []) for r in rows],
+        limit=limit, data=_DATA,
     )  # fmt: skip
 
 
