@@ -284,7 +284,7 @@ def test_only_nurses_record_contacts_and_bookings(browser, web_db, role, form):
     client = browser(role)
     before = dump(web_db)
     r = client.post(f"/day/{form}/HV01-III-2", data={"csrf_token": client.token, "on": "2026-12-07",
-                                                      "channel": "phone", "outcome": "reached", "purpose": "screening"})  # fmt: skip
+                                                      "channel": "phone", "outcome": "informed", "purpose": "screening"})  # fmt: skip
     assert r.status_code == 403 and "nurse" in r.text and "Nothing was changed" in r.text
     assert dump(web_db) == before
 
