@@ -353,3 +353,39 @@ def test_day_downloads(browser, web_db):
     assert 'attachment; filename="worklist-' in pdf.headers["content-disposition"]
     reads = [a.what for a in audit_rows(web_db, "read")]
     assert any("CSV download" in w for w in reads) and any("PDF download" in w for w in reads)
+
+
+def _post_paths(app) -> list[str]:
+    from starlette.routing import Route
+
+    out = []
+    for r in app.routes:
+        if isinstance(r, Route) and "POST" in (r.methods or ()):
+            out.append(r.path.replace("{person}", "HV01-III-2").replace("{name}", "t.nurse1")
+                       .replace("{upload_id}", "A" * 32))  # fmt: skip
+    return out
+
+
+def test_every_post_route_refuses_a_missing_token_and_writes_nothing(browser, web_db, app):
+    paths = _post_paths(app)
+    assert {"/signin", "/signout", "/password", "/day/contact/HV01-III-2", "/import", "/admin/accounts"} <= set(paths)
+    for role in ("nurse", "admin"):
+        client = browser(role)
+        before = dump(web_db)
+        for path in paths:
+            r = client.post(path, data={"name": "x.y", "role": "admin", "on": "2026-12-07", "purpose": "p"},
+                            follow_redirects=False)  # fmt: skip
+            assert r.status_code == 403, (role, path)
+            r = client.post(path, data={"csrf_token": "f" * 64}, follow_redirects=False)
+            assert r.status_code == 403, (role, path)
+        assert dump(web_db) == before
+
+
+@pytest.mark.parametrize("role", ["nurse", "cardiologist", "counsellor", "admin"])
+def test_every_role_reads_the_lists(browser, role):
+    client = browser(role)
+    for path in ("/day", "/cohort", "/day.csv"):
+        assert client.get(path).status_code == 200, path
+    nav = client.get("/day").text
+    assert ('href="/admin/accounts"' in nav) == (role == "admin")
+    assert ('href="/import"' in nav) == (role == "admin")
