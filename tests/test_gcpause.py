@@ -80,8 +80,9 @@ def test_the_import_and_the_studies_read_run_with_the_collector_paused(monkeypat
         import datetime as dt
 
         from tracker.cli import recall
+        from tracker.services import worklist
 
-        monkeypatch.setattr(recall, "gc_paused", recorder("worklist"))
+        monkeypatch.setattr(worklist, "gc_paused", recorder("worklist"))
         frames = recall._load(conn)
         conf, rule_set, policy = recall._recall_rules(None, None)
         day = dt.date(2026, 12, 1)
