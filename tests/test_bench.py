@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 
 from conftest import PG_ENV, PG_URL
-from tracker import bench
+from benchmarks import cohort as bench
 
 
 def test_growth_exponent_of_an_exact_power_law_is_its_power():
@@ -87,7 +87,8 @@ def _check_report(report: dict) -> None:
     assert figures["reclassification"]["tasks_agree"] is True
     p = figures["per_person"]
     assert p["sizes"] == [4, 8]
-    for name in ("person", "recall", "cascade", "reclassify_dry_run", "report_trajectory"):
+    for name in ("person", "recall", "cascade", "reclassify_dry_run", "report_trajectory", "trends_family",
+                 "report_pedigree", "report_letter"):
         assert p[f"{name}_4_s"] > 0 and p[f"{name}_8_s"] > 0
         assert p[f"{name}_ratio_8_over_4"] == pytest.approx(p[f"{name}_8_s"] / p[f"{name}_4_s"])
     assert {t["figure"] for t in report["targets"]} == {name for _s, name, *_ in bench.TARGETS}
