@@ -98,7 +98,8 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
     location = locate(db)
     reminders = []
     try:
-        findings, reminders = _check_findings(db, dc, checks, load_settings(settings).cascade.variant_rereview_months)
+        findings, reminders = _check_findings(db, dc, checks, load_settings(settings).cascade.variant_rereview_months,
+                                              settings)  # fmt: skip
     except DatabaseUnreadable as exc:  # not a SQLite file at all: that is the finding
         findings = [dc.Finding("integrity", "database file", str(exc))]
     except DBAPIError as exc:
@@ -124,7 +125,7 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
         raise typer.Exit(1)
 
 
-def _check_findings(db, dc, checks, rereview_months: int) -> tuple[list, list]:
+def _check_findings(db, dc, checks, rereview_months: int, settings=None) -> tuple[list, list]:
     from tracker.store import repository as repo
 
     engine = engine_for(db)
@@ -148,9 +149,23 @@ def _check_findings(db, dc, checks, rereview_months: int) -> tuple[list, list]:
             broken = {f.where.removeprefix("family ") for f in findings if f.check == "pedigree"}
             findings += _recall_findings(people[~people["family"].isin(broken)], repo.load_variants(conn), results,
                                          assessments, studies)  # fmt: skip
+            findings += _proposal_findings(conn, settings)
             # re-review reminders: listed apart, not findings
             reminders = checks.variant_rereview_reminders(conn, dt.date.today(), rereview_months)
     return findings, reminders
+
+
+def _proposal_findings(conn, settings):
+    """Stored recall proposals that differ from a recomputation from the records now stored
+    (every write recomputes them, so a difference means a write that did not, or a change made
+    outside the tool). Rows computed under other settings are recomputed by the next read."""
+    from tracker.domain.consistency import Finding
+    from tracker.services import proposals as SP
+    from tracker.services.recall import recall_rules
+
+    conf, rule_set, policy = recall_rules(settings, None)
+    return [Finding("recall proposal", f"person {p}", f"stored recall proposal differs from a recomputation: {what}; "
+                    "run `tracker recall --refresh`") for p, what in SP.differing(conn, conf, rule_set, policy)]  # fmt: skip
 
 
 def _recall_findings(people, variants, results, assessments, studies):

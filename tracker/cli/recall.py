@@ -343,6 +343,9 @@ def tasks_done(
                      before={"done_on": None, "done_by": None, "done_note": None},
                      after={"done_on": done["done_on"], "done_by": done["done_by"], "done_note": done["done_note"]},
                      user=user)  # fmt: skip
+        from tracker.services.proposals import refresh_families
+
+        refresh_families(conn, [done["family"]])  # an open task is a trigger: the stored proposals change
     if json_out:
         print_json(done)
     else:
@@ -353,21 +356,29 @@ def tasks_done(
 
 
 def recall(
-    person: Annotated[str, typer.Argument(help="Person code.")],
+    person: Annotated[str | None, typer.Argument(help="Person code.")] = None,
     as_of: AsOfOption = None,
     guideline: GuidelineOption = None,
     settings: SettingsOption = None,
     db: DbOption = None,
     json_out: JsonOption = False,
+    refresh: Annotated[bool, typer.Option("--refresh", help="Recompute and store every person's proposal "
+                                          "(after a change of rule set or settings); no PERSON.")] = False,
 ) -> None:
     """When one person should next be seen: due date, interval, every rule and modifier that fired with its source.
 
     Deceased people are never scheduled; people who declined are not recalled.
+    With --refresh, every stored proposal is recomputed for today (the worklist reads them).
 
     Example: tracker recall HV01-IV-1 --settings demo_family/clinic.toml
+    Example: tracker recall --refresh --settings demo_family/clinic.toml
     """
     from tracker.services import risk as RK
 
+    if refresh:
+        return _refresh_all(person, as_of, guideline, settings, db, json_out)
+    if person is None:
+        raise UserError("give a PERSON code (or --refresh to recompute every stored proposal)")
     on = _day(as_of, "--as-of", dt.date.today())
     conf, rule_set, policy = _recall_rules(settings, guideline)
     from tracker.services import recall as SV
@@ -413,23 +424,34 @@ def recall(
         typer.echo(f"caution: {c}")
 
 
+def _refresh_all(person, as_of, guideline, settings, db, json_out) -> None:
+    """`recall --refresh`: every stored proposal recomputed for today, with a progress bar."""
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+    from tracker.cli.families import err
+    from tracker.services import proposals as SP
+
+    if person is not None:
+        raise UserError("--refresh recomputes everyone: give no PERSON")
+    if as_of is not None:
+        raise UserError("--as-of: not with --refresh (stored proposals are today's)")
+    conf, rule_set, policy = _recall_rules(settings, guideline)
+    engine = open_store(db)
+    with writing(engine) as conn:
+        families = SP.all_families(conn)
+        with Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TimeRemainingColumn(),
+                      console=err, transient=True,
+                      disable=len(families) <= SP.CHUNK_FAMILIES or not err.is_terminal) as bar:  # fmt: skip
+            task = bar.add_task("recomputing recall proposals", total=len(families))
+            result = SP.refresh_all(conn, dt.date.today(), conf, rule_set, policy,
+                                    progress=lambda n: bar.advance(task, n), families=None)  # fmt: skip
+    if json_out:
+        print_json(result)
+    else:
+        typer.echo(f"{result['proposals']} recall proposals of {result['families']} families recomputed "
+                   f"for {result['as_of']} under {rule_set.title}")  # fmt: skip
+
+
 # --------------------------------------------------------------------------- worklist
-
-
-def _entry(p: Proposal, family: str, lst: str) -> dict:
-    from tracker.normals.criteria import NOT_ASSESSABLE
-
-    reason, source = _reason(p)
-    return {
-        "list": lst, "person": p.person_code, "family": family, "status": p.status, "due": _iso(p.due),
-        "days_overdue": p.days_overdue, "never_screened": p.never_screened, "eligible_since": _iso(p.eligible_since),
-        "gap_reason": p.gap_reason,
-        "waiting": never_screened_text(p), "contact_status": p.contact_status,
-        "interval_months": p.interval_months, "rule_id": p.rule_id,
-        "needs": list(p.needs), "consider": list(p.consider), "reason": reason, "source": source,
-        "triggers": list(p.triggers), "flags": list(p.flags), "booked_week": None, "late": None,
-        "review_flags": [n for n in p.notes if n.startswith(NOT_ASSESSABLE)],
-    }  # fmt: skip
 
 
 def due_proposals(frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date):
@@ -463,51 +485,12 @@ def due_proposals(frames, conf, rule_set, policy, start: dt.date, end: dt.date, 
 
 
 def worklist_lists(frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date, slots: int | None) -> dict:
-    """Everything the worklist shows, shared by ``tracker worklist`` and ``tracker report worklist``.
+    """Everything the worklist shows, computed from ``frames`` (see :func:`tracker.services.worklist.lists`)."""
+    from tracker.services import worklist as SW
 
-    ``due`` / ``affected``: reachable people due or overdue by ``end``, most
-    urgent first; ``contact_gaps``: people who cannot be booked until contact
-    is made (not contacted, lost to follow-up, declined), each once;
-    ``booking`` (with a weekly capacity): reachable screening people booked
-    from the first bookable day on or after both ``start`` and ``on``.
-    """
     screening_due, affected_due, family_of, trend, proposals = due_proposals(frames, conf, rule_set, policy, start, end, on)
-    gaps = contact_gaps(screening_due + affected_due + [p for p in proposals if p.status == "not_recalled"])
-    due_rows = [_entry(p, family_of[p.person_code], "screening") for p in screening_due if reachable(p)]
-    affected_rows = [_entry(p, family_of[p.person_code], "affected") for p in affected_due if reachable(p)]
-    gap_rows = [_entry(p, family_of[p.person_code], "contact_gap") for p in gaps]
-    booking = None
-    if slots is not None:
-        plan = plan_bookings([p for p in screening_due if reachable(p)], start, end, slots, on)
-        booked = {b.person_code: b for b in plan.bookings}
-        for r in due_rows:
-            b = booked.get(r["person"])
-            r["booked_week"] = _iso(b.week_start) if b else None
-            r["late"] = (b.late if b else True)
-        booking = {
-            "slots_per_week": slots,
-            "first_bookable_day": plan.window_start.isoformat(),
-            "weeks": [
-                {"week_start": w.isoformat(), "booked": [b.person_code for b in plan.bookings if b.week_start == w],
-                 "free": slots - sum(1 for b in plan.bookings if b.week_start == w)}
-                for w in week_starts(plan.window_start, plan.weeks)
-            ],  # fmt: skip
-            "booked_late": [
-                {"person": b.person_code, "due": b.due.isoformat(), "booked_week": b.week_start.isoformat(),
-                 "days_late": b.days_late}
-                for b in plan.bookings if b.late
-            ],  # fmt: skip
-            "not_booked": [
-                {"person": u.person_code, "due": u.due.isoformat(), "reason": u.reason}
-                for u in plan.unseen if u.week_start is None
-            ],
-        }
-    return {
-        "due": due_rows, "affected": affected_rows, "contact_gaps": gap_rows, "booking": booking, "trend": trend,
-        "not_recalled": [{"person": p.person_code, "family": family_of[p.person_code], "reason": "declined: not recalled"}
-                         for p in not_recalled(proposals)],
-        "lost_to_follow_up": [p.person_code for p in lost_to_follow_up(screening_due + affected_due)],
-    }  # fmt: skip
+    affected = {p.person_code for p in affected_due}
+    return SW.lists(proposals, family_of, affected, trend, start, end, on, slots)
 
 
 def worklist(
@@ -541,10 +524,9 @@ def worklist(
     on = _day(as_of, "--as-of", dt.date.today())
     conf, rule_set, policy = _recall_rules(settings, guideline)
     slots = slots_per_week if slots_per_week is not None else conf.slots_per_week
-    engine = open_store(db)
-    with reading(engine) as conn:
-        frames = _load(conn)
-    lists = worklist_lists(frames, conf, rule_set, policy, start, end, on, slots)
+    from tracker.services import worklist as SW
+
+    lists = SW.nurse_worklist(open_store(db), start, end, on, conf, rule_set, policy, slots)
     due_rows, affected_rows, gap_rows = lists["due"], lists["affected"], lists["contact_gaps"]
     booking, trend, declined, lost = lists["booking"], lists["trend"], lists["not_recalled"], lists["lost_to_follow_up"]
     weeks = math.ceil(((end - start).days + 1) / 7)
@@ -563,8 +545,7 @@ def worklist(
         write_output(ics_out, ics.calendar_bytes(visits, caution=" ".join(CAUTIONS)), where="--ics")
         files["ics"] = str(ics_out)
 
-    # variant re-review reminders (data only; see _variant_rereview)
-    rereview = _variant_rereview(frames, on, conf.cascade.variant_rereview_months)
+    rereview = lists["variant_rereview"]  # variant re-review reminders (data only; see _variant_rereview)
     result = {
         "window": {"from": start.isoformat(), "to": end.isoformat(), "weeks": weeks},
         "as_of": on.isoformat(),

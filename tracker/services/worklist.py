@@ -1,0 +1,195 @@
+"""The recall worklist of a window (`tracker worklist`, and the nurse's day in the web).
+
+:func:`nurse_worklist` reads the proposals kept in the store (:mod:`tracker.services.proposals`)
+with an indexed query (due date, family) and recomputes only the families whose rows cannot be
+read on the day asked: stale, computed under other settings or rule set, past their
+``valid_until``, computed for a later day, or missing (a database upgraded from before the
+table). On today's date the recomputed rows are stored (one write transaction); for another
+day they are computed for the read only. The result is the same as computing every family's
+proposal for that day (``tests/test_output_unchanged.py``, ``tests/test_agreement.py``,
+``tests/test_proposals.py``).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+
+from sqlalchemy import Engine
+
+from tracker.engines.schedule import CAUTIONS, Policy, Proposal, never_screened_text, redate
+from tracker.engines.worklist import (
+    contact_gaps,
+    lost_to_follow_up,
+    not_recalled,
+    plan_bookings,
+    reachable,
+    select_due,
+    week_starts,
+)
+from tracker.settings import Settings
+
+
+def _iso(d: dt.date | None) -> str | None:
+    return d.isoformat() if d is not None else None
+
+
+def _entry(p: Proposal, family: str, lst: str) -> dict:
+    from tracker.normals.criteria import NOT_ASSESSABLE
+    from tracker.services.recall import _reason
+
+    reason, source = _reason(p)
+    return {
+        "list": lst, "person": p.person_code, "family": family, "status": p.status, "due": _iso(p.due),
+        "days_overdue": p.days_overdue, "never_screened": p.never_screened, "eligible_since": _iso(p.eligible_since),
+        "gap_reason": p.gap_reason,
+        "waiting": never_screened_text(p), "contact_status": p.contact_status,
+        "interval_months": p.interval_months, "rule_id": p.rule_id,
+        "needs": list(p.needs), "consider": list(p.consider), "reason": reason, "source": source,
+        "triggers": list(p.triggers), "flags": list(p.flags), "booked_week": None, "late": None,
+        "review_flags": [n for n in p.notes if n.startswith(NOT_ASSESSABLE)],
+    }  # fmt: skip
+
+
+def lists(proposals: list[Proposal], family_of: dict[str, str], affected: set[str], trend: dict, start: dt.date,
+          end: dt.date, on: dt.date, slots: int | None) -> dict:  # fmt: skip
+    """Everything the worklist shows, from the proposals of ``on`` (at least everyone due or overdue by
+    ``end`` and everyone not recalled), shared by ``tracker worklist`` and ``tracker report worklist``.
+
+    ``due`` / ``affected``: reachable people due or overdue by ``end``, most
+    urgent first; ``contact_gaps``: people who cannot be booked until contact
+    is made (not contacted, lost to follow-up, declined), each once;
+    ``booking`` (with a weekly capacity): reachable screening people booked
+    from the first bookable day on or after both ``start`` and ``on``.
+    """
+    screening_due = select_due([p for p in proposals if p.person_code not in affected], start, end)
+    affected_due = select_due([p for p in proposals if p.person_code in affected], start, end)
+    gaps = contact_gaps(screening_due + affected_due + [p for p in proposals if p.status == "not_recalled"])
+    due_rows = [_entry(p, family_of[p.person_code], "screening") for p in screening_due if reachable(p)]
+    affected_rows = [_entry(p, family_of[p.person_code], "affected") for p in affected_due if reachable(p)]
+    gap_rows = [_entry(p, family_of[p.person_code], "contact_gap") for p in gaps]
+    booking = None
+    if slots is not None:
+        plan = plan_bookings([p for p in screening_due if reachable(p)], start, end, slots, on)
+        booked = {b.person_code: b for b in plan.bookings}
+        for r in due_rows:
+            b = booked.get(r["person"])
+            r["booked_week"] = _iso(b.week_start) if b else None
+            r["late"] = (b.late if b else True)
+        booking = {
+            "slots_per_week": slots,
+            "first_bookable_day": plan.window_start.isoformat(),
+            "weeks": [
+                {"week_start": w.isoformat(), "booked": [b.person_code for b in plan.bookings if b.week_start == w],
+                 "free": slots - sum(1 for b in plan.bookings if b.week_start == w)}
+                for w in week_starts(plan.window_start, plan.weeks)
+            ],  # fmt: skip
+            "booked_late": [
+                {"person": b.person_code, "due": b.due.isoformat(), "booked_week": b.week_start.isoformat(),
+                 "days_late": b.days_late}
+                for b in plan.bookings if b.late
+            ],  # fmt: skip
+            "not_booked": [
+                {"person": u.person_code, "due": u.due.isoformat(), "reason": u.reason}
+                for u in plan.unseen if u.week_start is None
+            ],
+        }
+    return {
+        "due": due_rows, "affected": affected_rows, "contact_gaps": gap_rows, "booking": booking, "trend": trend,
+        "not_recalled": [{"person": p.person_code, "family": family_of[p.person_code], "reason": "declined: not recalled"}
+                         for p in not_recalled(proposals)],
+        "lost_to_follow_up": [p.person_code for p in lost_to_follow_up(screening_due + affected_due)],
+    }  # fmt: skip
+
+
+def _recomputed(conn, families: set[str], on: dt.date, conf: Settings, rule_set, policy: Policy):
+    """(proposals, family of each, affected people, trend values) of ``families`` computed for ``on``."""
+    from tracker.services import proposals as SP
+    from tracker.services.recall import load
+    from tracker.store.repository import Scope
+
+    if not families:
+        return [], {}, set(), False
+    scope = Scope() if len(families) > SP.CHUNK_FAMILIES else Scope.families(sorted(families))
+    computed, _trend = SP.compute(load(conn, scope), families, on, conf, rule_set, policy)
+    props = [c.proposal for c in computed if c.proposal is not None]
+    return (props, {c.person: c.family for c in computed}, {c.person for c in computed if c.affected},
+            any(c.trend_values for c in computed))
+
+
+def proposals_for(engine: Engine, end: dt.date, on: dt.date, conf: Settings, rule_set, policy: Policy,
+                  today: dt.date | None = None) -> tuple[list[Proposal], dict[str, str], set[str], dict, dict]:  # fmt: skip
+    """The proposals a worklist for a window ending ``end`` needs, for day ``on``: (proposals, family
+    of each person, affected people, trend modifiers note, how they were read).
+
+    Stored rows that hold on ``on`` are read with an indexed query; the families with a row that
+    does not hold (:func:`tracker.services.proposals.invalid_families`) are recomputed. When ``on``
+    is ``today`` (default: the clock's date) the recomputed families are stored, in one write
+    transaction that looks again for rows that do not hold (another command may have written).
+    """
+    from tracker.services import proposals as SP
+    from tracker.store.database import reading, writing
+
+    today = today or dt.date.today()
+    key = SP.rules_key(conf, rule_set, policy)
+    with reading(engine) as conn:
+        invalid = SP.invalid_families(conn, on, key)
+        if not invalid or on != today:
+            return _read(conn, invalid, end, on, conf, rule_set, policy, key)
+    if _read_only(engine):
+        with reading(engine) as conn:
+            return _read(conn, SP.invalid_families(conn, on, key), end, on, conf, rule_set, policy, key)
+    with writing(engine) as conn:
+        invalid = SP.invalid_families(conn, on, key)
+        fams = sorted(invalid)
+        for i in range(0, len(fams), SP.CHUNK_FAMILIES):
+            SP._refresh_chunk(conn, fams[i:i + SP.CHUNK_FAMILIES], on, conf, rule_set, policy, key)
+        out = _read(conn, set(), end, on, conf, rule_set, policy, key)
+    out[4]["stored_families"] = len(invalid)
+    return out
+
+
+def _read_only(engine: Engine) -> bool:
+    """A SQLite file this process cannot write (opened read-only): recompute without storing."""
+    import os
+    from pathlib import Path
+
+    if engine.dialect.name != "sqlite" or not engine.url.database:
+        return False
+    path = Path(engine.url.database)
+    return not (os.access(path, os.W_OK) and os.access(path.parent, os.W_OK))
+
+
+def _read(conn, invalid: set[str], end, on, conf, rule_set, policy, key):
+    from tracker.services import proposals as SP
+    from tracker.services.recall import trend_summary
+
+    rows = SP.worklist_rows(conn, end, skip=invalid)
+    props, family_of, affected, values = _recomputed(conn, invalid, on, conf, rule_set, policy)
+    for person, family, p, is_affected in rows:
+        props.append(redate(p, on))
+        family_of[person] = family
+        if is_affected:
+            affected.add(person)
+    values = values or SP.any_trend_values(conn, skip=invalid)
+    how = {"read": len(rows), "recomputed_families": len(invalid), "stored_families": 0}
+    return props, family_of, affected, trend_summary(rule_set.id, conf, values), how
+
+
+def nurse_worklist(engine: Engine, start: dt.date, end: dt.date, on: dt.date, conf: Settings, rule_set,
+                   policy: Policy, slots: int | None, today: dt.date | None = None) -> dict:  # fmt: skip
+    """Everything ``tracker worklist`` shows for the window ``[start, end]`` on day ``on`` (see
+    :func:`lists`), with the variant re-review reminders (``variant_rereview``) and how the
+    proposals were read (``read``: stored rows read, families recomputed, rows stored)."""
+    from tracker.services.cascade import _variant_rereview
+    from tracker.services.recall import _Frames
+    from tracker.store import repository as repo
+    from tracker.store.database import reading
+
+    props, family_of, affected, trend, how = proposals_for(engine, end, on, conf, rule_set, policy, today)
+    out = lists(props, family_of, affected, trend, start, end, on, slots)
+    with reading(engine) as conn:
+        variants = repo.load_variants(conn)
+    frames = _Frames(None, None, variants, None, None, None, frozenset())  # type: ignore[arg-type]
+    out["variant_rereview"] = _variant_rereview(frames, on, conf.cascade.variant_rereview_months)
+    out["read"] = how
+    return out
