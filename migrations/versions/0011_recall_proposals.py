@@ -18,9 +18,11 @@ values to trend (``trend_values``).
 Indexes for the worklist's query: due date (``ix_recall_proposal_due_on``), family
 (``ix_recall_proposal_family_id``), last valid day (``ix_recall_proposal_valid_until``).
 
-The upgrade leaves the table empty: a person with no row is computed (and stored) by the first
-read, so a database upgraded from 0009 gives the same worklist. Downgrade drops the table:
-nothing is lost, every row is recomputed from the records after the next upgrade.
+The upgrade from 0009 leaves the table empty: a person with no row is computed (and stored) by
+the first read, so a database upgraded from 0009 gives the same worklist. Downgrade sets the rows
+aside in ``recall_proposal_kept`` with the last audit entry's id (``recall_proposal_kept_mark``);
+the next upgrade puts them back, marked stale if anything was written in between (the lower
+revision does not keep them up to date), so a round trip loses nothing.
 """
 
 from __future__ import annotations
@@ -32,6 +34,15 @@ revision = "0011"
 down_revision = "0009"
 branch_labels = None
 depends_on = None
+
+
+_KEPT, _MARK = "recall_proposal_kept", "recall_proposal_kept_mark"
+_COLUMNS = ("id, person_id, family_id, state, rule_id, interval_months, due_on, as_of, reasons, inputs_version, "
+            "computed_at, valid_until, stale, trend_values")
+
+
+def _last_audit_id(bind) -> int:
+    return bind.execute(sa.text("SELECT coalesce(max(id), 0) FROM audit_entry")).scalar()
 
 
 def upgrade() -> None:
@@ -61,10 +72,23 @@ def upgrade() -> None:
     op.create_index("ix_recall_proposal_due_on", "recall_proposal", ["due_on"])
     op.create_index("ix_recall_proposal_family_id", "recall_proposal", ["family_id"])
     op.create_index("ix_recall_proposal_valid_until", "recall_proposal", ["valid_until"])
+    bind = op.get_bind()
+    if _KEPT in sa.inspect(bind).get_table_names():  # set aside by an earlier downgrade
+        op.execute(f"INSERT INTO recall_proposal ({_COLUMNS}) SELECT {_COLUMNS} FROM {_KEPT}")
+        mark = bind.execute(sa.text(f"SELECT audit_id FROM {_MARK}")).scalar()
+        if mark != _last_audit_id(bind):  # written at the lower revision: recomputed by the next read
+            op.execute("UPDATE recall_proposal SET stale = true")
+        op.drop_table(_KEPT)
+        op.drop_table(_MARK)
 
 
 def downgrade() -> None:
-    """Drop the table: its rows are derived from the records and recomputed after an upgrade."""
+    """Set the rows aside (``recall_proposal_kept``, with the last audit id), then drop the table."""
+    bind = op.get_bind()
+    if bind.execute(sa.text("SELECT count(*) FROM recall_proposal")).scalar():
+        op.execute(f"CREATE TABLE {_KEPT} AS SELECT {_COLUMNS} FROM recall_proposal")
+        op.create_table(_MARK, sa.Column("audit_id", sa.Integer))
+        op.execute(sa.text(f"INSERT INTO {_MARK} (audit_id) VALUES ({int(_last_audit_id(bind))})"))
     op.drop_index("ix_recall_proposal_valid_until", table_name="recall_proposal")
     op.drop_index("ix_recall_proposal_family_id", table_name="recall_proposal")
     op.drop_index("ix_recall_proposal_due_on", table_name="recall_proposal")
