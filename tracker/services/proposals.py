@@ -116,10 +116,17 @@ def _day(x: str | None) -> dt.date | None:
 
 def proposal_json(p: Proposal) -> dict:
     """Every field of ``p`` as JSON-ready values."""
-    out = dataclasses.asdict(p)
+    out = {f: getattr(p, f) for f in _FIELDS}  # shallow (dataclasses.asdict is slow on many proposals)
     for k in ("today", "due", "routine_due", "eligible_since"):
         out[k] = _d(out[k])
+    for k in ("needs", "consider", "triggers", "flags", "notes", "cautions"):
+        out[k] = list(out[k])
+    out["fired"] = [{f: getattr(x, f) for f in _FIRED_FIELDS} for x in p.fired]
     return out
+
+
+_FIELDS = tuple(f.name for f in dataclasses.fields(Proposal))
+_FIRED_FIELDS = tuple(f.name for f in dataclasses.fields(Fired))
 
 
 def proposal_from_json(d: dict) -> Proposal:
