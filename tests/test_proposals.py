@@ -318,3 +318,26 @@ def test_refresh_after_a_settings_change(store, run, tmp_path):
     assert _same(got, _old_worklist(engine, today, today + dt.timedelta(days=90), today, conf, rule_set, policy))
     r = run("recall", "HV01-III-1", "--refresh", db=store)
     assert r.code == 1 and "no PERSON" in r.err
+
+
+def test_bulk_import_marks_stale_and_the_first_read_computes(db_url, run, tmp_path, monkeypatch):
+    """An import of more families than WRITE_COMPUTE_MAX_FAMILIES marks their rows stale (here
+    the limit is lowered to 1); the first worklist read on the day computes and stores them."""
+    monkeypatch.setattr(SP, "WRITE_COMPUTE_MAX_FAMILIES", 1)
+    assert run("init", db=db_url).code == 0
+    assert run("import", "all", DEMO, db=db_url).code == 0
+    engine = _engine(db_url)
+    with reading(engine) as conn:
+        assert conn.execute(text("SELECT count(*) FROM recall_proposal")).scalar() == 0
+    monkeypatch.setattr(SP, "WRITE_COMPUTE_MAX_FAMILIES", 500)
+    r = run("import", "all", _write(tmp_path / "stf1", STF1), db=db_url)  # one family: computed
+    assert r.code == 0, r
+    with reading(engine) as conn:
+        assert conn.execute(text("SELECT count(*) FROM recall_proposal")).scalar() == 5
+    conf, rule_set, policy = _rules()
+    end = T0 + dt.timedelta(days=90)
+    got = SW.nurse_worklist(engine, T0, end, T0, conf, rule_set, policy, 4, today=T0)
+    assert got.pop("read")["stored_families"] == 6
+    assert _same(got, _old_worklist(engine, T0, end, T0, conf, rule_set, policy))
+    with reading(engine) as conn:
+        assert SP.invalid_families(conn, T0, SP.rules_key(conf, rule_set, policy)) == set()

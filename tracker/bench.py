@@ -45,6 +45,9 @@ reclassification
             what ``tracker reclassify --dry-run`` computes for the variant of the
             largest single-variant family (impact on each relative, tasks), with
             a 1x store (every tenth family, plus that family) and the whole one
+proposals   the stored recall proposals (``benchmarks/worklist_bench.py``): ``recall --refresh``
+            against the trend step, the worklist for a 90-day window read from the store
+            against the query that reads the rows it lists, and the worklist recomputed
 per_person  ``tracker person``, ``recall``, ``cascade``, ``reclassify --dry-run`` and
             ``report trajectory`` (in-process, ``--json``, best of three after one
             untimed run) on the largest single-variant family and its member with the
@@ -817,6 +820,24 @@ def step_per_person(r: Run) -> dict:
             out[f"{name}_ratio_{n}_over_{sizes[0]}"] = best[name, n] / best[name, sizes[0]]
     return out
 
+def step_proposals(r: Run) -> dict:
+    """The stored recall proposals on the imported cohort: ``benchmarks/worklist_bench.py``
+    (worklist for a 90-day window vs reading the rows it lists; ``recall --refresh`` vs the trend step)."""
+    import importlib.util
+
+    from tracker.services.recall import recall_rules
+
+    path = Path(__file__).resolve().parent.parent / "benchmarks" / "worklist_bench.py"
+    if not path.exists():  # an installed wheel has no benchmarks folder
+        return {"note": f"{path} not found: step skipped"}
+    spec = importlib.util.spec_from_file_location("worklist_bench", path)
+    wb = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(wb)
+    conf, rule_set, policy = recall_rules(None, None)
+    return wb.measure_proposals(_existing_engine(r), dt.date.today(), conf, rule_set, policy,
+                                trend_engine_s=r.fig("trends", "engine_s"))  # fmt: skip
+
+
 def step_memory(r: Run) -> dict:
     return {"peak_rss_mb": _rss_mb()}
 
@@ -833,6 +854,8 @@ STEPS: list[Step] = [
          step_worklist, uses=("recall", "recall_load_s")),
     Step("reclassification", "reclassification impact for the variant of the largest family, 1/10 vs all",
          step_reclassification, uses=("recall", "recall_load_s")),
+    Step("proposals", "stored recall proposals: worklist for 90 days vs reading the rows it lists; "
+         "recall --refresh vs the trend step (benchmarks/worklist_bench.py)", step_proposals),
     Step("per_person", "person, recall, cascade, reclassify --dry-run and report trajectory on one person/family, "
          "stores of --per-person-sizes families", step_per_person),
     Step("memory", "peak resident memory of the process", step_memory),
@@ -852,6 +875,9 @@ TARGETS = [
      "worklist time grows as the cohort size to a power of at most 1 (log-log fit over four sizes)"),
     ("reclassification", "time_ratio_per_size", "<=", 1.0,
      "reclassification impact time grows linearly or better with the cohort"),
+    ("proposals", "worklist_over_read", "<=", 3.0,
+     "worklist for a 90-day window within 3x reading the stored proposals it lists"),
+    ("proposals", "refresh_over_trends", "<=", 3.0, "full recall --refresh within 3x the trend step"),
     ("memory", "peak_rss_mb", "<=", 2048.0, "peak memory under 2 GB"),
 ]
 

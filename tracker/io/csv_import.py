@@ -198,11 +198,14 @@ def touched(checked: validation.Checked, ctx: validation.Context, added: int) ->
 
 def refresh_proposals(conn: Connection, families, today: dt.date | None = None) -> None:
     """Recompute the stored recall proposals of ``families`` in the import's transaction
-    (:func:`tracker.services.proposals.refresh_families`)."""
+    (:func:`tracker.services.proposals.refresh_families`). A bulk import of more than
+    :data:`tracker.services.proposals.WRITE_COMPUTE_MAX_FAMILIES` families marks their rows stale
+    instead (same transaction), so that the import keeps its speed; the first worklist read
+    computes and stores them, and nothing is ever read from a stale row."""
     if families:
         from tracker.services.proposals import refresh_families
 
-        refresh_families(conn, families, today)
+        refresh_families(conn, families, today, defer_bulk=True)
 
 
 def _record_run(conn: Connection, summary: ImportSummary, path: Path, user: str | None) -> None:

@@ -42,6 +42,7 @@ if TYPE_CHECKING:  # for annotations only
 
 FORMAT = 1  # bump when what a row stores, or how a proposal is computed, changes: every row is then stale
 CHUNK_FAMILIES = 500  # families computed together by refresh_all (memory, not results)
+WRITE_COMPUTE_MAX_FAMILIES = 500  # a bulk import of more families marks their rows stale (computed at the first read)
 
 P = RecallProposal
 
@@ -250,12 +251,15 @@ def _settings_for_write(conf: Settings | None, rule_set, policy: Policy | None):
 
 
 def refresh_families(conn: Connection, families: Iterable[str], on: dt.date | None = None,
-                     conf: Settings | None = None, rule_set=None, policy: Policy | None = None) -> int:  # fmt: skip
+                     conf: Settings | None = None, rule_set=None, policy: Policy | None = None,
+                     defer_bulk: bool = False) -> int:  # fmt: skip
     """Recompute and store the proposals of ``families`` inside the caller's transaction.
 
     Reads those families only. ``on`` defaults to today; ``conf``, ``rule_set`` and ``policy``
     to the clinic's settings file; if it cannot be read, the rows are marked stale instead.
-    Returns the rows written (or marked stale)."""
+    ``defer_bulk`` (bulk imports): more than :data:`WRITE_COMPUTE_MAX_FAMILIES` families are
+    marked stale instead of computed (a person with no row yet is computed by the first read
+    too). Returns the rows written (or marked stale)."""
     from tracker.services.recall import family_scope, load
     from tracker.store.repository import Scope
 
@@ -263,6 +267,8 @@ def refresh_families(conn: Connection, families: Iterable[str], on: dt.date | No
     if not fams:
         return 0
     on = on or dt.date.today()
+    if defer_bulk and len(fams) > WRITE_COMPUTE_MAX_FAMILIES:
+        return mark_stale(conn, fams)
     try:
         conf, rule_set, policy = _settings_for_write(conf, rule_set, policy)
     except UserError:
