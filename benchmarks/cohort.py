@@ -45,6 +45,9 @@ reclassification
             what ``tracker reclassify --dry-run`` computes for the variant of the
             largest single-variant family (impact on each relative, tasks), with
             a 1x store (every tenth family, plus that family) and the whole one
+proposals   the stored recall proposals (``benchmarks/worklist_bench.py``): ``recall --refresh``
+            against the trend step, the worklist for a 90-day window read from the store
+            against the query that reads the rows it lists, and the worklist recomputed
 per_person  ``tracker person``, ``recall``, ``cascade``, ``reclassify --dry-run`` and
             ``report trajectory`` (in-process, ``--json``, best of three after one
             untimed run) on the largest single-variant family and its member with the
@@ -612,11 +615,10 @@ WORKLIST_SLOTS = 50  # weekly capacity used for the booking part (the command bo
 
 def _worklist(frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date) -> tuple[int, int]:
     """What ``tracker worklist --from start --to end --slots-per-week N`` computes, without rendering."""
-    # due_proposals still lives beside the worklist command (the one CLI function the benchmark calls)
-    from tracker.cli import recall
     from tracker.engines.worklist import book_into_slots, lost_to_follow_up, not_recalled
+    from tracker.services.worklist import due_proposals
 
-    screening, affected, _family_of, _trend, proposals = recall.due_proposals(
+    screening, affected, _family_of, _trend, proposals = due_proposals(
         frames, conf, rule_set, policy, start, end, on)  # fmt: skip
     weeks = -(-((end - start).days + 1) // 7)
     book_into_slots(screening, start, weeks, WORKLIST_SLOTS)
@@ -1054,6 +1056,17 @@ def step_trends_memory(r: Run) -> dict:
     return out
 
 
+def step_proposals(r: Run) -> dict:
+    """The stored recall proposals on the imported cohort: ``benchmarks/worklist_bench.py``
+    (worklist for a 90-day window vs reading the rows it lists; ``recall --refresh`` vs the trend step)."""
+    from benchmarks import worklist_bench as wb
+    from tracker.services.recall import recall_rules
+
+    conf, rule_set, policy = recall_rules(None, None)
+    return wb.measure_proposals(_existing_engine(r), dt.date.today(), conf, rule_set, policy,
+                                trend_engine_s=r.fig("trends", "engine_s"))  # fmt: skip
+
+
 def step_memory(r: Run) -> dict:
     return {"peak_rss_mb": _rss_mb()}
 
@@ -1070,6 +1083,8 @@ STEPS: list[Step] = [
          step_worklist, uses=("recall", "recall_load_s")),
     Step("reclassification", "reclassification impact for the variant of the largest family, 1/10 vs all",
          step_reclassification, uses=("recall", "recall_load_s")),
+    Step("proposals", "stored recall proposals: worklist for 90 days vs reading the rows it lists; "
+         "recall --refresh vs the trend step (benchmarks/worklist_bench.py)", step_proposals),
     Step("per_person", "person, recall, cascade, reclassify --dry-run and report trajectory on one person/family, "
          "stores of --per-person-sizes families", step_per_person),
     Step("families_sql", "`tracker families` against one aggregate SQL query, on the per_person sizes", step_families_sql),
@@ -1100,6 +1115,9 @@ TARGETS = [
     ("check_sql", "ratio_largest", "<=", 3.0, "`tracker check` within 3x SQLite's integrity, key and orphan checks"),
     ("help", "ratio", "<=", 3.0, "`tracker --help` within 3x a bare typer app with the same commands"),
     ("trends_memory", "peak_rss_mb_largest", "<=", 1024.0, "`tracker trends --json` on the whole cohort under 1 GB"),
+    ("proposals", "worklist_over_read", "<=", 3.0,
+     "worklist for a 90-day window within 3x reading the stored proposals it lists"),
+    ("proposals", "refresh_over_trends", "<=", 3.0, "full recall --refresh within 3x the trend step"),
     ("memory", "peak_rss_mb", "<=", 2048.0, "peak memory under 2 GB"),
 ]
 

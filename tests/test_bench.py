@@ -85,6 +85,9 @@ def _check_report(report: dict) -> None:
     low, high = w["growth_exponent_ci95"]
     assert low <= w["growth_exponent"] <= high
     assert figures["reclassification"]["tasks_agree"] is True
+    sp = figures["proposals"]
+    assert sp["families"] == 30 and sp["proposals"] > sp["listed_rows"] > 0
+    assert sp["worklist_over_read"] == pytest.approx(sp["worklist_90d_s"] / sp["read_listed_s"])
     p = figures["per_person"]
     assert p["sizes"] == [4, 8]
     for name in ("person", "recall", "cascade", "reclassify_dry_run", "report_trajectory", "trends_family",

@@ -86,6 +86,6 @@ def test_the_import_and_the_studies_read_run_with_the_collector_paused(monkeypat
         frames = recall._load(conn)
         conf, rule_set, policy = recall._recall_rules(None, None)
         day = dt.date(2026, 12, 1)
-        recall.due_proposals(frames, conf, rule_set, policy, day, day + dt.timedelta(days=364), day)
+        worklist.due_proposals(frames, conf, rule_set, policy, day, day + dt.timedelta(days=364), day)
     engine.dispose()
     assert "worklist" in entered

@@ -107,8 +107,9 @@ def day_data(request: Request, f: dict) -> dict:
 
     conf, rule_set, policy = SV.recall_rules(request.app.state.settings_path, None)
     on = auth.now(request).date()
+    lists = SW.nurse_worklist(auth.engine(request), f["from"], f["to"], on, conf, rule_set, policy,
+                              conf.slots_per_week)
     with reading(auth.engine(request)) as conn:
-        lists = SW.worklist(conn, conf, rule_set, policy, f["from"], f["to"], on, conf.slots_per_week)
         families = TS.list_tasks(conn, None) if f["reason"] in ("", "task") else []
     rows = [r for r in lists["due"] + lists["affected"] + lists["contact_gaps"] if _matches(r, f)]
     rows.sort(key=_urgency)
