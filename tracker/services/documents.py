@@ -35,6 +35,7 @@ if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays 
     from tracker.engines import family_state as fs
     from tracker.store.repository import Scope
     from tracker.outputs import trajectory_pdf as T
+    from tracker.outputs import letter as L
 
 
 @dataclass
@@ -261,3 +262,33 @@ def strain_map(m: pd.DataFrame, a: pd.DataFrame) -> tuple[T.StrainMap | None, st
     n_dates = seg17["study_date"].nunique()
     note = f"Latest of {n_dates} studies with segmental strain." if n_dates > 1 else ""
     return T.StrainMap(date.isoformat(), values, indices), note
+
+
+# --------------------------------------------------------------------------- the family letter
+
+
+def letter_variant(v: fs.VariantInfo | None) -> L.LetterVariant | None:
+    """The family variant as the letter words it."""
+    from tracker.outputs import letter as L
+
+    if v is None:
+        return None
+    return L.LetterVariant(v.gene, v.transcript, v.hgvs_c, v.hgvs_p, v.zygosity, v.current_class, v.classified_on)
+
+
+def standing(state: fs.FamilyState, person: str) -> L.Standing:
+    """Where ``person`` stands with the clinic, from the family state's facts and results."""
+    from tracker.engines import family_state as fs
+    from tracker.outputs import letter as L
+
+    f = state.facts.get(person)
+    results = state.results
+    dates = []
+    if results is not None and len(results):
+        mine = results[results["person"] == person]
+        dates = [d for d in fs._dates(mine["test_date"].tolist()) if d is not None] if len(mine) else []
+    return L.Standing(
+        studied=bool(f and f.studied), tested=bool(f and f.tested), last_visit=f.last_visit if f else None,
+        result_on=max(dates) if dates else None, last_contact=f.last_contact if f else None,
+        reclassified_on=state.variant.class_changed_on if state.variant else None,
+    )  # fmt: skip
