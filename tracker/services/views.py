@@ -225,3 +225,22 @@ def letter_pdf(conn: Connection, person: str, on: dt.date, conf: Settings, gid: 
 
 def finite(v: Any) -> bool:
     return isinstance(v, (int, float)) and math.isfinite(v)
+
+
+def family_members(conn: Connection, family: str) -> list[str]:
+    """The codes of ``family``'s members (not removed), sorted."""
+    from tracker.services.recall import family_scope
+    from tracker.store import repository as repo
+
+    people = repo.load_people(conn, family_scope(family))
+    return sorted(people.loc[people["family"] == family, "person"])
+
+
+def family_variant_keys(conn: Connection, family: str) -> list[str]:
+    """The keys (transcript:c.change) of ``family``'s variants."""
+    from tracker.services.recall import family_scope
+    from tracker.store import repository as repo
+
+    v = repo.load_variants(conn, family_scope(family))
+    v = v[v["family"] == family]
+    return sorted({f"{t}:{c}" for t, c in zip(v["transcript"], v["hgvs_c"])})
