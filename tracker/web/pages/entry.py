@@ -89,12 +89,16 @@ def _measures(conn, modality: str) -> list[dict]:
 
     m = repo.load_measures(conn)
     m = m[(m["modality"] == modality) & ~m["derived"]]
-    m = m[~m["code"].astype(str).str.match(r"^(ls|ls_sys|ttp)(18)?_seg")]  # segmental values: import them
-    return [{"code": r.code, "label": r.label, "unit": r.unit, "min": r.plausible_min, "max": r.plausible_max}
-            for r in m.itertuples()]  # fmt: skip
+    codes = m["code"].astype(str)
+    # Segmental values: the 17-segment peak strain (the strain map) in its own group; the other segment
+    # models and kinds are many values best imported from a file (CSV or DICOM SR).
+    m = m[~codes.str.contains(r"_seg\d\d$") | codes.str.match(r"^ls_seg\d\d$")]
+    return [{"code": r.code, "label": r.label, "unit": r.unit, "min": r.plausible_min, "max": r.plausible_max,
+             "segmental": bool(str(r.code).startswith("ls_seg"))} for r in m.itertuples()]  # fmt: skip
 
 
-def _render(request: Request, form: str, target: str, *, values=None, errors=None, status_code=200, done=None):
+def _render(request: Request, form: str, target: str, *, values=None, errors=None, status_code=200, done=None,
+            user=None):  # fmt: skip
     from tracker.services import entry as SE
 
     action, kind, title = FORMS[form]
@@ -123,14 +127,17 @@ def _render(request: Request, form: str, target: str, *, values=None, errors=Non
                 from tracker.services import views as SV
 
                 ctx["variant_keys"] = SV.family_variant_keys(conn, ctx["family"])
+    if user is not None:  # the form shows the person and their family's member codes: a read entry
+        clinic.audit_read(request, user, family=ctx["family"], person=None if form == "relative" else target,
+                          what=f"{title.lower()} form for {target}")  # fmt: skip
     return render(request, "entry.html", ctx, status_code=status_code)
 
 
 def _form_page(form: str):
     def page(request: Request):
         action = FORMS[form][0]
-        auth.require_to(request, action)
-        return _render(request, form, _code(request))
+        user = auth.require_to(request, action)
+        return _render(request, form, _code(request), user=user)
 
     page.__name__ = f"{form.replace('-', '_')}_form"
     return page
@@ -162,7 +169,7 @@ def _submit(form: str):
                 else:
                     got = SE.record_assessment(conn, target, f, user=user.name, today=today)
         except InputRejected as exc:
-            return _render(request, form, target, values=f, errors=field_errors(exc), status_code=400)
+            return _render(request, form, target, values=f, errors=field_errors(exc), status_code=400, user=user)
         return RedirectResponse(f"/person/{got.person}?done=entered" if form != "relative"
                                 else f"/family/{target}?done=entered", status_code=303)  # fmt: skip
 
