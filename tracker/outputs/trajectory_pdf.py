@@ -372,7 +372,8 @@ def chart_figure(c: Chart, width: float, height: float) -> F.Figure:
     fit = [f for f in c.fit if math.isfinite(f[1])]
     band = [f for f in fit if math.isfinite(f[2]) and math.isfinite(f[3])]
     if len(band) >= 2:
-        poly = tuple([v for f in band for v in (X(f[0]), Y(f[2]))] + [v for f in reversed(band) for v in (X(f[0]), Y(f[3]))])
+        poly = tuple([v for f in band for v in (X(f[0]), Y(f[2]))]
+                     + [v for f in reversed(band) for v in (X(f[0]), Y(f[3]))])
         fig.add(F.Poly(poly, style=F.Style(None, _BAND_HEX, opacity=0.85), role="band",
                        title="95% confidence band of the trend line"))  # fmt: skip
     if len(fit) >= 2:

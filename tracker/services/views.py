@@ -65,7 +65,8 @@ def family_view(conn: Connection, family: str, on: dt.date, conf: Settings, rule
             "genotype": g.status if g is not None else None, "genotype_reason": g.reason if g is not None else "",
             "phenotype": (rec["state"] or {}).get("phenotype") if rec.get("state") else None,
             "affected_status": facts.affected_status if facts else None,
-            "contact_status": _clean(row.get("contact_status")), "contact_status_date": _iso(row.get("contact_status_date")),
+            "contact_status": _clean(row.get("contact_status")),
+            "contact_status_date": _iso(row.get("contact_status_date")),
             "recall_status": rec["status"], "due": rec["due"], "days_overdue": rec["days_overdue"],
             "reason": rec["reason"],
         })  # fmt: skip
@@ -165,7 +166,8 @@ def _grid(a, labels: dict[str, str]) -> dict:
     from tracker.engines import review
     from tracker.outputs import trajectory_pdf as T
 
-    shown = a[~a["measure"].astype(str).str.startswith(review._SEGMENT_PREFIXES) & ~a["measure"].isin(review.NOT_TRENDED)]
+    codes = a["measure"].astype(str)
+    shown = a[~codes.str.startswith(review._SEGMENT_PREFIXES) & ~a["measure"].isin(review.NOT_TRENDED)]
     studies = shown.drop_duplicates(["study_date", "modality"]).sort_values(["study_date", "modality"])
     studies = studies.tail(MAX_GRID_STUDIES)
     cols = [(r.study_date, r.modality) for r in studies.itertuples()]

@@ -54,7 +54,9 @@ def _page(request: Request, user, family: str, extra: dict | None = None, status
 
 def family_page(request: Request):
     user = auth.current_user(request)
-    return _page(request, user, _code(request))
+    done = request.query_params.get("done", "")
+    notice = {"entered": "The relative was added; the entry is in the audit trail."}.get(done)
+    return _page(request, user, _code(request), {"notice": notice})
 
 
 def letter(request: Request):

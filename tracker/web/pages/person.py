@@ -51,7 +51,8 @@ def _page(request: Request, user, code: str, extra: dict | None = None, status_c
 def person_page(request: Request):
     user = auth.current_user(request)
     code = _code(request)
-    notice = {"edited": "The correction was saved; the old value is kept in the audit trail."}.get(
+    notice = {"edited": "The correction was saved; the old value is kept in the audit trail.",
+              "entered": "The record was saved; the entry is in the audit trail."}.get(
         request.query_params.get("done", ""))
     return _page(request, user, code, {"notice": notice})
 
