@@ -118,9 +118,10 @@ def test_family_page_shows_pedigree_members_variant_cascade(site):
     assert last["action"] == "read" and last["family"] == "HV01" and last["actor"] == "t.nurse"
 
 
-def test_unknown_family_is_refused(site):
+def test_unknown_family_or_person_is_not_found(site):
     _, app, tokens = site
-    assert client(app, tokens, "nurse").get("/family/NOPE").status_code in (400, 404)
+    assert client(app, tokens, "nurse").get("/family/NOPE").status_code == 404
+    assert client(app, tokens, "nurse").get("/person/NOPE-1").status_code == 404
 
 
 def test_letter_is_a_pdf_for_the_counsellor_only(site):

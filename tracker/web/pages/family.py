@@ -33,8 +33,12 @@ def _code(request: Request) -> str:
 def _view(request: Request, family: str) -> dict:
     from tracker.services import views as SV
 
+    from starlette.exceptions import HTTPException
+
     conf, rule_set, policy = clinic.rules(request)
     with reading(auth.engine(request)) as conn:
+        if not SV.family_members(conn, family):
+            raise HTTPException(404)
         return SV.family_view(conn, family, clinic.today(request), conf, rule_set, policy)
 
 

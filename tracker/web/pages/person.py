@@ -35,8 +35,16 @@ def _page(request: Request, user, code: str, extra: dict | None = None, status_c
     from tracker.services import corrections as SC
     from tracker.services import views as SV
 
+    from starlette.exceptions import HTTPException
+
+    from tracker.services.recall import person_family
+
     conf, rule_set, policy = clinic.rules(request)
     with reading(auth.engine(request)) as conn:
+        try:
+            person_family(conn, code)
+        except UserError:
+            raise HTTPException(404) from None
         data = SV.person_view(conn, code, clinic.today(request), conf, rule_set, policy)
     clinic.audit_read(request, user, family=data["family"], person=code, what=f"person page {code}")
     for c in data["charts"]:
