@@ -11,7 +11,6 @@ layout and marks (:mod:`tracker.outputs.pedigree_drawing`), the letter
 from __future__ import annotations
 
 import datetime as dt
-import math
 import tempfile
 from pathlib import Path
 from typing import Any
@@ -223,10 +222,6 @@ def letter_pdf(conn: Connection, person: str, on: dt.date, conf: Settings, gid: 
         path = Path(tmp) / name
         write_letter_pdf(composed, path)
         return name, path.read_bytes()
-
-
-def finite(v: Any) -> bool:
-    return isinstance(v, (int, float)) and math.isfinite(v)
 
 
 def family_members(conn: Connection, family: str) -> list[str]:

@@ -30,19 +30,6 @@ def audit_read(request: Request, user, *, family: str | None = None, person: str
         AC.audit_read(conn, user, family=family, person=person, what=what, now=auth.now(request))
 
 
-async def form_fields(request: Request) -> dict[str, str]:
-    """The posted form (read once by the CSRF check) as text fields, without the token."""
-    form = getattr(request.state, "form", None)
-    if form is None:
-        form = await request.form()
-    out = {}
-    for k, v in form.multi_items():
-        if k == "csrf_token" or not isinstance(v, str):
-            continue
-        out[k] = v[:MAX_FIELD]
-    return out
-
-
 def posted(request: Request) -> dict[str, str]:
     """The form the CSRF check has read (synchronous handlers run after it)."""
     form = request.state.form
