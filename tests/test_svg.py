@@ -167,3 +167,33 @@ def test_polar_map_svg_has_17_segments_with_values():
     drawing = PM.polar_map_drawing(values)
     fills = [s.fillColor.hexval()[2:].upper() for s in drawing.getContents() if isinstance(s, R.Polygon)]
     assert [s.get("fill").lstrip("#").upper() for s in segs] == fills
+
+
+def test_projection_is_drawn_only_ahead_of_the_fitted_line(frames, tmp_path):
+    """HV02-III-2's wall-thickness trend is projected to cross 13 mm before the last study (already past
+    it on the fitted line): no projection is drawn backwards (the engine's projected age is kept in the
+    flags and the recall reasons)."""
+    import datetime as dt
+
+    from tracker.services import documents as SD
+    from tracker.services.recall import recall_rules
+
+    path = str(tmp_path / "demo.sqlite")
+    assert main(["demo", "--db", path, "--json"]) == 0
+    conf, rule_set, policy = recall_rules(None, None)
+    engine = make_engine(locate(path))
+    with reading(engine) as conn:
+        data = SD.trajectory(conn, "HV02-III-2", dt.date(2026, 12, 1), conf, rule_set, policy, 3.0)
+    engine.dispose()
+    rows = {r["measure"]: r for r in data.trend_records}
+    assert rows["mwt_echo"]["projected_age"] is not None
+    chart = next(c for c in SD.charts(data.assessed, rows, "ESC") if c.measure == "mwt_echo")
+    assert rows["mwt_echo"]["projected_age"] < chart.fit[-1][0] and chart.projection == ()
+    # a projection ahead of the line is drawn, dotted, inside the chart
+    ahead = T.Chart(chart.measure, chart.title, chart.unit, chart.points, chart.fit, chart.normal, chart.threshold,
+                    projection=((chart.fit[-1][0], chart.fit[-1][1]), (chart.fit[-1][0] + 2.0, 13.5)))
+    svg = ET.fromstring(T.chart_svg(ahead))
+    line = svg.find("s:polyline[@class='projection']", NS)
+    assert line is not None and line.get("stroke-dasharray")
+    xs = [float(p.split(",")[0]) for p in line.get("points").split()]
+    assert max(xs) <= 300 - 6 + 0.01  # inside the plot area (right margin 6 points)
