@@ -344,8 +344,12 @@ def demo(
         if not serve:
             typer.echo("Next: `tracker families`, `tracker export people --out people.csv`, `tracker --help`")
     if serve:
+        import os
+
         from tracker.cli.web import run_server
 
+        if settings is None and not os.environ.get("TRACKER_SETTINGS"):
+            settings = folder / "clinic.toml"  # the invented demo clinic (letters need its contact details)
         if not json_out:
             typer.echo(f"Web interface: {result['address']}  (invented demonstration accounts; passwords shown once)")
             for a in result["accounts"]:
