@@ -250,6 +250,19 @@ def _settings_for_write(conf: Settings | None, rule_set, policy: Policy | None):
     return recall_rules(None, None)
 
 
+def prepare() -> None:
+    """Load what :func:`refresh_families` uses (pandas, the engines, the rule set) before a
+    command takes the write lock, so that the lock is held for the computation only."""
+    import pandas  # noqa: F401
+    from tracker.engines import family_state, review  # noqa: F401
+    from tracker.normals import criteria  # noqa: F401
+
+    try:
+        _settings_for_write(None, None, None)
+    except UserError:  # refresh_families marks the rows stale then
+        pass
+
+
 def refresh_families(conn: Connection, families: Iterable[str], on: dt.date | None = None,
                      conf: Settings | None = None, rule_set=None, policy: Policy | None = None,
                      defer_bulk: bool = False) -> int:  # fmt: skip
@@ -360,10 +373,13 @@ def any_trend_values(conn: Connection, skip: set[str] = frozenset()) -> bool:
 # --------------------------------------------------------------------------- checking
 
 
-def differing(conn: Connection, conf: Settings, rule_set, policy: Policy) -> list[tuple[str, str]]:
+def differing(conn: Connection, conf: Settings, rule_set, policy: Policy,
+              skip: Iterable[str] = ()) -> list[tuple[str, str]]:  # fmt: skip
     """Rows computed under ``conf``/``rule_set``/``policy`` that differ from a recomputation for
     the same day from the records now stored: (person, what differs). Rows computed under other
-    inputs or marked stale are not compared (the next read recomputes them)."""
+    inputs or marked stale are not compared (the next read recomputes them), nor the families in
+    ``skip`` (e.g. links that cannot form a pedigree)."""
+    skip = set(skip)
     from tracker.services.recall import load
     from tracker.store.repository import Scope
 
@@ -377,6 +393,8 @@ def differing(conn: Connection, conf: Settings, rule_set, policy: Policy) -> lis
         stored.setdefault((r.as_of, r[1]), []).append(r)
     by_day: dict[dt.date, list[str]] = {}
     for day, fam in stored:
+        if fam in skip:
+            continue
         by_day.setdefault(day, []).append(fam)
     out = []
     for day, fams in sorted(by_day.items()):
