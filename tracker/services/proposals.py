@@ -199,7 +199,8 @@ def compute(frames: _Frames, families: Iterable[str], on: dt.date, conf: Setting
             out.append(Computed(p, fam, prop.status, prop, None, s.phenotype == "positive",
                                 valid_until(s, rule_set, prop), values, versions[fam]))  # fmt: skip
         for p, why in st.not_scheduled.items():
-            out.append(Computed(p, fam, "not_scheduled", None, why, False, dt.date.max, values, versions[fam]))
+            out.append(Computed(p, fam, "not_scheduled", None, why, False, dt.date(9999, 12, 31), values,
+                                versions[fam]))  # fmt: skip
     return out, trend
 
 
