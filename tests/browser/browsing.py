@@ -97,13 +97,15 @@ def assert_accessible(page, where: str | None = None) -> None:
 # --------------------------------------------------------------------------- keyboard
 
 _MARK = """() => {
+  // shown now: laid out, not hidden, not inside a closed <details> (its summary excepted)
+  const closed = el => { const d = el.closest('details:not([open])'); return !!d && !el.closest('summary'); };
   const visible = el => !!(el.offsetWidth || el.offsetHeight || el.getClientRects().length)
-                        && getComputedStyle(el).visibility !== 'hidden';
+                        && el.checkVisibility({visibilityProperty: true}) && !closed(el);
   const usable = el => visible(el) && !el.disabled && el.type !== 'hidden' && !el.closest('[inert]');
   let n = 0;
   document.querySelectorAll('a[href], button, input, select, textarea, summary, iframe, [tabindex], [contenteditable]')
     .forEach(el => { if (!el.dataset.kbd) el.dataset.kbd = 'k' + (n++); });
-  const forms = [];
+  const forms = [], hidden = [];
   document.querySelectorAll('form').forEach((form, fi) => {
     const controls = [];
     Array.from(form.elements).filter(el => ['INPUT', 'SELECT', 'TEXTAREA', 'BUTTON'].includes(el.tagName)).filter(usable).forEach(el => {
@@ -114,10 +116,16 @@ _MARK = """() => {
                      label: (el.getAttribute('aria-label') || el.name || el.id || el.textContent || el.value || el.tagName).trim().slice(0, 40)});
     });
     form.dataset.kbdForm = 'f' + fi;
+    if (!controls.length) {  // not shown now: inside a closed <details>, its summary must be reachable
+      const d = form.closest('details:not([open])');
+      const s = d && d.querySelector(':scope > summary');
+      if (s) hidden.push({summary: s.dataset.kbd, label: s.textContent.trim().slice(0, 40)});
+      return;
+    }
     forms.push({form: 'f' + fi, label: (form.getAttribute('aria-label') || form.getAttribute('action')
                 || form.getAttribute('hx-post') || form.id || ('form ' + (fi + 1))), controls});
   });
-  return forms;
+  return {forms, hidden};
 }"""
 
 _ACTIVE = "() => { const a = document.activeElement; return a && a.dataset && a.dataset.kbd || null; }"
@@ -131,14 +139,22 @@ _TO_TOP = """() => {
 
 _CATCH_SUBMIT = """() => {
   window.__kbdSubmitted = [];
-  if (!window.__kbdCatching) {
-    window.__kbdCatching = true;
-    document.querySelectorAll('form').forEach(f => { f.noValidate = true; });
-    window.addEventListener('submit', e => {
-      window.__kbdSubmitted.push(e.target.dataset.kbdForm);
-      e.preventDefault(); e.stopImmediatePropagation();
-    }, true);
+  window.__kbdNoValidate = Array.from(document.forms).map(f => f.noValidate);
+  Array.from(document.forms).forEach(f => { f.noValidate = true; });
+  window.__kbdCatch = e => { window.__kbdSubmitted.push(e.target.dataset.kbdForm); e.preventDefault(); e.stopImmediatePropagation(); };
+  window.addEventListener('submit', window.__kbdCatch, true);
+}"""
+
+# Leaves the page as it was: the submit catcher removed, validation and the markers restored.
+_RELEASE = """() => {
+  if (window.__kbdCatch) {
+    window.removeEventListener('submit', window.__kbdCatch, true);
+    Array.from(document.forms).forEach((f, i) => { f.noValidate = window.__kbdNoValidate[i]; });
+    delete window.__kbdCatch;
   }
+  const s = document.getElementById('kbd-start'); if (s) s.remove();
+  document.querySelectorAll('[data-kbd]').forEach(el => { delete el.dataset.kbd; });
+  document.querySelectorAll('[data-kbd-form]').forEach(el => { delete el.dataset.kbdForm; });
 }"""
 
 
@@ -167,22 +183,34 @@ def _tab_order(page, limit: int) -> list[str]:
     return seen
 
 
-def keyboard_check(page, *, dry_run: bool = True) -> KeyboardReport:
+def keyboard_check(page) -> KeyboardReport:
     """Whether every form on the page can be reached and submitted with Tab and Enter alone.
 
     Every usable control of every form must receive focus by pressing Tab from the
-    top of the page (a radio group counts once: arrow keys move within it).  Then,
-    for each form, focus moves by Tab alone to its first submit button and Enter is
-    pressed; the form must fire its ``submit`` event.  With ``dry_run`` (the default)
-    that submit event is caught before the page or htmx sees it and native
-    validation is off for the check, so nothing is sent and an empty required field
-    does not hide a keyboard problem; the page is left as it was.
+    top of the page (a radio group counts once: arrow keys move within it); a form
+    folded in a closed ``<details>`` needs its ``<summary>`` reachable (Enter opens
+    it; open it and check again to check the form itself).  Then, for each form,
+    focus moves by Tab alone to its first submit button and Enter is pressed; the
+    form must fire its ``submit`` event.  That event is caught before the page or
+    htmx sees it and native validation is off during the check, so nothing is sent
+    and an empty required field does not hide a keyboard problem.  Afterwards the
+    page is as it was (forms submit normally again).
     """
-    forms = page.evaluate(_MARK)
+    marks = page.evaluate(_MARK)
+    try:
+        return _keyboard_check(page, marks)
+    finally:
+        page.evaluate(_RELEASE)
+
+
+def _keyboard_check(page, marks: dict) -> KeyboardReport:
+    forms = marks["forms"]
     marked = page.evaluate("() => document.querySelectorAll('[data-kbd]').length")
     order = _tab_order(page, limit=2 * marked + 20)
     reached = set(order)
     report = KeyboardReport(forms=forms, order=order)
+    report.unreached += sorted({f"closed form behind '{h['label']}': its summary" for h in marks["hidden"]
+                                if h["summary"] not in reached})
     for f in forms:
         groups: dict[str, bool] = {}
         for c in f["controls"]:
@@ -191,25 +219,22 @@ def keyboard_check(page, *, dry_run: bool = True) -> KeyboardReport:
             elif c["id"] not in reached:
                 report.unreached.append(f"{f['label']}: {c['label']}")
         report.unreached += [f"{f['label']}: radio group {g}" for g, ok in groups.items() if not ok]
-    if dry_run:
-        page.evaluate(_CATCH_SUBMIT)
+    page.evaluate(_CATCH_SUBMIT)
     for f in forms:
         submits = [c["id"] for c in f["controls"] if c["submit"]]
         target = next((s for s in submits if s in reached), None)
         if target is None:
             report.not_submitted.append(f"{f['label']}: no submit button reachable by Tab")
             continue
-        steps = order.index(target) + 1
         page.evaluate(_TO_TOP)
-        for _ in range(steps):
+        for _ in range(order.index(target) + 1):
             page.keyboard.press("Tab")
         if page.evaluate(_ACTIVE) != target:
             report.not_submitted.append(f"{f['label']}: Tab order changed on the second pass")
             continue
         page.keyboard.press("Enter")
-        if dry_run and f["form"] not in page.evaluate("() => window.__kbdSubmitted"):
+        if f["form"] not in page.evaluate("() => window.__kbdSubmitted"):
             report.not_submitted.append(f"{f['label']}: Enter on its submit button did not submit it")
-    page.evaluate("() => { const s = document.getElementById('kbd-start'); if (s) s.remove(); }")
     return report
 
 

@@ -113,7 +113,7 @@ class Account:
     password: str
 
 
-def add_accounts(db: str, roles=ROLES, *, keep_one_time: bool = False) -> dict[str, Account]:
+def add_accounts(db: str, roles=ROLES, *, keep_one_time: bool = False, prefix: str = "demo") -> dict[str, Account]:
     """One invented account per role through the accounts service; each first password replaced, as at a
     first sign-in (``keep_one_time``: left as the one-time password, which must be changed on sign-in)."""
     from tracker.services import accounts
@@ -123,7 +123,7 @@ def add_accounts(db: str, roles=ROLES, *, keep_one_time: bool = False) -> dict[s
     made = {}
     try:
         for role in roles:
-            name = f"demo.{role}"
+            name = f"{prefix}.{role}"
             with writing(engine) as conn:
                 first = accounts.add_account(conn, name, role, by="test-setup")
             password = first
@@ -154,6 +154,7 @@ class Site:
     url: str
     db: str
     accounts: dict[str, Account]
+    app: object  # the Starlette app (``app.state.clock`` can be moved by a test)
 
     def at(self, path: str) -> str:
         return self.url + path
@@ -172,7 +173,7 @@ def site_factory(demo_store, tmp_path):
             shutil.copyfile(template, db)
             app = create_app(db=str(db), secure_cookies=False, **kwargs)
             url = stack.enter_context(serve(app))
-            return Site(url, str(db), accounts)
+            return Site(url, str(db), accounts, app)
 
         yield make
 

@@ -74,6 +74,29 @@ def test_keyboard_check_passes_forms_reachable_and_submitted_by_keyboard(page):
     assert sent == [] and page.url == "http://app.test/"  # a dry run: nothing was sent
 
 
+def test_forms_submit_normally_after_the_keyboard_check(page):
+    sent: list[str] = []
+    show(page, GOOD_FORM, sent=sent)
+    assert_keyboard_forms(page)
+    assert page.evaluate("document.querySelectorAll('[data-kbd]').length") == 0  # markers removed
+    page.get_by_label("Find").fill("HV01")
+    with page.expect_request("http://app.test/search?q=HV01"):
+        page.get_by_label("Find").press("Enter")
+    assert sent == ["GET http://app.test/search?q=HV01"]
+
+
+def test_keyboard_check_needs_the_summary_of_a_folded_form(page):
+    folded = GOOD_FORM.replace('<form method="post"', '<details><summary>record contact</summary><form method="post"')
+    folded = folded.replace("</form>\n<form", "</form></details>\n<form", 1)
+    show(page, folded)
+    report = assert_keyboard_forms(page)
+    assert [f["label"] for f in report.forms] == ["Search"]  # the folded form is not shown, so not checked
+    page.get_by_text("record contact").press("Enter")  # opened from the keyboard: now checked too
+    assert [f["label"] for f in assert_keyboard_forms(page).forms] == ["Record a contact", "Search"]
+    show(page, folded.replace("<summary>", '<summary tabindex="-1">'))
+    assert keyboard_check(page).unreached == ["closed form behind 'record contact': its summary"]
+
+
 def test_keyboard_check_reports_a_control_out_of_the_tab_order(page):
     show(page, GOOD_FORM.replace('<textarea id="note"', '<textarea tabindex="-1" id="note"'))
     report = keyboard_check(page)
