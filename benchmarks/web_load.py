@@ -238,12 +238,14 @@ def request(client: Client, page: str, rng: random.Random, fams: list[str], peop
 
 
 def service_call(page: str, db: Path, fams: list[str], people: list[str], rng: random.Random):
-    """The service call behind ``page``, as a zero-argument function, or None when not known here."""
+    """The service calls behind ``page`` (as the page makes them), as a zero-argument function; None when
+    not known here.  Keep in step with the page: /day is ``tracker.web.pages.day.day_data``."""
     from tracker.store.database import locate, make_engine, reading
 
     engine = make_engine(locate(str(db)))
     if page == "day":
         from tracker.services import recall as SV
+        from tracker.services import tasks as TS
         from tracker.services import worklist as SW
 
         try:
@@ -257,7 +259,7 @@ def service_call(page: str, db: Path, fams: list[str], people: list[str], rng: r
             with reading(engine) as conn:
                 SW.worklist(conn, conf, rule_set, policy, on, on + dt.timedelta(weeks=DEFAULT_WEEKS), on,
                             conf.slots_per_week)  # fmt: skip
-                SW.tasks(conn, None)
+                TS.list_tasks(conn, None)
 
         return day
     if page == "person":
