@@ -274,3 +274,5 @@ def test_first_sign_in_asks_for_a_new_password(page, site_factory, tmp_path):
     with page.expect_navigation():
         page.get_by_label(words("again")).press("Enter")
     assert "/password" not in page.url or page.get_by_text(words("password changed")).count()
+    page.goto(site.at("/day"))
+    assert page.url.endswith("/day"), f"still asked for a new password: {page.url}"
