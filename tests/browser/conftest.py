@@ -24,6 +24,7 @@ import pytest
 from browser.browsing import launch, require_chromium
 
 HERE = Path(__file__).parent
+DEMO_SETTINGS = HERE.parents[1] / "demo_family" / "clinic.toml"  # the invented demo clinic (letters need it)
 ROLES = ("nurse", "cardiologist", "counsellor", "admin")
 
 
@@ -162,7 +163,8 @@ class Site:
 
 @pytest.fixture
 def site_factory(demo_store, tmp_path):
-    """``site_factory(**create_app_kwargs)``: the app on a fresh copy of the demo store; a :class:`Site`."""
+    """``site_factory(**create_app_kwargs)``: the app on a fresh copy of the demo store, with the demo
+    clinic's settings unless ``settings_path`` is given; a :class:`Site`."""
     with contextlib.ExitStack() as stack:
 
         def make(**kwargs) -> Site:
@@ -171,6 +173,7 @@ def site_factory(demo_store, tmp_path):
             template, accounts = demo_store
             db = tmp_path / f"store-{secrets.token_hex(4)}.sqlite"
             shutil.copyfile(template, db)
+            kwargs.setdefault("settings_path", DEMO_SETTINGS)
             app = create_app(db=str(db), secure_cookies=False, **kwargs)
             url = stack.enter_context(serve(app))
             return Site(url, str(db), accounts, app)
