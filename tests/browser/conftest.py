@@ -14,6 +14,7 @@ import contextlib
 import secrets
 import shutil
 import socket
+import sqlite3
 import threading
 import time
 from dataclasses import dataclass
@@ -156,6 +157,7 @@ class Site:
     db: str
     accounts: dict[str, Account]
     app: object  # the Starlette app (``app.state.clock`` can be moved by a test)
+    audit_start: int = 0  # the last audit entry id of the store as copied (tests look at what follows)
 
     def at(self, path: str) -> str:
         return self.url + path
@@ -173,10 +175,12 @@ def site_factory(demo_store, tmp_path):
             template, accounts = demo_store
             db = tmp_path / f"store-{secrets.token_hex(4)}.sqlite"
             shutil.copyfile(template, db)
+            with sqlite3.connect(db) as conn:
+                audit_start = conn.execute("SELECT coalesce(max(id), 0) FROM audit_entry").fetchone()[0]
             kwargs.setdefault("settings_path", DEMO_SETTINGS)
             app = create_app(db=str(db), secure_cookies=False, **kwargs)
             url = stack.enter_context(serve(app))
-            return Site(url, str(db), accounts, app)
+            return Site(url, str(db), accounts, app, audit_start)
 
         yield make
 
