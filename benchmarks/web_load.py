@@ -240,7 +240,7 @@ def request(client: Client, page: str, rng: random.Random, fams: list[str], peop
 def service_call(page: str, db: Path, fams: list[str], people: list[str], rng: random.Random):
     """The service calls behind ``page`` (as the page makes them), as a zero-argument function; None when
     not known here.  Keep in step with the pages: /day is ``tracker.web.pages.day.day_data``, /cohort is
-    ``tracker.web.pages.cohort.cohort_page``."""
+    ``tracker.web.pages.cohort.cohort_page``, /family and /person the views service as their pages call it."""
     from tracker.settings import load_settings
     from tracker.store.database import locate, make_engine, reading
 
@@ -272,6 +272,19 @@ def service_call(page: str, db: Path, fams: list[str], people: list[str], rng: r
                     SR.trends(conn, None, None, settings, HORIZON_YEARS)
 
             return cohort
+        if page in ("family", "person"):
+            from tracker.services import recall as SV
+            from tracker.services import views as VW
+
+            conf, rule_set, policy = SV.recall_rules(None, None)
+            view = VW.family_view if page == "family" else VW.person_view
+            codes = fams if page == "family" else people
+
+            def one():
+                with reading(engine) as conn:
+                    view(conn, rng.choice(codes), dt.date.today(), conf, rule_set, policy)
+
+            return one
     except (ImportError, AttributeError) as exc:  # the page or service changed: say so, measure the page alone
         print(f"   (service call of {page} not measured: {exc})")
     return None
