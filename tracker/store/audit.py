@@ -36,7 +36,7 @@ from tracker.store.models import AuditEntry
 if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
     import pandas as pd
 
-ACTIONS = ("import", "edit", "remove", "reinstate", "reclassify", "task_done", "restore")
+ACTIONS = ("import", "edit", "remove", "reinstate", "reclassify", "task_done", "restore", "record")
 
 
 def actor(user: str | None) -> str:
