@@ -283,3 +283,36 @@ def test_upgrade_from_0009_moves_every_status_into_the_log(db_url, run):
         after = conn.execute(text("SELECT code, contact_status, contact_status_date FROM person ORDER BY code")).all()
     assert [tuple(r) for r in after] == [tuple(r) for r in before]
     engine.dispose()
+
+
+# --------------------------------------------------------------------------- the command line
+
+
+def test_cli_contact_wish_book_external_discharge(loaded_db, run):
+    import json
+
+    r = run("contact", "add", "T1-07", "--date", "2026-11-01", "--channel", "phone", "--by", "nurse", "--outcome",
+            "contact_later", "--later", "2027-03-01", "--user", "nurse.a", "--json", db=loaded_db)  # fmt: skip
+    assert r.code == 0, r
+    assert json.loads(r.out)["later_date"] == "2027-03-01"
+    r = run("contact", "list", "T1-07", "--json", db=loaded_db)
+    st = json.loads(r.out)
+    assert st["status"] == "contactable" and st["contact_later_on"] == "2027-03-01" and len(st["history"]) == 2
+    r = run("contact", "list", "T1-07", db=loaded_db)
+    assert r.code == 0 and "asked to be contacted on 2027-03-01" in r.out
+    # A refused field names its option, one line, exit 1, nothing written.
+    r = run("contact", "add", "T1-07", "--date", "2026-02-30", "--channel", "phone", "--by", "nurse", "--outcome",
+            "informed", db=loaded_db)  # fmt: skip
+    assert r.code == 1 and r.err.startswith("error: --date:") and r.err.count("\n") == 1, r
+    r = run("wish", "set", "T1-05", "--wish", "only_via_family_member", "--via", "T1-04", "--date", "2026-09-01",
+            db=loaded_db)  # fmt: skip
+    assert r.code == 0, r
+    assert "through T1-04" in run("contact", "list", "T1-05", db=loaded_db).out
+    assert run("wish", "end", "T1-05", "--date", "2026-10-01", db=loaded_db).code == 0
+    r = run("book", "T1-03", "--date", "2099-01-01", "--purpose", "echo", db=loaded_db)
+    assert r.code == 1 and "--date:" in r.err  # more than 5 years ahead
+    r = run("external", "add", "T1-07", "--kind", "genetic_test", "--date", "2026-06-01", "--centre", "Invented Centre",
+            "--result", "non_carrier", "--json", db=loaded_db)  # fmt: skip
+    assert r.code == 0 and json.loads(r.out)["external"] is True, r
+    r = run("discharge", "T1-07", "--date", "2026-07-01", "--advice", "see a doctor with symptoms", db=loaded_db)
+    assert r.code == 0 and "likely_pathogenic" in r.out, r
