@@ -24,6 +24,7 @@ from tracker.domain.genetics import ACMG_CLASSES
 from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
 from tracker.engines.schedule import CAUTIONS, Proposal, never_screened_text
 from tracker.engines.worklist import (
+    contact_category,
     contact_gaps,
     lost_to_follow_up,
     not_recalled,
@@ -476,6 +477,15 @@ def worklist_lists(frames, conf, rule_set, policy, start: dt.date, end: dt.date,
     due_rows = [_entry(p, family_of[p.person_code], "screening") for p in screening_due if reachable(p)]
     affected_rows = [_entry(p, family_of[p.person_code], "affected") for p in affected_due if reachable(p)]
     gap_rows = [_entry(p, family_of[p.person_code], "contact_gap") for p in gaps]
+    # Where each stands with contact, from the contact log (docs/contacts-and-letters.md).
+    wait = conf.cascade.reply_wait_weeks
+    by_code = {p.person_code: p for p in screening_due + affected_due + gaps}
+    for r in due_rows + affected_rows + gap_rows:
+        p = by_code[r["person"]]
+        r["contact"] = contact_category(p, wait)
+        r["contact_later_on"] = _iso(p.contact_later_on)
+        r["contact_via"] = p.contact_via
+        r["informed_on"] = _iso(p.informed_on)
     booking = None
     if slots is not None:
         plan = plan_bookings([p for p in screening_due if reachable(p)], start, end, slots, on)
@@ -507,6 +517,9 @@ def worklist_lists(frames, conf, rule_set, policy, start: dt.date, end: dt.date,
         "not_recalled": [{"person": p.person_code, "family": family_of[p.person_code], "reason": "declined: not recalled"}
                          for p in not_recalled(proposals)],
         "lost_to_follow_up": [p.person_code for p in lost_to_follow_up(screening_due + affected_due)],
+        "no_response": [{"person": r["person"], "family": r["family"], "informed_on": r["informed_on"],
+                         "wait_weeks": wait} for r in due_rows + affected_rows if r["contact"] == "no_response"],
+        "must_not_approach": [r["person"] for r in gap_rows if r["contact"] == "must_not_approach"],
     }  # fmt: skip
 
 
@@ -533,7 +546,7 @@ def worklist(
 
     Example: tracker worklist --from 2026-12-07 --to 2027-01-31 --slots-per-week 4 --ics recalls.ics
     """
-    from tracker.outputs.worklist_pdf import GAP_WORDS, booked_text, flag_words, waiting_text
+    from tracker.outputs.worklist_pdf import booked_text, flag_words, gap_words, waiting_text
 
     start, end = _day(from_, "--from"), _day(to, "--to")
     if end < start:
@@ -578,6 +591,8 @@ def worklist(
         "contact_gaps": gap_rows,
         "not_recalled": declined,
         "lost_to_follow_up": lost,
+        "no_response": lists["no_response"],
+        "must_not_approach": lists["must_not_approach"],
         "trend_modifiers": trend,
         "files": files,
         "variant_rereview": rereview,
@@ -603,11 +618,16 @@ def worklist(
         print_table(
             "Contact gaps: not booked until contact is made",
             ["person", "gap", "waiting", "due", "needs", "flags"],
-            [[r["person"], GAP_WORDS.get(r["contact_status"], r["contact_status"]), waiting_text(r), r["due"] or "",
+            [[r["person"], gap_words(r), waiting_text(r), r["due"] or "",
               ics.needs_words(r["needs"]), flag_words(r["flags"])] for r in gap_rows],
         )  # fmt: skip
     else:
         typer.echo("Contact gaps: none")
+    if lists["no_response"]:
+        typer.echo(f"Informed, no response after {lists['no_response'][0]['wait_weeks']} weeks (follow up): "
+                   + ", ".join(f"{r['person']} (informed {r['informed_on']})" for r in lists["no_response"]))
+    if lists["must_not_approach"]:
+        typer.echo("Must not be approached (asked for no further contact): " + ", ".join(lists["must_not_approach"]))
     if rereview:
         typer.echo("Variant re-review: " + "; ".join(f"{r['family']} {r['acmg_class']} ({r['classified_on']}), "
                                                     f"{'due since' if r['overdue'] else 'by'} {r['due']}"
@@ -626,7 +646,7 @@ def worklist(
 
 
 def _worklist_table(title: str, rows: list[dict], booked: bool) -> None:
-    from tracker.outputs.worklist_pdf import GAP_WORDS, booked_text, flag_words, waiting_text
+    from tracker.outputs.worklist_pdf import booked_text, flag_words, gap_words, waiting_text
 
     if not rows:
         typer.echo(f"{title}: none")

@@ -63,7 +63,7 @@ def _load(conn: Connection, scope: Scope | None = None) -> _Frames:
 
     return _Frames(
         families=repo.load_families(conn, scope),
-        people=repo.load_people(conn, scope),
+        people=with_contact_columns(conn, repo.load_people(conn, scope), scope),
         variants=repo.load_variants(conn, scope),
         results=repo.load_genetic_results(conn, scope),
         assessments=repo.load_assessments(conn, scope),
@@ -73,6 +73,42 @@ def _load(conn: Connection, scope: Scope | None = None) -> _Frames:
 
 
 load = _load
+
+# Columns the engines read from the people frame, derived from the contact log (revision 0012).
+CONTACT_COLUMNS = ("contact_wish", "contact_via", "contact_later_on", "informed_on", "contact_responded")
+
+
+def with_contact_columns(conn: Connection, people: pd.DataFrame, scope: Scope | None = None) -> pd.DataFrame:
+    """The people frame with the contact log's current state beside each person (plain values the
+    engines read: the open wish and its family member, the day asked to be contacted, the day first
+    informed, and whether a booking or a letter reply came since)."""
+    import pandas as pd
+
+    from tracker.store import repository as repo
+
+    states = repo.contact_states(conn, scope)
+    bookings = repo.load_bookings(conn, scope)
+    letters = repo.load_letters(conn, scope)
+    people = people.copy()
+    cols: dict[str, list] = {c: [] for c in CONTACT_COLUMNS}
+    for p in people["person"]:
+        st = states.get(p)
+        informed = st.informed_date if st is not None else None
+        cols["contact_wish"].append(st.wish if st else None)
+        cols["contact_via"].append(st.wish_via if st else None)
+        cols["contact_later_on"].append(_iso(st.contact_later_on) if st else None)
+        cols["informed_on"].append(_iso(informed))
+        back = False
+        if informed is not None:
+            day = informed.isoformat()
+            mine = bookings[(bookings["person"] == p) & bookings["cancelled_date"].isna()] if len(bookings) else bookings
+            replies = letters[(letters["person"] == p) & letters["reply_date"].notna()] if len(letters) else letters
+            back = bool(len(mine) and (mine["entered_at"].str[:10] >= day).any()) or \
+                bool(len(replies) and (replies["reply_date"] >= day).any())
+        cols["contact_responded"].append(back)
+    for c, v in cols.items():
+        people[c] = pd.Series(v, index=people.index, dtype=object)
+    return people
 
 
 def _family_state(frames: _Frames, family: str, as_of: dt.date | None) -> fs.FamilyState:
