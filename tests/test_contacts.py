@@ -10,6 +10,7 @@ import datetime as dt
 import pytest
 from sqlalchemy import func, select, text
 
+from conftest import MINI, dump
 from tracker.domain.contacts import derive_state, legacy_status
 from tracker.io.reading import InputRejected
 from tracker.services import contacts as C
@@ -316,3 +317,92 @@ def test_cli_contact_wish_book_external_discharge(loaded_db, run):
     assert r.code == 0 and json.loads(r.out)["external"] is True, r
     r = run("discharge", "T1-07", "--date", "2026-07-01", "--advice", "see a doctor with symptoms", db=loaded_db)
     assert r.code == 0 and "likely_pathogenic" in r.out, r
+
+
+# --------------------------------------------------------------------------- results from other centres
+
+
+def test_external_results_count_in_genotype_status_and_recall(loaded_db, run):
+    import json
+
+    before = json.loads(run("recall", "T1-07", "--as-of", "2026-12-01", "--json", db=loaded_db).out)
+    assert run("external", "add", "T1-07", "--kind", "genetic_test", "--date", "2026-06-01", "--centre",
+               "Invented Northern Centre", "--result", "carrier", db=loaded_db).code == 0  # fmt: skip
+    after = json.loads(run("recall", "T1-07", "--as-of", "2026-12-01", "--json", db=loaded_db).out)
+    text = json.dumps(after)
+    assert "from another centre: Invented Northern Centre (external)" in text
+    assert json.dumps(before) != text
+    assert '"carrier"' in text
+    # A screening elsewhere counts as a visit (marked external).
+    assert run("external", "add", "T1-07", "--kind", "screening", "--date", "2026-07-01", "--centre",
+               "Invented Northern Centre", "--result", "unaffected", db=loaded_db).code == 0  # fmt: skip
+    again = json.dumps(json.loads(run("recall", "T1-07", "--as-of", "2026-12-01", "--json", db=loaded_db).out))
+    assert "2026-07-01" in again
+
+
+# --------------------------------------------------------------------------- export and import
+
+
+def _fill(db, run):
+    for args in (
+        ("contact", "add", "T1-07", "--date", "2026-10-01", "--channel", "phone", "--by", "nurse", "--outcome",
+         "no_answer"),
+        ("contact", "add", "T1-07", "--date", "2026-10-08", "--channel", "via_family", "--via", "T1-04", "--outcome",
+         "contact_later", "--later", "2027-02-01", "--notes", "=starts like a formula"),
+        ("wish", "set", "T1-05", "--wish", "only_via_family_member", "--via", "T1-04", "--date", "2026-09-01"),
+        ("wish", "end", "T1-05", "--date", "2026-09-20"),
+        ("external", "add", "T1-07", "--kind", "genetic_test", "--date", "2026-06-01", "--centre", "Invented Centre",
+         "--result", "non_carrier", "--document", "INV-1"),
+        ("discharge", "T1-07", "--date", "2026-07-01", "--advice", "see a doctor with symptoms"),
+        ("book", "T1-03", "--date", "2027-01-12", "--purpose", "annual review"),
+        ("report", "letter", "T1-07", "--out", "LETTERS", "--date", "2026-07-02", "--kind", "discharge", "--sent",
+         "--settings", "demo_family/clinic.toml"),
+    ):
+        r = run(*args, db=db)
+        assert r.code == 0, (args, r)
+
+
+def test_contact_export_import_round_trip(loaded_db, run, tmp_path, monkeypatch, db_url):
+    monkeypatch.chdir(__import__("pathlib").Path(__file__).resolve().parent.parent)
+    _fill(loaded_db, run)
+    first = tmp_path / "first"
+    assert run("contact", "export", first, db=loaded_db).code == 0
+    # A second store with the same people: importing the folder gives the same export.
+    other = str(tmp_path / "other.sqlite")
+    assert run("init", db=other).code == 0 and run("import", "all", MINI, db=other).code == 0
+    r = run("contact", "import", first, "--json", db=other)
+    assert r.code == 0, r
+    second = tmp_path / "second"
+    assert run("contact", "export", second, db=other).code == 0
+    for f in sorted(first.iterdir()):
+        assert f.read_text() == (second / f.name).read_text(), f.name
+    assert "'=starts like a formula" in (first / "contact_events.csv").read_text()
+    # Again: nothing added.
+    again = __import__("json").loads(run("contact", "import", first, "--json", db=other).out)
+    assert all(d["rows_added"] == 0 for d in again)
+
+
+@pytest.mark.parametrize(
+    "file, text, row, column",
+    [
+        ("contact_events.csv", "person,event_date,channel,by_role,via,outcome,later_date,notes\n"
+         "T1-07,2026-10-01,phone,nurse,,informed,,\nT1-07,2026-10-02,fax,nurse,,informed,,\n", 3, "channel"),
+        ("contact_events.csv", "person,event_date,channel,by_role,via,outcome,later_date,notes\n"
+         "T1-07,2026-10-01,phone,nurse,,contact_later,,\n", 2, "later_date"),
+        ("contact_events.csv", "person,event_date,channel,by_role,via,outcome,later_date,notes\n"
+         "T1-07,2026-10-01,via_family,,T2-01,informed,,\n", 2, "via"),
+        ("contact_wishes.csv", "person,wish,via,recorded_date,notes,ended_date\n"
+         "T1-05,only_via_family_member,,2026-09-01,,\n", 2, "via"),
+        ("bookings.csv", "person,visit_date,purpose,notes,cancelled_date\nT1-03,2027-01-12,,,\n", 2, "purpose"),
+        ("external_results.csv", "person,kind,result_date,centre,variant,result,document_ref,notes\n"
+         "T1-07,screening,2026-06-01,X,,carrier,,\n", 2, "result"),
+    ],
+)
+def test_contact_import_refuses_bad_rows_and_writes_nothing(loaded_db, run, tmp_path, file, text, row, column):
+    folder = tmp_path / "in"
+    folder.mkdir()
+    (folder / file).write_text(text)
+    before = dump(loaded_db)
+    r = run("contact", "import", folder, db=loaded_db)
+    assert r.code == 1 and f"{file}:{row}: column '{column}'" in r.err, r
+    assert dump(loaded_db) == before

@@ -8,6 +8,7 @@ the stored record (or JSON).  A refused field is named by its option (``--date``
 from __future__ import annotations
 
 from contextlib import contextmanager
+from pathlib import Path
 from typing import Annotated
 
 import typer
@@ -256,6 +257,55 @@ def discharge(
         r = SC.record_discharge(conn, person, on=date, advice=advice, variant=variant, notes=notes, user=user)
     _show(r, json_out, f"{r['person']} discharged from screening on {r['discharge_date']} (variant {r['acmg_class']} "
           f"since {r['classified_on']})")  # fmt: skip
+
+
+@contact_app.command("export")
+def contact_export(
+    folder: Annotated[Path, typer.Argument(help="Folder to write the six contact-log CSV files into (made if missing).")],
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """Write the contact log, wishes, letters sent, external results, bookings and discharges as CSV
+    (layouts in docs/data-layouts.md; files readable by their owner only).
+
+    Example: tracker contact export exports/contacts
+    """
+    from tracker.io.export import export_contacts
+
+    engine = open_store(db)
+    with reading(engine) as conn:
+        counts = export_contacts(conn, folder)
+    if json_out:
+        print_json({"folder": str(folder), "rows": counts})
+    else:
+        for kind, n in counts.items():
+            typer.echo(f"{kind}: {n} rows")
+
+
+@contact_app.command("import")
+def contact_import(
+    folder: Annotated[Path, typer.Argument(help="Folder holding contact-log CSV files (any of the six).")],
+    user: UserOption = None,
+    db: DbOption = None,
+    json_out: JsonOption = False,
+) -> None:
+    """Import contact-log CSV files: every row checked as a form is; one refused row and nothing is written;
+    rows already stored are skipped.
+
+    Example: tracker contact import exports/contacts
+    """
+    from tracker.io.contact_import import import_contact_folder
+
+    engine = open_store(db)
+    with writing(engine) as conn:
+        done = import_contact_folder(conn, folder, user=user)
+    if json_out:
+        print_json(done)
+    elif not done:
+        typer.echo("no contact-log files in the folder")
+    else:
+        for d in done:
+            typer.echo(f"{d['file']}: {d['rows_added']} added, {d['rows_already_stored']} already stored")
 
 
 def register(app: typer.Typer) -> None:

@@ -254,20 +254,22 @@ def record_contact(conn: Connection, person: str, *, on, channel: str, by: str |
 
 
 def record_booking(conn: Connection, person: str, *, on, purpose: str, user: str | None, notes: str | None = None,
-                   today: dt.date | None = None) -> dict:  # fmt: skip
-    """Book a visit for ``on`` (today or later, at most MAX_YEARS_AHEAD years ahead) with its purpose."""
+                   today: dt.date | None = None, history: bool = False) -> dict:  # fmt: skip
+    """Book a visit for ``on`` (today or later, at most MAX_YEARS_AHEAD years ahead) with its purpose.
+    ``history``: an imported past booking (the person's wish and vital status today do not apply)."""
     form = "booking"
     today = today or dt.date.today()
     who = _user(form, user)
     prow = _person(conn, form, "person", person)
-    if prow.vital_status == "deceased":
+    if prow.vital_status == "deceased" and not history:
         raise _refuse(form, "person", f"{prow.code} is recorded as deceased")
     if prow.is_placeholder:
         raise _refuse(form, "person", f"{prow.code} is a placeholder (a pedigree position, not a person)")
     day = _date(form, "on", on, today=today, future=True, not_before=today, before_what="today")
     purpose = _text(form, "purpose", purpose, required=True, limit=Booking.__table__.c.purpose.type.length)
     notes = _text(form, "notes", notes)
-    _refuse_if_no_contact(conn, form, prow, today)
+    if not history:
+        _refuse_if_no_contact(conn, form, prow, today)
     booking_id = int(conn.execute(insert(Booking).returning(Booking.id), dict(
         person_id=prow.id, visit_date=day, purpose=purpose, notes=notes, entered_at=audit.now_utc(),
         entered_by=who)).scalar_one())  # fmt: skip
@@ -381,7 +383,7 @@ def end_wish(conn: Connection, person: str, *, on, user: str | None, notes: str 
 
 def record_letter_sent(conn: Connection, person: str, *, kind: str, template: str, template_version: str, on,
                        to: str = "person", via: str | None = None, notes: str | None = None, user: str | None,
-                       today: dt.date | None = None) -> dict:  # fmt: skip
+                       today: dt.date | None = None, history: bool = False) -> dict:  # fmt: skip
     """Record a letter the user confirms was sent (never on mere generation).
 
     ``to``: ``person``, or ``via_family`` with ``via`` the family member it was sent through.  A letter to
@@ -406,9 +408,9 @@ def record_letter_sent(conn: Connection, person: str, *, kind: str, template: st
         raise _refuse(form, "via", "only when the letter went through a family member (to via_family)")
     notes = _text(form, "notes", notes)
     state = _state(conn, prow)
-    if state.must_not_approach:
+    if state.must_not_approach and not history:
         raise _refuse(form, "person", f"{prow.code} asked for no further contact (since {_iso(state.wish_date)})")
-    if state.wish == "only_via_family_member" and (via_row is None or via_row.code != state.wish_via):
+    if state.wish == "only_via_family_member" and not history and (via_row is None or via_row.code != state.wish_via):
         raise _refuse(form, "via", f"{prow.code} asked to be contacted only through {state.wish_via}")
     lid = int(conn.execute(insert(LetterSent).returning(LetterSent.id), dict(
         person_id=prow.id, kind=kind, template=template, template_version=version, sent_date=day, sent_to=to,
