@@ -86,3 +86,26 @@ def test_worklist_command_uses_the_log(loaded_db, run):
     assert gap["contact"] == "must_not_approach"
     text = run("worklist", "--from", "2026-12-01", "--to", "2027-02-28", "--as-of", "2026-12-01", db=loaded_db).out
     assert "Must not be approached (asked for no further contact): T1-06" in text
+
+
+def test_cascade_gaps_use_the_log(loaded_db, run):
+    """T1-07 (invented, never contacted): a gap 'never_contacted'; after a no-further-contact wish, 'must not
+    be approached' and never recalled; the wish ended and a contact-later, the day asked for."""
+    import json
+
+    def gap():
+        d = json.loads(run("cascade", "FAM-T1", "--as-of", "2026-12-01", "--json", db=loaded_db).out)
+        return next((g for g in d["gaps"] if g["person"] == "T1-07"), None), d
+
+    g, _ = gap()
+    assert g is not None and g["gap"] == "never_contacted"
+    assert run("wish", "set", "T1-07", "--wish", "no_further_contact", "--date", "2026-11-01", db=loaded_db).code == 0
+    g, d = gap()
+    assert g["gap"] == "must_not_approach" and g["recalled"] is False
+    listed = [i for k in ("predictive_testing", "deferred", "clinical_screening") for i in d[k] if i["person"] == "T1-07"]
+    assert all(i.get("must_not_approach") for i in listed)
+    assert run("wish", "end", "T1-07", "--date", "2026-11-15", db=loaded_db).code == 0
+    assert run("contact", "add", "T1-07", "--date", "2026-11-20", "--channel", "phone", "--by", "counsellor",
+               "--outcome", "contact_later", "--later", "2027-04-01", db=loaded_db).code == 0  # fmt: skip
+    g, _ = gap()
+    assert g["gap"] == "contact_later" and g["due"] == "2027-04-01"
