@@ -6,6 +6,7 @@ Invented people of tests/data/mini (FAM-T1, FAM-T2); on SQLite and, when configu
 from __future__ import annotations
 
 import datetime as dt
+from pathlib import Path
 
 import pytest
 from sqlalchemy import func, select, text
@@ -343,7 +344,7 @@ def test_external_results_count_in_genotype_status_and_recall(loaded_db, run):
 # --------------------------------------------------------------------------- export and import
 
 
-def _fill(db, run):
+def _fill(db, run, letters):
     for args in (
         ("contact", "add", "T1-07", "--date", "2026-10-01", "--channel", "phone", "--by", "nurse", "--outcome",
          "no_answer"),
@@ -355,16 +356,15 @@ def _fill(db, run):
          "--result", "non_carrier", "--document", "INV-1"),
         ("discharge", "T1-07", "--date", "2026-07-01", "--advice", "see a doctor with symptoms"),
         ("book", "T1-03", "--date", "2027-01-12", "--purpose", "annual review"),
-        ("report", "letter", "T1-07", "--out", "LETTERS", "--date", "2026-07-02", "--kind", "discharge", "--sent",
-         "--settings", "demo_family/clinic.toml"),
+        ("report", "letter", "T1-07", "--out", letters, "--date", "2026-07-02", "--kind", "discharge", "--sent",
+         "--settings", Path(__file__).resolve().parent.parent / "demo_family" / "clinic.toml"),
     ):
         r = run(*args, db=db)
         assert r.code == 0, (args, r)
 
 
-def test_contact_export_import_round_trip(loaded_db, run, tmp_path, monkeypatch, db_url):
-    monkeypatch.chdir(__import__("pathlib").Path(__file__).resolve().parent.parent)
-    _fill(loaded_db, run)
+def test_contact_export_import_round_trip(loaded_db, run, tmp_path):
+    _fill(loaded_db, run, tmp_path / "letters")
     first = tmp_path / "first"
     assert run("contact", "export", first, db=loaded_db).code == 0
     # A second store with the same people: importing the folder gives the same export.
