@@ -86,10 +86,12 @@ def test_edit_person_keeps_the_old_value_in_the_audit_trail(loaded_db, run, monk
     table = run("audit", "--person", "T1-07", db=loaded_db)
     assert table.code == 0 and "1 audit entries" in table.out and "nurse.a" in table.out
     assert "contact_status: not_contacted -> declined" in table.out
-    # Only the person row, the audit trail and the family's stored recall proposals (derived
-    # data, recomputed in the edit's transaction: docs/design.md) changed.
+    # Only the contact log (one event appended: the status is derived from it, revision 0012), the
+    # audit trail and the family's stored recall proposals (derived data, recomputed in the edit's
+    # transaction: docs/design.md) changed; the person row is not rewritten.
     after = dump(loaded_db)
-    assert {t for t in after if after[t] != before[t]} == {"person", "audit_entry", "recall_proposal"}
+    assert {t for t in after if after[t] != before[t]} == {"contact_event", "audit_entry", "recall_proposal"}
+    assert len(after["contact_event"]) == len(before["contact_event"]) + 1
 
 
 def test_edit_refused_when_it_makes_the_records_inconsistent(loaded_db, run):

@@ -126,9 +126,11 @@ def _id(code: str) -> str:
          "person T1-02", "death_date: is given but vital_status is not deceased"),
         ("UPDATE person SET is_placeholder = true WHERE code = 'T1-05'", "assessment T1-05",
          "is a placeholder member"),
-        ("UPDATE person SET contact_status = 'contactable' WHERE code = 'T1-02'", "person T1-02",
+        ("INSERT INTO contact_event (person_id, event_date, channel, outcome, source, entered_at, entered_by) "
+         "VALUES (" + _id("T1-02") + ", '2014-01-01', 'phone', 'informed', 'entered', '2026-01-01 00:00:00', 'x')", "person T1-02",
          "the person is deceased"),
-        ("UPDATE person SET contact_status = 'contactable' WHERE code = 'T1-01'", "person T1-01",
+        ("INSERT INTO contact_event (person_id, event_date, channel, outcome, source, entered_at, entered_by) "
+         "VALUES (" + _id("T1-01") + ", '2014-01-01', 'phone', 'informed', 'entered', '2026-01-01 00:00:00', 'x')", "person T1-01",
          "placeholder member"),
         ("UPDATE assessment SET pregnant = true WHERE person_id = " + _id("T1-05"), "assessment T1-05 2019-02-10",
          "sex at birth is male"),

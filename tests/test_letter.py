@@ -378,6 +378,7 @@ VALUES = {
     "variant_hgvs": VARIANT.hgvs, "variant_zygosity": "heterozygous", "variant_class": "pathogenic",
     "classified_on": "2020-03-02", "testing_start": "from about age 10 to 12", "testing_from": "2028-09-13",
     "screening_start": "in childhood", "guideline_title": "a rule set",
+    "visit_date": "2027-01-12", "visit_purpose": "a heart tracing and a scan", "informed_on": "2026-09-01",
 }  # fmt: skip
 
 

@@ -316,10 +316,12 @@ def test_recall_deceased_and_declined(demo_db, run):
 
 WORKLIST_KEYS = {"window", "as_of", "rule_set", "rule_set_title", "policy", "slots_per_week", "due", "affected",
                  "booking", "contact_gaps", "not_recalled", "lost_to_follow_up", "trend_modifiers", "files",
-                 "cautions", "variant_rereview"}  # fmt: skip
+                 "cautions", "variant_rereview", "no_response", "must_not_approach"}  # fmt: skip
 ENTRY_KEYS = {"list", "person", "family", "status", "due", "days_overdue", "interval_months", "rule_id", "needs",
               "consider", "reason", "source", "triggers", "flags", "booked_week", "late", "never_screened",
-              "eligible_since", "gap_reason", "waiting", "contact_status", "review_flags"}  # fmt: skip
+              "eligible_since", "gap_reason", "waiting", "contact_status", "review_flags",
+              # from the contact log (revision 0012)
+              "contact", "contact_later_on", "contact_via", "informed_on"}  # fmt: skip
 
 
 def test_worklist_capacity_reports_who_cannot_be_seen_by_the_due_date(rc_db, run):

@@ -23,6 +23,7 @@ else ``./tracker.toml`` if present, else the defaults below.  Example
     [cascade]                   # counselling policies of the cascade (docs/recall-and-cascade.md)
     variant_rereview_months = 24        # re-review the variant's class after this long
     declined_reapproach_months = 24     # absent: relatives who declined are not re-approached
+    reply_wait_weeks = 6                # informed, nothing back after this long: follow up
 
     [web]                       # the web interface (docs/operations.md)
     idle_minutes = 30                   # a session ends after this long unused
@@ -125,6 +126,10 @@ class Privacy:
 class CascadePolicy:
     variant_rereview_months: int = DEFAULT_REREVIEW_MONTHS
     declined_reapproach_months: int | None = None  # None: do not re-approach
+    # Weeks after a relative was informed, with nothing back, before the nurse's lists show them as
+    # "informed, no response" (and a reminder letter fits): 6 by default, common practice with no single
+    # source; the clinic sets its own (tracker.engines.worklist.DEFAULT_REPLY_WAIT_WEEKS).
+    reply_wait_weeks: int = 6
 
     def declined_words(self) -> str:
         if self.declined_reapproach_months is None:
@@ -176,7 +181,7 @@ _SECTIONS = {
     "schedule": {"guideline", "policy", "slots_per_week"},
     "repeatability": None,  # any measure code
     "privacy": {"pseudonym_key", "pseudonym_key_file", "small_cell_threshold"},
-    "cascade": {"variant_rereview_months", "declined_reapproach_months"},
+    "cascade": {"variant_rereview_months", "declined_reapproach_months", "reply_wait_weeks"},
     "web": {"idle_minutes", "absolute_hours", "trust_forwarded_proto", "secure_cookies"},
     "display": {"table_rows"},
 }
@@ -272,6 +277,11 @@ def _cascade(section: dict, name: str) -> CascadePolicy:
         if not isinstance(v, int) or isinstance(v, bool) or v < 1:
             raise UserError(f"{name}: [cascade] {key} must be a whole number of months, at least 1")
         out[key] = v
+    if "reply_wait_weeks" in section:
+        v = section["reply_wait_weeks"]
+        if not isinstance(v, int) or isinstance(v, bool) or not 1 <= v <= 104:
+            raise UserError(f"{name}: [cascade] reply_wait_weeks must be a whole number of weeks, 1 to 104")
+        out["reply_wait_weeks"] = v
     return CascadePolicy(**out)
 
 

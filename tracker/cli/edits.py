@@ -20,8 +20,10 @@ from tracker.store.database import reading, writing
 
 edit_app = typer.Typer(
     help="Correct a stored record; the old value is kept in the audit trail (`tracker audit`).\n\n"
-    "Example: tracker edit person HV01-III-4 --set contact_status=declined --set contact_status_date=2026-11-30 "
-    '--reason "phoned; declines screening"',
+    "Example: tracker edit person HV01-III-4 --set vital_status=deceased --set death_date=2026-10-02 "
+    '--reason "GP letter"\n\n'
+    "Contacts are recorded with `tracker contact add` (the contact log keeps every one); "
+    "--set contact_status=... appends an entry to that log, it never overwrites.",
     no_args_is_help=True,
 )
 remove_app = typer.Typer(
@@ -74,8 +76,8 @@ def _show(change: edits.Change, json_out: bool) -> None:
 def edit_person(person: PersonArg, sets: Sets, reason: Reason, user: UserOption = None, db: DbOption = None,
                 json_out: JsonOption = False) -> None:  # fmt: skip
     """Correct fields of a person: names, sex_at_birth, birth_date, vital_status, death_date, mother, father,
-    twin_of, contact_status, contact_status_date, notes, death_cause, death_age, diagnosis_age,
-    diagnosis_place, icd_date, pacemaker_date, ...
+    twin_of, notes, death_cause, death_age, diagnosis_age, diagnosis_place, icd_date, pacemaker_date, ...
+    (contact_status and contact_status_date append an entry to the contact log: see `tracker contact add`)
 
     Example: tracker edit person HV01-III-4 --set vital_status=deceased --set death_date=2026-10-02 --reason "GP letter"
     """

@@ -421,7 +421,7 @@ def worklist(
 
     Example: tracker worklist --from 2026-12-07 --to 2027-01-31 --slots-per-week 4 --ics recalls.ics
     """
-    from tracker.outputs.worklist_pdf import GAP_WORDS, flag_words, waiting_text
+    from tracker.outputs.worklist_pdf import flag_words, gap_words, waiting_text
     from tracker.services import worklist as SW
 
     start, end = _day(from_, "--from"), _day(to, "--to")
@@ -457,6 +457,10 @@ def worklist(
         "contact_gaps": gap_rows,
         "not_recalled": declined,
         "lost_to_follow_up": lost,
+        "no_response": lists["no_response"],
+        "must_not_approach": lists["must_not_approach"],
+        "no_response": lists["no_response"],
+        "must_not_approach": lists["must_not_approach"],
         "trend_modifiers": trend,
         "files": files,
         "variant_rereview": rereview,
@@ -484,12 +488,22 @@ def worklist(
         print_table(
             "Contact gaps: not booked until contact is made",
             ["person", "gap", "waiting", "due", "needs", "flags"],
-            [[r["person"], GAP_WORDS.get(r["contact_status"], r["contact_status"]), waiting_text(r), r["due"] or "",
+            [[r["person"], gap_words(r), waiting_text(r), r["due"] or "",
               ics.needs_words(r["needs"]), flag_words(r["flags"])] for r in gap_rows],
             limit=limit, data=_DATA,
         )  # fmt: skip
     else:
         typer.echo("Contact gaps: none")
+    if lists["no_response"]:
+        typer.echo(f"Informed, no response after {lists['no_response'][0]['wait_weeks']} weeks (follow up): "
+                   + ", ".join(f"{r['person']} (informed {r['informed_on']})" for r in lists["no_response"]))
+    if lists["must_not_approach"]:
+        typer.echo("Must not be approached (asked for no further contact): " + ", ".join(lists["must_not_approach"]))
+    if lists["no_response"]:
+        typer.echo(f"Informed, no response after {lists['no_response'][0]['wait_weeks']} weeks (follow up): "
+                   + ", ".join(f"{r['person']} (informed {r['informed_on']})" for r in lists["no_response"]))
+    if lists["must_not_approach"]:
+        typer.echo("Must not be approached (asked for no further contact): " + ", ".join(lists["must_not_approach"]))
     if rereview:
         typer.echo("Variant re-review: " + "; ".join(f"{r['family']} {r['acmg_class']} ({r['classified_on']}), "
                                                     f"{'due since' if r['overdue'] else 'by'} {r['due']}"

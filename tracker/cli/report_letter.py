@@ -17,13 +17,13 @@ from typing import Annotated
 
 import typer
 
-from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
+from tracker.cli.common import DbOption, JsonOption, SettingsOption, UserOption, open_store, print_json
 from tracker.outfiles import output_path
 from tracker.domain.dates import parse_date
 from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
 from tracker.errors import UserError
 from tracker.settings import load_settings
-from tracker.store.database import reading
+from tracker.store.database import reading, writing
 
 if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
     from tracker.engines import family_state as fs
@@ -42,10 +42,10 @@ def _stored_name(people, person: str) -> str | None:
     return " ".join(parts) or None
 
 
-def _standing(state, person):
+def _standing(state, person, record: dict | None = None):
     from tracker.services import documents as SD
 
-    return SD.standing(state, person)
+    return SD.standing(state, person, record)
 
 
 def letter(
@@ -76,10 +76,20 @@ def letter(
         str | None,
         typer.Option(
             "--kind",
-            help="Letter kind: first_contact, reminder, result or reclassification (default: chosen from where "
-            "the person stands; refused when it does not fit).",
+            help="Letter kind: first_contact, reminder, result, reclassification, discharge or appointment "
+            "(default: chosen from where the person stands; refused when it does not fit).",
         ),
     ] = None,
+    via: Annotated[
+        str | None,
+        typer.Option("--via", help="The family member who hands the letter on (code); implies --via-proband wording."),
+    ] = None,
+    sent: Annotated[
+        bool,
+        typer.Option("--sent", help="Confirm the letter is sent: record it (kind, template and version, date, "
+                     "to the person or through --via) in the contact log. Without it nothing is recorded."),
+    ] = False,
+    user: UserOption = None,
     settings: SettingsOption = None,
     db: DbOption = None,
     json_out: JsonOption = False,
@@ -126,11 +136,24 @@ def letter(
     engine = open_store(db)
     with reading(engine) as conn:
         people, family, state = SD.letter_state(conn, person, on)
+        record = SD.letter_record(conn, person, on)
+    # The relative's wishes (contact log): never a letter to someone who asked for no further contact;
+    # only through the named family member when they asked for that.
+    if record["wish"] == "no_further_contact":
+        raise L.LetterRefused(f"{person} asked for no further contact: must not be approached; no letter")
+    if record["wish"] == "only_via_family_member" and via != record["wish_via"]:
+        raise L.LetterRefused(f"{person} asked to be contacted only through {record['wish_via']}: "
+                              f"give --via {record['wish_via']}")  # fmt: skip
+    if via is not None:
+        via_proband = True
+        if via == person or via not in set(people["person"]):
+            raise UserError(f"--via: {via} is not another member of family {family}")
     recipient_name = _stored_name(people, person) if names else None
     plan = L.prepare_letter(
         state.pedigree, state.genotypes, _letter_variant(state.variant), person, on, gid, conf.clinic,
         affected=state.affected, seen=state.seen, early_onset_family="early_onset" in state.features,
-        via_proband=via_proband, recipient_name=recipient_name, standing=_standing(state, person), letter_kind=kind,
+        via_proband=via_proband, recipient_name=recipient_name, standing=_standing(state, person, record),
+        letter_kind=kind,
     )  # fmt: skip
     composed = L.compose_letter(plan, own_template)
     notes = list(plan.notes) + list(composed.warnings)
@@ -143,6 +166,20 @@ def letter(
         write_letter_pdf(composed, tmp)
     r = composed.readability
     template_name = str(template) if template is not None else plan.default_template
+    recorded = None
+    if sent:
+        from tracker.services import contacts as SC
+
+        version = _template_version(template if template is not None else L.TEMPLATE_DIR / plan.default_template)
+        try:
+            with writing(engine) as conn:
+                recorded = SC.record_letter_sent(
+                    conn, person, kind=plan.letter_kind, template=Path(template_name).name[:100],
+                    template_version=version, on=on, to="via_family" if via else "person", via=via,
+                    user=user)  # fmt: skip
+        except SC.InputRejected as exc:
+            p = exc.problems[0]
+            raise UserError(f"--sent: {p.column}: {p.message}; the letter was written but not recorded") from None
     if json_out:
         print_json(
             {
@@ -164,6 +201,7 @@ def letter(
                 "risk": plan.values.get("risk"),
                 "notes": notes,
                 "caution": composed.caution,
+                "recorded_as_sent": recorded,
             }
         )
         return
@@ -181,7 +219,19 @@ def letter(
     typer.echo(f"syllables counted with: {r.syllable_counter}")
     for n in notes:
         typer.echo(f"note: {n}")
+    if recorded is not None:
+        typer.echo(f"recorded as sent on {recorded['sent_date']} ({recorded['kind']}, template "
+                   f"{recorded['template']} {recorded['template_version']}; audit entry {recorded['audit_id']})")
+    else:
+        typer.echo("not recorded as sent (give --sent once the letter is sent)")
     typer.echo(composed.caution)
+
+
+def _template_version(path: Path) -> str:
+    """The template's version: the first 12 hex digits of its SHA-256 (the exact text the letter came from)."""
+    import hashlib
+
+    return "sha256:" + hashlib.sha256(Path(path).read_bytes()).hexdigest()[:12]
 
 
 def register(report_app: typer.Typer) -> None:

@@ -310,6 +310,8 @@ def _read_results(ped: Pedigree, results: pd.DataFrame | None, variant: str | No
         if variant is not None and key is None:
             o.notes.append(f"{result} result ({when_txt}) names no variant: not used")
             continue
+        if row.get("external") in (True,):  # revision 0012: a test at another centre counts, marked as such
+            o.notes.append(f"{result} result ({when_txt}) from another centre: {row.get('lab')}")
         prev = o.seen.get(result)
         if result not in o.seen or (when is not None and (prev is None or when > prev)):
             o.seen[result] = when

@@ -676,6 +676,11 @@ def _family_state(
             sex=_text(r.get("sex_at_birth")) or "unknown",
             vital_status=_text(r.get("vital_status")) or "unknown",
             contact_status=_text(r.get("contact_status")) or "not_contacted",
+            contact_wish=_text(r.get("contact_wish")),
+            contact_via=_text(r.get("contact_via")),
+            contact_later_on=_day_or_none(r.get("contact_later_on")),
+            informed_on=_day_or_none(r.get("informed_on")),
+            responded=_responded(r, f),
             genotype=genotype,
             phenotype=phenotype_for_schedule(f.affected_status),
             family_features=features,
@@ -917,3 +922,24 @@ def unscheduled_at_risk(state: FamilyState, people: pd.DataFrame) -> list[tuple[
             continue
         out.append((p, why))
     return out
+
+
+def _day_or_none(v) -> dt.date | None:
+    """A date from the people frame's derived contact columns (ISO text or a date; empty: None)."""
+    if v is None or (isinstance(v, float) and v != v):
+        return None
+    if isinstance(v, dt.date):
+        return v
+    text = _text(v)
+    return dt.date.fromisoformat(text) if text else None
+
+
+def _responded(row, facts) -> bool:
+    """Anything back since the relative was informed: a booking or a letter reply (``contact_responded``,
+    from the contact log), or a visit, assessment or genetic test on or after that day."""
+    informed = _day_or_none(row.get("informed_on"))
+    if informed is None:
+        return False
+    if row.get("contact_responded") is True:
+        return True
+    return facts.last_contact is not None and facts.last_contact >= informed

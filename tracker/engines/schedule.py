@@ -155,6 +155,15 @@ class PersonState:
     triggers: frozenset[str] = frozenset()
     eligible_since: dt.date | None = None
     variant_classified_on: dt.date | None = None
+    # From the contact log (revision 0012; tracker.domain.contacts): the open wish
+    # (no_further_contact / only_via_family_member, with the family member), the day the relative
+    # asked to be contacted, the day they were first informed, and whether anything came back
+    # since (a visit, a test, a booking or a reply).
+    contact_wish: str | None = None
+    contact_via: str | None = None
+    contact_later_on: dt.date | None = None
+    informed_on: dt.date | None = None
+    responded: bool = False
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "family_features", frozenset(self.family_features))
@@ -272,6 +281,11 @@ class Proposal:
     eligible_since: dt.date | None = None
     gap_reason: str | None = None
     contact_status: str = "contactable"
+    contact_wish: str | None = None
+    contact_via: str | None = None
+    contact_later_on: dt.date | None = None
+    informed_on: dt.date | None = None
+    responded: bool = False
 
 
 def never_screened_text(p: Proposal) -> str | None:
@@ -666,6 +680,11 @@ def _proposal(ctx: _Ctx, status: str, due, months, routine_due, rule, progressio
                     if status in ("due", "overdue", "not_recalled")
                     and (never or ctx.state.contact_status != "contactable") else None),
         contact_status=ctx.state.contact_status,
+        contact_wish=ctx.state.contact_wish,
+        contact_via=ctx.state.contact_via,
+        contact_later_on=ctx.state.contact_later_on,
+        informed_on=ctx.state.informed_on,
+        responded=ctx.state.responded,
     )
 
 
@@ -696,6 +715,13 @@ def propose_recall(person: PersonState, rule_set: RuleSet, policy: Policy, today
     if s.vital_status == "deceased":
         ctx.notes.append("deceased: never scheduled")
         return _proposal(ctx, "not_scheduled", None, None, None, None)
+    if s.contact_wish == "no_further_contact":
+        ctx.notes.append("asked for no further contact: must not be approached")
+    elif s.contact_wish == "only_via_family_member":
+        ctx.notes.append(f"contact only through {s.contact_via} (the relative's wish)")
+    if s.contact_later_on is not None and s.contact_later_on > today and s.contact_status != "declined":
+        ctx.flag("contact_later")
+        ctx.notes.append(f"asked to be contacted on {s.contact_later_on.isoformat()}: not approached before then")
     if s.contact_status == "declined":
         ctx.notes.append("declined: not recalled")
         if s.last_visit is None:

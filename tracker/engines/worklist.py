@@ -13,8 +13,10 @@ Urgency order (most urgent first):
 5. person code (a stable tie-break).
 
 Who is booked: only people who can be reached (contact status
-``contactable``).  People not contacted yet, lost to follow-up or who declined
-are never booked: they are returned as *contact gaps*
+``contactable``, derived from the contact log), with no wish against contact and
+not waiting for a day they asked to be contacted on.  People not contacted yet,
+lost to follow-up, who declined, who asked to be contacted later or who must not
+be approached are never booked: they are returned as *contact gaps*
 (:func:`contact_gaps`), with the reason, for the nurse to act on.  Each person
 is booked at most once (a person code met twice keeps its most urgent
 proposal).
@@ -97,9 +99,43 @@ def urgency_key(p: Proposal) -> tuple:
     return (0 if p.triggers else 1, -days_waiting(p), 0 if p.progression else 1, due, p.person_code)
 
 
+# How long after a relative was informed, with nothing back (no visit, test, booking or reply), the nurse
+# is prompted to follow up: 6 weeks by default, a clinic setting ([contacts] reply_wait_weeks).  Common
+# practice, no single source: cascade-testing services commonly send one reminder some weeks after the first
+# letter; the clinic sets its own.
+DEFAULT_REPLY_WAIT_WEEKS = 6
+
+# The nurse's contact categories, in the order the gaps are listed (docs/contacts-and-letters.md).
+CONTACT_CATEGORIES = ("not_informed", "no_response", "contact_later", "lost_to_follow_up", "declined",
+                      "must_not_approach")  # fmt: skip
+
+
+def contact_category(p: Proposal, wait_weeks: int = DEFAULT_REPLY_WAIT_WEEKS) -> str | None:
+    """Where a relative stands with contact, from the contact log (None: informed and nothing to chase).
+
+    ``must_not_approach`` (asked for no further contact), ``declined``, ``lost_to_follow_up``,
+    ``contact_later`` (asked to be contacted on a later day, not yet reached), ``not_informed`` (never
+    informed), ``no_response`` (informed ``wait_weeks`` weeks ago or more, nothing back since).
+    """
+    if p.contact_wish == "no_further_contact":
+        return "must_not_approach"
+    if p.contact_status in ("declined", "lost_to_follow_up"):
+        return p.contact_status
+    if p.contact_later_on is not None and p.contact_later_on > p.today:
+        return "contact_later"
+    if p.contact_status == "not_contacted":
+        return "not_informed"
+    if (p.informed_on is not None and not p.responded
+            and (p.today - p.informed_on).days >= 7 * wait_weeks):  # fmt: skip
+        return "no_response"
+    return None
+
+
 def reachable(p: Proposal) -> bool:
-    """Can be booked: contactable (not declined, not lost to follow-up, not yet contacted)."""
-    return p.contact_status == REACHABLE
+    """Can be booked: contactable (not declined, not lost to follow-up, not yet contacted), no wish against
+    contact, and not waiting for the day they asked to be contacted."""
+    return (p.contact_status == REACHABLE and p.contact_wish != "no_further_contact"
+            and not (p.contact_later_on is not None and p.contact_later_on > p.today))  # fmt: skip
 
 
 def contact_gaps(proposals: Iterable[Proposal]) -> list[Proposal]:
@@ -111,9 +147,20 @@ def contact_gaps(proposals: Iterable[Proposal]) -> list[Proposal]:
     """
     seen: set[str] = set()
     out = []
-    for p in sorted(proposals, key=lambda p: (GAP_ORDER.index(p.contact_status) if p.contact_status in GAP_ORDER
-                                               else len(GAP_ORDER), urgency_key(p))):  # fmt: skip
-        if p.contact_status == REACHABLE or p.person_code in seen:
+
+    def order(p: Proposal) -> int:
+        if p.contact_wish == "no_further_contact":
+            return len(GAP_ORDER) + 1  # listed last: must not be approached
+        if reachable(p) is False and p.contact_status == REACHABLE:
+            return 0  # asked to be contacted later
+        return GAP_ORDER.index(p.contact_status) if p.contact_status in GAP_ORDER else len(GAP_ORDER)
+
+    for p in sorted(proposals, key=lambda p: (order(p), urgency_key(p))):
+        if reachable(p) or p.person_code in seen:
+            continue
+        if p.contact_wish == "no_further_contact" and p.status != "not_scheduled":
+            seen.add(p.person_code)  # listed whatever their status: must not be approached
+            out.append(p)
             continue
         if p.contact_status != "declined" and p.status not in BOOKABLE:
             continue

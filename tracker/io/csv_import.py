@@ -30,6 +30,7 @@ from tracker.store import audit
 from tracker.store.models import (
     Assessment,
     Base,
+    ContactEvent,
     Family,
     GeneticResult,
     ImportRun,
@@ -142,6 +143,7 @@ def import_file(
     with gc_paused():  # millions of short-lived cells and tuples, no cycles (see tracker.gcpause)
         ctx = ctx if ctx is not None else context(conn, today)
         checked = check_file(conn, kind, path, today, ctx)
+        object.__setattr__(checked, "user", user)  # who entered what the writer logs (the contact log)
         writer = _WRITERS[kind]
         added, already = writer(conn, checked, progress or (lambda n: None), ctx)
     summary = ImportSummary(kind, path.name, len(checked.rows), added, already, touched(checked, ctx, added))
@@ -174,6 +176,7 @@ def import_cells(
         validation.CHECKS[kind](checked, ctx)
         if checked.problems:
             raise InputRejected(checked.problems)
+        object.__setattr__(checked, "user", audit.actor(user))
         added, already = _WRITERS[kind](conn, checked, progress or (lambda n: None), ctx)
     summary = ImportSummary(kind, path.name, len(checked.rows), added, already, touched(checked, ctx, added))
     _record_run(conn, summary, path, user)
@@ -446,13 +449,14 @@ def _write_people(conn, checked, progress, ctx):
             c["person"], [fam[f] for f in c["family"]], c["given_name"], c["family_name"], c["sex_at_birth"],
             c["gender_identity"], birth, birth_p, c["vital_status"], death, death_p,
             [bool(v) for v in c["placeholder"]], [bool(v) for v in c["proband"]], c["twin_type"], c["adoption"],
-            c["contact_status"], c["contact_status_date"], c["notes"],
+            [None] * len(new), [None] * len(new), c["notes"],
             c["death_cause"], _whole(c["death_age"]), _whole(c["diagnosis_age"]), c["diagnosis_place"],
             icd, icd_p, pacemaker, pacemaker_p, c["external_id"],
         ]  # fmt: skip
         _bulk_insert(conn, "person", _PERSON_COLUMNS, list(zip(*cols)))
-        # Parent and twin links, now that every person has an id: one executemany.
         ids = _ids(conn, Person)
+        _log_imported_statuses(conn, ids, c["person"], c["contact_status"], c["contact_status_date"], checked)
+        # Parent and twin links, now that every person has an id: one executemany.
         links = []
         for person, m, f, t in zip(c["person"], c["mother"], c["father"], c["twin_of"]):
             link = (ids.get(m), ids.get(f), ids.get(t))
@@ -462,6 +466,23 @@ def _write_people(conn, checked, progress, ctx):
         ctx.people = _append(ctx.people, new, bools=("placeholder", "proband"))
     progress(len(checked.rows))
     return len(new), already
+
+
+IMPORTED_NOTE = "contact status read from the people file {file}"
+
+
+def _log_imported_statuses(conn, ids: dict, people: list, statuses: list, dates: list, checked) -> None:
+    """A people file's contact_status (and its date) is one event of the contact log (migration 0012), in the
+    same words (``contactable`` is outcome ``informed``), channel ``other``, source ``imported``."""
+    now = audit.now_utc()
+    who = audit.actor(getattr(checked, "user", None))
+    note = IMPORTED_NOTE.format(file=getattr(checked, "file", None) or "imported")
+    rows = [dict(person_id=ids[p], event_date=dt.date.fromisoformat(d) if d else None, channel="other",
+                 outcome={"contactable": "informed"}.get(s, s), notes=note, source="imported",
+                 entered_at=now, entered_by=who)
+            for p, s, d in zip(people, statuses, dates) if s is not None or d is not None]  # fmt: skip
+    if rows:
+        conn.execute(insert(ContactEvent), rows)
 
 
 def _write_variants(conn, checked, progress, ctx):

@@ -19,7 +19,7 @@ import re
 
 from tracker.io.columns import PROTECTED, format_cell
 from tracker.outfiles import check_output, write_output
-from tracker.io.layouts import LAYOUTS
+from tracker.io.layouts import CONTACT_LAYOUTS, LAYOUTS
 from tracker.store import repository as repo
 
 
@@ -63,3 +63,54 @@ def export_all(conn: Connection, folder: Path, *, force: bool = True) -> dict[st
     for kind in LAYOUTS:
         check_output(folder / LAYOUTS[kind].file_name, force=force)
     return {kind: export_kind(conn, kind, folder / LAYOUTS[kind].file_name) for kind in LAYOUTS}
+
+
+# --------------------------------------------------------------------------- the contact log (revision 0012)
+
+CONTACT_LOADERS = {
+    "contact-events": repo.load_contact_events,
+    "contact-wishes": repo.load_contact_wishes,
+    "letters-sent": repo.load_letters,
+    "external-results": repo.load_external_results,
+    "bookings": repo.load_bookings,
+    "discharges": repo.load_discharges,
+}
+
+
+def contact_frame(conn: Connection, kind: str, scope=None) -> pd.DataFrame:
+    """The stored records of a contact-log kind in its layout's column order (entered events only for
+    ``contact-events``: a migrated or imported status is the people layout's contact_status)."""
+    frame = CONTACT_LOADERS[kind](conn, scope)
+    if kind == "contact-events" and len(frame):
+        frame = frame[frame["source"] == "entered"]
+    return frame[CONTACT_LAYOUTS[kind].names].reset_index(drop=True)
+
+
+def contact_csv_text(frame: pd.DataFrame, kind: str) -> str:
+    layout = CONTACT_LAYOUTS[kind]
+    text_cols = {c.name for c in layout.columns if c.kind == "text"}
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(layout.names)
+    for rec in frame.itertuples(index=False):
+        cells = []
+        for name, value in zip(layout.names, rec):
+            cell = format_cell(value)
+            if name in text_cols and re.match(PROTECTED, cell):
+                cell = "'" + cell
+            cells.append(cell)
+        writer.writerow(cells)
+    return out.getvalue()
+
+
+def export_contacts(conn: Connection, folder: Path, *, force: bool = True) -> dict[str, int]:
+    """Write the six contact-log kinds into ``folder`` under their layout file names (0600)."""
+    folder.mkdir(parents=True, exist_ok=True)
+    for kind in CONTACT_LAYOUTS:
+        check_output(folder / CONTACT_LAYOUTS[kind].file_name, force=force)
+    counts = {}
+    for kind, layout in CONTACT_LAYOUTS.items():
+        frame = contact_frame(conn, kind)
+        write_private(folder / layout.file_name, contact_csv_text(frame, kind))
+        counts[kind] = len(frame)
+    return counts

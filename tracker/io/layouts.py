@@ -175,6 +175,101 @@ STUDIES = Layout(
     key=("person", "study_date", "modality", "measure"),
 )
 
+# The contact log and what goes with it (schema revision 0012; docs/contacts-and-letters.md).
+_VARIANT_KEY = Column("variant", "regex", pattern=rf"(?:{TRANSCRIPT_RE}):{HGVS_C_RE}",
+                      what="a variant as transcript:c.change (e.g. NM_000256.3:c.1504C>T)")  # fmt: skip
+
+CONTACT_EVENTS = Layout(
+    "contact-events",
+    "contact_events.csv",
+    (
+        Column("person", "code", required=True),
+        Column("event_date", "date", required=True),
+        Column("channel", "choice", required=True, choices=V.CONTACT_CHANNELS),
+        Column("by_role", "choice", choices=V.CONTACT_ROLES),
+        Column("via", "code"),
+        Column("outcome", "choice", required=True, choices=V.CONTACT_OUTCOMES_ENTERED),
+        Column("later_date", "date"),
+        Column("notes", "text"),
+    ),
+    key=("person", "event_date", "channel", "by_role", "via", "outcome", "later_date", "notes"),
+)
+
+CONTACT_WISHES = Layout(
+    "contact-wishes",
+    "contact_wishes.csv",
+    (
+        Column("person", "code", required=True),
+        Column("wish", "choice", required=True, choices=V.CONTACT_WISHES),
+        Column("via", "code"),
+        Column("recorded_date", "date", required=True),
+        Column("notes", "text"),
+        Column("ended_date", "date"),
+    ),
+    key=("person", "wish", "recorded_date"),
+)
+
+LETTERS_SENT = Layout(
+    "letters-sent",
+    "letters_sent.csv",
+    (
+        Column("person", "code", required=True),
+        Column("kind", "choice", required=True, choices=V.LETTER_KINDS),
+        Column("template", "text", required=True),
+        Column("template_version", "text", required=True),
+        Column("sent_date", "date", required=True),
+        Column("sent_to", "choice", required=True, choices=V.LETTER_SENT_TO),
+        Column("via", "code"),
+        Column("reply_date", "date"),
+        Column("notes", "text"),
+    ),
+    key=("person", "kind", "sent_date"),
+)
+
+EXTERNAL_RESULTS = Layout(
+    "external-results",
+    "external_results.csv",
+    (
+        Column("person", "code", required=True),
+        Column("kind", "choice", required=True, choices=V.EXTERNAL_RESULT_KINDS),
+        Column("result_date", "date", required=True),
+        Column("centre", "text", required=True),
+        _VARIANT_KEY,
+        Column("result", "choice", required=True, choices=V.TEST_RESULTS + V.EXTERNAL_PHENOTYPES),
+        Column("document_ref", "text"),
+        Column("notes", "text"),
+    ),
+    key=("person", "kind", "result_date"),
+)
+
+BOOKINGS = Layout(
+    "bookings",
+    "bookings.csv",
+    (
+        Column("person", "code", required=True),
+        Column("visit_date", "date", required=True),
+        Column("purpose", "text", required=True),
+        Column("notes", "text"),
+        Column("cancelled_date", "date"),
+    ),
+    key=("person", "visit_date", "purpose"),
+)
+
+DISCHARGES = Layout(
+    "discharges",
+    "discharges.csv",
+    (
+        Column("person", "code", required=True),
+        Column("discharge_date", "date", required=True),
+        _VARIANT_KEY,
+        Column("acmg_class", "choice", required=True, choices=V.ACMG_CLASSES),
+        Column("classified_on", "date", required=True),
+        Column("advice", "text", required=True),
+        Column("notes", "text"),
+    ),
+    key=("person", "discharge_date"),
+)
+
 # Where each text-like cell is stored ("table.column"): the store's column length is the cell's limit
 # (one source of truth, so a cell the store cannot hold is refused by the check, on every backend).
 # Text columns without a length keep the paste-error limit MAX_TEXT.
@@ -207,6 +302,19 @@ STORED_AS = {
         "person": "person.code", "modality": "study.modality", "site": "study.site",
         "measure": "measurement.measure_code", "unit": "measurement.entered_unit",
     },
+    "contact-events": {"person": "person.code", "channel": "contact_event.channel", "by_role": "contact_event.by_role",
+                       "via": "person.code", "outcome": "contact_event.outcome", "notes": "contact_event.notes"},
+    "contact-wishes": {"person": "person.code", "wish": "contact_wish.wish", "via": "person.code",
+                       "notes": "contact_wish.notes"},
+    "letters-sent": {"person": "person.code", "kind": "letter_sent.kind", "template": "letter_sent.template",
+                     "template_version": "letter_sent.template_version", "sent_to": "letter_sent.sent_to",
+                     "via": "person.code", "notes": "letter_sent.notes"},
+    "external-results": {"person": "person.code", "kind": "external_result.kind", "centre": "external_result.centre",
+                         "variant": ("variant.transcript", "variant.hgvs_c"), "result": "external_result.result",
+                         "document_ref": "external_result.document_ref", "notes": "external_result.notes"},
+    "bookings": {"person": "person.code", "purpose": "booking.purpose", "notes": "booking.notes"},
+    "discharges": {"person": "person.code", "variant": ("variant.transcript", "variant.hgvs_c"),
+                   "acmg_class": "discharge.acmg_class", "advice": "discharge.advice", "notes": "discharge.notes"},
 }  # fmt: skip
 # Kinds of cell held as text (the others are dates, numbers and yes/no, held in typed columns).
 TEXT_KINDS = ("text", "code", "regex", "choice")
@@ -240,5 +348,11 @@ LAYOUTS = {
 }
 FAMILIES, PEOPLE, VARIANTS, GENETIC_RESULTS, ASSESSMENTS, STUDIES = LAYOUTS.values()
 IMPORT_ORDER = tuple(LAYOUTS)
+# The contact log's layouts (revision 0012): the service checks a form field as the importer checks a cell.
+CONTACT_LAYOUTS = {
+    layout.kind: _with_store_limits(layout)
+    for layout in (CONTACT_EVENTS, CONTACT_WISHES, LETTERS_SENT, EXTERNAL_RESULTS, BOOKINGS, DISCHARGES)
+}
+CONTACT_EVENTS, CONTACT_WISHES, LETTERS_SENT, EXTERNAL_RESULTS, BOOKINGS, DISCHARGES = CONTACT_LAYOUTS.values()
 
 __all__ = ["LAYOUTS", "IMPORT_ORDER", "Layout", "CODE_RE"]

@@ -136,17 +136,21 @@ DEFAULT_TEMPLATES = {
 
 # Letters by where the person stands (the letter kind); the first-contact letter is the family-type
 # template above, the others are one template each.
-LETTER_KINDS = ("first_contact", "reminder", "result", "reclassification")
+LETTER_KINDS = ("first_contact", "reminder", "result", "reclassification", "discharge", "appointment")
 KIND_TEMPLATES = {
     "reminder": "letter_reminder.en.txt",
     "result": "letter_result.en.txt",
     "reclassification": "letter_reclassification.en.txt",
+    "discharge": "letter_discharge.en.txt",
+    "appointment": "letter_appointment.en.txt",
 }
 KIND_WORDS = {
     "first_contact": "first contact",
     "reminder": "reminder of the next heart check",
     "result": "gene test result ready",
     "reclassification": "family variant reclassified",
+    "discharge": "discharge from family screening",
+    "appointment": "appointment booked",
 }
 
 # Readability target: Flesch-Kincaid grade 7 or lower = reading age about 12 (see the docstring).
@@ -171,6 +175,9 @@ PLACEHOLDERS: dict[str, str] = {
     "person_code": "the recipient's person code (the letter's reference)",
     "recipient_name": "the recipient's name with --names, else 'relative'",
     "letter_date": "the date of the letter, ISO 8601",
+    "visit_date": "appointment letters: the day of the booked visit, ISO 8601",
+    "visit_purpose": "appointment letters: what the booked visit is for",
+    "informed_on": "reminders to someone not yet seen: the day they were first informed, ISO 8601",
     "risk": "P/LP families: the recipient's chance of carrying the variant, e.g. 'about 1 in 4 (25%)'",
     "gene": "the gene of the family variant",
     "variant_hgvs": "the family variant in HGVS (transcript:c. change, protein change)",
@@ -189,6 +196,7 @@ FLAGS: dict[str, str] = {
     "testing_deferred": "a child below the rule set's minimum age for predictive testing",
     "first_degree": "the recipient is a first-degree relative of an affected member",
     "has_variant": "a variant is recorded for the family (whatever its class)",
+    "not_yet_seen": "reminder: informed before but not yet seen (no study, test or visit on record)",
 }
 
 FIELDS = ("subject", "greeting", "closing")
@@ -592,6 +600,14 @@ class Standing:
     result_on: dt.date | None = None
     last_contact: dt.date | None = None
     reclassified_on: dt.date | None = None
+    # From the contact log (revision 0012): the day first informed, whether anything came back since,
+    # an open reclassification task for the person, a discharge (its day), the next booked visit.
+    informed_on: dt.date | None = None
+    responded: bool = False
+    open_task: bool = False
+    discharged_on: dt.date | None = None
+    booked_on: dt.date | None = None
+    booked_purpose: str | None = None
 
     @property
     def in_screening(self) -> bool:
@@ -602,18 +618,25 @@ class Standing:
 def choose_letter_kind(st: Standing) -> str:
     """The letter kind for where the person stands.
 
-    In order: ``reclassification`` (in screening, and the family variant's
-    class changed after the last contact, or with no contact on record);
+    In order: ``appointment`` (a visit booked, not cancelled, on or after today);
+    ``discharge`` (discharged from screening after a negative result);
+    ``reclassification`` (an open reclassification task for the person, or in screening and the family
+    variant's class changed after the last contact, or with no contact on record);
     ``result`` (a genetic result on record, dated after the last visit or with
-    no visit); ``reminder`` (in screening); ``first_contact`` (not in screening).
+    no visit); ``reminder`` (in screening, or informed before: the contact log);
+    ``first_contact`` (never informed, not in screening).
     """
-    if st.in_screening and st.reclassified_on is not None and (
+    if st.booked_on is not None:
+        return "appointment"
+    if st.discharged_on is not None:
+        return "discharge"
+    if st.open_task or (st.in_screening and st.reclassified_on is not None and (
         st.last_contact is None or st.reclassified_on > st.last_contact
-    ):
+    )):  # fmt: skip
         return "reclassification"
     if st.tested and (st.last_visit is None or (st.result_on is not None and st.result_on > st.last_visit)):
         return "result"
-    if st.in_screening:
+    if st.in_screening or st.informed_on is not None:
         return "reminder"
     return "first_contact"
 
@@ -628,12 +651,19 @@ def check_letter_kind(person: str, letter_kind: str, st: Standing) -> None:
             f"{person} is already in screening ({', '.join(what)} on record): no first-contact letter; "
             f"use --kind {choose_letter_kind(st)}"
         )
-    if letter_kind == "reminder" and not st.in_screening:
-        raise LetterRefused(f"{person} is not in screening yet (no study, test or visit on record): no reminder; "
-                            "use --kind first_contact")  # fmt: skip
+    if letter_kind == "reminder" and not st.in_screening and st.informed_on is None:
+        raise LetterRefused(f"{person} is not in screening yet and was never informed (no study, test, visit or "
+                            "contact on record): no reminder; use --kind first_contact")  # fmt: skip
+    if letter_kind == "first_contact" and st.informed_on is not None:
+        raise LetterRefused(f"{person} was informed on {st.informed_on.isoformat()} (contact log): no second "
+                            f"first-contact letter; use --kind {choose_letter_kind(st)}")  # fmt: skip
+    if letter_kind == "appointment" and st.booked_on is None:
+        raise LetterRefused(f"{person} has no visit booked: no appointment letter (book one: tracker book)")
+    if letter_kind == "discharge" and st.discharged_on is None:
+        raise LetterRefused(f"{person} is not recorded as discharged: no discharge letter (tracker discharge)")
     if letter_kind == "result" and not st.tested:
         raise LetterRefused(f"{person} has no genetic test result on record: no result letter")
-    if letter_kind == "reclassification" and (st.reclassified_on is None or not st.in_screening):
+    if letter_kind == "reclassification" and not st.open_task and (st.reclassified_on is None or not st.in_screening):
         why = "the family variant's class has never changed" if st.reclassified_on is None else \
             "the person is not in screening yet (use --kind first_contact)"
         raise LetterRefused(f"{person}: no reclassification letter: {why}")
@@ -726,11 +756,21 @@ def prepare_letter(
     values: dict[str, str | None] = {}
     probability: Fraction | None = None
 
+    flags["not_yet_seen"] = letter_kind == "reminder" and not standing.in_screening
+    if flags["not_yet_seen"]:
+        values["informed_on"] = standing.informed_on.isoformat() if standing.informed_on else None
+        notes.append(f"informed on {values['informed_on']} and not yet seen: a reminder of the offer")
+    if letter_kind == "appointment":
+        values["visit_date"] = standing.booked_on.isoformat()
+        values["visit_purpose"] = standing.booked_purpose or "a heart check"
     if letter_kind != "first_contact":
-        _refuse_follow_up(person, letter_kind, kind, st, screening, pedigree, affected, rules, guideline)
+        # A discharge or appointment letter follows a recorded discharge or booking: the record says it fits.
+        if letter_kind not in ("discharge", "appointment"):
+            _refuse_follow_up(person, letter_kind, kind, st, screening, pedigree, affected, rules, guideline)
         near = st.nearest_carrier
         flags["first_degree"] = near is not None and near in pedigree and pedigree.relationship(person, near).degree == 1
-        notes.append(f"letter kind: {KIND_WORDS[letter_kind]} (the person is already in screening)")
+        where = "already in screening" if standing.in_screening else "informed before, not yet seen"
+        notes.append(f"letter kind: {KIND_WORDS[letter_kind]} (the person is {where})")
     elif kind == "plp":
         _refuse_plp(person, st, screening)
         probability = st.probability

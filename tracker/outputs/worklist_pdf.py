@@ -58,7 +58,27 @@ GAP_WORDS = {
     "lost_to_follow_up": "lost to follow-up",
     "declined": "declined",
     "contactable": "contactable",
+    # From the contact log (revision 0012): shown instead of the status when they apply.
+    "must_not_approach": "MUST NOT BE APPROACHED (asked for no further contact)",
+    "contact_later": "asked to be contacted later",
+    "no_response": "informed, no response",
 }
+# Contact categories shown in place of the contact status (tracker.engines.worklist.contact_category).
+GAP_CATEGORIES = ("must_not_approach", "contact_later", "no_response")
+
+
+def gap_words(row: dict) -> str:
+    """The gap of a worklist row in plain words: the contact log's category where it says more."""
+    contact = row.get("contact")
+    if contact in GAP_CATEGORIES:
+        words = GAP_WORDS[contact]
+        if contact == "contact_later" and row.get("contact_later_on"):
+            words += f" (on {row['contact_later_on']})"
+        return words
+    words = GAP_WORDS.get(row.get("contact_status") or "", row.get("contact_status"))
+    if row.get("contact_via"):
+        words = f"{words}; only through {row['contact_via']}"
+    return words
 FLAG_WORDS = {
     "never_seen": "never screened",
     "not_contacted": "not contacted",
@@ -147,7 +167,7 @@ def line_from_row(row: dict) -> WorklistLine:
         booked_week=row.get("booked_week"), late=row.get("late"),
         waiting=waiting_text(row) if row.get("waiting") or row.get("status") == "not_recalled" else None,
         flags=tuple(row.get("flags") or ()),
-        gap=GAP_WORDS.get(row.get("contact_status") or "", row.get("contact_status")) if row.get("list") == "contact_gap"
+        gap=gap_words(row) if row.get("list") == "contact_gap"
         else None,
     )  # fmt: skip
 

@@ -110,14 +110,54 @@ def cascade_data(frames: _Frames, family: str, on: dt.date, conf: Settings, gid:
         "segregation_testing": [_testing_item(c) for c in plan.segregation],
         "clinical_screening": [_screening_item(c) for c in plan.screening],
         "released": [_screening_item(c) for c in plan.released],
-        "gaps": [{"person": g.person, "gap": g.gap, "reason": g.reason, "recalled": g.gap != "declined"}
-                 for g in plan.gaps],  # fmt: skip
+        "gaps": [_gap(g, st, on, conf.cascade.reply_wait_weeks) for g in plan.gaps],
         "variant_rereview": _rereview_dict(plan.rereview, st.variant.key if st.variant else None),
         "declined_policy": conf.cascade.declined_words(),
         "notes": notes,
         "caution": plan.caution + " " + GENOTYPE_CAUTION,
     }
+    _mark_wishes(result, st)
     return result
+
+
+def _gap(g, st: fs.FamilyState, on: dt.date, wait_weeks: int) -> dict:
+    """One cascade gap, read with the contact log (docs/contacts-and-letters.md): a relative who asked for
+    no further contact is listed as must not be approached; one who asked to be contacted later, with the
+    day; one informed with nothing back after the clinic's wait, as no response."""
+    out = {"person": g.person, "gap": g.gap, "reason": g.reason, "recalled": g.gap != "declined"}
+    ps = st.states.get(g.person)
+    if ps is None:
+        return out
+    if ps.contact_wish == "no_further_contact":
+        out.update(gap="must_not_approach", recalled=False,
+                   reason="asked for no further contact: must not be approached (their choice is respected)")
+    elif ps.contact_later_on is not None and ps.contact_later_on > on:
+        out.update(gap="contact_later", due=ps.contact_later_on.isoformat(),
+                   reason=f"asked to be contacted on {ps.contact_later_on.isoformat()}")
+    elif (g.gap == "contacted_not_seen" and ps.informed_on is not None and not ps.responded
+          and (on - ps.informed_on).days >= 7 * wait_weeks):  # fmt: skip
+        out.update(gap="no_response", reason=f"informed on {ps.informed_on.isoformat()}, no response after "
+                                             f"{wait_weeks} weeks (clinic setting): follow up")  # fmt: skip
+    if ps.contact_wish == "only_via_family_member":
+        out["contact_via"] = ps.contact_via
+        out["reason"] += f"; contact only through {ps.contact_via} (the relative's wish)"
+    return out
+
+
+def _mark_wishes(result: dict, st: fs.FamilyState) -> None:
+    """Every listed relative who asked for no further contact, or for contact only through a family
+    member, carries it: the plan never proposes approaching them directly."""
+    for key in ("predictive_testing", "deferred", "segregation_testing", "clinical_screening"):
+        for item in result[key]:
+            ps = st.states.get(item["person"])
+            if ps is None or ps.contact_wish is None:
+                continue
+            if ps.contact_wish == "no_further_contact":
+                item["must_not_approach"] = True
+                item["notes"].append("asked for no further contact: must not be approached")
+            else:
+                item["contact_via"] = ps.contact_via
+                item["notes"].append(f"contact only through {ps.contact_via} (the relative's wish)")
 
 
 def family_cascade(conn: Connection, family: str, on: dt.date, conf: Settings, gid: str,

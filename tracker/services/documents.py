@@ -134,8 +134,10 @@ def letter_state(conn: Connection, person: str, on: dt.date) -> tuple[pd.DataFra
     from tracker.engines import family_state as fs
     from tracker.store import repository as repo
 
+    from tracker.services.recall import with_contact_columns
+
     scope = family_scope(person_family(conn, person))
-    people = repo.load_people(conn, scope)
+    people = with_contact_columns(conn, repo.load_people(conn, scope), scope)
     if person not in set(people["person"]):
         raise UserError(f"unknown person {person!r}")
     family = people.loc[people["person"] == person, "family"].iloc[0]
@@ -144,6 +146,40 @@ def letter_state(conn: Connection, person: str, on: dt.date) -> tuple[pd.DataFra
         repo.load_assessments(conn, scope), repo.load_studies(conn, entered=False, scope=scope), as_of=on,
     )  # fmt: skip
     return people, family, state
+
+
+def letter_record(conn: Connection, person: str, on: dt.date) -> dict:
+    """What the contact log and its tables say for a letter to ``person`` on ``on``: the day first informed,
+    an open reclassification task, a discharge, the next booked visit (not cancelled, on or after ``on``),
+    the open wish and its family member (docs/contacts-and-letters.md)."""
+    from tracker.services.recall import _open_task_people
+    from tracker.store import repository as repo
+
+    from tracker.domain.contacts import derive_state
+
+    scope = family_scope(person_family(conn, person))
+    # The log as it stood on the letter's day (an undated, migrated status counts as before it).
+    events = [e for e in repo._contact_rows(conn, scope)
+              if e["person"] == person and (e["event_date"] is None or e["event_date"] <= on)]  # fmt: skip
+    wishes = [{**w, "ended_date": None} for w in repo._wish_rows(conn, scope)
+              if w["person"] == person and w["recorded_date"] <= on
+              and (w["ended_date"] is None or w["ended_date"] > on)]  # fmt: skip
+    state = derive_state(person, events, wishes) if events or wishes else None
+    bookings = repo.load_bookings(conn, scope)
+    mine = bookings[(bookings["person"] == person) & bookings["cancelled_date"].isna()] if len(bookings) else bookings
+    ahead = mine[mine["visit_date"] >= on.isoformat()].sort_values("visit_date") if len(mine) else mine
+    discharges = repo.load_discharges(conn, scope)
+    gone = discharges[(discharges["person"] == person) & (discharges["discharge_date"] <= on.isoformat())] \
+        if len(discharges) else discharges
+    return {
+        "informed_on": state.informed_date if state else None,
+        "open_task": person in _open_task_people(conn, scope),
+        "discharged_on": dt.date.fromisoformat(gone["discharge_date"].iloc[-1]) if len(gone) else None,
+        "booked_on": dt.date.fromisoformat(ahead["visit_date"].iloc[0]) if len(ahead) else None,
+        "booked_purpose": ahead["purpose"].iloc[0] if len(ahead) else None,
+        "wish": state.wish if state else None,
+        "wish_via": state.wish_via if state else None,
+    }
 
 
 # --------------------------------------------------------------------------- the pictures of one person
@@ -276,8 +312,9 @@ def letter_variant(v: fs.VariantInfo | None) -> L.LetterVariant | None:
     return L.LetterVariant(v.gene, v.transcript, v.hgvs_c, v.hgvs_p, v.zygosity, v.current_class, v.classified_on)
 
 
-def standing(state: fs.FamilyState, person: str) -> L.Standing:
-    """Where ``person`` stands with the clinic, from the family state's facts and results."""
+def standing(state: fs.FamilyState, person: str, record: dict | None = None) -> L.Standing:
+    """Where ``person`` stands with the clinic, from the family state's facts and results and the
+    contact log's record for the letter (:func:`letter_record`)."""
     from tracker.engines import family_state as fs
     from tracker.outputs import letter as L
 
@@ -287,8 +324,13 @@ def standing(state: fs.FamilyState, person: str) -> L.Standing:
     if results is not None and len(results):
         mine = results[results["person"] == person]
         dates = [d for d in fs._dates(mine["test_date"].tolist()) if d is not None] if len(mine) else []
+    record = record or {}
+    ps = state.states.get(person)
     return L.Standing(
         studied=bool(f and f.studied), tested=bool(f and f.tested), last_visit=f.last_visit if f else None,
         result_on=max(dates) if dates else None, last_contact=f.last_contact if f else None,
         reclassified_on=state.variant.class_changed_on if state.variant else None,
+        informed_on=record.get("informed_on"), responded=bool(ps and ps.responded),
+        open_task=bool(record.get("open_task")), discharged_on=record.get("discharged_on"),
+        booked_on=record.get("booked_on"), booked_purpose=record.get("booked_purpose"),
     )  # fmt: skip

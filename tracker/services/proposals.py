@@ -118,7 +118,7 @@ def _day(x: str | None) -> dt.date | None:
 def proposal_json(p: Proposal) -> dict:
     """Every field of ``p`` as JSON-ready values."""
     out = {f: getattr(p, f) for f in _FIELDS}  # shallow (dataclasses.asdict is slow on many proposals)
-    for k in ("today", "due", "routine_due", "eligible_since"):
+    for k in _DATE_FIELDS:
         out[k] = _d(out[k])
     for k in ("needs", "consider", "triggers", "flags", "notes", "cautions"):
         out[k] = list(out[k])
@@ -128,12 +128,13 @@ def proposal_json(p: Proposal) -> dict:
 
 _FIELDS = tuple(f.name for f in dataclasses.fields(Proposal))
 _FIRED_FIELDS = tuple(f.name for f in dataclasses.fields(Fired))
+_DATE_FIELDS = tuple(f.name for f in dataclasses.fields(Proposal) if str(f.type).startswith("dt.date"))
 
 
 def proposal_from_json(d: dict) -> Proposal:
     """The :class:`Proposal` :func:`proposal_json` wrote."""
     d = dict(d)
-    for k in ("today", "due", "routine_due", "eligible_since"):
+    for k in _DATE_FIELDS:
         d[k] = _day(d[k])
     d["fired"] = tuple(Fired(**f) for f in d["fired"])
     for k in ("needs", "consider", "triggers", "flags", "notes", "cautions"):

@@ -63,16 +63,106 @@ def _load(conn: Connection, scope: Scope | None = None) -> _Frames:
 
     return _Frames(
         families=repo.load_families(conn, scope),
-        people=repo.load_people(conn, scope),
+        people=with_contact_columns(conn, repo.load_people(conn, scope), scope),
         variants=repo.load_variants(conn, scope),
-        results=repo.load_genetic_results(conn, scope),
-        assessments=repo.load_assessments(conn, scope),
-        studies=repo.load_studies(conn, entered=False, scope=scope),
+        **with_external_results(conn, repo.load_genetic_results(conn, scope), repo.load_assessments(conn, scope),
+                                repo.load_studies(conn, entered=False, scope=scope), scope),
         pending=frozenset(_open_task_people(conn, scope)),
     )
 
 
 load = _load
+
+EXTERNAL = "(external)"
+
+
+def with_external_results(conn: Connection, results: pd.DataFrame, assessments: pd.DataFrame,
+                          studies: pd.DataFrame, scope: Scope | None = None) -> dict:  # fmt: skip
+    """The results, assessments and studies frames with what was done at other centres counted in
+    (revision 0012; docs/contacts-and-letters.md), each marked external:
+
+    * a genetic test: a result row (test type predictive, lab = the centre, column ``external`` True),
+      so it counts in the genotype status like a local one;
+    * a screening: an assessment (the phenotype found, a note naming the centre) and a clinic study on
+      that day (site = the centre, "(external)"), so it counts as a screening visit for recall.
+    """
+    import pandas as pd
+
+    from tracker.store import repository as repo
+
+    ext = repo.load_external_results(conn, scope)
+    results = results.copy()
+    results["external"] = False
+    if not len(ext):
+        return {"results": results, "assessments": assessments, "studies": studies}
+    tests = ext[ext["kind"] == "genetic_test"]
+    if len(tests):
+        rows = pd.DataFrame({"person": tests["person"], "test_date": tests["result_date"], "test_type": "predictive",
+                             "variant": tests["variant"], "result": tests["result"],
+                             "lab": tests["centre"] + f" {EXTERNAL}", "report_reference": tests["document_ref"],
+                             "external": True}, dtype=object)  # fmt: skip
+        results = pd.concat([results, rows], ignore_index=True)
+        results = results.sort_values(["person", "test_date", "test_type"], kind="stable").reset_index(drop=True)
+    screens = ext[ext["kind"] == "screening"]
+    if len(screens):
+        seen = set(zip(assessments["person"], assessments["assessment_date"]))
+        extra = screens[[(p, d) not in seen for p, d in zip(screens["person"], screens["result_date"])]]
+        rows = pd.DataFrame({c: [None] * len(extra) for c in assessments.columns}, dtype=object)
+        rows["person"] = list(extra["person"])
+        rows["assessment_date"] = list(extra["result_date"])
+        rows["affected_status"] = list(extra["result"])
+        rows["notes"] = [f"screening at another centre: {c} {EXTERNAL}" for c in extra["centre"]]
+        for c in ("competitive_athlete", "pregnant", "hypertension"):
+            rows[c] = False
+        assessments = pd.concat([assessments, rows], ignore_index=True)
+        assessments = assessments.sort_values(["person", "assessment_date"], kind="stable").reset_index(drop=True)
+        for c in ("competitive_athlete", "pregnant", "hypertension"):
+            assessments[c] = assessments[c].astype(bool)
+        visit = pd.DataFrame({"person": screens["person"].to_numpy(dtype=object),
+                              "study_date": screens["result_date"].to_numpy(dtype=object), "modality": "clinic",
+                              "site": (screens["centre"] + f" {EXTERNAL}").to_numpy(dtype=object),
+                              "height_cm": float("nan"), "weight_kg": float("nan"), "measure": None,
+                              "value": float("nan"), "unit": None})  # fmt: skip
+        studies = pd.concat([studies, visit[studies.columns]], ignore_index=True)
+        studies = studies.sort_values(["person", "study_date", "modality"], kind="stable").reset_index(drop=True)
+    return {"results": results, "assessments": assessments, "studies": studies}
+
+
+# Columns the engines read from the people frame, derived from the contact log (revision 0012).
+CONTACT_COLUMNS = ("contact_wish", "contact_via", "contact_later_on", "informed_on", "contact_responded")
+
+
+def with_contact_columns(conn: Connection, people: pd.DataFrame, scope: Scope | None = None) -> pd.DataFrame:
+    """The people frame with the contact log's current state beside each person (plain values the
+    engines read: the open wish and its family member, the day asked to be contacted, the day first
+    informed, and whether a booking or a letter reply came since)."""
+    import pandas as pd
+
+    from tracker.store import repository as repo
+
+    states = repo.contact_states(conn, scope)
+    bookings = repo.load_bookings(conn, scope)
+    letters = repo.load_letters(conn, scope)
+    people = people.copy()
+    cols: dict[str, list] = {c: [] for c in CONTACT_COLUMNS}
+    for p in people["person"]:
+        st = states.get(p)
+        informed = st.informed_date if st is not None else None
+        cols["contact_wish"].append(st.wish if st else None)
+        cols["contact_via"].append(st.wish_via if st else None)
+        cols["contact_later_on"].append(_iso(st.contact_later_on) if st else None)
+        cols["informed_on"].append(_iso(informed))
+        back = False
+        if informed is not None:
+            day = informed.isoformat()
+            mine = bookings[(bookings["person"] == p) & bookings["cancelled_date"].isna()] if len(bookings) else bookings
+            replies = letters[(letters["person"] == p) & letters["reply_date"].notna()] if len(letters) else letters
+            back = bool(len(mine) and (mine["entered_at"].str[:10] >= day).any()) or \
+                bool(len(replies) and (replies["reply_date"] >= day).any())
+        cols["contact_responded"].append(back)
+    for c, v in cols.items():
+        people[c] = pd.Series(v, index=people.index, dtype=object)
+    return people
 
 
 def _family_state(frames: _Frames, family: str, as_of: dt.date | None) -> fs.FamilyState:

@@ -19,6 +19,7 @@ from sqlalchemy import Engine
 
 from tracker.engines.schedule import CAUTIONS, Policy, Proposal, never_screened_text, redate
 from tracker.engines.worklist import (
+    contact_category,
     contact_gaps,
     lost_to_follow_up,
     not_recalled,
@@ -53,7 +54,7 @@ def _entry(p: Proposal, family: str, lst: str) -> dict:
 
 
 def lists(proposals: list[Proposal], family_of: dict[str, str], affected: set[str], trend: dict, start: dt.date,
-          end: dt.date, on: dt.date, slots: int | None) -> dict:  # fmt: skip
+          end: dt.date, on: dt.date, slots: int | None, reply_wait_weeks: int) -> dict:  # fmt: skip
     """Everything the worklist shows, from the proposals of ``on`` (at least everyone due or overdue by
     ``end`` and everyone not recalled), shared by ``tracker worklist`` and ``tracker report worklist``.
 
@@ -69,6 +70,15 @@ def lists(proposals: list[Proposal], family_of: dict[str, str], affected: set[st
     due_rows = [_entry(p, family_of[p.person_code], "screening") for p in screening_due if reachable(p)]
     affected_rows = [_entry(p, family_of[p.person_code], "affected") for p in affected_due if reachable(p)]
     gap_rows = [_entry(p, family_of[p.person_code], "contact_gap") for p in gaps]
+    # Where each stands with contact, from the contact log (docs/contacts-and-letters.md).
+    wait = reply_wait_weeks
+    by_code = {p.person_code: p for p in screening_due + affected_due + gaps}
+    for r in due_rows + affected_rows + gap_rows:
+        p = by_code[r["person"]]
+        r["contact"] = contact_category(p, wait)
+        r["contact_later_on"] = _iso(p.contact_later_on)
+        r["contact_via"] = p.contact_via
+        r["informed_on"] = _iso(p.informed_on)
     booking = None
     if slots is not None:
         plan = plan_bookings([p for p in screening_due if reachable(p)], start, end, slots, on)
@@ -100,6 +110,9 @@ def lists(proposals: list[Proposal], family_of: dict[str, str], affected: set[st
         "not_recalled": [{"person": p.person_code, "family": family_of[p.person_code], "reason": "declined: not recalled"}
                          for p in not_recalled(proposals)],
         "lost_to_follow_up": [p.person_code for p in lost_to_follow_up(screening_due + affected_due)],
+        "no_response": [{"person": r["person"], "family": r["family"], "informed_on": r["informed_on"],
+                         "wait_weeks": wait} for r in due_rows + affected_rows if r["contact"] == "no_response"],
+        "must_not_approach": [r["person"] for r in gap_rows if r["contact"] == "must_not_approach"],
     }  # fmt: skip
 
 
@@ -139,7 +152,7 @@ def worklist_lists(frames, conf, rule_set, policy, start: dt.date, end: dt.date,
     :func:`nurse_worklist` gives the same from the stored proposals. See :func:`lists`."""
     _screening, affected_due, family_of, trend, proposals = due_proposals(frames, conf, rule_set, policy, start, end, on)
     affected = {p.person_code for p in affected_due}
-    return lists(proposals, family_of, affected, trend, start, end, on, slots)
+    return lists(proposals, family_of, affected, trend, start, end, on, slots, conf.cascade.reply_wait_weeks)
 
 
 def _recomputed(conn, families: set[str], on: dt.date, conf: Settings, rule_set, policy: Policy):
@@ -227,7 +240,7 @@ def nurse_worklist(engine: Engine, start: dt.date, end: dt.date, on: dt.date, co
     from tracker.store.database import reading
 
     props, family_of, affected, trend, how = proposals_for(engine, end, on, conf, rule_set, policy, today)
-    out = lists(props, family_of, affected, trend, start, end, on, slots)
+    out = lists(props, family_of, affected, trend, start, end, on, slots, conf.cascade.reply_wait_weeks)
     with reading(engine) as conn:
         variants = repo.load_variants(conn)
     frames = _Frames(None, None, variants, None, None, None, frozenset())  # type: ignore[arg-type]

@@ -41,7 +41,9 @@ ACTIONS = ("import", "edit", "remove", "reinstate", "reclassify", "task_done", "
            # sign-ins (accepted and refused), sign-outs and changes to accounts.
            "read", "sign_in", "sign_in_refused", "sign_out", "account",
            # The web forms (tracker/services/entry.py): a record entered by form.
-           "entry")
+           "entry",
+           # The contact log (tracker/services/contacts.py): a new record of the log.
+           "record")
 
 
 def actor(user: str | None) -> str:

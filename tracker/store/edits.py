@@ -160,6 +160,7 @@ def edit_person(conn: Connection, code: str, changes: dict[str, str], *, reason:
     checks_before = _findings(conn, family)
     old = _person_frame_row(conn, code)
     values: dict = {}
+    contact: dict = {}
     for field, text in changes.items():
         value = _cell(field, PERSON_FIELDS[field], text, today)
         if field in ("birth_date", "death_date", "icd_date", "pacemaker_date"):
@@ -168,8 +169,8 @@ def edit_person(conn: Connection, code: str, changes: dict[str, str], *, reason:
             values[field + "_precision"] = precision
         elif field in _LINKS:
             values[_LINKS[field]] = _linked_person(conn, field, value, code, row.family_id)
-        elif field == "contact_status_date":
-            values[field] = dt.date.fromisoformat(value) if value else None
+        elif field in ("contact_status", "contact_status_date"):
+            contact[field] = value
         elif field in ("death_age", "diagnosis_age"):  # whole years
             values[field] = None if value is None else int(value)
         else:
@@ -178,7 +179,10 @@ def edit_person(conn: Connection, code: str, changes: dict[str, str], *, reason:
         select(Person.code).where(Person.external_id == values["external_id"], Person.id != row.id)
     ).first():
         raise UserError("external_id: belongs to another person in the database")
-    conn.execute(update(Person).where(Person.id == row.id).values(**values))
+    if values:
+        conn.execute(update(Person).where(Person.id == row.id).values(**values))
+    if contact:
+        _log_contact_status(conn, row.id, code, contact, reason, user, today)
     _refuse_new_findings(conn, family, checks_before)
     new = _person_frame_row(conn, code)
     before = {f: _plain(old[f]) for f in changes}
@@ -190,6 +194,25 @@ def edit_person(conn: Connection, code: str, changes: dict[str, str], *, reason:
                          what=f"corrected {', '.join(changes)} of person {code}", before=before, after=after,
                          reason=reason, user=user)  # fmt: skip
     return Change(entry, what, before, after)
+
+
+CONTACT_LOG_HINT = "record contacts with `tracker contact add` (the contact log keeps every one)"
+
+
+def _log_contact_status(conn: Connection, person_id: int, code: str, contact: dict, reason: str,
+                        user: str | None, today: dt.date) -> None:  # fmt: skip
+    """``--set contact_status=...`` appends an event to the contact log (revision 0012): the history is
+    kept, never overwritten.  The date is ``contact_status_date`` if given, else today."""
+    from tracker.store.contact_log import STATUS_OUTCOME, append_event
+
+    status = contact.get("contact_status")
+    if status is None:
+        raise UserError("contact_status: give the new status (it cannot be cleared: the contact log keeps "
+                        f"its history); {CONTACT_LOG_HINT}")  # fmt: skip
+    day = contact.get("contact_status_date")
+    day = dt.date.fromisoformat(day) if day else today
+    append_event(conn, person_id=person_id, event_date=day, channel="other", outcome=STATUS_OUTCOME[status],
+                 notes=f"recorded with tracker edit person: {reason}", user=user)  # fmt: skip
 
 
 def _linked_person(conn: Connection, field: str, value: str | None, code: str, family_id: int) -> int | None:

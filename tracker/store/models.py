@@ -423,3 +423,162 @@ class RecallProposal(Base):
     valid_until: Mapped[dt.date] = mapped_column(Date, index=True)
     stale: Mapped[bool] = mapped_column(Boolean)
     trend_values: Mapped[bool] = mapped_column(Boolean)
+
+
+# --------------------------------------------------------------------------- the contact log (migration 0012)
+# person.contact_status / contact_status_date above are retired: 0012 moved them into ``contact_event``
+# and leaves them empty; the current state is derived from the log (tracker.domain.contacts).
+
+_CHANNELS = "('letter','phone','in_clinic','via_family','other')"
+_ROLES = "('nurse','counsellor','cardiologist','other')"
+_OUTCOMES = ("('informed','no_answer','wrong_address','declined','contact_later','moved_away',"
+             "'not_contacted','lost_to_follow_up')")  # fmt: skip
+
+
+class ContactEvent(Base):
+    """One contact or attempt with a relative; never updated (a correction is a newer event)."""
+
+    __tablename__ = "contact_event"
+    __table_args__ = (
+        CheckConstraint(f"channel IN {_CHANNELS}", name="channel"),
+        CheckConstraint(f"by_role IN {_ROLES}", name="by_role"),
+        CheckConstraint(f"outcome IN {_OUTCOMES}", name="outcome"),
+        CheckConstraint("source IN ('entered','migrated','imported')", name="source"),
+        CheckConstraint("source <> 'entered' OR (event_date IS NOT NULL AND outcome IS NOT NULL)",
+                        name="entered_complete"),  # fmt: skip
+        CheckConstraint("(outcome = 'contact_later' AND later_date IS NOT NULL) OR "
+                        "(outcome IS NULL OR outcome <> 'contact_later') AND later_date IS NULL",
+                        name="later_date"),  # fmt: skip
+        CheckConstraint("(channel = 'via_family' AND via_person_id IS NOT NULL AND by_role IS NULL) OR "
+                        "(channel <> 'via_family' AND via_person_id IS NULL)", name="via"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    person_id: Mapped[int] = mapped_column(ForeignKey("person.id"), index=True)
+    event_date: Mapped[dt.date | None] = mapped_column(Date)
+    channel: Mapped[str] = mapped_column(String(12))
+    by_role: Mapped[str | None] = mapped_column(String(14))
+    via_person_id: Mapped[int | None] = mapped_column(ForeignKey("person.id"))
+    outcome: Mapped[str | None] = mapped_column(String(20))
+    later_date: Mapped[dt.date | None] = mapped_column(Date)
+    notes: Mapped[str | None] = mapped_column(Text)
+    source: Mapped[str] = mapped_column(String(10))
+    entered_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    entered_by: Mapped[str] = mapped_column(String(100))
+
+
+class ContactWish(Base):
+    """A relative's wish about contact; open until ``ended_date`` (with ``ended_by``), never deleted."""
+
+    __tablename__ = "contact_wish"
+    __table_args__ = (
+        CheckConstraint("wish IN ('no_further_contact','only_via_family_member')", name="wish"),
+        CheckConstraint("(wish = 'only_via_family_member' AND via_person_id IS NOT NULL) OR "
+                        "(wish <> 'only_via_family_member' AND via_person_id IS NULL)", name="via"),
+        CheckConstraint("(ended_date IS NULL AND ended_by IS NULL) OR "
+                        "(ended_date IS NOT NULL AND ended_by IS NOT NULL)", name="ended"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    person_id: Mapped[int] = mapped_column(ForeignKey("person.id"), index=True)
+    wish: Mapped[str] = mapped_column(String(30))
+    via_person_id: Mapped[int | None] = mapped_column(ForeignKey("person.id"))
+    recorded_date: Mapped[dt.date] = mapped_column(Date)
+    notes: Mapped[str | None] = mapped_column(Text)
+    ended_date: Mapped[dt.date | None] = mapped_column(Date)
+    ended_by: Mapped[str | None] = mapped_column(String(100))
+    entered_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    entered_by: Mapped[str] = mapped_column(String(100))
+
+
+class LetterSent(Base):
+    """A letter the user confirmed as sent (never recorded on mere generation)."""
+
+    __tablename__ = "letter_sent"
+    __table_args__ = (
+        CheckConstraint("kind IN ('first_contact','reminder','result','reclassification','discharge',"
+                        "'appointment')", name="kind"),  # fmt: skip
+        CheckConstraint("sent_to IN ('person','via_family')", name="sent_to"),
+        CheckConstraint("(sent_to = 'via_family' AND via_person_id IS NOT NULL) OR "
+                        "(sent_to = 'person' AND via_person_id IS NULL)", name="via"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    person_id: Mapped[int] = mapped_column(ForeignKey("person.id"), index=True)
+    kind: Mapped[str] = mapped_column(String(20))
+    template: Mapped[str] = mapped_column(String(100))
+    template_version: Mapped[str] = mapped_column(String(40))
+    sent_date: Mapped[dt.date] = mapped_column(Date)
+    sent_to: Mapped[str] = mapped_column(String(10))
+    via_person_id: Mapped[int | None] = mapped_column(ForeignKey("person.id"))
+    reply_date: Mapped[dt.date | None] = mapped_column(Date)
+    notes: Mapped[str | None] = mapped_column(Text)
+    entered_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    entered_by: Mapped[str] = mapped_column(String(100))
+
+
+class ExternalResult(Base):
+    """A genetic test (genotype words of ``genetic_result``) or a screening (phenotype) at another centre."""
+
+    __tablename__ = "external_result"
+    __table_args__ = (
+        UniqueConstraint("person_id", "kind", "result_date"),
+        CheckConstraint("kind IN ('genetic_test','screening')", name="kind"),
+        CheckConstraint("(kind = 'genetic_test' AND result IN ('carrier','non_carrier','inconclusive',"
+                        "'no_variant_found')) OR (kind = 'screening' AND result IN ('affected','unaffected',"
+                        "'uncertain') AND variant_id IS NULL)", name="result"),  # fmt: skip
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    person_id: Mapped[int] = mapped_column(ForeignKey("person.id"))
+    kind: Mapped[str] = mapped_column(String(12))
+    result_date: Mapped[dt.date] = mapped_column(Date)
+    centre: Mapped[str] = mapped_column(String(200))
+    variant_id: Mapped[int | None] = mapped_column(ForeignKey("variant.id"))
+    result: Mapped[str] = mapped_column(String(20))
+    document_ref: Mapped[str | None] = mapped_column(String(200))
+    notes: Mapped[str | None] = mapped_column(Text)
+    entered_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    entered_by: Mapped[str] = mapped_column(String(100))
+
+
+class Booking(Base):
+    """A visit the nurse booked; cancelled (with who), never deleted."""
+
+    __tablename__ = "booking"
+    __table_args__ = (
+        CheckConstraint("(cancelled_date IS NULL AND cancelled_by IS NULL) OR "
+                        "(cancelled_date IS NOT NULL AND cancelled_by IS NOT NULL)", name="cancelled"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    person_id: Mapped[int] = mapped_column(ForeignKey("person.id"), index=True)
+    visit_date: Mapped[dt.date] = mapped_column(Date)
+    purpose: Mapped[str] = mapped_column(String(200))
+    notes: Mapped[str | None] = mapped_column(Text)
+    entered_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    entered_by: Mapped[str] = mapped_column(String(100))
+    cancelled_date: Mapped[dt.date | None] = mapped_column(Date)
+    cancelled_by: Mapped[str | None] = mapped_column(String(100))
+
+
+class Discharge(Base):
+    """A variant-negative relative discharged from screening: the class relied on and the advice given."""
+
+    __tablename__ = "discharge"
+    __table_args__ = (
+        UniqueConstraint("person_id", "discharge_date"),
+        CheckConstraint("acmg_class IN ('pathogenic','likely_pathogenic','uncertain_significance',"
+                        "'likely_benign','benign')", name="acmg_class"),  # fmt: skip
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    person_id: Mapped[int] = mapped_column(ForeignKey("person.id"))
+    discharge_date: Mapped[dt.date] = mapped_column(Date)
+    variant_id: Mapped[int] = mapped_column(ForeignKey("variant.id"))
+    acmg_class: Mapped[str] = mapped_column(String(24))
+    classified_on: Mapped[dt.date] = mapped_column(Date)
+    advice: Mapped[str] = mapped_column(Text)
+    notes: Mapped[str | None] = mapped_column(Text)
+    entered_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    entered_by: Mapped[str] = mapped_column(String(100))

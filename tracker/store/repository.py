@@ -21,6 +21,12 @@ from tracker.gcpause import gc_paused
 from tracker.io.columns import partial_from_storage
 from tracker.store.models import (
     Assessment,
+    Booking,
+    ContactEvent,
+    ContactWish,
+    Discharge,
+    ExternalResult,
+    LetterSent,
     Family,
     GeneticResult,
     Measure,
@@ -103,8 +109,6 @@ def load_people(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
             twin.code,
             Person.twin_type,
             Person.adoption,
-            Person.contact_status,
-            Person.contact_status_date,
             Person.notes,
             Person.death_cause,
             Person.death_age,
@@ -127,8 +131,8 @@ def load_people(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
     cols = [
         "person", "family", "given_name", "family_name", "sex_at_birth", "gender_identity",
         "_birth", "_birth_p", "vital_status", "_death", "_death_p", "mother", "father",
-        "placeholder", "proband", "twin_of", "twin_type", "adoption", "contact_status",
-        "contact_status_date", "notes", "death_cause", "death_age", "diagnosis_age", "diagnosis_place",
+        "placeholder", "proband", "twin_of", "twin_type", "adoption",
+        "notes", "death_cause", "death_age", "diagnosis_age", "diagnosis_place",
         "_icd", "_icd_p", "_pacemaker", "_pacemaker_p", "external_id",
     ]  # fmt: skip
     df = _frame(conn, stmt, cols)
@@ -138,7 +142,13 @@ def load_people(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
     df["pacemaker_date"] = [partial_from_storage(d, p) for d, p in zip(df["_pacemaker"], df["_pacemaker_p"])]
     for c in ("death_age", "diagnosis_age"):  # whole years as float, NaN when not recorded (the CSV clean form)
         df[c] = pd.to_numeric(df[c], errors="coerce").astype(float)
-    df["contact_status_date"] = _iso(df["contact_status_date"])
+    # The contact status is derived from the contact log (migration 0012), not stored with the person.
+    states = contact_states(conn, scope)
+    df["contact_status"] = pd.Series([states[p].legacy if p in states else None for p in df["person"]],
+                                     index=df.index, dtype=object)  # fmt: skip
+    df["contact_status_date"] = pd.Series(
+        [states[p].status_date.isoformat() if p in states and states[p].status_date else None for p in df["person"]],
+        index=df.index, dtype=object)  # fmt: skip
     df["placeholder"] = df["placeholder"].astype(bool)
     df["proband"] = df["proband"].astype(bool)
     df = df.drop(columns=["_birth", "_birth_p", "_death", "_death_p", "_icd", "_icd_p", "_pacemaker", "_pacemaker_p"])
@@ -342,6 +352,164 @@ def load_measures(conn: Connection) -> pd.DataFrame:
     df["plausible_max"] = df["plausible_max"].astype(float)
     df["derived"] = df["derived"].astype(bool)
     return df
+
+
+# --------------------------------------------------------------------------- the contact log (0012)
+
+_via = aliased(Person)
+
+
+def _contact_rows(conn: Connection, scope: Scope | None):
+    stmt = (
+        select(ContactEvent.id, Person.code, ContactEvent.event_date, ContactEvent.channel, ContactEvent.by_role,
+               _via.code, ContactEvent.outcome, ContactEvent.later_date, ContactEvent.notes, ContactEvent.source,
+               ContactEvent.entered_at, ContactEvent.entered_by)
+        .join(Person, ContactEvent.person_id == Person.id)
+        .outerjoin(_via, ContactEvent.via_person_id == _via.id)
+        .where(Person.removed_at.is_(None))
+        .order_by(Person.code, ContactEvent.id)
+    )  # fmt: skip
+    stmt = _in_scope(stmt, scope, Person.family_id)
+    cols = ["id", "person", "event_date", "channel", "by_role", "via", "outcome", "later_date", "notes", "source",
+            "entered_at", "entered_by"]  # fmt: skip
+    return [dict(zip(cols, r)) for r in conn.execute(stmt).all()]
+
+
+def _wish_rows(conn: Connection, scope: Scope | None):
+    stmt = (
+        select(ContactWish.id, Person.code, ContactWish.wish, _via.code, ContactWish.recorded_date,
+               ContactWish.notes, ContactWish.ended_date, ContactWish.ended_by, ContactWish.entered_at,
+               ContactWish.entered_by)
+        .join(Person, ContactWish.person_id == Person.id)
+        .outerjoin(_via, ContactWish.via_person_id == _via.id)
+        .where(Person.removed_at.is_(None))
+        .order_by(Person.code, ContactWish.id)
+    )  # fmt: skip
+    stmt = _in_scope(stmt, scope, Person.family_id)
+    cols = ["id", "person", "wish", "via", "recorded_date", "notes", "ended_date", "ended_by", "entered_at",
+            "entered_by"]  # fmt: skip
+    return [dict(zip(cols, r)) for r in conn.execute(stmt).all()]
+
+
+def contact_states(conn: Connection, scope: Scope | None = None) -> dict:
+    """Person code -> :class:`tracker.domain.contacts.ContactState` for everyone in scope with an event or wish."""
+    from tracker.domain.contacts import derive_states
+
+    return derive_states(_contact_rows(conn, scope), _wish_rows(conn, scope))
+
+
+def _dated_frame(rows: list[dict], cols: list[str], dates: tuple[str, ...], times: tuple[str, ...] = ()) -> pd.DataFrame:
+    df = pd.DataFrame([[r[c] for c in cols] for r in rows], columns=cols, dtype=object)
+    for c in dates:
+        df[c] = _iso(df[c])
+    for c in times:
+        df[c] = df[c].map(lambda t: t.isoformat() + "Z" if t is not None else None).astype(object)
+    return df
+
+
+CONTACT_EVENT_COLUMNS = ["person", "event_date", "channel", "by_role", "via", "outcome", "later_date", "notes",
+                         "source", "entered_at", "entered_by"]  # fmt: skip
+
+
+def load_contact_events(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
+    """The contact log, oldest first per person (dates ISO text, ``entered_at`` ISO 8601 UTC with Z)."""
+    from tracker.domain.contacts import event_order
+
+    rows = sorted(_contact_rows(conn, scope), key=lambda r: (r["person"], event_order(r)))
+    return _dated_frame(rows, CONTACT_EVENT_COLUMNS, ("event_date", "later_date"), ("entered_at",))
+
+
+CONTACT_WISH_COLUMNS = ["person", "wish", "via", "recorded_date", "notes", "ended_date", "ended_by", "entered_at",
+                        "entered_by"]  # fmt: skip
+
+
+def load_contact_wishes(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
+    """Every wish, open and ended, oldest first per person."""
+    return _dated_frame(_wish_rows(conn, scope), CONTACT_WISH_COLUMNS, ("recorded_date", "ended_date"),
+                        ("entered_at",))  # fmt: skip
+
+
+LETTER_COLUMNS = ["person", "kind", "template", "template_version", "sent_date", "sent_to", "via", "reply_date",
+                  "notes", "entered_at", "entered_by"]  # fmt: skip
+
+
+def load_letters(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
+    stmt = (
+        select(Person.code, LetterSent.kind, LetterSent.template, LetterSent.template_version, LetterSent.sent_date,
+               LetterSent.sent_to, _via.code, LetterSent.reply_date, LetterSent.notes, LetterSent.entered_at,
+               LetterSent.entered_by)
+        .join(Person, LetterSent.person_id == Person.id)
+        .outerjoin(_via, LetterSent.via_person_id == _via.id)
+        .where(Person.removed_at.is_(None))
+        .order_by(Person.code, LetterSent.sent_date, LetterSent.id)
+    )  # fmt: skip
+    stmt = _in_scope(stmt, scope, Person.family_id)
+    rows = [dict(zip(LETTER_COLUMNS, r)) for r in conn.execute(stmt).all()]
+    return _dated_frame(rows, LETTER_COLUMNS, ("sent_date", "reply_date"), ("entered_at",))
+
+
+EXTERNAL_COLUMNS = ["person", "kind", "result_date", "centre", "variant", "result", "document_ref", "notes",
+                    "entered_at", "entered_by"]  # fmt: skip
+
+
+def load_external_results(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
+    """Genetic tests and screenings at other centres; ``variant`` as ``transcript:hgvs_c``."""
+    stmt = (
+        select(Person.code, ExternalResult.kind, ExternalResult.result_date, ExternalResult.centre,
+               Variant.transcript, Variant.hgvs_c, ExternalResult.result, ExternalResult.document_ref,
+               ExternalResult.notes, ExternalResult.entered_at, ExternalResult.entered_by)
+        .join(Person, ExternalResult.person_id == Person.id)
+        .outerjoin(Variant, ExternalResult.variant_id == Variant.id)
+        .where(Person.removed_at.is_(None))
+        .order_by(Person.code, ExternalResult.result_date, ExternalResult.kind)
+    )  # fmt: skip
+    stmt = _in_scope(stmt, scope, Person.family_id)
+    rows = []
+    for r in conn.execute(stmt).all():
+        p, kind, day, centre, tx, c, result, ref, notes, at, by = r
+        rows.append(dict(person=p, kind=kind, result_date=day, centre=centre,
+                         variant=f"{tx}:{c}" if tx is not None else None, result=result, document_ref=ref,
+                         notes=notes, entered_at=at, entered_by=by))  # fmt: skip
+    return _dated_frame(rows, EXTERNAL_COLUMNS, ("result_date",), ("entered_at",))
+
+
+BOOKING_COLUMNS = ["person", "visit_date", "purpose", "notes", "entered_at", "entered_by", "cancelled_date",
+                   "cancelled_by"]  # fmt: skip
+
+
+def load_bookings(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
+    stmt = (
+        select(Person.code, Booking.visit_date, Booking.purpose, Booking.notes, Booking.entered_at,
+               Booking.entered_by, Booking.cancelled_date, Booking.cancelled_by)
+        .join(Person, Booking.person_id == Person.id)
+        .where(Person.removed_at.is_(None))
+        .order_by(Person.code, Booking.visit_date, Booking.id)
+    )  # fmt: skip
+    stmt = _in_scope(stmt, scope, Person.family_id)
+    rows = [dict(zip(BOOKING_COLUMNS, r)) for r in conn.execute(stmt).all()]
+    return _dated_frame(rows, BOOKING_COLUMNS, ("visit_date", "cancelled_date"), ("entered_at",))
+
+
+DISCHARGE_COLUMNS = ["person", "discharge_date", "variant", "acmg_class", "classified_on", "advice", "notes",
+                     "entered_at", "entered_by"]  # fmt: skip
+
+
+def load_discharges(conn: Connection, scope: Scope | None = None) -> pd.DataFrame:
+    stmt = (
+        select(Person.code, Discharge.discharge_date, Variant.transcript, Variant.hgvs_c, Discharge.acmg_class,
+               Discharge.classified_on, Discharge.advice, Discharge.notes, Discharge.entered_at,
+               Discharge.entered_by)
+        .join(Person, Discharge.person_id == Person.id)
+        .join(Variant, Discharge.variant_id == Variant.id)
+        .where(Person.removed_at.is_(None))
+        .order_by(Person.code, Discharge.discharge_date)
+    )  # fmt: skip
+    stmt = _in_scope(stmt, scope, Person.family_id)
+    rows = []
+    for p, day, tx, c, cls, on, advice, notes, at, by in conn.execute(stmt).all():
+        rows.append(dict(person=p, discharge_date=day, variant=f"{tx}:{c}", acmg_class=cls, classified_on=on,
+                         advice=advice, notes=notes, entered_at=at, entered_by=by))  # fmt: skip
+    return _dated_frame(rows, DISCHARGE_COLUMNS, ("discharge_date", "classified_on"), ("entered_at",))
 
 
 LOADERS = {
