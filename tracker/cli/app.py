@@ -8,7 +8,7 @@ import sys
 import typer
 
 from tracker import __version__
-from tracker.cli import admin, audit, edits, families, recall, reports, review
+from tracker.cli import admin, audit, edits, families, recall, reports, review, uptake
 from tracker.cli.common import dispose_engines
 from tracker.errors import UserError
 
@@ -48,6 +48,7 @@ recall.register(app)
 edits.register(app)
 audit.register(app)
 reports.register(app)
+uptake.register(app)
 
 
 def _one_line(message: str) -> str:
