@@ -129,6 +129,11 @@ def _day(v) -> dt.date | None:
     return dt.date.fromisoformat(text[:10]) if text else None
 
 
+def _present(v) -> bool:
+    """A code in a cell (not None, NaN or blank: pandas may give NaN for a missing text)."""
+    return isinstance(v, str) and v.strip() != "" or isinstance(v, int) and not isinstance(v, bool)
+
+
 def _earliest(days) -> dt.date | None:
     present = [d for d in days if d is not None]
     return min(present) if present else None
@@ -259,7 +264,7 @@ def events_from_log(events, external) -> _Events:
                 last_reached[p] = day
                 if p not in ev.informed:
                     ev.informed[p] = day
-                    family = r.get("channel") == "via_family" or bool(r.get("via_person"))
+                    family = r.get("channel") == "via_family" or _present(r.get("via_person"))
                     ev.via[p] = "family" if family else "direct"
             if outcome == "declined" and p not in ev.declined:
                 ev.declined[p] = day
