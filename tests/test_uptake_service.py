@@ -220,3 +220,23 @@ def test_contact_log_events_read_as_documented():
     assert ev.unreachable == {"B": d(2024, 5, 10)}
     assert ev.declined == {"C": d(2024, 2, 11)}
     assert ev.tested_external == {"B": d(2024, 6, 1)} and ev.screened_external == {"C": d(2024, 7, 1)}
+
+
+def test_family_read_alone_equals_the_cohort_read(tmp_path, run):
+    """`--family` reads that family only (Scope of one family); the figures equal those computed from the
+    whole cohort's frames (invented demo families)."""
+    from tracker.store.database import locate, make_engine, reading
+    from tracker.store.repository import COHORT
+
+    db = str(tmp_path / "demo.sqlite")
+    assert run("demo", db=db).code == 0
+    engine = make_engine(locate(db))
+    try:
+        with reading(engine) as conn:
+            for fam in ("HV01", "HV04"):
+                alone = S.public(S.uptake_data(conn, family=fam, start=None, end=dt.date(2026, 12, 1)))
+                cohort = S.public(S.uptake_data(conn, family=fam, start=None, end=dt.date(2026, 12, 1), scope=COHORT))
+                assert json.dumps(alone, sort_keys=True) == json.dumps(cohort, sort_keys=True)
+                assert alone["families"][0]["family"] == fam and len(alone["families"]) == 1
+    finally:
+        engine.dispose()

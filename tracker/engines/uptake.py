@@ -39,9 +39,9 @@ DEF_PROBAND_RESULT = (
     "and left out of the clinic's figures and of every time figure."
 )
 DEF_AT_RISK = (
-    "At-risk relative (the denominator of every percentage): a living blood relative of the proband, not "
-    "the proband, not a member drawn only to connect the pedigree, and not ruled out by the pedigree as "
-    "the record stands at the end of the period (for example a child of a relative who tested "
+    "At-risk relative (the denominator of every percentage): a blood relative of the proband not recorded "
+    "as deceased, not the proband, not a member drawn only to connect the pedigree, and not ruled out by "
+    "the pedigree as the record stands at the end of the period (for example a child of a relative who tested "
     "non-carrier). Relatives who tested non-carrier stay in: they were at risk until their test."
 )
 DEF_DEGREE = (
@@ -249,7 +249,10 @@ class TimeFigure:
             med = "median not reached"
         else:
             med = f"median {self.median_days:.0f} days ({self.median_months:.1f} months)"
-        return f"{med}; {self.relatives} relatives: {self.events} with the event, {self.censored} censored"
+        text = f"{med}; {self.relatives} relatives: {self.events} with the event, {self.censored} censored"
+        if self.before_result:
+            text += f"; {self.before_result} before the proband's result (counted as 0 days)"
+        return text
 
     def as_dict(self) -> dict:
         return {
