@@ -210,3 +210,35 @@ def test_docs_carry_every_definition_word_for_word():
     flat = " ".join(text.split())
     for key, words in U.DEFINITIONS.items():
         assert " ".join(words.split()) in flat, key
+
+
+def _texts(flowables) -> str:
+    out = []
+    for f in flowables:
+        if hasattr(f, "_content"):  # KeepTogether
+            out.append(_texts(f._content))
+        elif hasattr(f, "text"):
+            out.append(f.text)
+    return " ".join(out)
+
+
+def test_pdf_prints_each_figure_with_its_definition(tmp_path):
+    from tracker.outputs import uptake_pdf as P
+
+    rep = U.uptake(family_a(), Period(None, END))
+    doc = P.UptakeDocument("Invented clinic", D(2026, 12, 5), rep, "invented source")
+    story = " ".join(_texts(P.build_story(doc)).split()).replace("&#x27;", "'").replace("&#39;", "'")
+    for key in ("funnel", "time_to_first_contact", "time_to_test", "informed_route", "at_risk", "proband_result"):
+        assert " ".join(U.DEFINITIONS[key].split()) in story, key
+    path = P.write_uptake_pdf(doc, tmp_path / P.file_name(None, END))
+    assert path.name == "uptake-to-2024-12-31.pdf" and path.read_bytes().startswith(b"%PDF")
+
+
+def test_relative_born_after_the_result_is_timed_from_birth():
+    """Born 2024-06-01, five months after the result: contacted 2024-07-01 is 30 days, not 182;
+    censored at the period end from birth (213 days), not from the result."""
+    recs = [rel("BABY", 1, born_on=D(2024, 6, 1), first_informed_date=D(2024, 7, 1)),
+            rel("BABY2", 1, born_on=D(2024, 6, 1))]  # fmt: skip
+    t = U.uptake(recs, Period(None, END)).clinic.time_to_first_contact
+    assert t.median_among_events_days == 30.0
+    assert t.censor_days == ((END - D(2024, 6, 1)).days,) == (213,)

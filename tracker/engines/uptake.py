@@ -82,7 +82,8 @@ DEF_ROUTE = (
 DEF_TIME_TO_CONTACT = (
     "Time to first contact: days from the proband's result to the relative's first contact (as under "
     "Informed). A relative not yet contacted is censored at the last day of the period, never dropped. "
-    "A first contact before the proband's result counts as 0 days. Curve: Kaplan-Meier estimate "
+    "A first contact before the proband's result counts as 0 days; a relative born after the proband's "
+    "result is timed from their birth. Curve: Kaplan-Meier estimate "
     "(statsmodels SurvfuncRight), drawn as the proportion contacted. Median: the first time at which "
     "the estimated proportion not yet contacted falls below one half (statsmodels' quantile rule); "
     "'not reached' when it never does within the follow-up."
@@ -169,6 +170,7 @@ class RelativeRecord:
     declined_on: dt.date | None = None
     not_reachable: bool = False
     not_reachable_on: dt.date | None = None
+    born_on: dt.date | None = None  # a relative born after the proband's result is timed from birth
 
     def __post_init__(self) -> None:
         if self.informed_via not in (None, "family", "direct"):
@@ -391,6 +393,8 @@ def time_figure(records: Iterable[RelativeRecord], event_of, end: dt.date) -> Ti
         start = r.proband_result_date
         if start is None or start > end:
             continue
+        if r.born_on is not None and start < r.born_on <= end:
+            start = r.born_on
         follow.append((end - start).days)
         day = event_of(r)
         if day is not None and day <= end:

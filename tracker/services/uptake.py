@@ -139,6 +139,12 @@ def _earliest(days) -> dt.date | None:
     return min(present) if present else None
 
 
+def _born(ped: Pedigree, person: str) -> dt.date | None:
+    """The date of birth when known to the day (a year-only date is not used to start a clock)."""
+    m = ped.member(person)
+    return m.birth_date if m.birth_date is not None and m.birth_date_precision == "day" else None
+
+
 def relative_degree(ped: Pedigree, proband: str, person: str) -> int | None:
     """Degree of relationship of ``person`` to ``proband`` (None: not a blood relative)."""
     if ped.kinship(proband, person) <= 0:
@@ -331,7 +337,7 @@ def family_records(st: fs.FamilyState, people, studies, ev: _Events) -> FamilyRe
             tested_external=test_day is not None and here != test_day,
             screened_date=_earliest([screened.get(p), ev.screened_external.get(p)]),
             declined=declined, declined_on=ev.declined.get(p),
-            not_reachable=unreachable, not_reachable_on=ev.unreachable.get(p),
+            not_reachable=unreachable, not_reachable_on=ev.unreachable.get(p), born_on=_born(st.pedigree, p),
         ))  # fmt: skip
     return out
 
