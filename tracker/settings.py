@@ -24,6 +24,12 @@ else ``./tracker.toml`` if present, else the defaults below.  Example
     variant_rereview_months = 24        # re-review the variant's class after this long
     declined_reapproach_months = 24     # absent: relatives who declined are not re-approached
 
+    [web]                       # the web interface (docs/operations.md)
+    idle_minutes = 30                   # a session ends after this long unused
+    absolute_hours = 12                 # and after this long in all
+    trust_forwarded_proto = false       # true only behind your own TLS reverse proxy
+    # secure_cookies = true             # default: Secure when the request came over TLS
+
     [privacy]                   # for `tracker export all --pseudonymise` (docs/privacy.md)
     pseudonym_key_file = "pseudonym.key"   # relative to this file; or pseudonym_key = "..."
     small_cell_threshold = 5
@@ -133,6 +139,23 @@ class Settings:
     source: str = "built-in defaults"
     privacy: Privacy = field(default_factory=Privacy)
     cascade: CascadePolicy = field(default_factory=CascadePolicy)
+    web: WebPolicy = field(default_factory=lambda: WebPolicy())
+
+
+# Web sessions: ended after this long without use, and after this long in all (engineering defaults
+# of this project, common practice for clinical workstations; the clinic sets its own).
+DEFAULT_IDLE_MINUTES = 30
+DEFAULT_ABSOLUTE_HOURS = 12
+
+
+@dataclass(frozen=True)
+class WebPolicy:
+    """``[web]``: session limits, and whether a reverse proxy in front says the request came over TLS."""
+
+    idle_minutes: int = DEFAULT_IDLE_MINUTES
+    absolute_hours: int = DEFAULT_ABSOLUTE_HOURS
+    trust_forwarded_proto: bool = False  # believe X-Forwarded-Proto (only behind your own proxy)
+    secure_cookies: bool | None = None  # None: Secure when the request came over TLS
 
 
 _SECTIONS = {
@@ -141,6 +164,7 @@ _SECTIONS = {
     "repeatability": None,  # any measure code
     "privacy": {"pseudonym_key", "pseudonym_key_file", "small_cell_threshold"},
     "cascade": {"variant_rereview_months", "declined_reapproach_months"},
+    "web": {"idle_minutes", "absolute_hours", "trust_forwarded_proto", "secure_cookies"},
 }
 
 
@@ -198,7 +222,23 @@ def parse_settings(data: dict, name: str = "settings", base: Path | None = None)
             raise UserError(f"{name}: [repeatability] {code} must be a positive number (within-subject SD)")
         rep[code] = float(v)
     return Settings(clinic, guideline, policy, slots, rep, name, _privacy(data.get("privacy", {}), name, base),
-                    _cascade(data.get("cascade", {}), name))
+                    _cascade(data.get("cascade", {}), name), _web(data.get("web", {}), name))
+
+
+def _web(section: dict, name: str) -> WebPolicy:
+    out = {}
+    for key in ("idle_minutes", "absolute_hours"):
+        if key in section:
+            v = section[key]
+            if not isinstance(v, int) or isinstance(v, bool) or v < 1:
+                raise UserError(f"{name}: [web] {key} must be a whole number, at least 1")
+            out[key] = v
+    for key in ("trust_forwarded_proto", "secure_cookies"):
+        if key in section:
+            if not isinstance(section[key], bool):
+                raise UserError(f"{name}: [web] {key} must be true or false")
+            out[key] = section[key]
+    return WebPolicy(**out)
 
 
 def _cascade(section: dict, name: str) -> CascadePolicy:

@@ -322,7 +322,15 @@ def demo_folder() -> Path:
     raise UserError("the demo_family folder is missing from this installation")
 
 
-def demo(db: DbOption = None, json_out: JsonOption = False) -> None:
+def demo(
+    db: DbOption = None,
+    json_out: JsonOption = False,
+    serve: Annotated[bool, typer.Option("--serve", help="Then add one invented account per role, print their "
+                                        "one-time passwords once, and serve the web interface.")] = False,
+    host: Annotated[str, typer.Option("--host", help="With --serve: address to listen on.")] = "127.0.0.1",
+    port: Annotated[int, typer.Option("--port", min=1, max=65535, help="With --serve: TCP port.")] = 8000,
+    settings: SettingsOption = None,
+) -> None:
     """Build a database from the invented demo families and print what it holds.
 
     All names, places and the clinic are invented. Default database: ./tracker.sqlite.
@@ -330,6 +338,8 @@ def demo(db: DbOption = None, json_out: JsonOption = False) -> None:
     give another file with --db.
 
     Example: tracker demo --db demo.sqlite
+
+    Example: tracker demo --db demo.sqlite --serve --port 8000
     """
     location = locate(db)
     folder = demo_folder()
@@ -341,12 +351,27 @@ def demo(db: DbOption = None, json_out: JsonOption = False) -> None:
     result = _summary(engine)
     result["database"] = location.describe()
     result["files"] = [s.as_dict() for s in imported]
+    if serve:
+        from tracker.services import accounts as AC
+
+        with writing(engine) as conn:
+            result["accounts"] = AC.demo_accounts(conn)
+        result["address"] = f"http://{host}:{port}/"
     if json_out:
         print_json(result)
-        return
-    typer.echo(f"Demo database: {location.describe()} (invented families; no real patient data)")
-    _print_summary(result)
-    typer.echo("Next: `tracker families`, `tracker export people --out people.csv`, `tracker --help`")
+    else:
+        typer.echo(f"Demo database: {location.describe()} (invented families; no real patient data)")
+        _print_summary(result)
+        if not serve:
+            typer.echo("Next: `tracker families`, `tracker export people --out people.csv`, `tracker --help`")
+    if serve:
+        from tracker.cli.web import run_server
+
+        if not json_out:
+            typer.echo(f"Web interface: {result['address']}  (invented demonstration accounts; passwords shown once)")
+            for a in result["accounts"]:
+                typer.echo(f"  {a['name']:<20} {a['role']:<13} one-time password {a['one_time_password']}")
+        run_server(db, settings, host, port)
 
 
 def _demo_codes(folder: Path, name: str, column: str) -> set[str]:

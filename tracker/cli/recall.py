@@ -19,26 +19,16 @@ import typer
 from sqlalchemy import select, update
 
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, parse_day, print_json, print_table
-from tracker.gcpause import gc_paused
 from tracker.domain.genetics import ACMG_CLASSES
 from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
-from tracker.engines.schedule import CAUTIONS, Proposal, never_screened_text
-from tracker.engines.worklist import (
-    contact_gaps,
-    lost_to_follow_up,
-    not_recalled,
-    plan_bookings,
-    reachable,
-    select_due,
-    week_starts,
-)
+from tracker.engines.schedule import CAUTIONS
 from tracker.errors import UserError
-from tracker.outputs import ics, worklist_csv
+from tracker.outputs import ics
 from tracker.settings import load_settings
 from tracker.outfiles import write_output
 from tracker.store import audit
 from tracker.store.database import check_row_id, reading, writing
-from tracker.store.models import Family, ImpactItem, Person, Variant, VariantClassification
+from tracker.store.models import ImpactItem
 from tracker.services.cascade import (  # noqa: F401  (moved to the service layer; names kept for callers)
     _contact_dates,
     _rereview_dict,
@@ -48,6 +38,7 @@ from tracker.services.cascade import (  # noqa: F401  (moved to the service laye
     _variant_rereview,
 )
 from tracker.services.reclassification import _reclassify_one, _targets  # noqa: F401
+from tracker.services.worklist import _entry, _task_dict, _task_query, due_proposals, worklist_lists  # noqa: F401
 from tracker.services.recall import (  # noqa: F401
     TREND_CHUNK_PEOPLE,
     _batches,
@@ -231,34 +222,6 @@ def reclassify(
 # --------------------------------------------------------------------------- tasks
 
 
-def _task_query():
-    return (
-        select(
-            ImpactItem.id, Family.code, Person.code, Variant.gene, Variant.transcript, Variant.hgvs_c,
-            VariantClassification.acmg_class, VariantClassification.classified_on, ImpactItem.change,
-            ImpactItem.what_changes, ImpactItem.action, ImpactItem.source, ImpactItem.created_at,
-            ImpactItem.created_by, ImpactItem.done_on, ImpactItem.done_by, ImpactItem.done_note,
-        )
-        .join(VariantClassification, ImpactItem.variant_classification_id == VariantClassification.id)
-        .join(Variant, VariantClassification.variant_id == Variant.id)
-        .join(Family, Variant.family_id == Family.id)
-        .outerjoin(Person, ImpactItem.person_id == Person.id)
-        .order_by(ImpactItem.id)
-    )  # fmt: skip
-
-
-def _task_dict(r) -> dict:
-    (iid, fam, person, gene, tx, c, cls, on, change, what, action, source, created_at, created_by,
-     done_on, done_by, done_note) = r  # fmt: skip
-    return {
-        "id": iid, "family": fam, "person": person, "variant": f"{tx}:{c}", "gene": gene,
-        "classification": cls, "classified_on": _iso(on), "change": change, "what_changes": what,
-        "action": action, "source": source, "created_at": created_at.isoformat() if created_at else None,
-        "created_by": created_by, "status": "done" if done_on else "open", "done_on": _iso(done_on),
-        "done_by": done_by, "done_note": done_note,
-    }  # fmt: skip
-
-
 tasks_app = typer.Typer(
     name="tasks",
     invoke_without_command=True,
@@ -282,18 +245,13 @@ def tasks_list(
     """
     from tracker.engines.reclassification import CAUTION as RECLASSIFICATION_CAUTION
 
+    from tracker.services import worklist as SW
+
     if ctx.invoked_subcommand is not None:
         return
     engine = open_store(db)
     with reading(engine) as conn:
-        if family is not None and conn.execute(select(Family.id).where(Family.code == family)).first() is None:
-            raise UserError(f"unknown family {family!r}")
-        stmt = _task_query()
-        if family is not None:
-            stmt = stmt.where(Family.code == family)
-        if not all_:
-            stmt = stmt.where(ImpactItem.done_on.is_(None))
-        rows = [_task_dict(r) for r in conn.execute(stmt).all()]
+        rows = SW.tasks(conn, family, include_done=all_)
     if json_out:
         print_json({"tasks": rows, "caution": RECLASSIFICATION_CAUTION})
         return
@@ -416,100 +374,6 @@ def recall(
 # --------------------------------------------------------------------------- worklist
 
 
-def _entry(p: Proposal, family: str, lst: str) -> dict:
-    from tracker.normals.criteria import NOT_ASSESSABLE
-
-    reason, source = _reason(p)
-    return {
-        "list": lst, "person": p.person_code, "family": family, "status": p.status, "due": _iso(p.due),
-        "days_overdue": p.days_overdue, "never_screened": p.never_screened, "eligible_since": _iso(p.eligible_since),
-        "gap_reason": p.gap_reason,
-        "waiting": never_screened_text(p), "contact_status": p.contact_status,
-        "interval_months": p.interval_months, "rule_id": p.rule_id,
-        "needs": list(p.needs), "consider": list(p.consider), "reason": reason, "source": source,
-        "triggers": list(p.triggers), "flags": list(p.flags), "booked_week": None, "late": None,
-        "review_flags": [n for n in p.notes if n.startswith(NOT_ASSESSABLE)],
-    }  # fmt: skip
-
-
-def due_proposals(frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date):
-    """Proposals due or overdue by ``end``: (screening, affected, family of each person, trend note,
-    every proposal).
-
-    Shared by ``tracker worklist`` and ``tracker report worklist``.  The cyclic garbage
-    collector is paused while every family's state is built (see :mod:`tracker.gcpause`).
-    """
-    from tracker.engines import family_state as fs
-
-    with gc_paused():
-        states = fs.build_family_states(
-            frames.people, frames.variants, frames.results, frames.assessments, frames.studies,
-            reclassification_pending=frames.pending, as_of=on,
-        )  # fmt: skip
-        states, trend = _with_trends(frames, states, rule_set.id, conf, on)
-    proposals: list[Proposal] = []
-    family_of: dict[str, str] = {}
-    affected: set[str] = set()
-    for fam, st in states.items():
-        for p, prop in fs.propose_for_family(st, rule_set, policy, on).items():
-            prop = with_trend_texts(prop, st.facts[p])
-            proposals.append(prop)
-            family_of[p] = fam
-            if st.states[p].phenotype == "positive":
-                affected.add(p)
-    screening_due = select_due([p for p in proposals if p.person_code not in affected], start, end)
-    affected_due = select_due([p for p in proposals if p.person_code in affected], start, end)
-    return screening_due, affected_due, family_of, trend, proposals
-
-
-def worklist_lists(frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date, slots: int | None) -> dict:
-    """Everything the worklist shows, shared by ``tracker worklist`` and ``tracker report worklist``.
-
-    ``due`` / ``affected``: reachable people due or overdue by ``end``, most
-    urgent first; ``contact_gaps``: people who cannot be booked until contact
-    is made (not contacted, lost to follow-up, declined), each once;
-    ``booking`` (with a weekly capacity): reachable screening people booked
-    from the first bookable day on or after both ``start`` and ``on``.
-    """
-    screening_due, affected_due, family_of, trend, proposals = due_proposals(frames, conf, rule_set, policy, start, end, on)
-    gaps = contact_gaps(screening_due + affected_due + [p for p in proposals if p.status == "not_recalled"])
-    due_rows = [_entry(p, family_of[p.person_code], "screening") for p in screening_due if reachable(p)]
-    affected_rows = [_entry(p, family_of[p.person_code], "affected") for p in affected_due if reachable(p)]
-    gap_rows = [_entry(p, family_of[p.person_code], "contact_gap") for p in gaps]
-    booking = None
-    if slots is not None:
-        plan = plan_bookings([p for p in screening_due if reachable(p)], start, end, slots, on)
-        booked = {b.person_code: b for b in plan.bookings}
-        for r in due_rows:
-            b = booked.get(r["person"])
-            r["booked_week"] = _iso(b.week_start) if b else None
-            r["late"] = (b.late if b else True)
-        booking = {
-            "slots_per_week": slots,
-            "first_bookable_day": plan.window_start.isoformat(),
-            "weeks": [
-                {"week_start": w.isoformat(), "booked": [b.person_code for b in plan.bookings if b.week_start == w],
-                 "free": slots - sum(1 for b in plan.bookings if b.week_start == w)}
-                for w in week_starts(plan.window_start, plan.weeks)
-            ],  # fmt: skip
-            "booked_late": [
-                {"person": b.person_code, "due": b.due.isoformat(), "booked_week": b.week_start.isoformat(),
-                 "days_late": b.days_late}
-                for b in plan.bookings if b.late
-            ],  # fmt: skip
-            "not_booked": [
-                {"person": u.person_code, "due": u.due.isoformat(), "reason": u.reason}
-                for u in plan.unseen if u.week_start is None
-            ],
-        }
-    return {
-        "due": due_rows, "affected": affected_rows, "contact_gaps": gap_rows, "booking": booking, "trend": trend,
-        "not_recalled": [{"person": p.person_code, "family": family_of[p.person_code], "reason": "declined: not recalled"}
-                         for p in not_recalled(proposals)],
-        "lost_to_follow_up": [p.person_code for p in lost_to_follow_up(screening_due + affected_due)],
-    }  # fmt: skip
-
-
 def worklist(
     from_: Annotated[str, typer.Option("--from", help="First day of the window (YYYY-MM-DD).")],
     to: Annotated[str, typer.Option("--to", help="Last day of the window (YYYY-MM-DD).")],
@@ -533,7 +397,8 @@ def worklist(
 
     Example: tracker worklist --from 2026-12-07 --to 2027-01-31 --slots-per-week 4 --ics recalls.ics
     """
-    from tracker.outputs.worklist_pdf import GAP_WORDS, booked_text, flag_words, waiting_text
+    from tracker.outputs.worklist_pdf import GAP_WORDS, flag_words, waiting_text
+    from tracker.services import worklist as SW
 
     start, end = _day(from_, "--from"), _day(to, "--to")
     if end < start:
@@ -551,16 +416,10 @@ def worklist(
 
     files = {"csv": None, "ics": None}
     if csv_out is not None:
-        write_output(csv_out, worklist_csv.worklist_csv(due_rows + affected_rows + gap_rows, cautions=CAUTIONS),
-                     where="--csv", newline=None)
+        write_output(csv_out, SW.csv_text(due_rows + affected_rows + gap_rows), where="--csv", newline=None)
         files["csv"] = str(csv_out)
     if ics_out is not None:
-        visits = [
-            ics.CalendarVisit(r["person"], dt.date.fromisoformat(r["booked_week"] or r["due"]), tuple(r["needs"]),
-                              f"{r['waiting'][0].upper()}{r['waiting'][1:]}. {r['reason']}" if r["waiting"] else r["reason"])
-            for r in due_rows + affected_rows
-        ]  # fmt: skip
-        write_output(ics_out, ics.calendar_bytes(visits, caution=" ".join(CAUTIONS)), where="--ics")
+        write_output(ics_out, SW.calendar_bytes(due_rows + affected_rows), where="--ics")
         files["ics"] = str(ics_out)
 
     # variant re-review reminders (data only; see _variant_rereview)

@@ -28,7 +28,7 @@ def worklist_rows(
     frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date, slots: int | None
 ) -> tuple[list[dict], list[dict], dict, list[dict], dict | None]:
     """Screening rows, affected rows, the trend note, the contact gaps and the booking, as ``tracker worklist``
-    builds them (:func:`tracker.cli.recall.worklist_lists`)."""
+    builds them (:func:`tracker.services.worklist.worklist_lists`)."""
     lists = R.worklist_lists(frames, conf, rule_set, policy, start, end, on, slots)
     return lists["due"], lists["affected"], lists["trend"], lists["contact_gaps"], lists["booking"]
 
@@ -70,13 +70,11 @@ def worklist_report(
     with reading(engine) as conn:
         frames = R._load(conn)
     due_rows, affected_rows, trend, gap_rows, booking = worklist_rows(frames, conf, rule_set, policy, start, end, on, slots)
-    doc = W.WorklistDocument(
-        clinic=conf.clinic.name, window_from=start, window_to=end, rule_set=rule_set.title, policy=policy.point,
-        as_of=on, printed=dt.date.today(), screening=tuple(W.line_from_row(r) for r in due_rows),
-        affected=tuple(W.line_from_row(r) for r in affected_rows), slots_per_week=slots, cautions=tuple(CAUTIONS),
-        notes=(trend["note"],), contact_gaps=tuple(W.line_from_row(r) for r in gap_rows),
-        first_bookable_day=dt.date.fromisoformat(booking["first_bookable_day"]) if booking else None,
-    )  # fmt: skip
+    from tracker.services import worklist as SW
+
+    doc = SW.pdf_document({"due": due_rows, "affected": affected_rows, "trend": trend, "contact_gaps": gap_rows,
+                           "booking": booking}, clinic=conf.clinic.name, start=start, end=end, rule_set=rule_set,
+                          policy=policy, on=on, slots=slots)  # fmt: skip
     out.mkdir(parents=True, exist_ok=True)
     path = out / W.file_name(start, end)
     replaced = path.exists()

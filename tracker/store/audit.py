@@ -36,7 +36,10 @@ from tracker.store.models import AuditEntry
 if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
     import pandas as pd
 
-ACTIONS = ("import", "edit", "remove", "reinstate", "reclassify", "task_done", "restore")
+ACTIONS = ("import", "edit", "remove", "reinstate", "reclassify", "task_done", "restore",
+           # The web interface (tracker/services/accounts.py): who read which family or person's records,
+           # sign-ins (accepted and refused), sign-outs and changes to accounts.
+           "read", "sign_in", "sign_in_refused", "sign_out", "account")
 
 
 def actor(user: str | None) -> str:

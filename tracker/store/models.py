@@ -350,3 +350,45 @@ class AuditEntry(Base):
     after: Mapped[str | None] = mapped_column(Text)
     reason: Mapped[str | None] = mapped_column(Text)
     entry_hash: Mapped[str | None] = mapped_column(String(64))
+
+
+# Roles of the web interface's accounts (the CHECK constraint of migration 0010 holds the same list);
+# what each role may do is in tracker/web/roles.py.
+ROLES = ("nurse", "cardiologist", "counsellor", "admin")
+
+
+class Account(Base):
+    """One person who signs in to the web interface (migration 0010).
+
+    Only the argon2 hash of the password is stored.  Never deleted: an account is
+    disabled.  ``failed_count`` / ``last_failed_at`` count failed sign-ins since
+    the last success (the slow-down of :mod:`tracker.services.accounts`).
+    """
+
+    __tablename__ = "account"
+    __table_args__ = (CheckConstraint("role IN (" + ",".join(f"'{r}'" for r in ROLES) + ")", name="role"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    name: Mapped[str] = mapped_column(String(100), unique=True)
+    role: Mapped[str] = mapped_column(String(20))
+    password_hash: Mapped[str] = mapped_column(String(200))
+    disabled: Mapped[bool] = mapped_column(Boolean)
+    must_change_password: Mapped[bool] = mapped_column(Boolean)
+    created_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    created_by: Mapped[str] = mapped_column(String(100))
+    failed_count: Mapped[int] = mapped_column(Integer)
+    last_failed_at: Mapped[dt.datetime | None] = mapped_column(DateTime)
+
+
+class WebSession(Base):
+    """One sign-in to the web interface: the SHA-256 of its token, never the token (migration 0010)."""
+
+    __tablename__ = "web_session"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    token_sha256: Mapped[str] = mapped_column(String(64), unique=True)
+    account_id: Mapped[int] = mapped_column(ForeignKey("account.id"), index=True)
+    created_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    last_seen_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    ended_at: Mapped[dt.datetime | None] = mapped_column(DateTime)
+    end_reason: Mapped[str | None] = mapped_column(String(20))

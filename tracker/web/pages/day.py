@@ -1,0 +1,303 @@
+"""The nurse's day (``/day``): who is due or overdue in a window, never screened, contact gaps and
+open reclassification tasks, most urgent first; the same list as CSV, iCalendar and PDF; and, on
+each row, forms to record a contact or book a visit.
+
+The lists come from :mod:`tracker.services.worklist` exactly as ``tracker worklist`` and
+``tracker tasks`` get them.  Each view is a read entry in the audit trail naming the people shown.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import importlib.util
+
+from starlette.requests import Request
+from starlette.responses import RedirectResponse, Response
+from starlette.routing import Route
+
+from tracker.services import accounts as AC
+from tracker.store.database import reading, writing
+from tracker.web import auth
+from tracker.web.templating import field_errors, render
+
+DEFAULT_WEEKS = 6
+MAX_WINDOW_DAYS = 2 * 366  # a longer window is refused (engineering limit: the page stays readable)
+REASONS = {
+    "": "everything",
+    "overdue": "overdue",
+    "due": "due in the window",
+    "never_screened": "never screened",
+    "contact_gap": "contact gaps",
+    "task": "reclassification tasks",
+}
+CONTACT_CHANNELS = ("phone", "letter", "email", "in_person", "via_relative")
+CONTACT_OUTCOMES = ("reached", "no_answer", "message_left", "declined", "wrong_details")
+
+
+def contacts_available() -> bool:
+    """Whether the contact-log service is installed (it is built beside this page)."""
+    return importlib.util.find_spec("tracker.services.contacts") is not None
+
+
+def _day(text: str | None, field: str, default: dt.date, errors: dict) -> dt.date:
+    from tracker.domain.dates import parse_date
+
+    if not text:
+        return default
+    try:
+        return parse_date(text)
+    except ValueError as exc:
+        errors.setdefault(field, []).append(str(exc))
+        return default
+
+
+def filters(request: Request) -> tuple[dict, dict]:
+    """The page's filters from the query (window, family, reason), and any errors by field."""
+    q = request.query_params
+    errors: dict[str, list[str]] = {}
+    today = auth.now(request).date()
+    start = _day(q.get("from"), "from", today, errors)
+    end = _day(q.get("to"), "to", start + dt.timedelta(weeks=DEFAULT_WEEKS), errors)
+    if "from" not in errors and "to" not in errors:
+        if end < start:
+            errors["to"] = ["is before the first day"]
+        elif (end - start).days > MAX_WINDOW_DAYS:
+            errors["to"] = [f"the window is longer than {MAX_WINDOW_DAYS} days"]
+    family = (q.get("family") or "").strip()
+    if len(family) > 40:
+        errors["family"] = ["a family code has at most 40 characters"]
+    reason = q.get("reason") or ""
+    if reason not in REASONS:
+        errors["reason"] = [f"not a choice: {', '.join(k for k in REASONS if k)}"]
+        reason = ""
+    return {"from": start, "to": end, "family": family, "reason": reason}, errors
+
+
+def _matches(row: dict, f: dict) -> bool:
+    if f["family"] and row.get("family") != f["family"]:
+        return False
+    r = f["reason"]
+    if r == "overdue":
+        return (row.get("days_overdue") or 0) > 0
+    if r == "due":
+        return row["list"] in ("screening", "affected") and not row.get("never_screened")
+    if r == "never_screened":
+        return bool(row.get("never_screened"))
+    if r == "contact_gap":
+        return row["list"] == "contact_gap"
+    if r == "task":
+        return False
+    return True
+
+
+def _urgency(row: dict) -> tuple:
+    """Most urgent first: most days overdue, then never screened, then the earliest due date."""
+    return (-(row.get("days_overdue") or 0), not row.get("never_screened"), row.get("due") or "9999")
+
+
+def day_data(request: Request, f: dict) -> dict:
+    """The lists of the page for the filters ``f`` (reads the store; writes nothing)."""
+    from tracker.services import recall as SV
+    from tracker.services import worklist as SW
+
+    conf, rule_set, policy = SV.recall_rules(request.app.state.settings_path, None)
+    on = auth.now(request).date()
+    with reading(auth.engine(request)) as conn:
+        lists = SW.worklist(conn, conf, rule_set, policy, f["from"], f["to"], on, conf.slots_per_week)
+        families = SW.tasks(conn, None) if f["reason"] in ("", "task") else []
+    rows = [r for r in lists["due"] + lists["affected"] + lists["contact_gaps"] if _matches(r, f)]
+    rows.sort(key=_urgency)
+    tasks = [t for t in families if not f["family"] or t["family"] == f["family"]]
+    return {"lists": lists, "rows": rows, "tasks": tasks, "conf": conf, "rule_set": rule_set, "policy": policy,
+            "on": on}  # fmt: skip
+
+
+def _audit_view(request: Request, user: AC.User, data: dict, what: str) -> None:
+    people = sorted({r["person"] for r in data["rows"]} | {t["person"] for t in data["tasks"] if t["person"]})
+    families = sorted({r["family"] for r in data["rows"]} | {t["family"] for t in data["tasks"]})
+    with writing(auth.engine(request)) as conn:
+        AC.audit_read(conn, user, family=families[0] if len(families) == 1 else None,
+                      person=people[0] if len(people) == 1 else None,
+                      what=f"{what}: {len(people)} people ({', '.join(people) or 'none'}); families "
+                           f"{', '.join(families) or 'none'}", now=auth.now(request))  # fmt: skip
+
+
+def _query(f: dict) -> str:
+    from urllib.parse import urlencode
+
+    return urlencode({"from": f["from"].isoformat(), "to": f["to"].isoformat(), "family": f["family"],
+                      "reason": f["reason"]})  # fmt: skip
+
+
+def day_page(request: Request):
+    from tracker.outputs.worklist_pdf import GAP_WORDS, flag_words, waiting_text
+    from tracker.outputs.ics import needs_words
+
+    user = auth.current_user(request)
+    f, errors = filters(request)
+    if errors:
+        return render(request, "day.html", {"f": f, "errors": errors, "reasons": REASONS, "data": None},
+                      status_code=400)  # fmt: skip
+    data = day_data(request, f)
+    _audit_view(request, user, data, f"day list {f['from'].isoformat()} to {f['to'].isoformat()}")
+    return render(request, "day.html", {
+        "f": f, "reasons": REASONS, "data": data, "query": _query(f), "gap_words": GAP_WORDS,
+        "flag_words": flag_words, "waiting_text": waiting_text, "needs_words": needs_words,
+        "channels": CONTACT_CHANNELS, "outcomes": CONTACT_OUTCOMES, "contacts_ready": contacts_available(),
+        "today": data["on"].isoformat(),
+    })  # fmt: skip
+
+
+def _download(request: Request, kind: str):
+    user = auth.current_user(request)
+    f, errors = filters(request)
+    if errors:
+        raise auth.Refused("; ".join(f"{k}: {' '.join(v)}" for k, v in errors.items()), status=400)
+    data = day_data(request, f)
+    _audit_view(request, user, data, f"day list {kind.upper()} download {f['from'].isoformat()} to {f['to'].isoformat()}")
+    from tracker.services import worklist as SW
+
+    name = f"worklist-{f['from'].isoformat()}-{f['to'].isoformat()}"
+    if kind == "csv":
+        body, media = SW.csv_text(data["rows"]).encode("utf-8"), "text/csv; charset=utf-8"
+    elif kind == "ics":
+        body, media = SW.calendar_bytes([r for r in data["rows"] if r["list"] != "contact_gap"]), "text/calendar"
+    else:
+        body, media = _pdf(data, f), "application/pdf"
+    return Response(body, media_type=media,
+                    headers={"Content-Disposition": f'attachment; filename="{name}.{kind}"'})  # fmt: skip
+
+
+def _pdf(data: dict, f: dict) -> bytes:
+    import tempfile
+    from pathlib import Path
+
+    from tracker.outputs import worklist_pdf as W
+    from tracker.services import worklist as SW
+
+    keep = {r["person"] for r in data["rows"]}
+    lists = dict(data["lists"])
+    for k in ("due", "affected", "contact_gaps"):
+        lists[k] = [r for r in lists[k] if r["person"] in keep]
+    doc = SW.pdf_document(lists, clinic=data["conf"].clinic.name, start=f["from"], end=f["to"],
+                          rule_set=data["rule_set"], policy=data["policy"], on=data["on"],
+                          slots=data["conf"].slots_per_week, printed=data["on"])  # fmt: skip
+    with tempfile.TemporaryDirectory(prefix="tracker-web-") as tmp:
+        path = Path(tmp) / "worklist.pdf"
+        W.write_worklist_pdf(doc, path)
+        return path.read_bytes()
+
+
+def day_csv(request: Request):
+    return _download(request, "csv")
+
+
+def day_ics(request: Request):
+    return _download(request, "ics")
+
+
+def day_pdf(request: Request):
+    return _download(request, "pdf")
+
+
+# --------------------------------------------------------------------------- row forms
+
+
+def _person(request: Request) -> str:
+    code = request.path_params["person"]
+    if not 1 <= len(code) <= 40:
+        raise auth.Refused("no such person", status=404)
+    return code
+
+
+def _text(form, name: str) -> str | None:
+    v = form.get(name)
+    return v.strip() if isinstance(v, str) and v.strip() else None
+
+
+def _row_form_result(request: Request, template: str, person: str, values: dict, errors: dict | None):
+    if errors:
+        if request.headers.get("hx-request"):  # htmx: only the form, with its errors
+            template = "_contact_form.html" if template == "day_contact.html" else "_booking_form.html"
+        return render(request, template, {"person": person, "values": values, "errors": errors,
+                                          "channels": CONTACT_CHANNELS, "outcomes": CONTACT_OUTCOMES,
+                                          "today": auth.now(request).date().isoformat()},
+                      status_code=400)  # fmt: skip
+    if request.headers.get("hx-request"):
+        return render(request, "_row_done.html", {"person": person, "what": values.get("_what", "recorded")})
+    return RedirectResponse("/day", status_code=303)
+
+
+def _date_field(form, name: str, errors: dict) -> dt.date | None:
+    from tracker.domain.dates import parse_date
+
+    v = _text(form, name)
+    if v is None:
+        errors.setdefault(name, []).append("give a date (YYYY-MM-DD)")
+        return None
+    try:
+        return parse_date(v)
+    except ValueError as exc:
+        errors.setdefault(name, []).append(str(exc))
+        return None
+
+
+def record_contact(request: Request):
+    from tracker.io.reading import InputRejected
+
+    user = auth.require_to(request, "contact")
+    if not contacts_available():
+        raise auth.Refused("recording contacts is not available in this installation; nothing was changed", 501)
+    from tracker.services import contacts as SC
+
+    person, form = _person(request), request.state.form
+    values = {k: _text(form, k) or "" for k in ("on", "channel", "outcome", "notes")}
+    errors: dict[str, list[str]] = {}
+    on = _date_field(form, "on", errors)
+    for name in ("channel", "outcome"):
+        if not values[name]:
+            errors.setdefault(name, []).append("choose one")
+    if not errors:
+        try:
+            with writing(auth.engine(request)) as conn:
+                SC.record_contact(conn, person, on=on, channel=values["channel"], by=user.name,
+                                  outcome=values["outcome"], notes=values["notes"] or None, user=user.name)  # fmt: skip
+        except InputRejected as exc:
+            errors = field_errors(exc)
+    values["_what"] = "contact recorded"
+    return _row_form_result(request, "day_contact.html", person, values, errors)
+
+
+def record_booking(request: Request):
+    from tracker.io.reading import InputRejected
+
+    user = auth.require_to(request, "booking")
+    if not contacts_available():
+        raise auth.Refused("booking visits is not available in this installation; nothing was changed", 501)
+    from tracker.services import contacts as SC
+
+    person, form = _person(request), request.state.form
+    values = {k: _text(form, k) or "" for k in ("on", "purpose", "notes")}
+    errors: dict[str, list[str]] = {}
+    on = _date_field(form, "on", errors)
+    if not values["purpose"]:
+        errors.setdefault("purpose", []).append("say what the visit is for")
+    if not errors:
+        try:
+            with writing(auth.engine(request)) as conn:
+                SC.record_booking(conn, person, on=on, purpose=values["purpose"], user=user.name,
+                                  notes=values["notes"] or None)  # fmt: skip
+        except InputRejected as exc:
+            errors = field_errors(exc)
+    values["_what"] = "visit booked"
+    return _row_form_result(request, "day_booking.html", person, values, errors)
+
+
+routes = [
+    Route("/day", day_page, methods=["GET"]),
+    Route("/day.csv", day_csv, methods=["GET"]),
+    Route("/day.ics", day_ics, methods=["GET"]),
+    Route("/day.pdf", day_pdf, methods=["GET"]),
+    Route("/day/contact/{person}", record_contact, methods=["POST"]),
+    Route("/day/booking/{person}", record_booking, methods=["POST"]),
+]
