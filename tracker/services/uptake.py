@@ -221,7 +221,7 @@ def at_risk(st: fs.FamilyState, proband: str | None, person: str, start: dt.date
         if g is not None and g.status == "non_carrier":
             why += " (tested non-carrier: at risk until the test)"
         return True, why
-    return True, "blood relative of the proband (no P/LP variant: at risk by blood)"
+    return True, "blood relative of the proband (no cascade start date: at risk by blood)"
 
 
 def _dates_by_person(frame, person_col: str, date_col: str, keep=None) -> dict[str, dt.date]:
