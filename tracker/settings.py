@@ -30,6 +30,9 @@ else ``./tracker.toml`` if present, else the defaults below.  Example
     trust_forwarded_proto = false       # true only behind your own TLS reverse proxy
     # secure_cookies = true             # default: Secure when the request came over TLS
 
+    [display]                   # terminal tables (--json and --csv always hold every row)
+    table_rows = 50                     # rows shown before "... and N more"; --all shows every row
+
     [privacy]                   # for `tracker export all --pseudonymise` (docs/privacy.md)
     pseudonym_key_file = "pseudonym.key"   # relative to this file; or pseudonym_key = "..."
     small_cell_threshold = 5
@@ -129,6 +132,15 @@ class CascadePolicy:
         return f"clinic policy: relatives who declined may be re-approached {self.declined_reapproach_months} months after"
 
 
+# Rows a terminal table shows before "... and N more" (a display choice of this project).
+DEFAULT_TABLE_ROWS = 50
+
+
+@dataclass(frozen=True)
+class Display:
+    table_rows: int = DEFAULT_TABLE_ROWS
+
+
 @dataclass(frozen=True)
 class Settings:
     clinic: Clinic = field(default_factory=Clinic)
@@ -140,6 +152,7 @@ class Settings:
     privacy: Privacy = field(default_factory=Privacy)
     cascade: CascadePolicy = field(default_factory=CascadePolicy)
     web: WebPolicy = field(default_factory=lambda: WebPolicy())
+    display: Display = field(default_factory=lambda: Display())
 
 
 # Web sessions: ended after this long without use, and after this long in all (engineering defaults
@@ -165,6 +178,7 @@ _SECTIONS = {
     "privacy": {"pseudonym_key", "pseudonym_key_file", "small_cell_threshold"},
     "cascade": {"variant_rereview_months", "declined_reapproach_months"},
     "web": {"idle_minutes", "absolute_hours", "trust_forwarded_proto", "secure_cookies"},
+    "display": {"table_rows"},
 }
 
 
@@ -222,7 +236,8 @@ def parse_settings(data: dict, name: str = "settings", base: Path | None = None)
             raise UserError(f"{name}: [repeatability] {code} must be a positive number (within-subject SD)")
         rep[code] = float(v)
     return Settings(clinic, guideline, policy, slots, rep, name, _privacy(data.get("privacy", {}), name, base),
-                    _cascade(data.get("cascade", {}), name), _web(data.get("web", {}), name))
+                    _cascade(data.get("cascade", {}), name), _web(data.get("web", {}), name),
+                    _display(data.get("display", {}), name))
 
 
 def _web(section: dict, name: str) -> WebPolicy:
@@ -239,6 +254,13 @@ def _web(section: dict, name: str) -> WebPolicy:
                 raise UserError(f"{name}: [web] {key} must be true or false")
             out[key] = section[key]
     return WebPolicy(**out)
+
+
+def _display(section: dict, name: str) -> Display:
+    rows = section.get("table_rows", DEFAULT_TABLE_ROWS)
+    if not isinstance(rows, int) or isinstance(rows, bool) or rows < 1:
+        raise UserError(f"{name}: [display] table_rows must be a whole number of at least 1")
+    return Display(rows)
 
 
 def _cascade(section: dict, name: str) -> CascadePolicy:

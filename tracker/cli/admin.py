@@ -9,7 +9,7 @@ from typing import Annotated
 import typer
 
 from tracker.cli.common import engine_for, DbOption, JsonOption, UserOption, open_store, print_json, print_table
-from tracker.cli.common import SettingsOption
+from tracker.cli.common import AllOption, SettingsOption, table_limit
 from tracker.store import migrate
 from sqlalchemy.exc import DBAPIError
 
@@ -81,7 +81,8 @@ def schema(db: DbOption = None, json_out: JsonOption = False) -> None:
         typer.echo(f"{location.describe()}: revision {current}; tool needs {head} ({state})")
 
 
-def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsOption = None) -> None:
+def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsOption = None,
+          all_: AllOption = False) -> None:
     """Check the database: file integrity, schema revision, orphan rows, and consistency of the
     records (pedigree cycles, dates out of order, values outside plausible ranges, placeholders
     with clinical data, at-risk relatives with no recall). Exit code 1 when anything is found.
@@ -93,12 +94,11 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
     from tracker.domain import consistency as dc
     from tracker.domain.genetics import SRC_REREVIEW
     from tracker.settings import load_settings
-    from tracker.store import checks
 
     location = locate(db)
     reminders = []
     try:
-        findings, reminders = _check_findings(db, dc, checks, load_settings(settings).cascade.variant_rereview_months)
+        findings, reminders = _check_findings(db, load_settings(settings).cascade.variant_rereview_months)
     except DatabaseUnreadable as exc:  # not a SQLite file at all: that is the finding
         findings = [dc.Finding("integrity", "database file", str(exc))]
     except DBAPIError as exc:
@@ -113,7 +113,7 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
         print_json(result)
     elif findings:
         print_table(f"{len(findings)} findings", ["check", "where", "finding"],
-                    [[f.check, f.where, f.message] for f in findings])  # fmt: skip
+                    [[f.check, f.where, f.message] for f in findings], limit=table_limit(all_, settings))  # fmt: skip
     else:
         typer.echo(f"{location.describe()}: no problems found")
     if reminders and not json_out:
@@ -124,43 +124,11 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
         raise typer.Exit(1)
 
 
-def _check_findings(db, dc, checks, rereview_months: int) -> tuple[list, list]:
-    from tracker.store import repository as repo
+def _check_findings(db, rereview_months: int) -> tuple[list, list]:
+    from tracker.services.checks import check_findings
 
-    engine = engine_for(db)
-    reminders = []
-    with reading(engine) as conn:
-        findings = checks.integrity_findings(conn) + checks.schema_findings(conn)
-        if not findings:
-            findings += checks.audit_findings(conn)
-            findings += checks.orphan_findings(conn)
-            people = repo.load_people(conn)
-            studies = repo.load_studies(conn, entered=False)
-            assessments = repo.load_assessments(conn)
-            results = repo.load_genetic_results(conn)
-            findings += dc.pedigree_findings(people)
-            findings += dc.date_findings(people, studies, assessments, results)
-            findings += dc.record_findings(people)
-            findings += dc.range_findings(studies, repo.load_measures(conn))
-            findings += dc.placeholder_findings(people, studies, assessments, results)
-            findings += checks.rule_findings(conn)
-            # Families whose links cannot form a pedigree are reported above; recall needs a pedigree.
-            broken = {f.where.removeprefix("family ") for f in findings if f.check == "pedigree"}
-            findings += _recall_findings(people[~people["family"].isin(broken)], repo.load_variants(conn), results,
-                                         assessments, studies)  # fmt: skip
-            # re-review reminders: listed apart, not findings
-            reminders = checks.variant_rereview_reminders(conn, dt.date.today(), rereview_months)
-    return findings, reminders
-
-
-def _recall_findings(people, variants, results, assessments, studies):
-    """At-risk living relatives with no recall proposal (for example no date of birth recorded)."""
-    from tracker.domain.consistency import Finding
-    from tracker.engines import family_state as fs
-
-    states = fs.build_family_states(people, variants, results, assessments, studies)
-    return [Finding("recall", f"person {p}", f"is at risk and has no recall: {why}")
-            for st in states.values() for p, why in fs.unscheduled_at_risk(st, people)]  # fmt: skip
+    with reading(engine_for(db)) as conn:
+        return check_findings(conn, dt.date.today(), rereview_months)
 
 
 def backup_(

@@ -7,7 +7,8 @@ from typing import Annotated
 
 import typer
 
-from tracker.cli.common import DbOption, JsonOption, open_store, print_json, print_table
+from tracker.cli.common import AllOption, DbOption, JsonOption, SettingsOption, open_store, print_json, print_table
+from tracker.cli.common import table_limit
 from tracker.domain.dates import parse_date
 from tracker.errors import UserError
 from tracker.store import audit
@@ -47,9 +48,13 @@ def audit_(
     action: Annotated[str | None, typer.Option("--action", help=f"Only one kind: {', '.join(audit.ACTIONS)}.")] = None,
     db: DbOption = None,
     json_out: JsonOption = False,
+    all_: AllOption = False,
+    settings: SettingsOption = None,
 ) -> None:
     """Show the audit trail (append-only): every import, correction, removal, reclassification and task
     done, with who, when (UTC), the values before and after, and the reason.
+
+    The table shows the latest entries and a count of the earlier ones (--all: every entry).
 
     Example: tracker audit --family HV01 --from 2026-11-01
     """
@@ -72,6 +77,7 @@ def audit_(
         ["#", "when (UTC)", "who", "action", "what", "change", "reason"],
         [[r.id, r.at, r.actor, r.action, r.what, _change(r.action, r.before, r.after), r.reason or ""]
          for r in frame.itertuples()],
+        limit=table_limit(all_, settings), last=True,
     )  # fmt: skip
 
 

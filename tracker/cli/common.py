@@ -41,6 +41,11 @@ UserOption = Annotated[
     typer.Option("--user", help="Who makes the change, for the audit trail (default: the OS user).", show_default=False),
 ]
 JsonOption = Annotated[bool, typer.Option("--json", help="Print JSON (stable keys) instead of a table.")]
+AllOption = Annotated[
+    bool,
+    typer.Option("--all", help="Print every row of the tables (default: the first rows and a count of the rest; "
+                 "[display] table_rows in the settings, 50 unless set). --json always holds every row."),
+]
 
 out = Console(highlight=False, soft_wrap=True)
 err = Console(stderr=True, highlight=False)
@@ -83,7 +88,34 @@ def print_json(data: Any) -> None:
     sys.stdout.write(json.dumps(data, indent=2, ensure_ascii=False, default=str) + "\n")
 
 
-def print_table(title: str | None, columns: list[str], rows: list[list[Any]]) -> None:
+def table_limit(show_all: bool, settings_path: Path | None = None) -> int | None:
+    """How many rows a terminal table shows: None (every row) with ``--all``, else the settings'
+    ``[display] table_rows``."""
+    if show_all:
+        return None
+    from tracker.settings import load_settings
+
+    return load_settings(settings_path).display.table_rows
+
+
+def more_rows_line(hidden: int, data: str = "--json", what: str = "more") -> str:
+    return f"... and {hidden} {what}; --all for every row, {data} for the data"
+
+
+def print_table(title: str | None, columns: list[str], rows: list[list[Any]], *, limit: int | None = None,
+                data: str = "--json", last: bool = False) -> None:
+    """A table of ``rows``; with ``limit``, only the first ``limit`` rows (the last ones with ``last``)
+    and a line counting the rest. ``data`` names the options that give every row as data."""
+    hidden = 0
+    if limit is not None and len(rows) > limit:
+        hidden = len(rows) - limit
+        rows = rows[-limit:] if last else rows[:limit]
+    _table(title, columns, rows)
+    if hidden:
+        typer.echo(more_rows_line(hidden, data, "earlier" if last else "more"))
+
+
+def _table(title: str | None, columns: list[str], rows: list[list[Any]]) -> None:
     table = Table(title=title, title_justify="left", show_lines=False)
     cells = [["" if v is None else str(v) for v in r] for r in rows]
     for i, c in enumerate(columns):

@@ -10,7 +10,8 @@ from typing import Annotated
 
 import typer
 
-from tracker.cli.common import DbOption, JsonOption, UserOption, open_store, print_json, print_table
+from tracker.cli.common import AllOption, DbOption, JsonOption, SettingsOption, UserOption, open_store, print_json
+from tracker.cli.common import print_table, table_limit
 from tracker.errors import UserError
 from tracker.lazy import lazy_module
 
@@ -186,8 +187,11 @@ def reinstate_study(person: PersonArg, study_date: DateArg, modality: ModalityAr
     _show(change, json_out)
 
 
-def removed(db: DbOption = None, json_out: JsonOption = False) -> None:
+def removed(db: DbOption = None, json_out: JsonOption = False, all_: AllOption = False,
+            settings: SettingsOption = None) -> None:
     """List removed people and studies: when, by whom and why.
+
+    The table shows the latest removals and a count of the earlier ones (--all: every one).
 
     Example: tracker removed --json
     """
@@ -199,7 +203,8 @@ def removed(db: DbOption = None, json_out: JsonOption = False) -> None:
     elif frame.empty:
         typer.echo("nothing has been removed")
     else:
-        print_table(f"{len(frame)} removed", list(frame.columns), frame.values.tolist())
+        print_table(f"{len(frame)} removed", list(frame.columns), frame.values.tolist(),
+                    limit=table_limit(all_, settings), last=True)
 
 
 def register(app: typer.Typer) -> None:

@@ -11,6 +11,7 @@ import typer
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
 from tracker.cli.common import (
+    AllOption,
     DbOption,
     JsonOption,
     SettingsOption,
@@ -19,6 +20,7 @@ from tracker.cli.common import (
     open_store,
     print_json,
     print_table,
+    table_limit,
 )
 from tracker.errors import UserError
 from tracker.outfiles import check_output
@@ -30,7 +32,6 @@ from tracker.store.database import locate, make_engine, reading, writing
 csv_import = lazy_module("tracker.io.csv_import")
 export = lazy_module("tracker.io.export")
 pseudonymise = lazy_module("tracker.io.pseudonymise")
-summary = lazy_module("tracker.outputs.summary")
 repo = lazy_module("tracker.store.repository")
 
 ImportKind = Enum("ImportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER, "all", "fhir", "dicom-sr")}, type=str)
@@ -387,7 +388,7 @@ def _refuse_other_families(db: str | None, location, folder: Path) -> None:
     "Only the demo": every family and person code in the database is one of the demo's
     (records added to demo people since still count as the demo).
     """
-    from sqlalchemy import inspect, text
+    from tracker.services.cohort import stored_codes
 
     if location.sqlite_path is not None and (
         not location.sqlite_path.exists() or location.sqlite_path.stat().st_size == 0
@@ -395,11 +396,10 @@ def _refuse_other_families(db: str | None, location, folder: Path) -> None:
         return
     engine = engine_for(db)
     with engine.connect() as conn:
-        tables = set(inspect(conn).get_table_names())
-        if "family" not in tables:
-            return
-        families = {r[0] for r in conn.execute(text("SELECT code FROM family"))}
-        people = {r[0] for r in conn.execute(text("SELECT code FROM person"))} if "person" in tables else set()
+        codes = stored_codes(conn)
+    if codes is None:
+        return
+    families, people = codes
     others = sorted(families - _demo_codes(folder, "families.csv", "family")) + sorted(
         people - _demo_codes(folder, "people.csv", "person")
     )
@@ -413,19 +413,13 @@ def _refuse_other_families(db: str | None, location, folder: Path) -> None:
 
 
 def _summary(engine) -> dict:
+    from tracker.services.cohort import cohort_summary
+
     with reading(engine) as conn:
-        fams = repo.load_families(conn)
-        people = repo.load_people(conn)
-        variants = repo.load_variants(conn)
-        results = repo.load_genetic_results(conn)
-        studies = repo.load_studies(conn)
-    return {
-        "totals": summary.totals(people, studies, fams),
-        "families": summary.family_rows(fams, people, variants, results, studies),
-    }
+        return cohort_summary(conn)
 
 
-def _print_summary(result: dict) -> None:
+def _print_summary(result: dict, limit: int | None = None) -> None:
     t = result["totals"]
     typer.echo(
         f"{t['families']} families, {t['people']} people (+{t['placeholders']} placeholders), "
@@ -438,19 +432,24 @@ def _print_summary(result: dict) -> None:
             [f["family"], f["proband"], f["variant"], f["members"], f["carriers"], f["non_carriers"], f["studies"]]
             for f in result["families"]
         ],
+        limit=limit,
     )
 
 
-def families_(db: DbOption = None, json_out: JsonOption = False) -> None:
+def families_(db: DbOption = None, json_out: JsonOption = False, all_: AllOption = False,
+              settings: SettingsOption = None) -> None:
     """List the families with their variant, members, genotype results and studies.
+
+    The table shows the first families (by code) and a count of the rest; --all shows every one.
 
     Example: tracker families --json
     """
+    limit = None if json_out else table_limit(all_, settings)
     result = _summary(open_store(db))
     if json_out:
         print_json(result)
     else:
-        _print_summary(result)
+        _print_summary(result, limit)
 
 
 def register(app: typer.Typer) -> None:

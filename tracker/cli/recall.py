@@ -3,8 +3,7 @@
 Thin: parsing, rendering and exit codes. ``recall``, ``cascade`` and ``reclassify`` get their data
 from the service layer (:mod:`tracker.services.recall`, :mod:`tracker.services.cascade`,
 :mod:`tracker.services.reclassification`), which reads only the families concerned; the worklist
-reads the cohort. The task list (table ``impact_item``) is read and marked done here with
-SQLAlchemy Core.
+reads the cohort; the task list (table ``impact_item``) is :mod:`tracker.services.tasks`.
 """
 
 from __future__ import annotations
@@ -16,9 +15,8 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
-from sqlalchemy import select, update
-
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, parse_day, print_json, print_table
+from tracker.cli.common import AllOption, more_rows_line, table_limit
 from tracker.domain.genetics import ACMG_CLASSES
 from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
 from tracker.engines.schedule import CAUTIONS
@@ -28,7 +26,6 @@ from tracker.settings import load_settings
 from tracker.outfiles import write_output
 from tracker.store import audit
 from tracker.store.database import check_row_id, reading, writing
-from tracker.store.models import ImpactItem
 from tracker.services.cascade import (  # noqa: F401  (moved to the service layer; names kept for callers)
     _contact_dates,
     _rereview_dict,
@@ -38,7 +35,7 @@ from tracker.services.cascade import (  # noqa: F401  (moved to the service laye
     _variant_rereview,
 )
 from tracker.services.reclassification import _reclassify_one, _targets  # noqa: F401
-from tracker.services.worklist import _entry, _task_dict, _task_query, due_proposals, worklist_lists  # noqa: F401
+from tracker.services.worklist import _entry, due_proposals, worklist_lists  # noqa: F401
 from tracker.services.recall import (  # noqa: F401
     TREND_CHUNK_PEOPLE,
     _batches,
@@ -235,7 +232,8 @@ tasks_app = typer.Typer(
 def tasks_list(
     ctx: typer.Context,
     family: Annotated[str | None, typer.Option("--family", help="Only this family.")] = None,
-    all_: Annotated[bool, typer.Option("--all", help="Done tasks too.")] = False,
+    all_: Annotated[bool, typer.Option("--all", help="Done tasks too, and every row of the table.")] = False,
+    settings: SettingsOption = None,
     db: DbOption = None,
     json_out: JsonOption = False,
 ) -> None:
@@ -245,13 +243,13 @@ def tasks_list(
     """
     from tracker.engines.reclassification import CAUTION as RECLASSIFICATION_CAUTION
 
-    from tracker.services import worklist as SW
-
     if ctx.invoked_subcommand is not None:
         return
+    from tracker.services import tasks as TS
+
     engine = open_store(db)
     with reading(engine) as conn:
-        rows = SW.tasks(conn, family, include_done=all_)
+        rows = TS.list_tasks(conn, family, include_done=all_)
     if json_out:
         print_json({"tasks": rows, "caution": RECLASSIFICATION_CAUTION})
         return
@@ -263,6 +261,7 @@ def tasks_list(
         ["task", "family", "person", "change", "action", "status", "done"],
         [[r["id"], r["family"], r["person"] or "(family)", r["change"], r["action"], r["status"],
           f"{r['done_on']} {r['done_by']}: {r['done_note']}" if r["done_on"] else ""] for r in rows],
+        limit=table_limit(all_, settings),
     )  # fmt: skip
     typer.echo(RECLASSIFICATION_CAUTION)
 
@@ -283,24 +282,10 @@ def tasks_done(
         raise UserError("--note must not be empty")
     check_row_id(task_id, "TASK_ID")
     engine = open_store(db)
+    from tracker.services import tasks as TS
+
     with writing(engine) as conn:
-        row = conn.execute(select(ImpactItem.id, ImpactItem.done_on, ImpactItem.person_id, ImpactItem.change)
-                           .where(ImpactItem.id == task_id)).first()  # fmt: skip
-        if row is None:
-            raise UserError(f"no task {task_id}")
-        if row.done_on is not None:
-            raise UserError(f"task {task_id} was already done on {row.done_on.isoformat()}")
-        conn.execute(
-            update(ImpactItem)
-            .where(ImpactItem.id == task_id, ImpactItem.done_on.is_(None))
-            .values(done_on=dt.date.today(), done_by=audit.actor(user), done_note=note.strip())
-        )
-        done = _task_dict(conn.execute(_task_query().where(ImpactItem.id == task_id)).one())
-        audit.record(conn, action="task_done", table="impact_item", row_id=task_id, family=done["family"],
-                     person=done["person"], what=f"task {task_id} done: {row.change}",
-                     before={"done_on": None, "done_by": None, "done_note": None},
-                     after={"done_on": done["done_on"], "done_by": done["done_by"], "done_note": done["done_note"]},
-                     user=user)  # fmt: skip
+        done = TS.mark_done(conn, task_id, note.strip(), user)
     if json_out:
         print_json(done)
     else:
@@ -387,6 +372,7 @@ def worklist(
     settings: SettingsOption = None,
     db: DbOption = None,
     json_out: JsonOption = False,
+    all_: AllOption = False,
 ) -> None:
     """Everyone due or overdue by the end of a window, most urgent first, with what the visit needs and why.
 
@@ -394,6 +380,9 @@ def worklist(
     be seen by their due date are listed. Deceased people are never listed;
     people who declined are listed apart, not recalled; affected members are
     listed apart with their follow-up interval.
+
+    Each table shows the most urgent rows and a count of the rest (--all: every row; --json and
+    --csv: every row).
 
     Example: tracker worklist --from 2026-12-07 --to 2027-01-31 --slots-per-week 4 --ics recalls.ics
     """
@@ -445,10 +434,11 @@ def worklist(
     if json_out:
         print_json(result)
         return
+    limit = table_limit(all_, settings)
     typer.echo(f"Worklist {start.isoformat()} to {end.isoformat()} ({weeks} weeks), as of {on.isoformat()}, "
                f"rule set {rule_set.title}, policy {policy.point}")  # fmt: skip
-    _worklist_table("Family screening: due or overdue, most urgent first", due_rows, booking is not None)
-    _worklist_table("Affected members (follow-up interval)", affected_rows, False)
+    _worklist_table("Family screening: due or overdue, most urgent first", due_rows, booking is not None, limit)
+    _worklist_table("Affected members (follow-up interval)", affected_rows, False, limit)
     if booking is not None:
         typer.echo(f"Booking from {booking['first_bookable_day']} ({slots} slots a week); "
                    f"{len(booking['booked_late'])} booked after their due date")  # fmt: skip
@@ -457,6 +447,7 @@ def worklist(
                 "Not booked: no free slot in the window",
                 ["person", "due", "reason"],
                 [[u["person"], u["due"], u["reason"]] for u in booking["not_booked"]],
+                limit=limit, data=_DATA,
             )
     if gap_rows:
         print_table(
@@ -464,6 +455,7 @@ def worklist(
             ["person", "gap", "waiting", "due", "needs", "flags"],
             [[r["person"], GAP_WORDS.get(r["contact_status"], r["contact_status"]), waiting_text(r), r["due"] or "",
               ics.needs_words(r["needs"]), flag_words(r["flags"])] for r in gap_rows],
+            limit=limit, data=_DATA,
         )  # fmt: skip
     else:
         typer.echo("Contact gaps: none")
@@ -471,9 +463,12 @@ def worklist(
         typer.echo("Variant re-review: " + "; ".join(f"{r['family']} {r['acmg_class']} ({r['classified_on']}), "
                                                     f"{'due since' if r['overdue'] else 'by'} {r['due']}"
                                                     for r in rereview))  # fmt: skip
-    for r in due_rows + affected_rows + gap_rows:  # review flags (criteria not assessable): the clinician decides
-        for flag in r["review_flags"]:
-            typer.echo(f"review {r['person']}: {flag}")
+    # review flags (criteria not assessable): the clinician decides
+    flags = [f"review {r['person']}: {flag}" for r in due_rows + affected_rows + gap_rows for flag in r["review_flags"]]
+    for line in flags[:limit]:
+        typer.echo(line)
+    if limit is not None and len(flags) > limit:
+        typer.echo(more_rows_line(len(flags) - limit, _DATA, "more review flags"))
     typer.echo(f"note: {trend['note']}")
     if trend.get("lsc_note"):
         typer.echo(f"note: {trend['lsc_note']}")
@@ -484,8 +479,11 @@ def worklist(
         typer.echo(f"caution: {c}")
 
 
-def _worklist_table(title: str, rows: list[dict], booked: bool) -> None:
-    from tracker.outputs.worklist_pdf import GAP_WORDS, booked_text, flag_words, waiting_text
+_DATA = "--json or --csv FILE"
+
+
+def _worklist_table(title: str, rows: list[dict], booked: bool, limit: int | None = None) -> None:
+    from tracker.outputs.worklist_pdf import booked_text, flag_words, waiting_text
 
     if not rows:
         typer.echo(f"{title}: none")
@@ -498,6 +496,7 @@ def _worklist_table(title: str, rows: list[dict], booked: bool) -> None:
         cols,
         [[r["person"], r["status"], r["due"], waiting_text(r), r["interval_months"], ics.needs_words(r["needs"]),
           r["reason"], flag_words(r["flags"])] + ([booked_text(r)] if booked else []) for r in rows],
+        limit=limit, data=_DATA,
     )  # fmt: skip
 
 

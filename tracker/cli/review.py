@@ -14,7 +14,8 @@ import typer
 from rich.console import Console
 from rich.table import Table
 
-from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
+from tracker.cli.common import AllOption, DbOption, JsonOption, SettingsOption, more_rows_line, open_store, print_json
+from tracker.cli.common import table_limit
 from tracker.outfiles import output_path
 from tracker.settings import load_settings
 from tracker.store.database import reading
@@ -48,13 +49,18 @@ def _console() -> Console:
     return Console(highlight=False, soft_wrap=False, width=max(shutil.get_terminal_size((160, 24)).columns, 160))
 
 
-def print_table(title: str | None, columns: list[str], rows: list[list[Any]]) -> None:
+def print_table(title: str | None, columns: list[str], rows: list[list[Any]], *, limit: int | None = None,
+                data: str = "--json") -> None:
+    """A table of ``rows``; with ``limit``, the first ``limit`` rows and a line counting the rest."""
+    hidden = len(rows) - limit if limit is not None and len(rows) > limit else 0
     table = Table(title=title, title_justify="left")
     for c in columns:
         table.add_column(c, overflow="fold")
-    for r in rows:
+    for r in rows[: len(rows) - hidden]:
         table.add_row(*["" if v is None else str(v) for v in r])
     _console().print(table)
+    if hidden:
+        typer.echo(more_rows_line(hidden, data))
 
 
 def _clean(v: Any) -> Any:
@@ -285,6 +291,7 @@ def trends_(
     settings: SettingsOption = None,
     horizon: HorizonOption = 3.0,
     json_out: JsonOption = False,
+    all_: AllOption = False,
 ) -> None:
     """The cohort's per-person slopes and flags, most concerning first.
 
@@ -292,6 +299,9 @@ def trends_(
     for children), last change against the least significant change, projected threshold crossing,
     and flags (progressing beyond measurement variability, projected crossing within the horizon,
     converted, review).
+
+    The table shows the most concerning rows and a count of the rest (--all: every row; --json and
+    --csv: every row).
 
     Example: tracker trends --family HV01 --measure mwt_echo --csv trends.csv
     """
@@ -322,6 +332,7 @@ def trends_(
           "yes" if r["progressing"] else "", "yes" if r["crossing_within_horizon"] else "",
           (r["conversion_date"] or "yes") if r["converted"] else "",
           "; ".join(x for x in (r["reasons"], r["left_out"]) if x)] for r in rows],
+        limit=table_limit(all_, settings), data="--json or --csv FILE",
     )  # fmt: skip
     typer.echo(review.NOT_POOLED)
     for line in lsc_default_notes(rows):

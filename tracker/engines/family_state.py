@@ -902,9 +902,10 @@ def unscheduled_at_risk(state: FamilyState, people: pd.DataFrame) -> list[tuple[
 
     At risk: any genotype status but ``non_carrier`` / ``not_at_risk``.  Placeholders,
     deceased people and people who declined contact are never recalled on purpose
-    and are not listed.  Used by ``tracker check``.
+    and are not listed.  Used by ``tracker check``.  ``people`` may be already indexed by
+    person code (``people.set_index("person")``, built once for a cohort of families).
     """
-    rows = people.set_index("person")
+    rows = people.set_index("person") if "person" in people.columns else people
     out = []
     for p, why in sorted(state.not_scheduled.items()):
         if p not in rows.index or _flag(rows.at[p, "placeholder"]):

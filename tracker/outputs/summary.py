@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
+
 import pandas as pd
 
 from tracker.domain.vocabulary import ACMG_SHORT
@@ -20,53 +22,58 @@ def family_rows(
     people: pd.DataFrame,
     variants: pd.DataFrame,
     results: pd.DataFrame,
-    studies: pd.DataFrame,
+    study_stats: Mapping[str, tuple[int, str | None, str | None]],
 ) -> list[dict]:
+    """One row per family. ``study_stats``: family -> (number of studies, first and last study date, ISO).
+
+    Each frame is grouped by family once, so the work grows with the cohort, not with its square."""
     current = current_classes(variants)
     fam_of = people.set_index("person")["family"]
     res = results.assign(family=results["person"].map(fam_of))
-    st = studies.drop_duplicates(["person", "study_date", "modality"])
-    st = st.assign(family=st["person"].map(fam_of))
+    members = people.loc[~people["placeholder"].astype(bool), "family"].value_counts()
+    first_proband = people[people["proband"].astype(bool)].drop_duplicates("family").set_index("family")["person"]
+    variant_text: dict[str, str] = {}
+    for fam, v in current.groupby("family", sort=False):
+        variant_text[fam] = "; ".join(
+            f"{r.gene} {r.transcript}:{r.hgvs_c} ({ACMG_SHORT[r.acmg_class]})" for r in v.itertuples()
+        )
+    counts = res.groupby(["family", "result"]).size()
+    counts = {k: int(n) for k, n in counts.items()}
     rows = []
     for fam in families.itertuples(index=False):
-        members = people[(people["family"] == fam.family) & ~people["placeholder"]]
-        v = current[current["family"] == fam.family]
-        if len(v):
-            variant = "; ".join(
-                f"{r.gene} {r.transcript}:{r.hgvs_c} ({ACMG_SHORT[r.acmg_class]})" for r in v.itertuples()
-            )
-        elif ((res["family"] == fam.family) & (res["result"] == "no_variant_found")).any():
+        f = fam.family
+        if f in variant_text:
+            variant = variant_text[f]
+        elif counts.get((f, "no_variant_found"), 0):
             variant = "no causal variant found"
         else:
             variant = "not tested"
-        fr = res[res["family"] == fam.family]
-        probands = people[(people["family"] == fam.family) & people["proband"]]["person"]
-        fs = st[st["family"] == fam.family]
+        n_studies, first, last = study_stats.get(f, (0, None, None))
         rows.append(
             {
-                "family": fam.family,
+                "family": f,
                 "condition": fam.condition,
-                "proband": probands.iloc[0] if len(probands) else None,
+                "proband": first_proband.get(f),
                 "variant": variant,
-                "members": int(len(members)),
-                "carriers": int((fr["result"] == "carrier").sum()),
-                "non_carriers": int((fr["result"] == "non_carrier").sum()),
-                "studies": int(len(fs)),
-                "first_study": fs["study_date"].min() if len(fs) else None,
-                "last_study": fs["study_date"].max() if len(fs) else None,
+                "members": int(members.get(f, 0)),
+                "carriers": counts.get((f, "carrier"), 0),
+                "non_carriers": counts.get((f, "non_carrier"), 0),
+                "studies": int(n_studies),
+                "first_study": first,
+                "last_study": last,
             }
         )
     return rows
 
 
-def totals(people: pd.DataFrame, studies: pd.DataFrame, families: pd.DataFrame) -> dict:
-    st = studies.drop_duplicates(["person", "study_date", "modality"])
+def totals(people: pd.DataFrame, families: pd.DataFrame, study_totals: Mapping[str, object]) -> dict:
+    """Counts of the whole store; ``study_totals``: studies, measurements, first_study, last_study."""
     return {
         "families": int(len(families)),
         "people": int((~people["placeholder"]).sum()) if len(people) else 0,
         "placeholders": int(people["placeholder"].sum()) if len(people) else 0,
-        "studies": int(len(st)),
-        "measurements": int(studies["measure"].notna().sum()),
-        "first_study": st["study_date"].min() if len(st) else None,
-        "last_study": st["study_date"].max() if len(st) else None,
+        "studies": int(study_totals["studies"]),
+        "measurements": int(study_totals["measurements"]),
+        "first_study": study_totals["first_study"],
+        "last_study": study_totals["last_study"],
     }

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import datetime as dt
 
-from sqlalchemy import Connection, select
+from sqlalchemy import Connection
 
 from tracker.engines.schedule import CAUTIONS, Proposal, never_screened_text
 from tracker.engines.worklist import (
@@ -25,7 +25,6 @@ from tracker.engines.worklist import (
 from tracker.errors import UserError
 from tracker.gcpause import gc_paused
 from tracker.services.recall import _iso, _reason, _with_trends, with_trend_texts
-from tracker.store.models import Family, ImpactItem, Person, Variant, VariantClassification
 
 
 def _entry(p: Proposal, family: str, lst: str) -> dict:
@@ -120,46 +119,6 @@ def worklist_lists(frames, conf, rule_set, policy, start: dt.date, end: dt.date,
                          for p in not_recalled(proposals)],
         "lost_to_follow_up": [p.person_code for p in lost_to_follow_up(screening_due + affected_due)],
     }  # fmt: skip
-
-
-def _task_query():
-    return (
-        select(
-            ImpactItem.id, Family.code, Person.code, Variant.gene, Variant.transcript, Variant.hgvs_c,
-            VariantClassification.acmg_class, VariantClassification.classified_on, ImpactItem.change,
-            ImpactItem.what_changes, ImpactItem.action, ImpactItem.source, ImpactItem.created_at,
-            ImpactItem.created_by, ImpactItem.done_on, ImpactItem.done_by, ImpactItem.done_note,
-        )
-        .join(VariantClassification, ImpactItem.variant_classification_id == VariantClassification.id)
-        .join(Variant, VariantClassification.variant_id == Variant.id)
-        .join(Family, Variant.family_id == Family.id)
-        .outerjoin(Person, ImpactItem.person_id == Person.id)
-        .order_by(ImpactItem.id)
-    )  # fmt: skip
-
-
-def _task_dict(r) -> dict:
-    (iid, fam, person, gene, tx, c, cls, on, change, what, action, source, created_at, created_by,
-     done_on, done_by, done_note) = r  # fmt: skip
-    return {
-        "id": iid, "family": fam, "person": person, "variant": f"{tx}:{c}", "gene": gene,
-        "classification": cls, "classified_on": _iso(on), "change": change, "what_changes": what,
-        "action": action, "source": source, "created_at": created_at.isoformat() if created_at else None,
-        "created_by": created_by, "status": "done" if done_on else "open", "done_on": _iso(done_on),
-        "done_by": done_by, "done_note": done_note,
-    }  # fmt: skip
-
-
-def tasks(conn: Connection, family: str | None = None, include_done: bool = False) -> list[dict]:
-    """Reclassification tasks (open only, unless ``include_done``), oldest first; an unknown family is refused."""
-    if family is not None and conn.execute(select(Family.id).where(Family.code == family)).first() is None:
-        raise UserError(f"unknown family {family!r}")
-    stmt = _task_query()
-    if family is not None:
-        stmt = stmt.where(Family.code == family)
-    if not include_done:
-        stmt = stmt.where(ImpactItem.done_on.is_(None))
-    return [_task_dict(r) for r in conn.execute(stmt).all()]
 
 
 def worklist(conn: Connection, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date,

@@ -98,13 +98,14 @@ def _urgency(row: dict) -> tuple:
 def day_data(request: Request, f: dict) -> dict:
     """The lists of the page for the filters ``f`` (reads the store; writes nothing)."""
     from tracker.services import recall as SV
+    from tracker.services import tasks as TS
     from tracker.services import worklist as SW
 
     conf, rule_set, policy = SV.recall_rules(request.app.state.settings_path, None)
     on = auth.now(request).date()
     with reading(auth.engine(request)) as conn:
         lists = SW.worklist(conn, conf, rule_set, policy, f["from"], f["to"], on, conf.slots_per_week)
-        families = SW.tasks(conn, None) if f["reason"] in ("", "task") else []
+        families = TS.list_tasks(conn, None) if f["reason"] in ("", "task") else []
     rows = [r for r in lists["due"] + lists["affected"] + lists["contact_gaps"] if _matches(r, f)]
     rows.sort(key=_urgency)
     tasks = [t for t in families if not f["family"] or t["family"] == f["family"]]
