@@ -12,7 +12,17 @@ from typing import Annotated
 
 import typer
 
-from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, parse_day, print_json, print_table
+from tracker.cli.common import (
+    AllOption,
+    DbOption,
+    JsonOption,
+    SettingsOption,
+    open_store,
+    parse_day,
+    print_json,
+    print_table,
+    table_limit,
+)
 from tracker.errors import UserError
 from tracker.store.database import reading
 
@@ -68,7 +78,7 @@ LABELS = {"informed": "informed", "counselled": "counselled", "tested": "tested"
           "direct": "directly", "not_recorded": "route unknown"}  # fmt: skip
 
 
-def _render(data: dict) -> None:
+def _render(data: dict, limit: int | None = None) -> None:
     p = data["period"]
     who = f"family {data['family']}" if data["family"] else "the clinic"
     typer.echo(f"Cascade uptake for {who}: cascades started {p['from'] or 'any time'} to {p['to']}; events counted "
@@ -94,12 +104,18 @@ def _render(data: dict) -> None:
         [[f["family"], f["proband"], f["proband_result_date"] or "none", f["figures"]["at_risk"],
           _cell(f["figures"]["counts"]["informed"]), _cell(f["figures"]["counts"]["tested"]),
           "yes" if f["in_clinic_figures"] else "no"] for f in data["families"]],
+        limit=limit, data="--json or --csv",
     )  # fmt: skip
-    for f in data["families"]:
-        if not f["in_clinic_figures"]:
-            typer.echo(f"{f['family']} not counted: {f['left_out_reason']}")
+    left = [f for f in data["families"] if not f["in_clinic_figures"]]
+    for f in left if limit is None or len(left) <= limit else ():
+        typer.echo(f"{f['family']} not counted: {f['left_out_reason']}")
+    if limit is not None and len(left) > limit:
+        typer.echo(f"{len(left)} families not counted (no cascade start date, or started outside the period): "
+                   "--all or --json names them")  # fmt: skip
     if data["not_recorded"]:
-        typer.echo(f"not recorded in this store: {', '.join(data['not_recorded'])} (shown as 'not recorded', not 0)")
+        words = {"counselled": "counselling", "external": "tests done elsewhere", "route": "the informing route"}
+        typer.echo(f"not recorded in this store: {', '.join(words.get(k, k) for k in data['not_recorded'])} "
+                   "(shown as 'not recorded', not 0)")  # fmt: skip
     typer.echo(data["source"])
     for n in data["notes"]:
         typer.echo(f"note: {n}")
@@ -114,6 +130,8 @@ def uptake(
     csv_path: Annotated[Path | None, typer.Option("--csv", help="Also write the figures to this CSV file.")] = None,
     db: DbOption = None,
     json_out: JsonOption = False,
+    all_: AllOption = False,
+    settings: SettingsOption = None,
 ) -> None:
     """Cascade uptake among at-risk relatives: informed, counselled, tested, screened, declined, not reachable.
 
@@ -138,7 +156,7 @@ def uptake(
     if json_out:
         print_json(public(data))
         return
-    _render(public(data))
+    _render(public(data), table_limit(all_, settings))
     if csv_path is not None:
         typer.echo(f"wrote {csv_path}")
 
