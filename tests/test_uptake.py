@@ -210,6 +210,10 @@ def test_docs_carry_every_definition_word_for_word():
     flat = " ".join(text.split())
     for key, words in U.DEFINITIONS.items():
         assert " ".join(words.split()) in flat, key
+    from tracker.services.uptake import SOURCE_LOG, SOURCE_STATUS
+
+    for words in (SOURCE_LOG, SOURCE_STATUS):
+        assert " ".join(words.split()) in flat, words[:40]
 
 
 def _texts(flowables) -> str:

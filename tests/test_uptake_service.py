@@ -195,31 +195,62 @@ def test_report_pdf_written(store, run, tmp_path):
 
 
 def test_contact_log_events_read_as_documented():
-    """The contact log rules: the first event that reached the relative dates first contact and
-    gives the route; a later 'moved away' as the latest event makes them not reachable; an in-clinic
-    contact by a counsellor is counselling; external tests and screenings are dated."""
+    """The contact log rules (columns as tracker.store.repository.load_contact_events gives them): the
+    first event that reached the relative dates first contact and gives the route; a later 'moved
+    away' as the newest event makes them not reachable; an in-clinic contact by a counsellor is
+    counselling; an undated informing event (kept from the status before the log) is informed without a
+    date; an event with a date alone says nothing; external tests and screenings are dated."""
     import pandas as pd
 
+    def e(person, day, channel, by, via, outcome, source="entered"):
+        return dict(person=person, event_date=day, channel=channel, by_role=by, via=via, outcome=outcome,
+                    later_date=None, notes=None, source=source)  # fmt: skip
+
     events = pd.DataFrame([
-        dict(person="A", event_date="2024-02-01", channel="letter", by_role="nurse", via_person=None, outcome="no_answer"),
-        dict(person="A", event_date="2024-03-01", channel="via_family", by_role=None, via_person="P", outcome="informed"),
-        dict(person="A", event_date="2024-04-01", channel="in_clinic", by_role="genetic_counsellor", via_person=None,
-             outcome="informed"),
-        dict(person="B", event_date="2024-02-10", channel="phone", by_role="nurse", via_person=None, outcome="informed"),
-        dict(person="B", event_date="2024-05-10", channel="letter", by_role="nurse", via_person=None,
-             outcome="moved_away"),
-        dict(person="C", event_date="2024-02-11", channel="phone", by_role="nurse", via_person=None, outcome="declined"),
+        e("A", "2024-02-01", "letter", "nurse", None, "no_answer"),
+        e("A", "2024-03-01", "via_family", None, "P", "informed"),
+        e("A", "2024-04-01", "in_clinic", "counsellor", None, "informed"),
+        e("B", "2024-02-10", "phone", "nurse", None, "informed"),
+        e("B", "2024-05-10", "letter", "nurse", None, "moved_away"),
+        e("C", "2024-02-11", "phone", "nurse", None, "declined"),
+        e("D", None, None, None, None, "informed", "migrated"),
+        e("D", "2024-06-01", "letter", "nurse", None, "no_answer"),
+        e("E", "2023-01-01", None, None, None, "informed", "migrated"),
+        e("F", "2024-01-05", "other", None, None, "contact_later"),
+        e("G", "2024-01-05", None, None, None, None, "migrated"),
+        e("H", "2022-01-01", None, None, None, "lost_to_follow_up", "migrated"),
     ])  # fmt: skip
     external = pd.DataFrame([dict(person="B", kind="genetic_test", result_date="2024-06-01"),
                              dict(person="C", kind="screening", result_date="2024-07-01")])  # fmt: skip
     ev = S.events_from_log(events, external)
     d = dt.date
-    assert ev.informed == {"A": d(2024, 3, 1), "B": d(2024, 2, 10), "C": d(2024, 2, 11)}
-    assert ev.via == {"A": "family", "B": "direct", "C": "direct"}
+    assert ev.informed == {"A": d(2024, 3, 1), "B": d(2024, 2, 10), "C": d(2024, 2, 11), "E": d(2023, 1, 1),
+                           "F": d(2024, 1, 5)}  # fmt: skip
+    assert ev.informed_undated == {"D"}
+    assert ev.via == {"A": "family", "B": "direct", "C": "direct"}  # E (migrated) and F (other, no role): unknown
     assert ev.counselled == {"A": d(2024, 4, 1)}
-    assert ev.unreachable == {"B": d(2024, 5, 10)}
+    assert ev.unreachable == {"B": d(2024, 5, 10), "H": d(2022, 1, 1)}
     assert ev.declined == {"C": d(2024, 2, 11)}
+    assert ev.carried_over == {"E"}
     assert ev.tested_external == {"B": d(2024, 6, 1)} and ev.screened_external == {"C": d(2024, 7, 1)}
+
+
+def test_informed_on_an_unknown_day_counts_but_is_not_timed():
+    """Of 3 at-risk relatives: X informed on day 10, Y told on an unknown day, Z not told.  Informed 2 of 3;
+    the time figure holds X (event) and Z (censored); Y is left out and counted (left_out_undated 1)."""
+    from tracker.engines import uptake as U
+
+    start, end = dt.date(2024, 1, 1), dt.date(2024, 12, 31)
+
+    def r(p, **kw):
+        return U.RelativeRecord("F", p, 1, True, "invented", start, **kw)
+
+    rep = U.uptake([r("X", first_informed_date=dt.date(2024, 1, 11)), r("Y", informed_undated=True), r("Z")],
+                   U.Period(None, end))  # fmt: skip
+    assert rep.clinic.counts["informed"].count == 2
+    t = rep.clinic.time_to_first_contact
+    assert (t.relatives, t.events, t.censored, t.undated) == (2, 1, 1, 1)
+    assert "1 left out: the day is not recorded" in t.text()
 
 
 def test_family_read_alone_equals_the_cohort_read(tmp_path, run):

@@ -53,7 +53,7 @@ DEF_INFORMED = (
     "Informed: the relative's first contact is on or before the last day of the period. First contact "
     "is the earliest of: the first recorded contact that reached the relative, and the first "
     "counselling, genetic test, screening visit or recorded decline (each implies the relative "
-    "had been told)."
+    "had been told). A relative recorded as told without a date counts as informed."
 )
 DEF_COUNSELLED = "Counselled: a recorded genetic counselling on or before the last day of the period."
 DEF_TESTED = (
@@ -83,7 +83,8 @@ DEF_TIME_TO_CONTACT = (
     "Time to first contact: days from the proband's result to the relative's first contact (as under "
     "Informed). A relative not yet contacted is censored at the last day of the period, never dropped. "
     "A first contact before the proband's result counts as 0 days; a relative born after the proband's "
-    "result is timed from their birth. Curve: Kaplan-Meier estimate "
+    "result is timed from their birth. A relative recorded as told on an unknown day is left out of "
+    "this figure and counted beside it. Curve: Kaplan-Meier estimate "
     "(statsmodels SurvfuncRight), drawn as the proportion contacted. Median: the first time at which "
     "the estimated proportion not yet contacted falls below one half (statsmodels' quantile rule); "
     "'not reached' when it never does within the follow-up."
@@ -171,6 +172,7 @@ class RelativeRecord:
     not_reachable: bool = False
     not_reachable_on: dt.date | None = None
     born_on: dt.date | None = None  # a relative born after the proband's result is timed from birth
+    informed_undated: bool = False  # the record says the relative was told, but not when
 
     def __post_init__(self) -> None:
         if self.informed_via not in (None, "family", "direct"):
@@ -239,6 +241,7 @@ class TimeFigure:
     follow_up_days: tuple[int, int] | None  # shortest and longest follow-up
     curve: tuple[tuple[float, float], ...] = ()
     censor_days: tuple[int, ...] = ()
+    undated: int = 0  # had the event on an unknown day: left out of the figure, counted here
 
     @property
     def median_months(self) -> float | None:
@@ -254,6 +257,8 @@ class TimeFigure:
         text = f"{med}; {self.relatives} relatives: {self.events} with the event, {self.censored} censored"
         if self.before_result:
             text += f"; {self.before_result} before the proband's result (counted as 0 days)"
+        if self.undated:
+            text += f"; {self.undated} left out: the day is not recorded"
         return text
 
     def as_dict(self) -> dict:
@@ -269,6 +274,7 @@ class TimeFigure:
             "median_among_events_note": "among relatives with the event only: ignores the censored, so "
             "it is shorter than the true median; shown for comparison",
             "event_before_result": self.before_result,
+            "left_out_undated": self.undated,
             "follow_up_days": None if self.follow_up_days is None else
             {"shortest": self.follow_up_days[0], "longest": self.follow_up_days[1]},
             "curve": [{"day": d, "proportion": round(p, 4)} for d, p in self.curve],
@@ -344,7 +350,7 @@ def _flag_by(flag: bool, day: dt.date | None, end: dt.date) -> bool:
 def status_of(r: RelativeRecord, end: dt.date) -> dict[str, bool]:
     """Which of :data:`STATUSES` the relative has reached by ``end``."""
     return {
-        "informed": _by(first_contact(r), end) or _flag_by(r.declined, r.declined_on, end),
+        "informed": _by(first_contact(r), end) or _flag_by(r.declined, r.declined_on, end) or r.informed_undated,
         "counselled": _by(r.counselled_date, end),
         "tested": _by(r.tested_date, end),
         "screened": _by(r.screened_date, end),
@@ -378,11 +384,14 @@ def kaplan_meier(times: Sequence[float], events: Sequence[bool]) -> tuple[tuple[
     return tuple(curve), median
 
 
-def time_figure(records: Iterable[RelativeRecord], event_of, end: dt.date) -> TimeFigure:
+def time_figure(records: Iterable[RelativeRecord], event_of, end: dt.date, undated_of=None) -> TimeFigure:
     """Time from the proband's result to ``event_of(record)`` (a date or None), censored at ``end``.
 
-    Records without a proband result date (or with one after ``end``) are not in the figure.
+    Records without a proband result date (or with one after ``end``) are not in the figure, nor
+    are those for which ``undated_of(record)`` says the event happened on an unknown day (counted
+    in ``undated``: neither an event time nor a censoring time can be given).
     """
+    undated = 0
     times: list[float] = []
     events: list[bool] = []
     event_days: list[float] = []
@@ -395,6 +404,10 @@ def time_figure(records: Iterable[RelativeRecord], event_of, end: dt.date) -> Ti
             continue
         if r.born_on is not None and start < r.born_on <= end:
             start = r.born_on
+        day = event_of(r)
+        if (day is None or day > end) and undated_of is not None and undated_of(r):
+            undated += 1
+            continue
         follow.append((end - start).days)
         day = event_of(r)
         if day is not None and day <= end:
@@ -415,6 +428,7 @@ def time_figure(records: Iterable[RelativeRecord], event_of, end: dt.date) -> Ti
         relatives=len(times), events=len(event_days), censored=len(censor), median_days=median,
         median_among_events_days=_median(event_days), before_result=before,
         follow_up_days=(min(follow), max(follow)) if follow else None, curve=curve, censor_days=tuple(sorted(censor)),
+        undated=undated,
     )  # fmt: skip
 
 
@@ -443,7 +457,7 @@ def group_figures(records: Sequence[RelativeRecord], end: dt.date,
     }
     return GroupFigures(
         at_risk=n, counts=counts, tested_elsewhere=elsewhere, routes=routes,
-        time_to_first_contact=time_figure(at_risk, first_contact, end),
+        time_to_first_contact=time_figure(at_risk, first_contact, end, lambda r: r.informed_undated),
         time_to_test=time_figure(at_risk, lambda r: r.tested_date, end),
     )  # fmt: skip
 

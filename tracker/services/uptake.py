@@ -35,7 +35,7 @@ if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays 
 
 SCREENING_MODALITIES = ("echo", "cmr", "clinic")  # an ECG alone is not a screening visit (as for the recall)
 REACHED = ("informed", "declined", "contact_later")  # contact outcomes that reached the relative
-UNREACHABLE = ("wrong_address", "moved_away")  # contact outcomes that failed for good
+UNREACHABLE = ("wrong_address", "moved_away", "lost_to_follow_up")  # as the newest outcome: not reachable
 
 SOURCE_STATUS = (
     "Read from the record without a contact log: first contact = the date of the person's contact "
@@ -46,13 +46,15 @@ SOURCE_STATUS = (
 )
 SOURCE_LOG = (
     "Read from the contact log: first contact = the first contact event whose outcome reached the "
-    "relative (informed, declined, contact later); through the family = that event's channel is "
-    "'via family' or it names the relative who passed the news on; declined = a contact event with "
-    "outcome declined, or contact status 'declined'; not reachable = the latest contact event is wrong "
-    "address or moved away with no later event that reached the relative, or contact status 'lost to "
-    "follow-up'; counselled = a contact event in clinic by a genetic counsellor or clinical geneticist; "
-    "tested = genetic results here or external genetic test results; screened = echo, CMR or clinic "
-    "studies here or external screening results."
+    "relative (informed, contact later, declined); an undated one (kept from the status recorded "
+    "before the log) counts as informed without a date. Through the family = that event's channel is "
+    "'via family' or it names the family member who passed the news on; directly = a letter, phone "
+    "call or clinic contact (or another channel with a clinic role); otherwise not recorded. Declined "
+    "= a contact event with outcome declined, or an open wish for no further contact (counted undated). "
+    "Not reachable = the newest contact event is wrong "
+    "address, moved away or lost to follow-up. Counselled = a contact event in clinic by a counsellor "
+    "that reached the relative. Tested = genetic results here or genetic tests at other centres; "
+    "screened = echo, CMR or clinic studies here or screenings at other centres."
 )
 
 
@@ -80,15 +82,18 @@ def contact_events(conn: Connection, scope: Scope | None) -> tuple[pd.DataFrame 
     """The contact log of the families in ``scope``: (contact events, external results), or
     (None, None) when the store has no contact log.
 
-    Events: columns ``person, event_date, channel, by_role, via_person, outcome`` (ISO dates).
+    Events: columns ``person, event_date, channel, by_role, via, outcome, source`` (ISO dates; ``via``
+    the code of the family member who passed the news on).
     External results: ``person, kind, result_date``.
     """
     if not has_contact_log(conn):
         return None, None
     from tracker.services.contacts import load_contact_events
+    from tracker.store import repository as repo
 
     events = load_contact_events(conn, scope)
-    external = _load_external_results(conn, scope)
+    loader = getattr(repo, "load_external_results", None)
+    external = loader(conn, scope) if loader is not None else _load_external_results(conn, scope)
     return events, external
 
 
@@ -242,43 +247,62 @@ class _Events:
     """Per person: what the contact log (or the contact status) says."""
 
     informed: dict[str, dt.date] = field(default_factory=dict)
+    informed_undated: set[str] = field(default_factory=set)
     via: dict[str, str] = field(default_factory=dict)
     counselled: dict[str, dt.date] = field(default_factory=dict)
     declined: dict[str, dt.date | None] = field(default_factory=dict)
     unreachable: dict[str, dt.date | None] = field(default_factory=dict)
     tested_external: dict[str, dt.date] = field(default_factory=dict)
     screened_external: dict[str, dt.date] = field(default_factory=dict)
+    carried_over: set[str] = field(default_factory=set)  # first contact from the status kept before the log
 
 
-COUNSELLING_ROLES = ("genetic_counsellor", "clinical_geneticist")
+COUNSELLING_ROLES = ("counsellor",)  # the contact log's by_role for a genetic counsellor
+DIRECT_CHANNELS = ("letter", "phone", "in_clinic")
+
+
+def _route(r: dict) -> str | None:
+    """'family', 'direct' or None (not recorded) for the event that first reached the relative."""
+    channel = r.get("channel")
+    if channel == "via_family" or _present(r.get("via")) or _present(r.get("via_person")):
+        return "family"
+    if channel in DIRECT_CHANNELS or (channel == "other" and _present(r.get("by_role"))):
+        return "direct"
+    return None
 
 
 def events_from_log(events, external) -> _Events:
-    """The contact log read as ``SOURCE_LOG`` says."""
+    """The contact log read as ``SOURCE_LOG`` says (events oldest first per person; undated events,
+    kept from the status recorded before the log, first)."""
     ev = _Events()
     if events is not None and len(events):
-        rows = sorted(
-            (r for r in events.to_dict("records") if _day(r.get("event_date")) is not None),
-            key=lambda r: (_day(r["event_date"]), str(r.get("outcome"))),
-        )
+        rows = events.to_dict("records")
+        order = sorted(range(len(rows)), key=lambda i: (rows[i]["person"], _day(rows[i].get("event_date")) is not None,
+                                                        _day(rows[i].get("event_date")) or dt.date.min, i))  # fmt: skip
         last: dict[str, dict] = {}
-        last_reached: dict[str, dt.date] = {}
-        for r in rows:
-            p, day, outcome = r["person"], _day(r["event_date"]), r.get("outcome")
+        for i in order:
+            r = rows[i]
+            p, day, outcome = r["person"], _day(r.get("event_date")), r.get("outcome")
+            if outcome is None or not isinstance(outcome, str):
+                continue  # a date alone, kept from the status recorded before the log
             last[p] = r
             if outcome in REACHED:
-                last_reached[p] = day
-                if p not in ev.informed:
+                if day is None:
+                    ev.informed_undated.add(p)
+                elif p not in ev.informed:
                     ev.informed[p] = day
-                    family = r.get("channel") == "via_family" or _present(r.get("via_person"))
-                    ev.via[p] = "family" if family else "direct"
+                    ev.via[p] = _route(r)
+                    if r.get("source") in ("migrated", "imported"):
+                        ev.carried_over.add(p)
             if outcome == "declined" and p not in ev.declined:
                 ev.declined[p] = day
-            if r.get("channel") == "in_clinic" and r.get("by_role") in COUNSELLING_ROLES and outcome in REACHED:
+            if (r.get("channel") == "in_clinic" and r.get("by_role") in COUNSELLING_ROLES and outcome in REACHED
+                    and day is not None):  # fmt: skip
                 ev.counselled.setdefault(p, day)
         for p, r in last.items():
             if r.get("outcome") in UNREACHABLE:
-                ev.unreachable[p] = _day(r["event_date"])
+                ev.unreachable[p] = _day(r.get("event_date"))
+        ev.via = {p: v for p, v in ev.via.items() if v is not None}
     if external is not None and len(external):
         for p, kind, d in zip(external["person"], external["kind"], external["result_date"]):
             day = _day(d)
@@ -333,25 +357,13 @@ def family_records(st: fs.FamilyState, people, studies, ev: _Events) -> FamilyRe
         out.records.append(RelativeRecord(
             family=st.family, person=p, degree=deg, at_risk=risk, at_risk_why=why, proband_result_date=start,
             first_informed_date=ev.informed.get(p), informed_via=ev.via.get(p),
+            informed_undated=p in ev.informed_undated and p not in ev.informed,
             counselled_date=ev.counselled.get(p), tested_date=test_day,
             tested_external=test_day is not None and here != test_day,
             screened_date=_earliest([screened.get(p), ev.screened_external.get(p)]),
             declined=declined, declined_on=ev.declined.get(p),
             not_reachable=unreachable, not_reachable_on=ev.unreachable.get(p), born_on=_born(st.pedigree, p),
         ))  # fmt: skip
-    return out
-
-
-def _merge(log: _Events, status: _Events) -> _Events:
-    """The contact log first; the contact status fills in what the log does not say."""
-    out = _Events(**{k: dict(v) for k, v in vars(log).items()})
-    for p, d in status.informed.items():
-        if p not in out.informed or d < out.informed[p]:
-            out.informed[p] = d
-    for p, d in status.declined.items():
-        out.declined.setdefault(p, d)
-    for p, d in status.unreachable.items():  # the person's current status: lost to follow-up
-        out.unreachable.setdefault(p, d)
     return out
 
 
@@ -382,8 +394,9 @@ def uptake_data(conn: Connection, *, family: str | None, start: dt.date | None, 
     log_events, external = contact_events(conn, scope)
     logged = log_events is not None
     people = frames.people
-    status_ev = _status_events(people)
-    ev = _merge(events_from_log(log_events, external), status_ev) if logged else status_ev
+    # The log is the record where there is one (the status words are derived from it); without
+    # it, the contact status stands in.
+    ev = events_from_log(log_events, external) if logged else _status_events(people)
     states = fs.build_family_states(frames.people, frames.variants, frames.results, frames.assessments,
                                     frames.studies, as_of=end)  # fmt: skip
     wanted = [family] if family is not None else sorted(states)
@@ -396,6 +409,9 @@ def uptake_data(conn: Connection, *, family: str | None, start: dt.date | None, 
         records.extend(fr.records)
         probands[fam], starts[fam] = fr.proband, fr.result_date
         notes.extend(f"{fam}: {n}" for n in fr.notes)
+    if logged and ev.carried_over:
+        notes.append(f"{len(ev.carried_over)} members' first contact comes from the status recorded before the "
+                     "contact log: its route and any counselling then are not recorded")
     recorded = set(U.STATUSES) | {"route", "external"}
     if not logged:
         recorded -= {"counselled", "route", "external"}
