@@ -407,11 +407,12 @@ def uptake_data(conn: Connection, *, family: str | None, start: dt.date | None, 
     for fam in wanted:
         fr = family_records(states[fam], people[people["family"] == fam], frames.studies, ev)
         records.extend(fr.records)
+        carried = sum(r.at_risk and r.person in ev.carried_over for r in fr.records)
+        if logged and carried:
+            fr.notes.append(f"{carried} at-risk relatives' first contact comes from the status recorded before the "
+                            "contact log: how they were told, and any counselling then, are not recorded")
         probands[fam], starts[fam] = fr.proband, fr.result_date
         notes.extend(f"{fam}: {n}" for n in fr.notes)
-    if logged and ev.carried_over:
-        notes.append(f"{len(ev.carried_over)} members' first contact comes from the status recorded before the "
-                     "contact log: its route and any counselling then are not recorded")
     recorded = set(U.STATUSES) | {"route", "external"}
     if not logged:
         recorded -= {"counselled", "route", "external"}
