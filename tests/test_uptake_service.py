@@ -136,12 +136,12 @@ def test_store_family_counted_by_hand(store, run):
     d = json.loads(r.out)
     c = d["clinic"]
     assert c["at_risk"] == 5 and d["families_counted"] == 1
-    logged = d["contact_log"]  # with the contact log, counselling is recorded (none here), else "not recorded"
+    # nothing entered in a contact log (if the store has one): counselling is "not recorded", never 0
+    assert d["contact_log_in_use"] is False
     assert {k: v["count"] for k, v in c["counts"].items()} == {
-        "informed": 3, "counselled": 0 if logged else None, "tested": 2, "screened": 1, "declined": 1,
-        "not_reachable": 1}  # fmt: skip
-    assert c["counts"]["counselled"]["recorded"] is logged
-    assert c["counts"]["counselled"]["text"] == ("0 of 5 (0%)" if logged else "not recorded (of 5)")
+        "informed": 3, "counselled": None, "tested": 2, "screened": 1, "declined": 1, "not_reachable": 1}
+    assert c["counts"]["counselled"]["recorded"] is False
+    assert c["counts"]["counselled"]["text"] == "not recorded (of 5)"
     assert c["informed_route"]["not_recorded"]["count"] == 3  # told before any log: route unknown
     assert c["time_to_first_contact"]["median_days"] == 107.0
     assert (c["time_to_first_contact"]["events"], c["time_to_first_contact"]["censored"]) == (3, 2)
@@ -156,7 +156,7 @@ def test_store_family_counted_by_hand(store, run):
     rel = {x["person"]: x for x in d["relatives"]}
     assert "non-carrier" in rel["U1-02"]["at_risk_why"]
     assert rel["U1-01"]["at_risk"] is False and rel["U1-04"]["at_risk_why"] == "not a blood relative of the proband"
-    assert d["not_recorded"] == ([] if logged else ["counselled", "external", "route"])
+    assert d["not_recorded"] == ["counselled", "external", "route"]
 
 
 def test_period_leaves_out_a_family_started_earlier(store, run):
@@ -171,7 +171,7 @@ def test_table_csv_and_bad_options(store, run, tmp_path):
     out = tmp_path / "u.csv"
     r = run("uptake", "--family", "U1", "--to", "2020-12-31", "--csv", out, db=store)
     assert r.code == 0, r
-    assert "3/5 60%" in r.out
+    assert "3/5 60%" in r.out and "not recorded" in r.out
     lines = out.read_text(encoding="utf-8").splitlines()
     assert lines[0].startswith("scope,family,degree_group,figure,count,of,percent")
     assert "clinic,,all,informed,3,5,60.0,yes,,,," in lines
@@ -304,7 +304,7 @@ def test_contact_log_figures(store, run):
         assert r.code == 0, r
     d = json.loads(run("uptake", "--to", "2020-12-31", "--json", db=store).out)
     c = d["clinic"]
-    assert d["contact_log"] is True
+    assert d["contact_log"] is True and d["contact_log_in_use"] is True and d["not_recorded"] == []
     assert c["counts"]["informed"]["count"] == 5 and c["counts"]["counselled"]["count"] == 1
     assert {k: v["count"] for k, v in c["informed_route"].items()} == {"via_family": 1, "direct": 1, "not_recorded": 3}
     assert c["counts"]["not_reachable"]["count"] == 1

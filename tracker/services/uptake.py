@@ -54,7 +54,9 @@ SOURCE_LOG = (
     "Not reachable = the newest contact event is wrong "
     "address, moved away or lost to follow-up. Counselled = a contact event in clinic by a counsellor "
     "that reached the relative. Tested = genetic results here or genetic tests at other centres; "
-    "screened = echo, CMR or clinic studies here or screenings at other centres."
+    "screened = echo, CMR or clinic studies here or screenings at other centres. Until a contact or a "
+    "result from another centre is entered for the families read, counselling, the route and tests "
+    "elsewhere are shown as not recorded."
 )
 
 
@@ -132,6 +134,15 @@ def _day(v) -> dt.date | None:
         pass
     text = str(v).strip()
     return dt.date.fromisoformat(text[:10]) if text else None
+
+
+def _entered(events) -> bool:
+    """True when the log holds a contact entered by a user (not only events kept from the older status)."""
+    if events is None or not len(events):
+        return False
+    if "source" not in events.columns:
+        return True
+    return bool((events["source"] == "entered").any())
 
 
 def _present(v) -> bool:
@@ -413,14 +424,18 @@ def uptake_data(conn: Connection, *, family: str | None, start: dt.date | None, 
                             "contact log: how they were told, and any counselling then, are not recorded")
         probands[fam], starts[fam] = fr.proband, fr.result_date
         notes.extend(f"{fam}: {n}" for n in fr.notes)
+    # Counselling, the route and tests elsewhere are known only once the log is in use for these
+    # families (a contact entered, or a result from another centre); before that, "not recorded".
+    in_use = logged and (_entered(log_events) or (external is not None and len(external) > 0))
     recorded = set(U.STATUSES) | {"route", "external"}
-    if not logged:
+    if not in_use:
         recorded -= {"counselled", "route", "external"}
     report = U.uptake(records, U.Period(start, end), probands=probands, result_dates=starts,
                       recorded=recorded, notes=notes)  # fmt: skip
     data = U.report_dict(report)
     data["source"] = SOURCE_LOG if logged else SOURCE_STATUS
     data["contact_log"] = logged
+    data["contact_log_in_use"] = in_use
     data["family"] = family
     data["relatives"] = [
         {"family": r.family, "person": r.person, "degree": r.degree, "degree_group": U.degree_group(r.degree),
