@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 
 from conftest import PG_ENV, PG_URL
-from tracker import bench
+from benchmarks import cohort as bench
 
 
 def test_growth_exponent_of_an_exact_power_law_is_its_power():
@@ -85,9 +85,13 @@ def _check_report(report: dict) -> None:
     low, high = w["growth_exponent_ci95"]
     assert low <= w["growth_exponent"] <= high
     assert figures["reclassification"]["tasks_agree"] is True
+    sp = figures["proposals"]
+    assert sp["families"] == 30 and sp["proposals"] > sp["listed_rows"] > 0
+    assert sp["worklist_over_read"] == pytest.approx(sp["worklist_90d_s"] / sp["read_listed_s"])
     p = figures["per_person"]
     assert p["sizes"] == [4, 8]
-    for name in ("person", "recall", "cascade", "reclassify_dry_run", "report_trajectory"):
+    for name in ("person", "recall", "cascade", "reclassify_dry_run", "report_trajectory", "trends_family",
+                 "report_pedigree", "report_letter"):
         assert p[f"{name}_4_s"] > 0 and p[f"{name}_8_s"] > 0
         assert p[f"{name}_ratio_8_over_4"] == pytest.approx(p[f"{name}_8_s"] / p[f"{name}_4_s"])
     assert {t["figure"] for t in report["targets"]} == {name for _s, name, *_ in bench.TARGETS}

@@ -80,11 +80,12 @@ def test_the_import_and_the_studies_read_run_with_the_collector_paused(monkeypat
         import datetime as dt
 
         from tracker.cli import recall
+        from tracker.services import worklist
 
-        monkeypatch.setattr(recall, "gc_paused", recorder("worklist"))
+        monkeypatch.setattr(worklist, "gc_paused", recorder("worklist"))
         frames = recall._load(conn)
         conf, rule_set, policy = recall._recall_rules(None, None)
         day = dt.date(2026, 12, 1)
-        recall.due_proposals(frames, conf, rule_set, policy, day, day + dt.timedelta(days=364), day)
+        worklist.due_proposals(frames, conf, rule_set, policy, day, day + dt.timedelta(days=364), day)
     engine.dispose()
     assert "worklist" in entered

@@ -15,10 +15,10 @@ Adds two tables:
   token itself is only in the browser's cookie), the account, when it began,
   when it was last used and when (and why) it ended.
 
-Downgrade: sessions are ended by dropping their table (a lower revision cannot
-use them, and signing in again makes a new one).  Accounts are kept when there
-are any: the ``account`` table stays as it is at the lower revision (nothing
-reads it there) and the next upgrade uses it again, so no account is lost.
+Downgrade: when there are no accounts, both tables are dropped.  When there are
+accounts, both tables are kept as they are (nothing reads them at the lower
+revision) and the next upgrade uses them again, so no account and no record of
+a sign-in is lost.
 """
 
 from __future__ import annotations
@@ -37,23 +37,24 @@ _ROLES = ("nurse", "cardiologist", "counsellor", "admin")
 
 def upgrade() -> None:
     bind = op.get_bind()
-    if "account" not in sa.inspect(bind).get_table_names():  # kept by an earlier downgrade otherwise
-        op.create_table(
-            "account",
-            sa.Column("id", sa.Integer, primary_key=True),
-            sa.Column("name", sa.String(100), nullable=False),
-            sa.Column("role", sa.String(20), nullable=False),
-            sa.Column("password_hash", sa.String(200), nullable=False),
-            sa.Column("disabled", sa.Boolean(create_constraint=False), nullable=False),
-            sa.Column("must_change_password", sa.Boolean(create_constraint=False), nullable=False),
-            sa.Column("created_at", sa.DateTime, nullable=False),
-            sa.Column("created_by", sa.String(100), nullable=False),
-            sa.Column("failed_count", sa.Integer, nullable=False),
-            sa.Column("last_failed_at", sa.DateTime, nullable=True),
-            sa.PrimaryKeyConstraint("id", name="pk_account"),
-            sa.UniqueConstraint("name", name="uq_account_name"),
-            sa.CheckConstraint("role IN (" + ",".join(f"'{r}'" for r in _ROLES) + ")", name="ck_account_role"),
-        )
+    if "account" in sa.inspect(bind).get_table_names():  # kept by an earlier downgrade, with web_session
+        return
+    op.create_table(
+        "account",
+        sa.Column("id", sa.Integer, primary_key=True),
+        sa.Column("name", sa.String(100), nullable=False),
+        sa.Column("role", sa.String(20), nullable=False),
+        sa.Column("password_hash", sa.String(200), nullable=False),
+        sa.Column("disabled", sa.Boolean(create_constraint=False), nullable=False),
+        sa.Column("must_change_password", sa.Boolean(create_constraint=False), nullable=False),
+        sa.Column("created_at", sa.DateTime, nullable=False),
+        sa.Column("created_by", sa.String(100), nullable=False),
+        sa.Column("failed_count", sa.Integer, nullable=False),
+        sa.Column("last_failed_at", sa.DateTime, nullable=True),
+        sa.PrimaryKeyConstraint("id", name="pk_account"),
+        sa.UniqueConstraint("name", name="uq_account_name"),
+        sa.CheckConstraint("role IN (" + ",".join(f"'{r}'" for r in _ROLES) + ")", name="ck_account_role"),
+    )
     op.create_table(
         "web_session",
         sa.Column("id", sa.Integer, primary_key=True),
@@ -71,9 +72,9 @@ def upgrade() -> None:
 
 
 def downgrade() -> None:
-    """Drop the sessions; drop the accounts table only when it is empty (else keep it, see above)."""
+    """Drop both tables when there are no accounts; else keep them for the next upgrade (see above)."""
+    if op.get_bind().execute(sa.text("SELECT count(*) FROM account")).scalar():
+        return
     op.drop_index("ix_web_session_account_id", table_name="web_session")
     op.drop_table("web_session")
-    bind = op.get_bind()
-    if not bind.execute(sa.text("SELECT count(*) FROM account")).scalar():
-        op.drop_table("account")
+    op.drop_table("account")

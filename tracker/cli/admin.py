@@ -98,7 +98,7 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
     location = locate(db)
     reminders = []
     try:
-        findings, reminders = _check_findings(db, load_settings(settings).cascade.variant_rereview_months)
+        findings, reminders = _check_findings(db, load_settings(settings).cascade.variant_rereview_months, settings)
     except DatabaseUnreadable as exc:  # not a SQLite file at all: that is the finding
         findings = [dc.Finding("integrity", "database file", str(exc))]
     except DBAPIError as exc:
@@ -124,11 +124,11 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
         raise typer.Exit(1)
 
 
-def _check_findings(db, rereview_months: int) -> tuple[list, list]:
+def _check_findings(db, rereview_months: int, settings=None) -> tuple[list, list]:
     from tracker.services.checks import check_findings
 
     with reading(engine_for(db)) as conn:
-        return check_findings(conn, dt.date.today(), rereview_months)
+        return check_findings(conn, dt.date.today(), rereview_months, settings)
 
 
 def backup_(

@@ -129,6 +129,20 @@ def _table(title: str | None, columns: list[str], rows: list[list[Any]]) -> None
     out.print(table)
 
 
+def print_import_report(summaries, dry_run: bool, json_out: bool, lines) -> None:
+    """What an import checked and stored (every import path): JSON, else ``lines(summary, verb)`` per file
+    and the dry-run note."""
+    if json_out:
+        print_json({"dry_run": dry_run, "files": [s.as_dict() for s in summaries]})
+        return
+    verb = "would add" if dry_run else "added"
+    for s in summaries:
+        for line in lines(s, verb):
+            typer.echo(line)
+    if dry_run:
+        typer.echo("dry run: nothing was written")
+
+
 def parse_day(text: str | None, option: str, default: dt.date | None = None) -> dt.date:
     """The date an option gives (YYYY-MM-DD), ``default`` when absent, else a one-line error naming the option."""
     from tracker.domain.dates import parse_date

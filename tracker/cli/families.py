@@ -18,6 +18,7 @@ from tracker.cli.common import (
     engine_for,
     err,
     open_store,
+    print_import_report,
     print_json,
     print_table,
     table_limit,
@@ -123,17 +124,9 @@ def _count_rows(path: Path) -> int:
 
 
 def _report(summaries, dry_run: bool, json_out: bool) -> None:
-    if json_out:
-        print_json({"dry_run": dry_run, "files": [s.as_dict() for s in summaries]})
-        return
-    verb = "would add" if dry_run else "added"
-    for s in summaries:
-        typer.echo(
-            f"{s.file} ({s.kind}): {s.rows_read} rows checked, {verb} {s.rows_added}, "
-            f"{s.rows_already_stored} already stored"
-        )
-    if dry_run:
-        typer.echo("dry run: nothing was written")
+    print_import_report(summaries, dry_run, json_out, lambda s, verb: [
+        f"{s.file} ({s.kind}): {s.rows_read} rows checked, {verb} {s.rows_added}, {s.rows_already_stored} already stored"
+    ])
 
 
 # The same modes as tracker.io.pseudonymise.DATE_MODES (tests/test_startup.py checks), written out so that

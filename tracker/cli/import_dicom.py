@@ -4,9 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import typer
-
-from tracker.cli.common import open_store, print_json
+from tracker.cli.common import open_store, print_import_report
 from tracker.io import dicom_sr
 from tracker.store.database import writing
 
@@ -27,19 +25,14 @@ def import_dicom_sr(paths: list[Path], *, person: str | None, dry_run: bool, use
                 raise _DryRun
     except _DryRun:
         pass
-    if json_out:
-        print_json({"dry_run": dry_run, "files": [s.as_dict() for s in summaries]})
-        return
-    verb = "would add" if dry_run else "added"
-    for s in summaries:
-        typer.echo(
-            f"{s.summary.file} ({s.form} echo report, person {s.person}, study {s.study_date}): "
-            f"took {len(s.taken)} of {len(s.taken) + len(s.left)} measurements, {verb} {s.summary.rows_added}, "
-            f"{s.summary.rows_already_stored} already stored; left {len(s.left)}"
-        )
-        for label, measure in s.taken:
-            typer.echo(f"  took {label} as {measure}")
-        for label, why in s.left:
-            typer.echo(f"  left {label}: {why}")
-    if dry_run:
-        typer.echo("dry run: nothing was written")
+    print_import_report(summaries, dry_run, json_out, _lines)
+
+
+def _lines(s: dicom_sr.SrSummary, verb: str) -> list[str]:
+    return [
+        f"{s.summary.file} ({s.form} echo report, person {s.person}, study {s.study_date}): "
+        f"took {len(s.taken)} of {len(s.taken) + len(s.left)} measurements, {verb} {s.summary.rows_added}, "
+        f"{s.summary.rows_already_stored} already stored; left {len(s.left)}",
+        *(f"  took {label} as {measure}" for label, measure in s.taken),
+        *(f"  left {label}: {why}" for label, why in s.left),
+    ]

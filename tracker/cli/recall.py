@@ -296,21 +296,29 @@ def tasks_done(
 
 
 def recall(
-    person: Annotated[str, typer.Argument(help="Person code.")],
+    person: Annotated[str | None, typer.Argument(help="Person code.")] = None,
     as_of: AsOfOption = None,
     guideline: GuidelineOption = None,
     settings: SettingsOption = None,
     db: DbOption = None,
     json_out: JsonOption = False,
+    refresh: Annotated[bool, typer.Option("--refresh", help="Recompute and store every person's proposal "
+                                          "(after a change of rule set or settings); no PERSON.")] = False,
 ) -> None:
     """When one person should next be seen: due date, interval, every rule and modifier that fired with its source.
 
     Deceased people are never scheduled; people who declined are not recalled.
+    With --refresh, every stored proposal is recomputed for today (the worklist reads them).
 
     Example: tracker recall HV01-IV-1 --settings demo_family/clinic.toml
+    Example: tracker recall --refresh --settings demo_family/clinic.toml
     """
     from tracker.services import risk as RK
 
+    if refresh:
+        return _refresh_all(person, as_of, guideline, settings, db, json_out)
+    if person is None:
+        raise UserError("give a PERSON code (or --refresh to recompute every stored proposal)")
     on = _day(as_of, "--as-of", dt.date.today())
     conf, rule_set, policy = _recall_rules(settings, guideline)
     from tracker.services import recall as SV
@@ -356,6 +364,33 @@ def recall(
         typer.echo(f"caution: {c}")
 
 
+def _refresh_all(person, as_of, guideline, settings, db, json_out) -> None:
+    """`recall --refresh`: every stored proposal recomputed for today, with a progress bar."""
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+    from tracker.cli.families import err
+    from tracker.services import proposals as SP
+
+    if person is not None:
+        raise UserError("--refresh recomputes everyone: give no PERSON")
+    if as_of is not None:
+        raise UserError("--as-of: not with --refresh (stored proposals are today's)")
+    conf, rule_set, policy = _recall_rules(settings, guideline)
+    engine = open_store(db)
+    with writing(engine) as conn:
+        families = SP.all_families(conn)
+        with Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TimeRemainingColumn(),
+                      console=err, transient=True,
+                      disable=len(families) <= SP.CHUNK_FAMILIES or not err.is_terminal) as bar:  # fmt: skip
+            task = bar.add_task("recomputing recall proposals", total=len(families))
+            result = SP.refresh_all(conn, dt.date.today(), conf, rule_set, policy,
+                                    progress=lambda n: bar.advance(task, n), families=None)  # fmt: skip
+    if json_out:
+        print_json(result)
+    else:
+        typer.echo(f"{result['proposals']} recall proposals of {result['families']} families recomputed "
+                   f"for {result['as_of']} under {rule_set.title}")  # fmt: skip
+
+
 # --------------------------------------------------------------------------- worklist
 
 
@@ -395,10 +430,7 @@ def worklist(
     on = _day(as_of, "--as-of", dt.date.today())
     conf, rule_set, policy = _recall_rules(settings, guideline)
     slots = slots_per_week if slots_per_week is not None else conf.slots_per_week
-    engine = open_store(db)
-    with reading(engine) as conn:
-        frames = _load(conn)
-    lists = worklist_lists(frames, conf, rule_set, policy, start, end, on, slots)
+    lists = SW.nurse_worklist(open_store(db), start, end, on, conf, rule_set, policy, slots)
     due_rows, affected_rows, gap_rows = lists["due"], lists["affected"], lists["contact_gaps"]
     booking, trend, declined, lost = lists["booking"], lists["trend"], lists["not_recalled"], lists["lost_to_follow_up"]
     weeks = math.ceil(((end - start).days + 1) / 7)
@@ -411,8 +443,7 @@ def worklist(
         write_output(ics_out, SW.calendar_bytes(due_rows + affected_rows), where="--ics")
         files["ics"] = str(ics_out)
 
-    # variant re-review reminders (data only; see _variant_rereview)
-    rereview = _variant_rereview(frames, on, conf.cascade.variant_rereview_months)
+    rereview = lists["variant_rereview"]  # variant re-review reminders (data only; see _variant_rereview)
     result = {
         "window": {"from": start.isoformat(), "to": end.isoformat(), "weeks": weeks},
         "as_of": on.isoformat(),

@@ -50,13 +50,15 @@ def _console() -> Console:
 
 
 def print_table(title: str | None, columns: list[str], rows: list[list[Any]], *, limit: int | None = None,
-                data: str = "--json") -> None:
-    """A table of ``rows``; with ``limit``, the first ``limit`` rows and a line counting the rest."""
-    hidden = len(rows) - limit if limit is not None and len(rows) > limit else 0
+                data: str = "--json", total: int | None = None) -> None:
+    """A table of ``rows``; with ``limit``, the first ``limit`` rows and a line counting the rest
+    (of ``total`` rows when only the first ones are given)."""
+    shown = rows if limit is None else rows[:limit]
+    hidden = (len(rows) if total is None else total) - len(shown)
     table = Table(title=title, title_justify="left")
     for c in columns:
         table.add_column(c, overflow="fold")
-    for r in rows[: len(rows) - hidden]:
+    for r in shown:
         table.add_row(*["" if v is None else str(v) for v in r])
     _console().print(table)
     if hidden:
@@ -311,6 +313,9 @@ def trends_(
     from tracker.services import review as service
 
     s = load_settings(settings)
+    if family is None and (json_out or csv_path is not None):
+        _cohort_trends_streamed(measure, csv_path, db, s, horizon, json_out, table_limit(all_, settings))
+        return
     with reading(open_store(db)) as conn:
         result = service.trends(conn, family, measure, s, horizon)
     rows = result["rows"]
@@ -321,9 +326,46 @@ def trends_(
     if json_out:
         print_json(result)
         return
-    typer.echo(f"Guideline: {result['guideline']['id']} - {result['guideline']['name']}")
+    _print_trend_table(s, rows, len(rows), horizon, table_limit(all_, settings), rows)
+
+
+def _cohort_trends_streamed(measure, csv_path, db, s, horizon, json_out: bool, limit: int | None) -> None:
+    """The whole cohort's trends to --json (stdout) and/or --csv, a batch of families at a time
+    (:mod:`tracker.services.trend_stream`); the same rows, values and order as one pass."""
+    import sys
+
+    from tracker.engines import review
+    from tracker.services import review as service
+    from tracker.services import trend_stream as TS
+
+    keys = service.TREND_JSON_KEYS
+    with reading(open_store(db)) as conn, TS.cohort_trends(conn, measure, s, horizon) as result:
+        if csv_path is not None:
+            with output_path(csv_path, where="--csv") as tmp:
+                with open(tmp, "w", encoding="utf-8", newline="") as fh:
+                    TS.write_csv(result, keys, review.CAUTION, fh)
+            typer.echo(f"wrote {result.count} rows to {csv_path}", err=True)
+        if json_out:
+            TS.write_json(result, {"not_pooled": review.NOT_POOLED, "caution": review.CAUTION}, keys, sys.stdout)
+            return
+        head = []
+        for r in result.rows(keys):
+            if limit is not None and len(head) >= limit:
+                break
+            head.append(r)
+        _print_trend_table(s, head, result.count, horizon, limit,
+                           [{"measure": m, "lsc_status": st, "last_change": 0.0} for st, m in result.lsc_used])  # fmt: skip
+
+
+def _print_trend_table(s, rows: list[dict], total: int, horizon: float, limit: int | None,
+                       lsc_rows: list[dict]) -> None:  # fmt: skip
+    from tracker.engines import review
+    from tracker.services.review import guideline
+
+    g = guideline(s)
+    typer.echo(f"Guideline: {g['id']} - {g['name']}")
     print_table(
-        f"Trends: {len(rows)} series (person, measure) with 2 or more studies or a review flag, most concerning first",
+        f"Trends: {total} series (person, measure) with 2 or more studies or a review flag, most concerning first",
         ["person", "measure", "n", "span (y)", "slope/y (95% CI)", "z slope/y", "last change vs LSC",
          "projection", "progressing", f"crossing <= {horizon:g} y", "converted", "flags"],
         [[r["person"], r["measure"], r["n"], _num(r["span_years"]),
@@ -332,10 +374,10 @@ def trends_(
           "yes" if r["progressing"] else "", "yes" if r["crossing_within_horizon"] else "",
           (r["conversion_date"] or "yes") if r["converted"] else "",
           "; ".join(x for x in (r["reasons"], r["left_out"]) if x)] for r in rows],
-        limit=table_limit(all_, settings), data="--json or --csv FILE",
+        limit=limit, data="--json or --csv FILE", total=total,
     )  # fmt: skip
     typer.echo(review.NOT_POOLED)
-    for line in lsc_default_notes(rows):
+    for line in lsc_default_notes(lsc_rows):
         typer.echo(line)
     typer.echo(review.CAUTION)
 

@@ -15,6 +15,7 @@ from dataclasses import asdict, dataclass
 import pandas as pd
 
 from tracker.domain.dates import PartialDate, age_bounds, parse_partial_date
+from tracker.domain.numbers import finite_number
 from tracker.domain.pedigree import Pedigree, PedigreeError
 
 
@@ -96,13 +97,9 @@ def _pd(v) -> PartialDate | None:
 
 
 def _years(v) -> int | None:
-    if v is None or isinstance(v, bool):
-        return None
-    try:
-        x = float(v)
-    except (TypeError, ValueError):
-        return None
-    return None if math.isnan(x) else int(x)
+    """Whole years of a recorded age (None when not a finite number)."""
+    x = finite_number(v)
+    return None if x is None else int(x)
 
 
 def record_problems(people: pd.DataFrame, today: dt.date) -> list[tuple[object, str, str]]:

@@ -347,10 +347,21 @@ def empirical_bayes_slopes(
     """
     if se_source not in ("pooled", "own"):
         raise ValueError("se_source must be 'pooled' or 'own'")
-    by = list(by)
     d = df if measure is None else df[df["measure"] == measure]
-    t = trends.per_person_ols(d, y=y)
-    t = t[(t["n"] >= 2) & np.isfinite(t["slope"])].reset_index(drop=True)
+    return empirical_bayes_from_ols(trends.per_person_ols(d, y=y), d, by, se_source)
+
+
+def empirical_bayes_from_ols(
+    ols: pd.DataFrame, d: pd.DataFrame | None = None, by: Sequence[str] = (), se_source: str = "pooled"
+) -> pd.DataFrame:
+    """Stage 2 of :func:`empirical_bayes_slopes` from the stage-1 table (``trends.per_person_ols``
+    output: person, measure, n, slope, sxx, resid_sd), so that a cohort's stage-1 rows computed a
+    batch of families at a time give the same result as one pass (given in the same row order).
+    ``d`` (the measurement frame) is needed only for ``by`` columns."""
+    if se_source not in ("pooled", "own"):
+        raise ValueError("se_source must be 'pooled' or 'own'")
+    by = list(by)
+    t = ols[(ols["n"] >= 2) & np.isfinite(ols["slope"])].reset_index(drop=True)
     if by:
         missing = [c for c in by if c not in d.columns]
         if missing:

@@ -582,6 +582,10 @@ TREND_COLUMNS = [
 FLAG_COLUMNS = ["person", "progressing", "projected_crossing_age", "reasons", "progression_tests", "review_flags"]
 
 
+# The per-series OLS columns the empirical-Bayes stage 2 reads (see trend_table's ols_out).
+EB_STAGE1_COLUMNS = ["person", "measure", "n", "slope", "sxx", "resid_sd"]
+
+
 def _window(a: pd.DataFrame) -> pd.DataFrame:
     """Rows trended in the measure's unit: a series that reaches 18 y uses its studies
     from 18 y only (values under 18 y change with growth; they are trended as z where a
@@ -658,8 +662,16 @@ def trend_table(
     genotype_positive: Collection[str],
     clinic_repeatability: Mapping[str, float] | None = None,
     horizon_years: float = trends.DEFAULT_HORIZON_YEARS,
+    eb_slopes: Mapping[tuple[str, str], float] | None = None,
+    ols_out: list | None = None,
 ) -> pd.DataFrame:
     """Per (person, measure) trend of :func:`build_measurements` output (assessed or not).
+
+    ``eb_slopes`` / ``ols_out`` serve a cohort computed a batch of families at a time: the
+    empirical-Bayes slope pools every person of the cohort, so each batch appends its stage-1
+    table (the per-series OLS, ``EB_STAGE1_COLUMNS``) to ``ols_out``, and the caller puts the
+    cohort's slopes (:func:`tracker.engines.cohort_model.empirical_bayes_from_ols`) in place of the
+    batch's.  With ``eb_slopes`` given (person, measure) -> slope, the column is taken from it.
 
     Columns ``TREND_COLUMNS``.  Method (see docs/measurements.md):
 
@@ -698,6 +710,8 @@ def trend_table(
         a = all_rows.iloc[:0]
     w = _window(a)
     ols = trends.per_person_ols(w)
+    if ols_out is not None:
+        ols_out.append(ols[EB_STAGE1_COLUMNS])
     zin = a[a["measure"].isin(list(paediatric.MODEL_MEASURE))]
     zols = trends.per_person_z_ols(zin) if len(zin) else trends.per_person_ols(zin.assign(z=[]), y="z")
     lsc = repeatability.lsc_table(repeatability.load_repeatability(clinic_repeatability))
@@ -713,10 +727,13 @@ def trend_table(
     t["window"] = np.where(n_all > t["n"].to_numpy(), "studies from 18 y", "all studies (under 18 y)")
     t.loc[(t["first_age"] >= ADULT_FROM_YEARS) & (n_all == t["n"].to_numpy()), "window"] = "all studies"
     eb = pd.Series(dtype=float)
-    if (ols["n"] >= 2).any():
+    if eb_slopes is not None:
+        t["slope_eb_per_year"] = [eb_slopes.get(k, np.nan) for k in zip(t["person"], t["measure"])]
+    elif (ols["n"] >= 2).any():
         with np.errstate(divide="ignore", invalid="ignore"):  # a measure with one person: NaN, by design
             eb = empirical_bayes_slopes(w).set_index(key)["slope_eb"]
-    t["slope_eb_per_year"] = eb.reindex(pd.MultiIndex.from_frame(t[key])).to_numpy(dtype=float)
+    if eb_slopes is None:
+        t["slope_eb_per_year"] = eb.reindex(pd.MultiIndex.from_frame(t[key])).to_numpy(dtype=float)
     z = zols.set_index(key).reindex(pd.MultiIndex.from_frame(t[key]))
     t["z_n"] = z["n"].fillna(0).astype(int).to_numpy()
     for dst, src in (("z_slope_per_year", "slope"), ("z_ci_low", "ci_low"), ("z_ci_high", "ci_high")):

@@ -36,6 +36,7 @@ import math
 from dataclasses import dataclass, field
 
 from tracker.domain.dates import age_bounds, parse_partial_date
+from tracker.domain.numbers import finite_number
 
 MODEL_NAME = "HCM Risk-SCD (O'Mahony et al., Eur Heart J 2014)"
 
@@ -195,14 +196,7 @@ def lvot_max_for_risk_scd(rest_mmhg: float | None, valsalva_mmhg: float | None) 
 # Checked estimate
 # ---------------------------------------------------------------------------
 
-def _number(v) -> float | None:
-    if v is None or isinstance(v, bool):
-        return None
-    try:
-        x = float(v)
-    except (TypeError, ValueError):
-        return None
-    return x if math.isfinite(x) else None
+_number = finite_number
 
 
 def hcm_risk_scd(

@@ -70,6 +70,7 @@ current guideline; return earlier for symptoms or new family data.
 from __future__ import annotations
 
 import calendar
+import dataclasses
 import datetime as dt
 from dataclasses import dataclass, field
 
@@ -796,3 +797,84 @@ def propose_recall(person: PersonState, rule_set: RuleSet, policy: Policy, today
         return _proposal(ctx, "due", today, None, None, None)
     status = "overdue" if due < today else "due"
     return _proposal(ctx, status, due, months, routine_due, rule, progression)
+
+
+# ------------------------------------------------------- how long a proposal holds
+
+
+def band_edge_ages(rule_set: RuleSet) -> tuple[int, ...]:
+    """Every age (whole years) at which a rule, release or advice item of ``rule_set`` starts or
+    stops applying, and 0 (the day of birth)."""
+    edges = {0}
+    for c in [r.conditions for r in rule_set.rules] + [a.conditions for a in rule_set.advice]:
+        edges.add(c.min_age)
+        if c.max_age is not None:
+            edges.add(c.max_age)
+    return tuple(sorted(edges))
+
+
+def next_band_birthday(birth: PartialDate, edges: tuple[int, ...], after: dt.date) -> dt.date | None:
+    """The first day after ``after`` on which a possible age (every birth point of a year-only
+    date) reaches one of ``edges``; None if none lies ahead."""
+    days = [d for b in _birth_points(birth) for a in edges if (d := birthday_at_age(b, a)) > after]
+    return min(days) if days else None
+
+
+_TODAY_FLAGS = frozenset({"band_change_before_visit", "band_changed_since_due", "no_rule"})
+
+
+def _holds_for_today_only(p: Proposal) -> bool:
+    """A proposal whose content is tied to the day it was computed: due today (a trigger, due now
+    for a never-screened person, no rule), a note naming today's age band against another, an
+    eligibility date of today, or today's date in any text."""
+    today = p.today
+    if p.triggers or p.due == today or p.eligible_since == today or _TODAY_FLAGS & set(p.flags):
+        return True
+    day = today.isoformat()
+    texts = list(p.notes) + list(p.cautions) + [f.text for f in p.fired]
+    return any(day in t for t in texts)
+
+
+def valid_until(person: PersonState, rule_set: RuleSet, p: Proposal) -> dt.date:
+    """The last day on which ``p`` (proposed on ``p.today`` for ``person``) is still the proposal,
+    given the same records, rule set and policy; read it on a later day ``d`` with :func:`redate`.
+
+    Between ``p.today`` and that day only ``today`` and ``days_overdue`` move
+    (:func:`redate`); everything else :func:`propose_recall` returns is the same.  It is the
+    earliest of:
+
+    * ``p.today`` itself when the proposal is tied to that day (:func:`_holds_for_today_only`):
+      a trigger (review now, due today), due today, a never-screened person due now, no rule
+      (clinician review now), an age-band note naming today's band, today's date in any text;
+    * the due date, when it lies ahead: the day after it the status becomes ``overdue`` and the
+      rule is read at that day's age; for a never-screened person the day before the due date
+      (on that day the wording becomes "due now");
+    * the day before the next birthday at which a possible age (each birth point of a
+      year-only date of birth) reaches an age-band edge of the rule set (any rule, release or
+      advice item, :func:`band_edge_ages`): the rule for today's age, the release and the advice
+      may change then.
+
+    Nothing else in a proposal depends on the day: triggers (symptoms, pregnancy, sport,
+    reclassification) come from the latest records, not from time windows, and a projected
+    threshold crossing is compared with the age on the (fixed) routine due date.  A new record
+    changes the proposal, which is why every write recomputes the family's proposals.
+    """
+    today = p.today
+    if _holds_for_today_only(p):
+        return today
+    end = dt.date.max
+    if p.due is not None and p.due >= today:
+        end = p.due - dt.timedelta(days=1) if p.never_screened else p.due
+    birthday = next_band_birthday(person.birth, band_edge_ages(rule_set), today)
+    if birthday is not None:
+        end = min(end, birthday - dt.timedelta(days=1))
+    return max(end, today)
+
+
+def redate(p: Proposal, on: dt.date) -> Proposal:
+    """``p`` read on ``on`` (between ``p.today`` and its :func:`valid_until`): the same proposal,
+    with ``today`` and ``days_overdue`` counted from ``on``."""
+    if on == p.today:
+        return p
+    days = None if p.due is None else (on - p.due).days
+    return dataclasses.replace(p, today=on, days_overdue=days)

@@ -50,6 +50,7 @@ class ImportSummary:
     rows_read: int
     rows_added: int
     rows_already_stored: int
+    families: frozenset[str] = frozenset()  # the families it wrote rows to (recall proposals recomputed)
 
     def as_dict(self) -> dict:
         return {
@@ -127,11 +128,14 @@ def import_file(
     user: str | None = None,
     progress: Progress | None = None,
     ctx: validation.Context | None = None,
+    refresh: bool = True,
 ) -> ImportSummary:
     """Check and write one file inside the caller's transaction (roll it back for a dry run).
 
     ``ctx`` is what the store holds (:func:`context`), loaded by the caller once for
-    several files; it is brought up to date with the rows this file adds.
+    several files; it is brought up to date with the rows this file adds. The recall
+    proposals of the families the file wrote to are recomputed in the same transaction
+    (``refresh=False``: the caller does it once for several files, see :func:`touched`).
     """
     today = today or (ctx.today if ctx is not None else dt.date.today())
     user = audit.actor(user)  # checked (length) before anything is read or written
@@ -140,8 +144,10 @@ def import_file(
         checked = check_file(conn, kind, path, today, ctx)
         writer = _WRITERS[kind]
         added, already = writer(conn, checked, progress or (lambda n: None), ctx)
-    summary = ImportSummary(kind, path.name, len(checked.rows), added, already)
+    summary = ImportSummary(kind, path.name, len(checked.rows), added, already, touched(checked, ctx, added))
     _record_run(conn, summary, path, user)
+    if refresh:
+        refresh_proposals(conn, summary.families, today)
     return summary
 
 
@@ -154,6 +160,7 @@ def import_cells(
     ctx: validation.Context,
     user: str | None = None,
     progress: Progress | None = None,
+    refresh: bool = True,
 ) -> ImportSummary:
     """Check and write rows of ``kind`` given as text cells read from another format (``path``).
 
@@ -168,9 +175,37 @@ def import_cells(
         if checked.problems:
             raise InputRejected(checked.problems)
         added, already = _WRITERS[kind](conn, checked, progress or (lambda n: None), ctx)
-    summary = ImportSummary(kind, path.name, len(checked.rows), added, already)
+    summary = ImportSummary(kind, path.name, len(checked.rows), added, already, touched(checked, ctx, added))
     _record_run(conn, summary, path, user)
+    if refresh:
+        refresh_proposals(conn, summary.families, ctx.today)
     return summary
+
+
+def touched(checked: validation.Checked, ctx: validation.Context, added: int) -> frozenset[str]:
+    """The families an import wrote rows to (none when it added nothing): its ``family``
+    column, else the family of each ``person`` (``ctx`` holds the people already written)."""
+    rows = checked.rows
+    if not added or not len(rows):
+        return frozenset()
+    if "family" in rows.columns:
+        return frozenset(rows["family"].dropna().astype(str))
+    if "person" not in rows.columns:
+        return frozenset()
+    family_of = dict(zip(ctx.people["person"], ctx.people["family"]))
+    return frozenset(f for p in rows["person"].dropna().unique() if isinstance(f := family_of.get(p), str))
+
+
+def refresh_proposals(conn: Connection, families, today: dt.date | None = None) -> None:
+    """Recompute the stored recall proposals of ``families`` in the import's transaction
+    (:func:`tracker.services.proposals.refresh_families`). A bulk import of more than
+    :data:`tracker.services.proposals.WRITE_COMPUTE_MAX_FAMILIES` families marks their rows stale
+    instead (same transaction), so that the import keeps its speed; the first worklist read
+    computes and stores them, and nothing is ever read from a stale row."""
+    if families:
+        from tracker.services.proposals import refresh_families
+
+        refresh_families(conn, families, today, defer_bulk=True)
 
 
 def _record_run(conn: Connection, summary: ImportSummary, path: Path, user: str | None) -> None:
@@ -217,7 +252,9 @@ def import_folder(conn: Connection, folder: Path, **kw) -> list[ImportSummary]:
         raise InputRejected([Problem(folder.name, None, None, f"holds none of the files {names}")])
     today = kw.pop("today", None) or dt.date.today()
     ctx = context(conn, today)  # loaded once for all the files
-    return [import_file(conn, kind, path, today=today, ctx=ctx, **kw) for kind, path in found]
+    out = [import_file(conn, kind, path, today=today, ctx=ctx, refresh=False, **kw) for kind, path in found]
+    refresh_proposals(conn, frozenset().union(*(s.families for s in out)), today)  # once for every file
+    return out
 
 
 # --------------------------------------------------------------------------- comparing

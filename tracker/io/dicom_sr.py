@@ -484,9 +484,11 @@ def import_reports(
                 raise InputRejected(_locate(exc.problems, p.taken, p.report.file)) from None
             rows_read = len(p.taken)
             summary = csv_import.ImportSummary(KIND, p.report.file, rows_read, added if p.taken else 0,
-                                               already if p.taken else 0)  # fmt: skip
+                                               already if p.taken else 0,
+                                               csv_import.touched(p.checked, ctx, added if p.taken else 0))  # fmt: skip
             csv_import._record_run(conn, summary, p.path, user)
             out.append(SrSummary(summary, p.person, p.report.study_date, p.report.form,
                                  [(i.label, r.measure) for i, r in p.taken],
                                  [(i.label, why) for i, why in p.left]))  # fmt: skip
+        csv_import.refresh_proposals(conn, frozenset().union(*(s.summary.families for s in out)), today)
     return out

@@ -643,7 +643,8 @@ def import_bundle(conn: Connection, path: Path, *, user: str | None = None,
             continue
         cells = _cells(conn, table)
         try:
-            summaries.append(csv_import.import_cells(conn, kind, cells, path=path, ctx=ctx, user=user))
+            summaries.append(csv_import.import_cells(conn, kind, cells, path=path, ctx=ctx, user=user, refresh=False))
         except InputRejected as exc:
             raise InputRejected([_locate(p, table) for p in exc.problems]) from None
+    csv_import.refresh_proposals(conn, frozenset().union(*(s.families for s in summaries)), ctx.today)
     return summaries

@@ -19,6 +19,7 @@ import json
 import pandas as pd
 
 from tracker.outputs import fhir_codes as fc
+from tracker.outputs.cells import cell_text, family_members
 
 # --------------------------------------------------------------------------- codes
 
@@ -64,25 +65,6 @@ PED_AFFECTION = {"unaffected": "1", "affected": "2"}
 PED_UNKNOWN = "0"
 
 
-def _text(v) -> str | None:
-    if v is None:
-        return None
-    try:
-        if pd.isna(v):
-            return None
-    except (TypeError, ValueError):
-        pass
-    s = str(v).strip()
-    return s or None
-
-
-def members_of(people: pd.DataFrame, family: str) -> pd.DataFrame:
-    members = people[people["family"] == family]
-    if members.empty:
-        raise ValueError(f"family {family} has no members")
-    return members.sort_values("person", kind="stable")
-
-
 def affection(members: pd.DataFrame, assessments: pd.DataFrame) -> dict[str, str]:
     """person -> "affected", "unaffected" or "unknown" (see the module docstring)."""
     latest: dict[str, str] = {}
@@ -92,7 +74,7 @@ def affection(members: pd.DataFrame, assessments: pd.DataFrame) -> dict[str, str
     out = {}
     for rec in members.to_dict("records"):
         p = rec["person"]
-        if latest.get(p) == "affected" or _text(rec.get("diagnosis_age")) is not None:
+        if latest.get(p) == "affected" or cell_text(rec.get("diagnosis_age")) is not None:
             out[p] = "affected"
         elif latest.get(p) == "unaffected":
             out[p] = "unaffected"
@@ -103,9 +85,9 @@ def affection(members: pd.DataFrame, assessments: pd.DataFrame) -> dict[str, str
 
 def genetic_parents(rec: dict, codes: set[str]) -> tuple[str | None, str | None]:
     """(mother, father) within the family; none for a person adopted in (the recorded ones are adoptive)."""
-    if _text(rec.get("adoption")) == "in":
+    if cell_text(rec.get("adoption")) == "in":
         return None, None
-    m, f = _text(rec.get("mother")), _text(rec.get("father"))
+    m, f = cell_text(rec.get("mother")), cell_text(rec.get("father"))
     return (m if m in codes else None), (f if f in codes else None)
 
 
@@ -115,7 +97,7 @@ def genetic_parents(rec: dict, codes: set[str]) -> tuple[str | None, str | None]
 def ped_text(family: str, people: pd.DataFrame, assessments: pd.DataFrame, *, rename=None) -> str:
     """The six-column PED/LINKAGE text (tab-separated, one line per member, no header)."""
     rename = rename or (lambda kind, code: code)
-    members = members_of(people, family)
+    members = family_members(people, family)
     codes = set(members["person"])
     status = affection(members, assessments)
     lines = []
@@ -126,7 +108,7 @@ def ped_text(family: str, people: pd.DataFrame, assessments: pd.DataFrame, *, re
             rename("person", rec["person"]),
             rename("person", father) if father else PED_UNKNOWN,
             rename("person", mother) if mother else PED_UNKNOWN,
-            PED_SEX.get(_text(rec.get("sex_at_birth")) or "", PED_UNKNOWN),
+            PED_SEX.get(cell_text(rec.get("sex_at_birth")) or "", PED_UNKNOWN),
             PED_AFFECTION.get(status[rec["person"]], PED_UNKNOWN),
         ]
         lines.append("\t".join(cells))
@@ -144,38 +126,38 @@ def _features(rec: dict, status: str) -> list[dict]:
     out = []
     if status == "affected":
         feature: dict = {"type": dict(HPO_HCM)}
-        if (age := _text(rec.get("diagnosis_age"))) is not None:
+        if (age := cell_text(rec.get("diagnosis_age"))) is not None:
             feature["onset"] = _age(age)
         out.append(feature)
     elif status == "unaffected":
         out.append({"type": dict(HPO_HCM), "excluded": True})
-    if _text(rec.get("death_cause")) == "sudden":
+    if cell_text(rec.get("death_cause")) == "sudden":
         feature = {"type": dict(HPO_SCD)}
-        if (age := _text(rec.get("death_age"))) is not None:
+        if (age := cell_text(rec.get("death_age"))) is not None:
             feature["onset"] = _age(age)
         out.append(feature)
     return out
 
 
 def _subject(rec: dict, pid: str) -> dict:
-    subject: dict = {"id": pid, "sex": SEX_ENUM.get(_text(rec.get("sex_at_birth")) or "", "UNKNOWN_SEX")}
-    vital = VITAL_ENUM.get(_text(rec.get("vital_status")) or "")
+    subject: dict = {"id": pid, "sex": SEX_ENUM.get(cell_text(rec.get("sex_at_birth")) or "", "UNKNOWN_SEX")}
+    vital = VITAL_ENUM.get(cell_text(rec.get("vital_status")) or "")
     if vital:
         subject["vitalStatus"] = {"status": vital}
     return subject
 
 
 def _variation(variant: dict, pid: str) -> dict:
-    gene = _text(variant.get("gene"))
+    gene = cell_text(variant.get("gene"))
     key = f"{variant['transcript']}:{variant['hgvs_c']}"
     desc: dict = {"id": f"{pid}:{key}", "label": key}
     if gene:
         desc["geneContext"] = {"valueId": fc.HGNC_IDS.get(gene, gene), "symbol": gene}  # HGNC id ([V2]) where known
     desc["expressions"] = [{"syntax": "hgvs.c", "value": key}]
-    if p := _text(variant.get("hgvs_p")):
+    if p := cell_text(variant.get("hgvs_p")):
         desc["alternateLabels"] = [p]  # no protein accession is stored, so no full hgvs.p expression
     desc["moleculeContext"] = "transcript"
-    if zyg := GENO_ZYGOSITY.get(_text(variant.get("zygosity")) or ""):
+    if zyg := GENO_ZYGOSITY.get(cell_text(variant.get("zygosity")) or ""):
         desc["allelicState"] = dict(zyg)
     return desc
 
@@ -215,7 +197,7 @@ def family_phenopacket(
     Raises ValueError for a family without members or without a recorded proband.
     """
     rename = rename or (lambda kind, code: code)
-    members = members_of(people, family)
+    members = family_members(people, family)
     codes = set(members["person"])
     by_code = {r["person"]: r for r in members.to_dict("records")}
     probands = [p for p in by_code if bool(by_code[p]["proband"])]
@@ -234,7 +216,7 @@ def family_phenopacket(
     if len(results):
         mine = results[results["person"].isin(codes) & (results["result"] == "carrier")]
         for rec in mine.sort_values(["person", "test_date"], kind="stable").to_dict("records"):
-            if (v := current.get(_text(rec.get("variant")) or "")) is not None:
+            if (v := current.get(cell_text(rec.get("variant")) or "")) is not None:
                 carried.setdefault(rec["person"], []).append(v)
 
     def packet(p: str) -> dict:
@@ -251,7 +233,7 @@ def family_phenopacket(
     for p, rec in by_code.items():
         mother, father = genetic_parents(rec, codes)
         person = {"familyId": fid, "individualId": rename("person", p),
-                  "sex": SEX_ENUM.get(_text(rec.get("sex_at_birth")) or "", "UNKNOWN_SEX"),
+                  "sex": SEX_ENUM.get(cell_text(rec.get("sex_at_birth")) or "", "UNKNOWN_SEX"),
                   "affectedStatus": {"affected": "AFFECTED", "unaffected": "UNAFFECTED"}.get(status[p], "MISSING")}  # fmt: skip
         if father:
             person["paternalId"] = rename("person", father)

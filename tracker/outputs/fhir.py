@@ -94,6 +94,7 @@ from fhir.resources.R4B.bundle import Bundle
 from tracker.domain.pedigree import Pedigree, ordinal
 from tracker.domain.vocabulary import ACMG_SHORT
 from tracker.outputs import fhir_codes as fc
+from tracker.outputs.cells import cell_text, family_members  # noqa: F401  (family_members: part of this module's API)
 
 _NAMESPACE = uuid.uuid5(uuid.NAMESPACE_URL, fc.ID_NAMESPACE_NAME)
 HCM_WORDS = "hypertrophic cardiomyopathy"
@@ -118,20 +119,8 @@ def _ref(rid: str) -> dict:
     return {"reference": f"urn:uuid:{rid}"}
 
 
-def _text(v: object) -> str | None:
-    if v is None:
-        return None
-    try:
-        if pd.isna(v):
-            return None
-    except (TypeError, ValueError):
-        pass
-    s = str(v).strip()
-    return s or None
-
-
 def _whole_years(v: object) -> int | None:
-    t = _text(v)
+    t = cell_text(v)
     return None if t is None else int(float(t))
 
 
@@ -178,7 +167,7 @@ def _condition_cc(condition: str | None) -> dict:
 
 
 def _names(row: dict) -> list[dict]:
-    given, family = _text(row.get("given_name")), _text(row.get("family_name"))
+    given, family = cell_text(row.get("given_name")), cell_text(row.get("family_name"))
     if not (given or family):
         return []
     name: dict = {}
@@ -209,10 +198,10 @@ def _patient(row: dict, include_names: bool, assessments: list[tuple[str, str]] 
     res["identifier"] = [{"system": fc.LOCAL_PERSON, "value": code}]
     if include_names and (names := _names(row)):
         res["name"] = names
-    res["gender"] = fc.GENDER.get(_text(row.get("sex_at_birth")) or "unknown", "unknown")
-    if birth := _text(row.get("birth_date")):
+    res["gender"] = fc.GENDER.get(cell_text(row.get("sex_at_birth")) or "unknown", "unknown")
+    if birth := cell_text(row.get("birth_date")):
         res["birthDate"] = birth  # ISO text, "YYYY" when known to the year only
-    vital, death = _text(row.get("vital_status")), _text(row.get("death_date"))
+    vital, death = cell_text(row.get("vital_status")), cell_text(row.get("death_date"))
     if death:
         res["deceasedDateTime"] = death
     elif vital == "deceased":
@@ -252,16 +241,16 @@ def _fmh_extensions(row: dict, fmh_ids: dict[str, str], patient_ids: dict[str, s
     if code in patient_ids:
         out.append({"url": fc.EXT_FMH_PATIENT_RECORD, "valueReference": _ref(patient_ids[code])})
     for role in ("mother", "father"):
-        parent = _text(row.get(role))
+        parent = cell_text(row.get(role))
         if parent in fmh_ids:
-            adopted = _text(row.get("adoption")) == "in"  # the recorded parents are then the adoptive ones
+            adopted = cell_text(row.get("adoption")) == "in"  # the recorded parents are then the adoptive ones
             kind = fc.ROLE_CODES[(fc.ADOPTIVE_PARENT_TYPE if adopted else fc.PARENT_TYPE)[role]]
             out.append({"url": fc.EXT_FMH_PARENT, "extension": [
                 {"url": "type", "valueCodeableConcept": _cc(kind)},
                 {"url": "reference", "valueReference": _ref(fmh_ids[parent])}]})  # fmt: skip
-    twin = _text(row.get("twin_of"))
+    twin = cell_text(row.get("twin_of"))
     if twin in fmh_ids:
-        female, male, neutral = fc.TWIN_TYPE_ROLE.get(_text(row.get("twin_type")) or "unknown",
+        female, male, neutral = fc.TWIN_TYPE_ROLE.get(cell_text(row.get("twin_type")) or "unknown",
                                                       fc.TWIN_TYPE_ROLE["unknown"])  # fmt: skip
         kind = fc.ROLE_CODES[{"female": female, "male": male}.get(sexes.get(twin, "unknown"), neutral)]
         out.append({"url": fc.EXT_FMH_SIBLING, "extension": [
@@ -279,7 +268,7 @@ def _family_member_history(
     words = rel.label
     if not rel.blood_related and words == "not a blood relative":
         words = _co_parent_words(ped, proband, code) or words
-    sex = _text(row.get("sex_at_birth")) or "unknown"
+    sex = cell_text(row.get("sex_at_birth")) or "unknown"
     role = relationship_role(words, sex)
     res: dict = {
         "resourceType": "FamilyMemberHistory",
@@ -294,9 +283,9 @@ def _family_member_history(
     if include_names and (names := _names(row)):
         name = names[0]
         res["name"] = " ".join([*name.get("given", []), name.get("family", "")]).strip()
-    if birth := _text(row.get("birth_date")):
+    if birth := cell_text(row.get("birth_date")):
         res["bornDate"] = birth
-    vital, death = _text(row.get("vital_status")), _text(row.get("death_date"))
+    vital, death = cell_text(row.get("vital_status")), cell_text(row.get("death_date"))
     if death:
         res["deceasedDate"] = death
     elif vital == "deceased" and (death_age := _whole_years(row.get("death_age"))) is not None:
@@ -311,7 +300,7 @@ def _family_member_history(
         conditions.append({"code": _condition_cc(condition)})
         if diagnosis_age is not None:
             conditions[-1]["onsetAge"] = _age(diagnosis_age)
-    if _text(row.get("death_cause")) == "sudden":
+    if cell_text(row.get("death_cause")) == "sudden":
         conditions.append({"code": _cc(fc.SCD_HPO, text="Sudden cardiac death"), "contributedToDeath": True})
         if (death_age := _whole_years(row.get("death_age"))) is not None:
             conditions[-1]["onsetAge"] = _age(death_age)
@@ -333,7 +322,7 @@ def _proband_conditions(row: dict, patient_id: str, affected: bool, condition: s
         if diagnosis_age is not None:
             res["onsetAge"] = _age(diagnosis_age)
         out.append(res)
-    if _text(row.get("death_cause")) == "sudden":
+    if cell_text(row.get("death_cause")) == "sudden":
         res = {"resourceType": "Condition", "id": resource_id("Condition", code, "sudden-death"),
                "code": _cc(fc.SCD_HPO, text="Sudden cardiac death"), "subject": _ref(patient_id)}  # fmt: skip
         if (death_age := _whole_years(row.get("death_age"))) is not None:
@@ -350,10 +339,10 @@ def _proband_conditions(row: dict, patient_id: str, affected: bool, condition: s
 def _measure_code(measure: str, catalogue: dict[str, dict]) -> dict:
     entry = catalogue.get(measure, {})
     codings = []
-    loinc = _text(entry.get("loinc"))
+    loinc = cell_text(entry.get("loinc"))
     if loinc and loinc in fc.MEASURE_LOINC:
         codings.append({"system": fc.LOINC, "code": loinc})
-    label = _text(entry.get("label"))
+    label = cell_text(entry.get("label"))
     local = {"system": fc.LOCAL_MEASURE, "code": measure}
     if label:
         local["display"] = label
@@ -384,7 +373,7 @@ def _measurement(row: dict, patient_id: str, catalogue: dict[str, dict]) -> dict
     category = fc.MODALITY_CATEGORY.get(modality)
     if category is not None:
         res["category"] = [_cc(category)]
-    unit = _text(row.get("unit")) or _text(catalogue.get(measure, {}).get("unit"))
+    unit = cell_text(row.get("unit")) or cell_text(catalogue.get(measure, {}).get("unit"))
     res.update(
         {
             "code": _measure_code(measure, catalogue),
@@ -445,7 +434,7 @@ def _variant_observation(row: dict, variant: dict | None, patient_id: str, prese
     res: dict = {"resourceType": "Observation", "id": resource_id("Observation", "variant", *_variant_key(row))}
     if claim:
         res["meta"] = {"profile": [fc.PROFILE_VARIANT]}
-    if ref := _text(row.get("report_reference")):
+    if ref := cell_text(row.get("report_reference")):
         res["identifier"] = [{"system": fc.LOCAL_LAB_REPORT, "value": ref}]
     res.update(
         {
@@ -456,19 +445,19 @@ def _variant_observation(row: dict, variant: dict | None, patient_id: str, prese
             "effectiveDateTime": row["test_date"],
         }
     )
-    if lab := _text(row.get("lab")):
+    if lab := cell_text(row.get("lab")):
         res["performer"] = [{"display": lab}]
     res["method"] = {"coding": [{"system": fc.LOCAL_TEST_TYPE, "code": row["test_type"]}]}
     res["valueCodeableConcept"] = _cc(fc.PRESENT if present else fc.ABSENT)
     components = []
-    gene = _text(variant.get("gene")) if variant else None
+    gene = cell_text(variant.get("gene")) if variant else None
     if gene:
         components.append(_component(fc.GENE_STUDIED, _gene_cc(gene)))
     components.append(_component(fc.CODING_HGVS, _hgvs_cc(key)))
-    if variant and (p := _text(variant.get("hgvs_p"))):
+    if variant and (p := cell_text(variant.get("hgvs_p"))):
         components.append(_component(fc.PROTEIN_HGVS, _hgvs_cc(p)))
     components.append(_component(fc.TRANSCRIPT_REF_SEQ, _transcript_cc(transcript)))
-    zygosity = _text(variant.get("zygosity")) if variant else None
+    zygosity = cell_text(variant.get("zygosity")) if variant else None
     if present and zygosity:
         value = _cc(fc.HETEROZYGOUS) if zygosity == "heterozygous" else {"text": zygosity.replace("_", " ")}
         components.append(_component(fc.ALLELIC_STATE, value))
@@ -516,7 +505,7 @@ def _implication(row: dict, variant: dict, patient_id: str, variant_id: str, con
 
 
 def _exported_result(row: dict) -> bool:
-    if _text(row.get("variant")) is None:
+    if cell_text(row.get("variant")) is None:
         return False
     return row["result"] == "carrier" or (row["result"] == "non_carrier" and row["test_type"] == "predictive")
 
@@ -542,7 +531,7 @@ def loinc_codes_not_exported(measures: pd.DataFrame) -> dict[str, str]:
     """Catalogue measures whose LOINC code is not in the reference-note table (exported local only)."""
     out = {}
     for rec in measures.to_dict("records"):
-        code = _text(rec.get("loinc"))
+        code = cell_text(rec.get("loinc"))
         if code and code not in fc.MEASURE_LOINC:
             out[rec["code"]] = code
     return out
@@ -551,14 +540,6 @@ def loinc_codes_not_exported(measures: pd.DataFrame) -> dict[str, str]:
 # ---------------------------------------------------------------------------
 # the bundle
 # ---------------------------------------------------------------------------
-
-
-def family_members(people: pd.DataFrame, family: str) -> pd.DataFrame:
-    """The members of ``family``, in code order (a ValueError when it has none)."""
-    members = people[people["family"] == family]
-    if members.empty:
-        raise ValueError(f"family {family} has no members")
-    return members.sort_values("person", kind="stable")
 
 
 def seen_members(members: pd.DataFrame, results: pd.DataFrame, assessments: pd.DataFrame,
@@ -606,7 +587,7 @@ def build_family_bundle(
     members = family_members(people, family)
     codes = list(members["person"])
     fam = families[families["family"] == family] if len(families) else families
-    condition = _text(fam["condition"].iloc[0]) if len(fam) else None
+    condition = cell_text(fam["condition"].iloc[0]) if len(fam) else None
     results = _rows(results, codes).sort_values(["person", "test_date", "test_type"], kind="stable")
     assessments = _rows(assessments, codes)
     studies = _rows(studies, codes)
@@ -629,7 +610,7 @@ def build_family_bundle(
         linked = _clean_links(members)
         ped = Pedigree(linked)
         linked_rows = {r["person"]: r for r in linked.to_dict("records")}
-        sexes = {p: _text(r.get("sex_at_birth")) or "unknown" for p, r in linked_rows.items()}
+        sexes = {p: cell_text(r.get("sex_at_birth")) or "unknown" for p, r in linked_rows.items()}
         fmh_ids = {p: resource_id("FamilyMemberHistory", proband, p) for p in codes if p != proband}
         affected = _latest_affected(assessments)
         for p in codes:

@@ -8,7 +8,7 @@ import datetime as dt
 from sqlalchemy import Connection
 
 
-def check_findings(conn: Connection, today: dt.date, rereview_months: int) -> tuple[list, list]:
+def check_findings(conn: Connection, today: dt.date, rereview_months: int, settings=None) -> tuple[list, list]:
     """(findings, re-review reminders). The consistency checks run only on a database whose file and
     schema are sound."""
     from tracker.domain import consistency as dc
@@ -34,6 +34,7 @@ def check_findings(conn: Connection, today: dt.date, rereview_months: int) -> tu
         broken = {f.where.removeprefix("family ") for f in findings if f.check == "pedigree"}
         findings += recall_findings(people[~people["family"].isin(broken)], repo.load_variants(conn), results,
                                     assessments, studies)  # fmt: skip
+        findings += proposal_findings(conn, settings)
         # re-review reminders: listed apart, not findings
         reminders = checks.variant_rereview_reminders(conn, today, rereview_months)
     return findings, reminders
@@ -48,3 +49,16 @@ def recall_findings(people, variants, results, assessments, studies):
     by_code = people.set_index("person")  # once for the cohort, not once per family
     return [Finding("recall", f"person {p}", f"is at risk and has no recall: {why}")
             for st in states.values() for p, why in fs.unscheduled_at_risk(st, by_code)]  # fmt: skip
+
+
+def proposal_findings(conn: Connection, settings=None):
+    """Stored recall proposals that differ from a recomputation from the records now stored
+    (every write recomputes them, so a difference means a write that did not, or a change made
+    outside the tool). Rows computed under other settings are recomputed by the next read."""
+    from tracker.domain.consistency import Finding
+    from tracker.services import proposals as SP
+    from tracker.services.recall import recall_rules
+
+    conf, rule_set, policy = recall_rules(settings, None)
+    return [Finding("recall proposal", f"person {p}", f"stored recall proposal differs from a recomputation: {what}; "
+                    "run `tracker recall --refresh`") for p, what in SP.differing(conn, conf, rule_set, policy)]  # fmt: skip

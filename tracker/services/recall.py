@@ -103,26 +103,18 @@ def _with_trends(
     from tracker.engines import family_state as fs
 
     try:
-        from tracker.engines import repeatability, review
-        from tracker.normals.criteria import RULE_SETS as CRITERIA
+        from tracker.engines import review
 
         build, flags = review.build_measurements, review.trend_flags
     except (ImportError, AttributeError):
-        return states, {
-            "applied": False,
-            "note": "trend modifiers not applied: the trend engine (tracker.engines.review) is not available; "
-            "intervals ignore progression and projected threshold crossing",
-        }
-    if rule_set_id not in CRITERIA:
-        return states, {
-            "applied": False,
-            "note": f"trend modifiers not applied: no diagnostic-criteria set for rule set {rule_set_id} "
-            "(guidelines are never blended); intervals ignore progression and projected crossing",
-        }
+        return states, trend_summary(rule_set_id, settings, False)
+    summary = trend_summary(rule_set_id, settings, True)
+    if not summary["applied"]:
+        return states, summary
     codes = {p for s in states.values() for p in s.states}
     studies = fs.records_up_to(frames.studies[frames.studies["person"].isin(codes)], "study_date", as_of)
     if studies is None or not studies["value"].notna().any():
-        return states, {"applied": True, "note": "trend modifiers: no measured values to trend"}
+        return states, trend_summary(rule_set_id, settings, False)
     relatives = set().union(*(fs.first_degree_of_affected(s) for s in states.values()))
     positive = set().union(*(fs.genotype_positive(s) for s in states.values()))
     # Trends are per person: computed a few thousand people at a time, so that memory stays
@@ -142,9 +134,36 @@ def _with_trends(
             relative_of_affected=relatives, genotype_positive=positive,
             clinic_repeatability=settings.repeatability or None,
         ))  # fmt: skip
+    return fs.apply_trends_to_states(states, pd.concat(parts, ignore_index=True)), summary
+
+
+def trend_summary(rule_set_id: str, settings: Settings, values: bool) -> dict:
+    """What the trend modifiers note says for a read: whether they apply (the trend engine is
+    installed and the rule set has diagnostic criteria), and ``values``: whether any person read
+    has a measured value to trend. The same for any set of families with the same answers, so
+    the worklist can say it from stored proposals (:mod:`tracker.services.worklist`)."""
+    try:
+        from tracker.engines import repeatability, review
+        from tracker.normals.criteria import RULE_SETS as CRITERIA
+
+        review.build_measurements, review.trend_flags
+    except (ImportError, AttributeError):
+        return {
+            "applied": False,
+            "note": "trend modifiers not applied: the trend engine (tracker.engines.review) is not available; "
+            "intervals ignore progression and projected threshold crossing",
+        }
+    if rule_set_id not in CRITERIA:
+        return {
+            "applied": False,
+            "note": f"trend modifiers not applied: no diagnostic-criteria set for rule set {rule_set_id} "
+            "(guidelines are never blended); intervals ignore progression and projected crossing",
+        }
+    if not values:
+        return {"applied": True, "note": "trend modifiers: no measured values to trend"}
     placeholders = sorted(m for m, r in repeatability.load_repeatability(settings.repeatability or None).items()
                           if r.status == "placeholder")  # fmt: skip
-    return fs.apply_trends_to_states(states, pd.concat(parts, ignore_index=True)), {
+    return {
         "applied": True,
         "note": f"trend modifiers from the measurement trends ({rule_set_id} thresholds): progression beyond "
         "measurement variability and projected threshold crossing shorten the interval",

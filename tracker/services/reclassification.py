@@ -245,14 +245,19 @@ def read_state(conn: Connection, variants, marks: dict | None = None) -> dict:
 
 def write(conn: Connection, p: Plan, who: str) -> list[dict]:
     """Write a plan inside the caller's write transaction, after checking that the records it was
-    worked out from are unchanged; else a one-line error and nothing is written."""
+    worked out from are unchanged; else a one-line error and nothing is written. The families'
+    stored recall proposals are recomputed in the same transaction."""
+    from tracker.services.proposals import refresh_families
+
     now = read_state(conn, [x.variant for x in p.planned], audit_marks(conn, p.scope))
     for key, before in p.read_state.items():
         changed = [k for k, v in before.items() if now.get(key, {}).get(k) != v]
         if changed:
             raise UserError(f"{key}: the records changed while the impact was worked out ({', '.join(changed)}); "
                             "nothing written: run the command again")  # fmt: skip
-    return [_write_one(conn, x.variant, p.new_class, p.on, p.reason, who, x.items, x.notes) for x in p.planned]
+    out = [_write_one(conn, x.variant, p.new_class, p.on, p.reason, who, x.items, x.notes) for x in p.planned]
+    refresh_families(conn, {x.variant.family for x in p.planned})  # the stored recall proposals, same transaction
+    return out
 
 
 def dry_run(p: Plan) -> list[dict]:

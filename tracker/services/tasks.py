@@ -74,4 +74,7 @@ def mark_done(conn: Connection, task_id: int, note: str, user: str | None) -> di
                  before={"done_on": None, "done_by": None, "done_note": None},
                  after={"done_on": done["done_on"], "done_by": done["done_by"], "done_note": done["done_note"]},
                  user=user)  # fmt: skip
+    from tracker.services.proposals import refresh_families
+
+    refresh_families(conn, [done["family"]])  # an open task is a trigger: the stored proposals change
     return done

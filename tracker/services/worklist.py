@@ -1,18 +1,23 @@
-"""The nurse's lists as plain data: who is due or overdue in a window, contact gaps, and the
-reclassification to-do list; and the same list as CSV, iCalendar and PDF.
+"""The recall worklist of a window (`tracker worklist`, `tracker report worklist` and the nurse's day in
+the web), and the same list as CSV, iCalendar and PDF.
 
-Shared by ``tracker worklist``, ``tracker report worklist``, ``tracker tasks`` and the web
-interface's day page (:mod:`tracker.web.pages.day`).  The worklist reads the cohort; the task
-list reads table ``impact_item``.  Heavy modules are loaded where used.
+:func:`nurse_worklist` reads the proposals kept in the store (:mod:`tracker.services.proposals`)
+with an indexed query (due date, family) and recomputes only the families whose rows cannot be
+read on the day asked: stale, computed under other settings or rule set, past their
+``valid_until``, computed for a later day, or missing (a database upgraded from before the
+table). On today's date the recomputed rows are stored (one write transaction); for another
+day they are computed for the read only. The result is the same as computing every family's
+proposal for that day (:func:`worklist_lists`) (``tests/test_output_unchanged.py``, ``tests/test_agreement.py``,
+``tests/test_proposals.py``).
 """
 
 from __future__ import annotations
 
 import datetime as dt
 
-from sqlalchemy import Connection
+from sqlalchemy import Engine
 
-from tracker.engines.schedule import CAUTIONS, Proposal, never_screened_text
+from tracker.engines.schedule import CAUTIONS, Policy, Proposal, never_screened_text, redate
 from tracker.engines.worklist import (
     contact_gaps,
     lost_to_follow_up,
@@ -22,13 +27,17 @@ from tracker.engines.worklist import (
     select_due,
     week_starts,
 )
-from tracker.errors import UserError
 from tracker.gcpause import gc_paused
-from tracker.services.recall import _iso, _reason, _with_trends, with_trend_texts
+from tracker.settings import Settings
+
+
+def _iso(d: dt.date | None) -> str | None:
+    return d.isoformat() if d is not None else None
 
 
 def _entry(p: Proposal, family: str, lst: str) -> dict:
     from tracker.normals.criteria import NOT_ASSESSABLE
+    from tracker.services.recall import _reason
 
     reason, source = _reason(p)
     return {
@@ -43,38 +52,10 @@ def _entry(p: Proposal, family: str, lst: str) -> dict:
     }  # fmt: skip
 
 
-def due_proposals(frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date):
-    """Proposals due or overdue by ``end``: (screening, affected, family of each person, trend note,
-    every proposal).
-
-    Shared by ``tracker worklist`` and ``tracker report worklist``.  The cyclic garbage
-    collector is paused while every family's state is built (see :mod:`tracker.gcpause`).
-    """
-    from tracker.engines import family_state as fs
-
-    with gc_paused():
-        states = fs.build_family_states(
-            frames.people, frames.variants, frames.results, frames.assessments, frames.studies,
-            reclassification_pending=frames.pending, as_of=on,
-        )  # fmt: skip
-        states, trend = _with_trends(frames, states, rule_set.id, conf, on)
-    proposals: list[Proposal] = []
-    family_of: dict[str, str] = {}
-    affected: set[str] = set()
-    for fam, st in states.items():
-        for p, prop in fs.propose_for_family(st, rule_set, policy, on).items():
-            prop = with_trend_texts(prop, st.facts[p])
-            proposals.append(prop)
-            family_of[p] = fam
-            if st.states[p].phenotype == "positive":
-                affected.add(p)
-    screening_due = select_due([p for p in proposals if p.person_code not in affected], start, end)
-    affected_due = select_due([p for p in proposals if p.person_code in affected], start, end)
-    return screening_due, affected_due, family_of, trend, proposals
-
-
-def worklist_lists(frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date, slots: int | None) -> dict:
-    """Everything the worklist shows, shared by ``tracker worklist`` and ``tracker report worklist``.
+def lists(proposals: list[Proposal], family_of: dict[str, str], affected: set[str], trend: dict, start: dt.date,
+          end: dt.date, on: dt.date, slots: int | None) -> dict:  # fmt: skip
+    """Everything the worklist shows, from the proposals of ``on`` (at least everyone due or overdue by
+    ``end`` and everyone not recalled), shared by ``tracker worklist`` and ``tracker report worklist``.
 
     ``due`` / ``affected``: reachable people due or overdue by ``end``, most
     urgent first; ``contact_gaps``: people who cannot be booked until contact
@@ -82,7 +63,8 @@ def worklist_lists(frames, conf, rule_set, policy, start: dt.date, end: dt.date,
     ``booking`` (with a weekly capacity): reachable screening people booked
     from the first bookable day on or after both ``start`` and ``on``.
     """
-    screening_due, affected_due, family_of, trend, proposals = due_proposals(frames, conf, rule_set, policy, start, end, on)
+    screening_due = select_due([p for p in proposals if p.person_code not in affected], start, end)
+    affected_due = select_due([p for p in proposals if p.person_code in affected], start, end)
     gaps = contact_gaps(screening_due + affected_due + [p for p in proposals if p.status == "not_recalled"])
     due_rows = [_entry(p, family_of[p.person_code], "screening") for p in screening_due if reachable(p)]
     affected_rows = [_entry(p, family_of[p.person_code], "affected") for p in affected_due if reachable(p)]
@@ -121,15 +103,137 @@ def worklist_lists(frames, conf, rule_set, policy, start: dt.date, end: dt.date,
     }  # fmt: skip
 
 
-def worklist(conn: Connection, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date,
-             slots: int | None) -> dict:
-    """:func:`worklist_lists` over the whole cohort read from the store."""
-    from tracker.services.recall import _load
+def due_proposals(frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date):
+    """Proposals due or overdue by ``end``: (screening, affected, family of each person, trend note,
+    every proposal).
 
-    if end < start:
-        raise UserError("--to is before --from")
-    frames = _load(conn)
-    return worklist_lists(frames, conf, rule_set, policy, start, end, on, slots)
+    Shared by ``tracker worklist`` and ``tracker report worklist``.  The cyclic garbage
+    collector is paused while every family's state is built (see :mod:`tracker.gcpause`).
+    """
+    from tracker.engines import family_state as fs
+    from tracker.services.recall import _with_trends, with_trend_texts
+
+    with gc_paused():
+        states = fs.build_family_states(
+            frames.people, frames.variants, frames.results, frames.assessments, frames.studies,
+            reclassification_pending=frames.pending, as_of=on,
+        )  # fmt: skip
+        states, trend = _with_trends(frames, states, rule_set.id, conf, on)
+    proposals: list[Proposal] = []
+    family_of: dict[str, str] = {}
+    affected: set[str] = set()
+    for fam, st in states.items():
+        for p, prop in fs.propose_for_family(st, rule_set, policy, on).items():
+            prop = with_trend_texts(prop, st.facts[p])
+            proposals.append(prop)
+            family_of[p] = fam
+            if st.states[p].phenotype == "positive":
+                affected.add(p)
+    screening_due = select_due([p for p in proposals if p.person_code not in affected], start, end)
+    affected_due = select_due([p for p in proposals if p.person_code in affected], start, end)
+    return screening_due, affected_due, family_of, trend, proposals
+
+
+def worklist_lists(frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date, slots: int | None) -> dict:
+    """Everything the worklist shows, computed afresh from ``frames`` (every family's proposal for ``on``);
+    :func:`nurse_worklist` gives the same from the stored proposals. See :func:`lists`."""
+    _screening, affected_due, family_of, trend, proposals = due_proposals(frames, conf, rule_set, policy, start, end, on)
+    affected = {p.person_code for p in affected_due}
+    return lists(proposals, family_of, affected, trend, start, end, on, slots)
+
+
+def _recomputed(conn, families: set[str], on: dt.date, conf: Settings, rule_set, policy: Policy):
+    """(proposals, family of each, affected people, trend values) of ``families`` computed for ``on``."""
+    from tracker.services import proposals as SP
+    from tracker.services.recall import load
+    from tracker.store.repository import Scope
+
+    if not families:
+        return [], {}, set(), False
+    scope = Scope() if len(families) > SP.CHUNK_FAMILIES else Scope.families(sorted(families))
+    computed, _trend = SP.compute(load(conn, scope), families, on, conf, rule_set, policy)
+    props = [c.proposal for c in computed if c.proposal is not None]
+    return (props, {c.person: c.family for c in computed}, {c.person for c in computed if c.affected},
+            any(c.trend_values for c in computed))
+
+
+def proposals_for(engine: Engine, end: dt.date, on: dt.date, conf: Settings, rule_set, policy: Policy,
+                  today: dt.date | None = None) -> tuple[list[Proposal], dict[str, str], set[str], dict, dict]:  # fmt: skip
+    """The proposals a worklist for a window ending ``end`` needs, for day ``on``: (proposals, family
+    of each person, affected people, trend modifiers note, how they were read).
+
+    Stored rows that hold on ``on`` are read with an indexed query; the families with a row that
+    does not hold (:func:`tracker.services.proposals.invalid_families`) are recomputed. When ``on``
+    is ``today`` (default: the clock's date) the recomputed families are stored, in one write
+    transaction that looks again for rows that do not hold (another command may have written).
+    """
+    from tracker.services import proposals as SP
+    from tracker.store.database import reading, writing
+
+    today = today or dt.date.today()
+    key = SP.rules_key(conf, rule_set, policy)
+    with reading(engine) as conn:
+        invalid = SP.invalid_families(conn, on, key)
+        if not invalid or on != today:
+            return _read(conn, invalid, end, on, conf, rule_set, policy, key)
+    if _read_only(engine):
+        with reading(engine) as conn:
+            return _read(conn, SP.invalid_families(conn, on, key), end, on, conf, rule_set, policy, key)
+    with writing(engine) as conn:
+        invalid = SP.invalid_families(conn, on, key)
+        fams = sorted(invalid)
+        for i in range(0, len(fams), SP.CHUNK_FAMILIES):
+            SP._refresh_chunk(conn, fams[i:i + SP.CHUNK_FAMILIES], on, conf, rule_set, policy, key)
+        out = _read(conn, set(), end, on, conf, rule_set, policy, key)
+    out[4]["stored_families"] = len(invalid)
+    return out
+
+
+def _read_only(engine: Engine) -> bool:
+    """A SQLite file this process cannot write (opened read-only): recompute without storing."""
+    import os
+    from pathlib import Path
+
+    if engine.dialect.name != "sqlite" or not engine.url.database:
+        return False
+    path = Path(engine.url.database)
+    return not (os.access(path, os.W_OK) and os.access(path.parent, os.W_OK))
+
+
+def _read(conn, invalid: set[str], end, on, conf, rule_set, policy, key):
+    from tracker.services import proposals as SP
+    from tracker.services.recall import trend_summary
+
+    rows = SP.worklist_rows(conn, end, skip=invalid)
+    props, family_of, affected, values = _recomputed(conn, invalid, on, conf, rule_set, policy)
+    for person, family, p, is_affected in rows:
+        props.append(redate(p, on))
+        family_of[person] = family
+        if is_affected:
+            affected.add(person)
+    values = values or SP.any_trend_values(conn, skip=invalid)
+    how = {"read": len(rows), "recomputed_families": len(invalid), "stored_families": 0}
+    return props, family_of, affected, trend_summary(rule_set.id, conf, values), how
+
+
+def nurse_worklist(engine: Engine, start: dt.date, end: dt.date, on: dt.date, conf: Settings, rule_set,
+                   policy: Policy, slots: int | None, today: dt.date | None = None) -> dict:  # fmt: skip
+    """Everything ``tracker worklist`` shows for the window ``[start, end]`` on day ``on`` (see
+    :func:`lists`), with the variant re-review reminders (``variant_rereview``) and how the
+    proposals were read (``read``: stored rows read, families recomputed, rows stored)."""
+    from tracker.services.cascade import _variant_rereview
+    from tracker.services.recall import _Frames
+    from tracker.store import repository as repo
+    from tracker.store.database import reading
+
+    props, family_of, affected, trend, how = proposals_for(engine, end, on, conf, rule_set, policy, today)
+    out = lists(props, family_of, affected, trend, start, end, on, slots)
+    with reading(engine) as conn:
+        variants = repo.load_variants(conn)
+    frames = _Frames(None, None, variants, None, None, None, frozenset())  # type: ignore[arg-type]
+    out["variant_rereview"] = _variant_rereview(frames, on, conf.cascade.variant_rereview_months)
+    out["read"] = how
+    return out
 
 
 def csv_text(rows: list[dict]) -> str:

@@ -185,6 +185,7 @@ def edit_person(conn: Connection, code: str, changes: dict[str, str], *, reason:
     after = {f: _plain(new[f]) for f in changes}
     what = f"person {code}: " + ", ".join(f"{f} changed (private: value not shown)" if PERSON_FIELDS[f].private
                                           else f"{f} {before[f]!r} -> {after[f]!r}" for f in changes)  # fmt: skip
+    _refresh(conn, family)
     entry = audit.record(conn, action="edit", table="person", row_id=row.id, family=family, person=code,
                          what=f"corrected {', '.join(changes)} of person {code}", before=before, after=after,
                          reason=reason, user=user)  # fmt: skip
@@ -266,6 +267,7 @@ def edit_study(conn: Connection, person: str, study_date: str, modality: str, ch
     new = _study_fields(conn, srow.id)
     before = {f: old[f] for f in changes}
     after = {f: new[f] for f in changes}
+    _refresh(conn, prow.family)
     entry = audit.record(conn, action="edit", table="study", row_id=srow.id, family=prow.family, person=person,
                          what=f"corrected {', '.join(changes)} of study {label}", before=before, after=after,
                          reason=reason, user=user)  # fmt: skip
@@ -307,6 +309,7 @@ def edit_value(conn: Connection, person: str, study_date: str, modality: str, me
     _refuse_new_findings(conn, prow.family, checks_before)
     before = {"measure": measure, "value": m.entered_value, "unit": m.entered_unit}
     after = {"measure": measure, "value": number, "unit": entered_unit}
+    _refresh(conn, prow.family)
     entry = audit.record(conn, action="edit", table="measurement", row_id=m.id, family=prow.family, person=person,
                          what=f"corrected {measure} of study {label}", before=before, after=after,
                          reason=reason, user=user)  # fmt: skip
@@ -347,6 +350,7 @@ def edit_assessment(conn: Connection, person: str, assessment_date: str, changes
     new = _assessment_fields(conn, aid)
     before = {f: old[f] for f in changes}
     after = {f: new[f] for f in changes}
+    _refresh(conn, prow.family)
     entry = audit.record(conn, action="edit", table="assessment", row_id=aid, family=prow.family, person=person,
                          what=f"corrected {', '.join(changes)} of assessment {label}", before=before, after=after,
                          reason=reason, user=user)  # fmt: skip
@@ -406,11 +410,20 @@ def _set_removed(conn, model, row_id: int, remove: bool, *, reason, user, family
     else:
         values = {"removed_at": None, "removed_by": None, "removed_reason": None}
     conn.execute(update(model).where(model.id == row_id).values(**values))
+    _refresh(conn, family)
     action = "remove" if remove else "reinstate"
     entry = audit.record(conn, action=action, table=model.__tablename__, row_id=row_id, family=family,
                          person=person, what=f"{'removed' if remove else 'reinstated'} {label}",
                          before=before, after=values, reason=reason, user=user)  # fmt: skip
     return Change(entry, f"{label}: {'removed' if remove else 'reinstated'}", before, values)
+
+
+def _refresh(conn: Connection, family: str) -> None:
+    """Recompute the family's stored recall proposals in the edit's transaction (every write that
+    can change a proposal does: :func:`tracker.services.proposals.refresh_families`)."""
+    from tracker.services.proposals import refresh_families
+
+    refresh_families(conn, [family])
 
 
 def removed(conn: Connection) -> pd.DataFrame:

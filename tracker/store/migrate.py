@@ -7,17 +7,31 @@ database at an older revision is never migrated silently: commands other than
 
 from __future__ import annotations
 
+import importlib
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-from alembic.config import Config
-from alembic.runtime.migration import MigrationContext
-from alembic.script import ScriptDirectory
-from alembic import command
 from sqlalchemy import Connection, Engine
 
 import tracker
 from tracker.errors import UserError
 from tracker.store.database import writing
+
+if TYPE_CHECKING:
+    from alembic.config import Config
+
+# Alembic is loaded when a revision is read or changed, not when the command line starts
+# (it took about half of `tracker --help`); `migrate.ScriptDirectory` etc. still resolve.
+_ALEMBIC = {"Config": "alembic.config", "MigrationContext": "alembic.runtime.migration",
+            "ScriptDirectory": "alembic.script"}  # fmt: skip
+
+
+def __getattr__(name: str):
+    if name in _ALEMBIC:
+        return getattr(importlib.import_module(_ALEMBIC[name]), name)
+    if name == "command":
+        return importlib.import_module("alembic.command")
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 def migrations_dir() -> Path:
@@ -30,6 +44,8 @@ def migrations_dir() -> Path:
 
 
 def alembic_config(connection: Connection | None = None) -> Config:
+    from alembic.config import Config
+
     cfg = Config()
     cfg.set_main_option("script_location", str(migrations_dir()))
     if connection is not None:
@@ -38,15 +54,21 @@ def alembic_config(connection: Connection | None = None) -> Config:
 
 
 def head_revision() -> str:
+    from alembic.script import ScriptDirectory
+
     return ScriptDirectory.from_config(alembic_config()).get_current_head()
 
 
 def current_revision(conn: Connection) -> str | None:
+    from alembic.runtime.migration import MigrationContext
+
     return MigrationContext.configure(conn).get_current_revision()
 
 
 def upgrade(engine: Engine, target: str = "head") -> tuple[str | None, str]:
     """Upgrade to ``target`` in one transaction; returns (revision before, revision after)."""
+    from alembic import command
+
     with writing(engine) as conn:
         before = current_revision(conn)
         command.upgrade(alembic_config(conn), target)
@@ -56,6 +78,8 @@ def upgrade(engine: Engine, target: str = "head") -> tuple[str | None, str]:
 
 def downgrade(engine: Engine, target: str) -> tuple[str | None, str | None]:
     """Downgrade to ``target`` (``"base"`` for an empty database) in one transaction."""
+    from alembic import command
+
     try:
         with writing(engine) as conn:
             before = current_revision(conn)
@@ -74,6 +98,8 @@ def require_current(conn: Connection, where: str) -> None:
         return
     if rev is None:
         raise UserError(f"{where} has no tracker schema: run `tracker init` first")
+    from alembic.script import ScriptDirectory
+
     known = {s.revision for s in ScriptDirectory.from_config(alembic_config()).walk_revisions()}
     if rev not in known:
         raise UserError(

@@ -392,3 +392,34 @@ class WebSession(Base):
     last_seen_at: Mapped[dt.datetime] = mapped_column(DateTime)
     ended_at: Mapped[dt.datetime | None] = mapped_column(DateTime)
     end_reason: Mapped[str | None] = mapped_column(String(20))
+
+
+class RecallProposal(Base):
+    """Each person's current recall proposal (migration 0011): derived data, kept for the worklist.
+
+    Written by :func:`tracker.services.proposals.refresh_families` in the transaction of every
+    write that can change it; read by the worklist (:mod:`tracker.services.worklist`), which
+    recomputes the rows that are stale, computed under other inputs or past ``valid_until``.
+    ``reasons`` is the whole proposal as JSON text; ``inputs_version`` is
+    ``<rule set and settings hash>-<family records hash>``.
+    """
+
+    __tablename__ = "recall_proposal"
+    __table_args__ = (
+        CheckConstraint("state IN ('due','overdue','released','not_recalled','not_scheduled')", name="state"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    person_id: Mapped[int] = mapped_column(ForeignKey("person.id"), unique=True)
+    family_id: Mapped[int] = mapped_column(ForeignKey("family.id"), index=True)
+    state: Mapped[str] = mapped_column(String(20))
+    rule_id: Mapped[str | None] = mapped_column(String(80))
+    interval_months: Mapped[int | None] = mapped_column(Integer)
+    due_on: Mapped[dt.date | None] = mapped_column(Date, index=True)
+    as_of: Mapped[dt.date] = mapped_column(Date)
+    reasons: Mapped[str] = mapped_column(Text)
+    inputs_version: Mapped[str] = mapped_column(String(80))
+    computed_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    valid_until: Mapped[dt.date] = mapped_column(Date, index=True)
+    stale: Mapped[bool] = mapped_column(Boolean)
+    trend_values: Mapped[bool] = mapped_column(Boolean)

@@ -107,3 +107,13 @@ def require_to(request: Request, action: str) -> AC.User:
         raise Refused(f"only the role {' or '.join(roles_for(action)) or '(none)'} may {ACTION_WORDS.get(action, action)}; "
                       f"you are signed in as {user.role}. Nothing was changed.")  # fmt: skip
     return user
+
+
+def audit_read(request: Request, *, family: str | None = None, person: str | None = None, what: str) -> None:
+    """Append a read entry for the signed-in user (a page showing a family or a person calls this).
+
+    One write transaction of its own; see :func:`tracker.services.accounts.audit_read`.
+    """
+    user = current_user(request)
+    with writing(engine(request)) as conn:
+        AC.audit_read(conn, user, family=family, person=person, what=what, now=now(request))

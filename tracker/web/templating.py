@@ -48,11 +48,19 @@ def render(request: Request, name: str, context: dict | None = None, status_code
     return response
 
 
-def field_errors(exc) -> dict[str, list[str]]:
-    """An :class:`tracker.io.reading.InputRejected` as {form field: [messages]}; "" for the form as a whole."""
+def field_errors(exc, fields=None) -> dict[str, list[str]]:
+    """An :class:`tracker.io.reading.InputRejected` as {form field: [messages]}; "" for the form as a whole.
+
+    With ``fields`` (the names the form shows), a problem about any other column is shown at the
+    top of the form, with the column named, so no message is lost.
+    """
     out: dict[str, list[str]] = {}
     for p in exc.problems:
-        out.setdefault(p.column or "", []).append(p.message)
+        key = p.column or ""
+        if fields is not None and key and key not in fields:
+            out.setdefault("", []).append(f"{key}: {p.message}")
+        else:
+            out.setdefault(key, []).append(p.message)
     return out
 
 

@@ -30,8 +30,12 @@ REASONS = {
     "contact_gap": "contact gaps",
     "task": "reclassification tasks",
 }
-CONTACT_CHANNELS = ("phone", "letter", "email", "in_person", "via_relative")
-CONTACT_OUTCOMES = ("reached", "no_answer", "message_left", "declined", "wrong_details")
+# The contact log's words (tracker.domain.vocabulary CONTACT_CHANNELS and the outcomes a user enters);
+# the service checks them again.
+CONTACT_CHANNELS = ("phone", "letter", "in_clinic", "via_family", "other")
+CONTACT_OUTCOMES = ("informed", "no_answer", "wrong_address", "declined", "contact_later", "moved_away")
+CONTACT_FIELDS = ("on", "channel", "outcome", "later", "via", "notes")
+BOOKING_FIELDS = ("on", "purpose", "notes")
 
 
 def contacts_available() -> bool:
@@ -103,8 +107,9 @@ def day_data(request: Request, f: dict) -> dict:
 
     conf, rule_set, policy = SV.recall_rules(request.app.state.settings_path, None)
     on = auth.now(request).date()
+    lists = SW.nurse_worklist(auth.engine(request), f["from"], f["to"], on, conf, rule_set, policy,
+                              conf.slots_per_week)
     with reading(auth.engine(request)) as conn:
-        lists = SW.worklist(conn, conf, rule_set, policy, f["from"], f["to"], on, conf.slots_per_week)
         families = TS.list_tasks(conn, None) if f["reason"] in ("", "task") else []
     rows = [r for r in lists["due"] + lists["affected"] + lists["contact_gaps"] if _matches(r, f)]
     rows.sort(key=_urgency)
@@ -243,6 +248,13 @@ def _date_field(form, name: str, errors: dict) -> dt.date | None:
         return None
 
 
+def _today(request: Request, service) -> dict:
+    """The app's day as ``today=`` when the service takes it (so tests can move the clock)."""
+    import inspect
+
+    return {"today": auth.now(request).date()} if "today" in inspect.signature(service).parameters else {}
+
+
 def record_contact(request: Request):
     from tracker.io.reading import InputRejected
 
@@ -252,19 +264,22 @@ def record_contact(request: Request):
     from tracker.services import contacts as SC
 
     person, form = _person(request), request.state.form
-    values = {k: _text(form, k) or "" for k in ("on", "channel", "outcome", "notes")}
+    values = {k: _text(form, k) or "" for k in CONTACT_FIELDS}
     errors: dict[str, list[str]] = {}
     on = _date_field(form, "on", errors)
+    later = _date_field(form, "later", errors) if values["later"] else None
     for name in ("channel", "outcome"):
         if not values[name]:
             errors.setdefault(name, []).append("choose one")
     if not errors:
+        via_family = values["channel"] == "via_family"
         try:
             with writing(auth.engine(request)) as conn:
-                SC.record_contact(conn, person, on=on, channel=values["channel"], by=user.name,
-                                  outcome=values["outcome"], notes=values["notes"] or None, user=user.name)  # fmt: skip
+                SC.record_contact(conn, person, on=on, channel=values["channel"], by=None if via_family else user.role,
+                                  outcome=values["outcome"], notes=values["notes"] or None, later=later,
+                                  via=values["via"] or None, user=user.name, **_today(request, SC.record_contact))  # fmt: skip
         except InputRejected as exc:
-            errors = field_errors(exc)
+            errors = field_errors(exc, CONTACT_FIELDS)
     values["_what"] = "contact recorded"
     return _row_form_result(request, "day_contact.html", person, values, errors)
 
@@ -287,9 +302,9 @@ def record_booking(request: Request):
         try:
             with writing(auth.engine(request)) as conn:
                 SC.record_booking(conn, person, on=on, purpose=values["purpose"], user=user.name,
-                                  notes=values["notes"] or None)  # fmt: skip
+                                  notes=values["notes"] or None, **_today(request, SC.record_booking))  # fmt: skip
         except InputRejected as exc:
-            errors = field_errors(exc)
+            errors = field_errors(exc, BOOKING_FIELDS)
     values["_what"] = "visit booked"
     return _row_form_result(request, "day_booking.html", person, values, errors)
 

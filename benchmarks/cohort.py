@@ -1,11 +1,11 @@
 """Benchmark on a synthetic cohort: generation, import, whole-cohort trends, memory.
 
-Run by hand (the test suite runs it once on a 30-family cohort to check that
+Run by hand (from the repository root; the test suite runs it once on a 30-family cohort to check that
 every step works, and never asserts a time)::
 
-    .venv/bin/python -m tracker.bench --families 1000
-    .venv/bin/python -m tracker.bench --families 10000 --json bench.json
-    .venv/bin/python -m tracker.bench --db postgresql+psycopg://root@127.0.0.1:5432/test
+    .venv/bin/python -m benchmarks.cohort --families 1000
+    .venv/bin/python -m benchmarks.cohort --families 10000 --json bench.json
+    .venv/bin/python -m benchmarks.cohort --db postgresql+psycopg://root@127.0.0.1:5432/test
 
 Every figure and ratio printed is measured in the one run.  The benchmark is
 a list of :class:`Step` objects (``STEPS``) run in order on one shared
@@ -45,6 +45,9 @@ reclassification
             what ``tracker reclassify --dry-run`` computes for the variant of the
             largest single-variant family (impact on each relative, tasks), with
             a 1x store (every tenth family, plus that family) and the whole one
+proposals   the stored recall proposals (``benchmarks/worklist_bench.py``): ``recall --refresh``
+            against the trend step, the worklist for a 90-day window read from the store
+            against the query that reads the rows it lists, and the worklist recomputed
 per_person  ``tracker person``, ``recall``, ``cascade``, ``reclassify --dry-run`` and
             ``report trajectory`` (in-process, ``--json``, best of three after one
             untimed run) on the largest single-variant family and its member with the
@@ -562,8 +565,8 @@ def step_statsmodels(r: Run) -> dict:
 
 
 def _recall_frames(r: Run):
-    """The store frames the recall commands load (``tracker.cli.recall._load``), loaded once per run."""
-    from tracker.cli import recall
+    """The store frames the recall commands load (``tracker.services.recall._load``), loaded once per run."""
+    from tracker.services import recall
     from tracker.store.database import reading
 
     if "recall" not in r.frames:
@@ -612,10 +615,10 @@ WORKLIST_SLOTS = 50  # weekly capacity used for the booking part (the command bo
 
 def _worklist(frames, conf, rule_set, policy, start: dt.date, end: dt.date, on: dt.date) -> tuple[int, int]:
     """What ``tracker worklist --from start --to end --slots-per-week N`` computes, without rendering."""
-    from tracker.cli import recall
     from tracker.engines.worklist import book_into_slots, lost_to_follow_up, not_recalled
+    from tracker.services.worklist import due_proposals
 
-    screening, affected, _family_of, _trend, proposals = recall.due_proposals(
+    screening, affected, _family_of, _trend, proposals = due_proposals(
         frames, conf, rule_set, policy, start, end, on)  # fmt: skip
     weeks = -(-((end - start).days + 1) // 7)
     book_into_slots(screening, start, weeks, WORKLIST_SLOTS)
@@ -649,7 +652,7 @@ def _growth_exponent(sizes: list[int], times: list[float]) -> dict:
 
 
 def step_worklist(r: Run) -> dict:
-    from tracker.cli import recall
+    from tracker.services import recall
 
     frames, t_load = _recall_frames(r)
     conf, rule_set, policy = recall._recall_rules(None, None)
@@ -685,7 +688,7 @@ def step_worklist(r: Run) -> dict:
 
 def _impact(frames, family: str, new_class: str, rule_set, policy, on: dt.date):
     """What ``tracker reclassify FAMILY --to NEW --dry-run`` computes for the family's variant, without writing."""
-    from tracker.cli import recall
+    from tracker.services import cascade, recall
     from tracker.engines import family_state as fs
     from tracker.engines.reclassification import impact_of_reclassification
 
@@ -697,7 +700,7 @@ def _impact(frames, family: str, new_class: str, rule_set, policy, on: dt.date):
         fs.with_shown_statuses(
             impact_of_reclassification(state.pedigree, state.results, v.current_class, new_class, screening,
                                        variant=v.key, affected=state.affected, history=v.history,
-                                       contact_dates=recall._contact_dates(frames, family), on=on),
+                                       contact_dates=cascade._contact_dates(frames, family), on=on),
             state, v.current_class, new_class),
         state,
     )  # fmt: skip
@@ -705,7 +708,7 @@ def _impact(frames, family: str, new_class: str, rule_set, policy, on: dt.date):
 
 
 def step_reclassification(r: Run) -> dict:
-    from tracker.cli import recall
+    from tracker.services import recall
     from tracker.engines import family_state as fs
 
     frames, t_load = _recall_frames(r)
@@ -742,9 +745,25 @@ def _cli(argv: list[str]) -> int:
         return cli_main(argv)
 
 
+def _stores(r: Run) -> dict[int, str]:
+    """``--stores 100=PATH,1000=PATH``: stores made earlier (`tracker synth --families N --seed 1`,
+    `tracker import all`), by size."""
+    out = {}
+    for part in (getattr(r.args, "stores", None) or "").split(","):
+        if part.strip():
+            n, _, path = part.partition("=")
+            out[int(n)] = path
+    return out
+
+
 def _per_person_store(r: Run, n: int) -> str:
-    """A new SQLite store of a synthetic cohort of ``n`` families (seed of the run), imported by the CLI."""
+    """The store of ``n`` families given by ``--stores``, else a new SQLite store of a synthetic cohort
+    of ``n`` families (seed of the run), imported by the CLI."""
+    if n in _stores(r):
+        return _stores(r)[n]
     folder = r.workdir / f"per-person-{n}"
+    if (folder / "store.sqlite").exists() and (folder / "cohort").exists():  # made by an earlier step of the run
+        return str(folder / "store.sqlite")
     synth.write(synth.generate(n, r.args.seed), folder / "cohort")
     db = str(folder / "store.sqlite")
     for argv in (["init", "--db", db], ["import", "all", str(folder / "cohort"), "--db", db]):
@@ -774,6 +793,26 @@ def _per_person_subject(db: str) -> tuple[str, str, str]:
     return family, person, "uncertain_significance" if current != "uncertain_significance" else "likely_pathogenic"
 
 
+# The invented demo clinic's settings (a letter needs the clinic's contact details).
+CLINIC = str(Path(__file__).resolve().parent.parent / "demo_family" / "clinic.toml")
+
+
+def _letter_subject(db: str, family: str, pdf_dir: str, today: str) -> str:
+    """The first member of ``family`` (by code) who gets a family letter (not affected, living, ...)."""
+    from tracker.store import repository as repo
+    from tracker.store.database import locate, make_engine, reading
+
+    engine = make_engine(locate(db))
+    with reading(engine) as conn:
+        members = sorted(repo.load_people(conn, repo.Scope.families([family]))["person"])
+    engine.dispose()
+    for code in members:
+        if _cli(["report", "letter", code, "--out", pdf_dir, "--date", today, "--settings", CLINIC, "--db", db,
+                 "--json"]) == 0:
+            return code
+    raise SystemExit(f"per_person: no member of {family} gets a family letter")
+
+
 def step_per_person(r: Run) -> dict:
     """Per-person and per-family commands (person, recall, cascade, reclassify --dry-run, report
     trajectory) on one person/family of stores of each size in ``--per-person-sizes``: each reads
@@ -782,6 +821,7 @@ def step_per_person(r: Run) -> dict:
     size alike); the shortest time counts."""
     sizes = [int(x) for x in r.args.per_person_sizes.split(",")]
     today = dt.date.today().isoformat()
+    rounds = getattr(r.args, "rounds", None) or PER_PERSON_ROUNDS
     out: dict = {"sizes": sizes}
     runs: dict[int, dict[str, list[str]]] = {}
     for n in sizes:
@@ -795,6 +835,10 @@ def step_per_person(r: Run) -> dict:
             "reclassify_dry_run": ["reclassify", family, "--to", new, "--date", today, "--reason", "benchmark",
                                    "--dry-run"],
             "report_trajectory": ["report", "trajectory", person, "--out", pdf_dir],
+            "trends_family": ["trends", "--family", family],
+            "report_pedigree": ["report", "pedigree", family, "--out", pdf_dir],
+            "report_letter": ["report", "letter", _letter_subject(db, family, pdf_dir, today), "--out", pdf_dir,
+                              "--date", today, "--settings", CLINIC],
         }  # fmt: skip
         out[f"subject_{n}"] = f"{family} / {person}"
         runs[n] = {name: argv + ["--db", db, "--json"] for name, argv in commands.items()}
@@ -803,7 +847,7 @@ def step_per_person(r: Run) -> dict:
             if code != 0:
                 raise SystemExit(f"per_person: `tracker {' '.join(argv)}` exited {code}")
     best: dict[tuple[str, int], float] = {}
-    for _ in range(PER_PERSON_ROUNDS):
+    for _ in range(rounds):
         for n in sizes:
             for name, argv in runs[n].items():
                 _, t = _timed(_cli, argv)
@@ -815,7 +859,213 @@ def step_per_person(r: Run) -> dict:
     for n in sizes[1:]:
         for name in names:
             out[f"{name}_ratio_{n}_over_{sizes[0]}"] = best[name, n] / best[name, sizes[0]]
+    if len(sizes) > 1:
+        out["worst_ratio_largest_over_smallest"] = max(out[f"{name}_ratio_{sizes[-1]}_over_{sizes[0]}"] for name in names)
     return out
+
+# --------------------------------------------------------------------------- command against its floor
+
+FLOOR_ROUNDS = 3  # timed runs of a command and of its floor, alternating; the shortest of each counts
+
+# One aggregate query over the tables `tracker families` reads: per family the members, genotype
+# results, studies (count, first, last) and the variants at their latest class.
+FAMILIES_SQL = """
+WITH m AS (SELECT family_id, count(*) AS n, max(is_proband) AS proband FROM person
+           WHERE removed_at IS NULL AND NOT is_placeholder GROUP BY family_id),
+     g AS (SELECT p.family_id, sum(g.result = 'carrier') AS carriers, sum(g.result = 'non_carrier') AS non_carriers,
+                  sum(g.result = 'no_variant_found') AS none_found
+           FROM genetic_result g JOIN person p ON p.id = g.person_id WHERE p.removed_at IS NULL GROUP BY p.family_id),
+     s AS (SELECT p.family_id, count(*) AS n, min(s.study_date) AS first, max(s.study_date) AS last
+           FROM study s JOIN person p ON p.id = s.person_id
+           WHERE s.removed_at IS NULL AND p.removed_at IS NULL GROUP BY p.family_id),
+     v AS (SELECT v.family_id, group_concat(v.gene || ' ' || v.transcript || ':' || v.hgvs_c || ' (' || c.acmg_class || ')',
+                                            '; ') AS variants
+           FROM variant v JOIN variant_classification c ON c.variant_id = v.id
+           WHERE c.classified_on = (SELECT max(classified_on) FROM variant_classification WHERE variant_id = v.id)
+           GROUP BY v.family_id)
+SELECT f.code, f.condition, m.n, m.proband, v.variants, g.carriers, g.non_carriers, g.none_found, s.n, s.first, s.last
+FROM family f LEFT JOIN m ON m.family_id = f.id LEFT JOIN g ON g.family_id = f.id
+     LEFT JOIN s ON s.family_id = f.id LEFT JOIN v ON v.family_id = f.id
+ORDER BY f.code
+"""
+
+
+def _sqlite_path(db: str) -> str:
+    from tracker.store.database import locate
+
+    path = locate(db).sqlite_path
+    if path is None:
+        raise SystemExit("this step measures SQLite stores (give --stores with SQLite files)")
+    return str(path)
+
+
+def _families_floor(path: str) -> int:
+    with sqlite3.connect(path) as con:
+        return len(con.execute(FAMILIES_SQL).fetchall())
+
+
+def _check_floor(path: str) -> int:
+    """PRAGMA integrity_check, PRAGMA foreign_key_check and the orphan-row count of every foreign key
+    (the queries `tracker check` runs on the file itself)."""
+    from tracker.store.models import Base
+
+    con = sqlite3.connect(path)
+    try:
+        n = len(con.execute("PRAGMA integrity_check").fetchall())
+        n += len(con.execute("PRAGMA foreign_key_check").fetchall())
+        for table in Base.metadata.sorted_tables:
+            for fk in table.foreign_keys:
+                col, parent = fk.parent, fk.column
+                n += con.execute(
+                    f'SELECT count(*) FROM "{table.name}" c LEFT JOIN "{parent.table.name}" p '
+                    f'ON c."{col.name}" = p."{parent.name}" '
+                    f'WHERE c."{col.name}" IS NOT NULL AND p."{parent.name}" IS NULL').fetchone()[0]
+    finally:
+        con.close()
+    return n
+
+
+def _against_floor(r: Run, name: str, argv: list[str], floor, max_ratio: float) -> dict:
+    """A command (in-process, --json) against its floor, on each store size; best of FLOOR_ROUNDS each."""
+    sizes = [int(x) for x in r.args.per_person_sizes.split(",")]
+    rounds = getattr(r.args, "rounds", None) or FLOOR_ROUNDS
+    out: dict = {"sizes": sizes, "target_ratio": max_ratio}
+    for n in sizes:
+        db = _per_person_store(r, n)
+        path = _sqlite_path(db)
+        full = argv + ["--db", db, "--json"]
+        if n == sizes[0]:  # warm-up on the smallest store (imports, caches), not timed
+            _cli(full)  # (the exit code of `check` is 1 when it finds something)
+        floor(path)  # and the file into the page cache for both
+        best_cmd = best_floor = float("inf")
+        for _ in range(rounds):
+            best_cmd = min(best_cmd, _timed(_cli, full)[1])
+            best_floor = min(best_floor, _timed(floor, path)[1])
+        out[f"{name}_{n}_s"] = best_cmd
+        out[f"floor_{n}_s"] = best_floor
+        out[f"ratio_{n}"] = best_cmd / best_floor
+    out["ratio_largest"] = out[f"ratio_{sizes[-1]}"]
+    return out
+
+
+def step_families_sql(r: Run) -> dict:
+    """`tracker families --json` against one aggregate SQL query over the same tables (sqlite3)."""
+    return _against_floor(r, "families", ["families"], _families_floor, 3.0)
+
+
+def step_check_sql(r: Run) -> dict:
+    """`tracker check --json` against SQLite's integrity and foreign-key checks plus the orphan queries."""
+    return _against_floor(r, "check", ["check"], _check_floor, 3.0)
+
+
+def _bare_app_source() -> str:
+    """A typer app with the tracker's command tree (names, help, options) and nothing else."""
+    import click
+    import typer.main
+
+    from tracker.cli.app import app
+
+    root = typer.main.get_command(app)
+    lines = ["import typer", "", "app = typer.Typer(name='tracker', help=" + repr(root.help or "") + ", "
+             "no_args_is_help=True, add_completion=False, context_settings={'help_option_names': ['-h', '--help']})", ""]
+    counter = [0]
+
+    def params(cmd) -> str:
+        out = []
+        for p in cmd.params:
+            if p.name in ("help",):
+                continue
+            if p.param_type_name == "argument":
+                out.append(f"{p.name}: str = typer.Argument(..., help={getattr(p, 'help', '')!r})")
+            elif getattr(p, "is_flag", False):
+                out.append(f"{p.name}: bool = typer.Option(False, {', '.join(repr(o) for o in p.opts)}, help={p.help!r})")
+            else:
+                out.append(f"{p.name}: str = typer.Option(None, {', '.join(repr(o) for o in p.opts)}, help={p.help!r})")
+        return ", ".join(out)
+
+    def add(group_var: str, cmd) -> None:
+        for name, sub in sorted(cmd.commands.items()):
+            counter[0] += 1
+            fn = f"c{counter[0]}"
+            if isinstance(sub, click.Group):
+                var = f"g{counter[0]}"
+                lines.append(f"{var} = typer.Typer(help={sub.help!r}, invoke_without_command=True)")
+                lines.append(f"{group_var}.add_typer({var}, name={name!r})")
+                lines.append(f"@{var}.callback()")
+                lines.append(f"def {fn}({params(sub)}):\n    pass")
+                add(var, sub)
+            else:
+                lines.append(f"@{group_var}.command({name!r}, help={sub.help!r})")
+                lines.append(f"def {fn}({params(sub)}):\n    pass")
+            lines.append("")
+
+    add("app", root)
+    lines += ["", "if __name__ == '__main__':", "    app()"]
+    return "\n".join(lines) + "\n"
+
+
+def _wall(argv: list[str]) -> float:
+    import subprocess
+
+    t0 = time.perf_counter()
+    subprocess.run(argv, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, check=True)
+    return time.perf_counter() - t0
+
+
+def _tracker_argv() -> list[str]:
+    script = Path(sys.executable).parent / "tracker"
+    return [str(script)] if script.exists() else [sys.executable, "-m", "tracker.cli.app"]
+
+
+def step_help(r: Run) -> dict:
+    """`tracker --help` (a new process) against a bare typer app with the same command tree."""
+    bare = r.workdir / "bare_app.py"
+    bare.write_text(_bare_app_source(), encoding="utf-8")
+    rounds = max(getattr(r.args, "rounds", None) or 0, 5)
+    tracker_cmd, bare_cmd = _tracker_argv() + ["--help"], [sys.executable, str(bare), "--help"]
+    _wall(tracker_cmd), _wall(bare_cmd)  # warm-up (file cache)
+    best_t = best_b = float("inf")
+    for _ in range(rounds):
+        best_t = min(best_t, _wall(tracker_cmd))
+        best_b = min(best_b, _wall(bare_cmd))
+    return {"tracker_help_s": best_t, "bare_typer_help_s": best_b, "ratio": best_t / best_b, "rounds": rounds}
+
+
+def _peak_child(argv: list[str]) -> tuple[float, float]:
+    """(wall time s, peak resident memory MB) of one new process (os.wait4 gives its own rusage)."""
+    import subprocess
+
+    t0 = time.perf_counter()
+    proc = subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    _pid, status, usage = os.wait4(proc.pid, 0)
+    proc.returncode = os.waitstatus_to_exitcode(status)
+    if proc.returncode != 0:
+        raise SystemExit(f"`{' '.join(argv)}` exited {proc.returncode}")
+    return time.perf_counter() - t0, usage.ru_maxrss / 1024.0
+
+
+def step_trends_memory(r: Run) -> dict:
+    """Peak memory of `tracker trends --json` (the whole cohort, output to /dev/null) in its own process."""
+    sizes = [int(x) for x in r.args.per_person_sizes.split(",")]
+    out: dict = {"sizes": sizes}
+    for n in sizes:
+        db = _per_person_store(r, n)
+        t, mb = _peak_child(_tracker_argv() + ["trends", "--json", "--db", db])
+        out[f"trends_json_{n}_s"], out[f"trends_json_{n}_peak_rss_mb"] = t, mb
+    out["peak_rss_mb_largest"] = out[f"trends_json_{sizes[-1]}_peak_rss_mb"]
+    return out
+
+
+def step_proposals(r: Run) -> dict:
+    """The stored recall proposals on the imported cohort: ``benchmarks/worklist_bench.py``
+    (worklist for a 90-day window vs reading the rows it lists; ``recall --refresh`` vs the trend step)."""
+    from benchmarks import worklist_bench as wb
+    from tracker.services.recall import recall_rules
+
+    conf, rule_set, policy = recall_rules(None, None)
+    return wb.measure_proposals(_existing_engine(r), dt.date.today(), conf, rule_set, policy,
+                                trend_engine_s=r.fig("trends", "engine_s"))  # fmt: skip
+
 
 def step_memory(r: Run) -> dict:
     return {"peak_rss_mb": _rss_mb()}
@@ -833,8 +1083,15 @@ STEPS: list[Step] = [
          step_worklist, uses=("recall", "recall_load_s")),
     Step("reclassification", "reclassification impact for the variant of the largest family, 1/10 vs all",
          step_reclassification, uses=("recall", "recall_load_s")),
+    Step("proposals", "stored recall proposals: worklist for 90 days vs reading the rows it lists; "
+         "recall --refresh vs the trend step (benchmarks/worklist_bench.py)", step_proposals),
     Step("per_person", "person, recall, cascade, reclassify --dry-run and report trajectory on one person/family, "
          "stores of --per-person-sizes families", step_per_person),
+    Step("families_sql", "`tracker families` against one aggregate SQL query, on the per_person sizes", step_families_sql),
+    Step("check_sql", "`tracker check` against SQLite's integrity and key checks, on the per_person sizes", step_check_sql),
+    Step("help", "`tracker --help` against a bare typer app with the same command tree", step_help),
+    Step("trends_memory", "peak memory of `tracker trends --json` on the whole cohort, on the per_person sizes",
+         step_trends_memory),
     Step("memory", "peak resident memory of the process", step_memory),
 ]
 
@@ -852,6 +1109,15 @@ TARGETS = [
      "worklist time grows as the cohort size to a power of at most 1 (log-log fit over four sizes)"),
     ("reclassification", "time_ratio_per_size", "<=", 1.0,
      "reclassification impact time grows linearly or better with the cohort"),
+    ("per_person", "worst_ratio_largest_over_smallest", "<=", 1.5,
+     "per-person and per-family commands: time on the largest store at most 1.5x the smallest's"),
+    ("families_sql", "ratio_largest", "<=", 3.0, "`tracker families` within 3x one aggregate SQL query"),
+    ("check_sql", "ratio_largest", "<=", 3.0, "`tracker check` within 3x SQLite's integrity, key and orphan checks"),
+    ("help", "ratio", "<=", 3.0, "`tracker --help` within 3x a bare typer app with the same commands"),
+    ("trends_memory", "peak_rss_mb_largest", "<=", 1024.0, "`tracker trends --json` on the whole cohort under 1 GB"),
+    ("proposals", "worklist_over_read", "<=", 3.0,
+     "worklist for a 90-day window within 3x reading the stored proposals it lists"),
+    ("proposals", "refresh_over_trends", "<=", 3.0, "full recall --refresh within 3x the trend step"),
     ("memory", "peak_rss_mb", "<=", 2048.0, "peak memory under 2 GB"),
 ]
 
@@ -875,7 +1141,7 @@ def _fmt(v) -> str:
 
 
 def parse_args(argv: list[str] | None = None) -> argparse.Namespace:
-    p = argparse.ArgumentParser(prog="python -m tracker.bench", description=__doc__.split("\n\n")[0])
+    p = argparse.ArgumentParser(prog="python -m benchmarks.cohort", description=__doc__.split("\n\n")[0])
     p.add_argument("--families", type=int, default=10_000, help="families in the synthetic cohort (default 10000)")
     p.add_argument("--seed", type=int, default=1, help="seed of the cohort and of the statsmodels sample")
     p.add_argument("--db", default=None,
@@ -891,6 +1157,11 @@ def parse_args(argv: list[str] | None = None) -> argparse.Namespace:
                    "default: the whole cohort), and a tenth of them as the 1x cohort")
     p.add_argument("--per-person-sizes", default="100,1000",
                    help="per_person step: comma-separated store sizes in families (default 100,1000)")
+    p.add_argument("--stores", default=None,
+                   help="per_person, families_sql, check_sql, trends_memory: reuse stores by size, "
+                   "e.g. 100=/tmp/s100.sqlite,1000=/tmp/s1000.sqlite (default: make them)")
+    p.add_argument("--rounds", type=int, default=None,
+                   help="timed runs per command in per_person, families_sql, check_sql and help (default 3; help 5)")
     p.add_argument("--keep", action="store_true", help="keep the PostgreSQL schema (and the temp folder)")
     p.add_argument("--existing-db", default=None,
                    help="run the read/trends/statsmodels steps on this database instead of importing "
