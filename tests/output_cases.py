@@ -43,7 +43,17 @@ def cases() -> dict[str, list[str]]:
     return out
 
 
-class _FixedDate(datetime.date):
+_REAL_DATE = datetime.date
+
+
+class _AnyDate(type):
+    # Code that reads ``datetime.date`` while the patch is on (SQLAlchemy's SQLite date type
+    # checks isinstance against it) must still take real dates, e.g. ``date.max``.
+    def __instancecheck__(cls, obj):
+        return isinstance(obj, _REAL_DATE)
+
+
+class _FixedDate(datetime.date, metaclass=_AnyDate):
     @classmethod
     def today(cls):  # noqa: D102
         return cls(TODAY.year, TODAY.month, TODAY.day)

@@ -389,3 +389,13 @@ def test_every_role_reads_the_lists(browser, role):
     nav = client.get("/day").text
     assert ('href="/admin/accounts"' in nav) == (role == "admin")
     assert ('href="/import"' in nav) == (role == "admin")
+
+
+def test_vendored_htmx_is_the_recorded_version():
+    from pathlib import Path
+
+    import tracker.web
+
+    static = Path(tracker.web.__file__).parent / "static"
+    recorded = re.search(r"\| `htmx.min.js` \| [^|]+\| ([0-9.]+) \| 0BSD", (static / "VENDORED.md").read_text()).group(1)
+    assert f'version:"{recorded}"' in (static / "htmx.min.js").read_text()

@@ -41,10 +41,6 @@ ExportKind = Enum("ExportKind", {k.replace("-", "_"): k for k in (*IMPORT_ORDER,
 PROGRESS_THRESHOLD = 20_000  # rows; smaller files finish before a bar would be seen
 
 
-class _DryRun(Exception):
-    """Raised inside the transaction to roll back a dry run."""
-
-
 def _progress_bar(total: int):
     return Progress(
         TextColumn("{task.description}"),
@@ -96,20 +92,9 @@ def import_(
     with _progress_bar(total) as bar:
         task = bar.add_task(f"importing {path.name}", total=total)
         advance = lambda n: bar.advance(task, n)  # noqa: E731
-        try:
-            with writing(engine) as conn:
-                if kind == "fhir":
-                    from tracker.io import fhir_import
+        from tracker.services import imports as SI
 
-                    summaries = fhir_import.import_bundle(conn, path, user=user)
-                elif kind == "all":
-                    summaries = csv_import.import_folder(conn, path, user=user, progress=advance)
-                else:
-                    summaries = [csv_import.import_file(conn, kind, path, user=user, progress=advance)]
-                if dry_run:
-                    raise _DryRun
-        except _DryRun:
-            pass
+        summaries = SI.import_path(engine, kind, path, user=user, dry_run=dry_run, progress=advance)
     _report(summaries, dry_run, json_out)
 
 
@@ -359,8 +344,12 @@ def demo(
         if not serve:
             typer.echo("Next: `tracker families`, `tracker export people --out people.csv`, `tracker --help`")
     if serve:
+        import os
+
         from tracker.cli.web import run_server
 
+        if settings is None and not os.environ.get("TRACKER_SETTINGS"):
+            settings = folder / "clinic.toml"  # the invented demo clinic (letters need its contact details)
         if not json_out:
             typer.echo(f"Web interface: {result['address']}  (invented demonstration accounts; passwords shown once)")
             for a in result["accounts"]:

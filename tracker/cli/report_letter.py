@@ -30,12 +30,10 @@ if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays 
     from tracker.outputs import letter as L
 
 
-def _letter_variant(v: fs.VariantInfo | None) -> L.LetterVariant | None:
-    from tracker.outputs import letter as L
+def _letter_variant(v):
+    from tracker.services import documents as SD
 
-    if v is None:
-        return None
-    return L.LetterVariant(v.gene, v.transcript, v.hgvs_c, v.hgvs_p, v.zygosity, v.current_class, v.classified_on)
+    return SD.letter_variant(v)
 
 
 def _stored_name(people, person: str) -> str | None:
@@ -44,22 +42,10 @@ def _stored_name(people, person: str) -> str | None:
     return " ".join(parts) or None
 
 
-def _standing(state: fs.FamilyState, person: str) -> L.Standing:
-    """Where ``person`` stands with the clinic, from the family state's facts and results."""
-    from tracker.engines import family_state as fs
-    from tracker.outputs import letter as L
+def _standing(state, person):
+    from tracker.services import documents as SD
 
-    f = state.facts.get(person)
-    results = state.results
-    dates = []
-    if results is not None and len(results):
-        mine = results[results["person"] == person]
-        dates = [d for d in fs._dates(mine["test_date"].tolist()) if d is not None] if len(mine) else []
-    return L.Standing(
-        studied=bool(f and f.studied), tested=bool(f and f.tested), last_visit=f.last_visit if f else None,
-        result_on=max(dates) if dates else None, last_contact=f.last_contact if f else None,
-        reclassified_on=state.variant.class_changed_on if state.variant else None,
-    )  # fmt: skip
+    return SD.standing(state, person)
 
 
 def letter(

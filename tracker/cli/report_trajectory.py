@@ -48,20 +48,22 @@ if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays 
     from tracker.engines import risk
     from tracker.outputs import trajectory_pdf as T
 
-CHART_TITLES = {
-    "mwt_echo": "Maximal LV wall thickness, echo",
-    "mwt_cmr": "Maximal LV wall thickness, CMR",
-    "gls": "LV global longitudinal strain, echo",
-    "e_over_e_prime": "Average E/e', echo (computed)",
-    "e_prime_septal": "Septal e' velocity, echo",
-    "lavi": "Left atrial volume index, echo",
-}
-_CHILD_WINDOW = "all studies (under 18 y)"
-_LS17 = re.compile(r"^ls_seg(\d\d)$")
-_STRAIN_INDICES = ("gls_segavg", "gls_segavg_n", "relaps", "mech_dispersion", "psi_global")
-
-
 # --------------------------------------------------------------------------- document parts
+# The charts and the strain map are built by the service (tracker.services.documents), shared with the web page.
+
+
+def _charts(a, trend_rows, guideline_label):
+    from tracker.services import documents as SD
+
+    return SD.charts(a, trend_rows, guideline_label)
+
+
+def _strain(m, a):
+    from tracker.services import documents as SD
+
+    return SD.strain_map(m, a)
+
+
 
 
 def _f(v: Any) -> float | None:
@@ -101,69 +103,6 @@ def _tables(a: pd.DataFrame, labels: dict[str, str]) -> tuple[T.ModalityTable, .
             table_rows.append(T.TableRow(m, labels.get(m, ""), unit, bool(derived), tuple(cells)))
         out.append(T.ModalityTable(modality, tuple(d.isoformat() for d in dates),
                                    tuple(_f(x) for x in studies["age_years"]), tuple(table_rows)))  # fmt: skip
-    return tuple(out)
-
-
-def _fit(a: pd.DataFrame, trow: dict) -> tuple[pd.DataFrame, pd.DataFrame] | None:
-    """The trend engine's fit of the trend row's window and its band, or None (one study, children)."""
-    import numpy as np
-    from tracker.engines.trend_band import mean_line_band
-
-    if trow is None or trow["n"] < 2 or trow["window"] == _CHILD_WINDOW:
-        return None
-    if "pregnant" in a.columns:  # studies during pregnancy are left out of the trend's fit
-        a = a[~a["pregnant"].astype(bool)]
-    rows = a[(a["measure"] == trow["measure"]) & (a["age_years"] >= trow["first_age"] - 1e-9)
-             & (a["age_years"] <= trow["last_age"] + 1e-9)]  # fmt: skip
-    from tracker.engines import trends
-
-    ols = trends.per_person_ols(rows[["person", "measure", "modality", "study_date", "age_years", "value"]])
-    if len(ols) != 1 or not math.isclose(float(ols["slope"].iloc[0]), float(trow["slope_per_year"]), rel_tol=1e-9,
-                                         abs_tol=1e-12):  # fmt: skip
-        return None
-    grid = np.linspace(trow["first_age"], trow["last_age"], 41)
-    return ols, mean_line_band(ols.iloc[0], grid)
-
-
-def _charts(a: pd.DataFrame, trend_rows: dict[str, dict], guideline_label: str) -> tuple[T.Chart, ...]:
-    import numpy as np
-    from tracker.engines import review, risk, trends
-    from tracker.outputs import trajectory_pdf as T
-
-    out = []
-    for m in T.KEY_MEASURES:
-        rows = a[a["measure"] == m].sort_values("age_years")
-        if rows.empty or (m != "mwt_echo" and len(rows) < 2):
-            continue
-        trow = trend_rows.get(m)
-        fitted = _fit(a, trow)
-        lo_age = trow["first_age"] if fitted else math.inf
-        hi_age = trow["last_age"] if fitted else -math.inf
-        points = tuple((float(r.age_years), float(r.value), bool(lo_age - 1e-9 <= r.age_years <= hi_age + 1e-9))
-                       for r in rows.itertuples())  # fmt: skip
-        fit = ()
-        note = ""
-        if fitted:
-            band = fitted[1]
-            fit = tuple(zip(band["age_years"], band["fit"], band["low"], band["high"]))
-            if not np.isfinite(band["low"]).any():
-                note = "2 studies: line without a confidence band"
-        elif trow is not None and trow["window"] == _CHILD_WINDOW:
-            note = "under 18 y: trended as z-score (see flags); no line in the unit drawn"
-        normal = tuple((float(r.age_years), _f(r.lower) if _f(r.lower) is not None else math.nan,
-                        _f(r.upper) if _f(r.upper) is not None else math.nan)
-                       for r in rows.itertuples() if _f(r.lower) is not None or _f(r.upper) is not None)  # fmt: skip
-        threshold = None
-        if m in review.DIAGNOSTIC_MEASURES:
-            adult = rows[(rows["threshold_unit"] == "mm") & rows["threshold"].notna()]
-            if len(adult):
-                last = adult.iloc[-1]
-                threshold = (float(last["threshold"]),
-                             f"{guideline_label}: {last['comparison']} {last['threshold']:g} mm")  # fmt: skip
-            elif rows["threshold_unit"].eq("z").any():
-                note = (note + "; " if note else "") + "child criterion is a z-score: see the table"
-        unit = str(rows["unit"].iloc[0])
-        out.append(T.Chart(m, f"{CHART_TITLES[m]} ({m}), {unit}", unit, points, fit, normal, threshold, note))
     return tuple(out)
 
 
@@ -216,28 +155,6 @@ def risk_section(pr: risk.PersonRisk) -> T.RiskSection:
 
     return T.RiskSection(pr.status, pr.headline, pr.risk_5y_pct, pr.inputs_text, pr.reasons, pr.bands,
                          pr.validated_ranges, pr.caution, pr.model, conflicts=pr.conflicts)  # fmt: skip
-
-
-def _strain(m: pd.DataFrame, a: pd.DataFrame) -> tuple[T.StrainMap | None, str]:
-    from tracker.outputs import trajectory_pdf as T
-
-    if m is None or m.empty:
-        return None, "No segmental strain values recorded."
-    codes = m["measure"].astype(str)
-    seg17 = m[codes.str.match(_LS17.pattern)]
-    if seg17.empty:
-        if codes.str.startswith("ls18_seg").any():
-            return None, "18-segment strain values recorded: this report draws the 17-segment model only."
-        return None, "No segmental strain values recorded."
-    date = seg17["study_date"].max()
-    rows = seg17[seg17["study_date"] == date]
-    values = {int(_LS17.match(c).group(1)): float(v) for c, v in zip(rows["measure"], rows["value"])}
-    values = {n: values.get(n) for n in range(1, 18)}
-    idx = a[(a["study_date"] == date) & a["measure"].isin(_STRAIN_INDICES)]
-    indices = tuple(f"{r.measure} (computed): {T.number(float(r.value), r.unit)}" for r in idx.itertuples())
-    n_dates = seg17["study_date"].nunique()
-    note = f"Latest of {n_dates} studies with segmental strain." if n_dates > 1 else ""
-    return T.StrainMap(date.isoformat(), values, indices), note
 
 
 def _sources(a: pd.DataFrame) -> tuple[tuple[str, str], ...]:

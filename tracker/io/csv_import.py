@@ -208,6 +208,32 @@ def refresh_proposals(conn: Connection, families, today: dt.date | None = None) 
         refresh_families(conn, families, today, defer_bulk=True)
 
 
+def store_rows(
+    conn: Connection,
+    kind: str,
+    cells: pd.DataFrame,
+    *,
+    source: str,
+    ctx: validation.Context,
+) -> tuple[validation.Checked, int, int]:
+    """Check and write a few rows of ``kind`` given as text cells (a form's fields), inside the caller's
+    write transaction: the parsing, the checks across rows and against the store, the removed-record
+    refusal, the comparison with what is stored and the writer of a CSV import of the layout.
+
+    ``cells`` has the layout's columns (text, "" = empty); ``source`` names the rows in problems (their
+    ``file``).  Raises :class:`InputRejected` before anything is written.  No import run is recorded:
+    the caller appends its own audit entry.  Returns (the checked rows, rows added, rows already stored).
+    """
+    layout = LAYOUTS[kind]
+    checked = validation.parse_cells(layout, source, cells[layout.names], ctx.today)
+    _note_removed(conn, kind, checked)
+    validation.CHECKS[kind](checked, ctx)
+    if checked.problems:
+        raise InputRejected(checked.problems)
+    added, already = _WRITERS[kind](conn, checked, lambda n: None, ctx)
+    return checked, added, already
+
+
 def _record_run(conn: Connection, summary: ImportSummary, path: Path, user: str | None) -> None:
     """The import_run row and the audit entry of one imported file (in the import's transaction)."""
     kind, added, already = summary.kind, summary.rows_added, summary.rows_already_stored
@@ -640,4 +666,4 @@ _WRITERS = {
     "studies": _write_studies,
 }
 
-__all__ = ["import_file", "import_folder", "import_cells", "check_file", "ImportSummary", "InputRejected", "Layout"]
+__all__ = ["import_file", "import_folder", "import_cells", "store_rows", "check_file", "ImportSummary", "InputRejected", "Layout"]

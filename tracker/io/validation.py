@@ -512,14 +512,20 @@ def check_studies(c: Checked, ctx: Context) -> None:
     for v, ev, eu, cu, code, a, b in zip(
         value[out], rows["value"][out], entered_unit[out], cat["unit"][out], measure[out], lo[out], hi[out]
     ):
-        hint = units.likely_slip(cu, code, ev, a, b) if eu == cu else None
-        base = f"{ev:g} {eu} is outside the plausible range of {code} ({a:g} to {b:g} {cu})"
-        msgs.append(base + (f"; it {hint}" if hint else ""))
+        msgs.append(out_of_range_message(ev, eu, cu, code, a, b))
     c.add(out, "value", msgs)
 
     rows["_entered_unit"] = entered_unit
     rows["_value"] = value
     rows["_unit"] = cat["unit"]
+
+
+def out_of_range_message(entered: float, entered_unit: str, catalogue_unit: str, code: str, lo: float,
+                         hi: float) -> str:  # fmt: skip
+    """The words for a value outside the catalogue's plausible range (import, forms, as-you-type help)."""
+    hint = units.likely_slip(catalogue_unit, code, entered, lo, hi) if entered_unit == catalogue_unit else None
+    base = f"{entered:g} {entered_unit} is outside the plausible range of {code} ({lo:g} to {hi:g} {catalogue_unit})"
+    return base + (f"; it {hint}" if hint else "")
 
 
 # --------------------------------------------------------------------------- cases refused by decision

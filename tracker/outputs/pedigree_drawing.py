@@ -929,17 +929,8 @@ def write_pedigree_pdf(
     Frames are those of :mod:`tracker.store.repository` (all families may be
     passed).  Raises ``KeyError`` when the family has no members.
     """
-    members = people[people["family"] == family].reset_index(drop=True)
-    if members.empty:
-        raise KeyError(family)
-    codes = set(members["person"])
-    frame = members.copy()
-    for col in ("mother", "father", "twin_of"):  # links into another family are not drawn
-        if col in frame.columns:
-            frame.loc[frame[col].notna() & ~frame[col].isin(codes), col] = None
-    ped = Pedigree(frame)
-    marks = pedigree_marks(ped, frame, genetic_results, assessments, variants, family=family, names=names)
-    layout = layout_pedigree(ped, label_sizes(marks))
+    layout, marks = family_pedigree(family, people, genetic_results, assessments, variants, names=names)
+    members = people[people["family"] == family]
     fv = family_variant(variants, family)
     subtitle = f"Family variant: {fv.describe()}" if fv else "No family variant recorded"
     when = drawn_on or dt.date.today()
@@ -956,3 +947,172 @@ def render_png(pdf_path: str | Path, png_path: str | Path, *, page: int = 0, sca
     from tracker.outputs.letter_pdf import render_png as render
 
     return render(pdf_path, png_path, page=page, scale=scale)
+
+
+# ---------------------------------------------------------------------------
+# the web page (SVG), from the same layout and the same marks as the PDF
+# ---------------------------------------------------------------------------
+
+SVG_SCALE = 42.0  # SVG user units (CSS pixels) per symbol width
+SVG_PAD = 0.6  # margin around the layout bounds, in symbol widths
+SVG_NUMERALS = 0.9  # room at the left for the generation numerals, in symbol widths
+
+_AFFECTION_WORDS = {
+    "affected": "affected",
+    "unaffected": "not affected",
+    "uncertain": "phenotype uncertain",
+    "unknown": "at risk, never evaluated",
+}
+
+
+def symbol_title(m: PersonMarks) -> str:
+    """The accessible description of a symbol: the person code and what the symbol shows (never a
+    name or a date)."""
+    words = [m.person]
+    if m.placeholder:
+        words.append("drawn to connect the pedigree")
+    else:
+        words.append(_AFFECTION_WORDS.get(m.affection, m.affection))
+        if m.carrier_mark == "presymptomatic":
+            words.append("presymptomatic carrier")
+        elif m.carrier_mark == "obligate":
+            words.append("obligate carrier")
+    if m.deceased:
+        words.append("deceased")
+    if m.proband:
+        words.append("proband")
+    if m.adopted:
+        words.append(f"adopted {m.adopted}")
+    return ", ".join(words)
+
+
+def pedigree_svg(layout: PedigreeLayout, marks: Mapping[str, PersonMarks], *, family: str,
+                 href=lambda code: f"/person/{code}") -> str:  # fmt: skip
+    """The pedigree as inline SVG: every symbol a link (``href(code)``, the code only) with a title.
+
+    Positions, symbols, marks and lines come from the layout and :func:`symbol_marks`, exactly as
+    :func:`draw_pedigree` draws them on the PDF; text lines are those of the PDF without names."""
+    from tracker.outputs.svg import Svg, num
+
+    b = layout.bounds
+    S = SVG_SCALE
+    ox = (SVG_PAD + SVG_NUMERALS - b.x0) * S
+    oy = (SVG_PAD - b.y0) * S
+    width = (b.x1 - b.x0 + 2 * SVG_PAD + SVG_NUMERALS) * S
+    height = (b.y1 - b.y0 + 2 * SVG_PAD) * S
+
+    def X(v: float) -> float:  # noqa: N802
+        return ox + v * S
+
+    def Y(v: float) -> float:  # noqa: N802
+        return oy + v * S
+
+    lw = 0.045 * S
+    s = Svg(width, height, label=f"Pedigree of family {family}", css_class="pedigree")
+    s.el("rect", x=0.0, y=0.0, width=width, height=height, fill="#FFFFFF", stroke="none")
+    s.open("g", class_="generations", font_weight="bold", font_size=0.42 * S, fill="#000000")
+    for g in layout.generations:
+        s.el("text", g.roman, x=0.15 * S, y=Y(g.y) + 0.15 * S)
+    s.close()
+    s.open("g", class_="lines", stroke="#000000", stroke_width=lw, fill="none")
+    for sgm in layout.segments:
+        dash = f"{num(0.12 * S)} {num(0.09 * S)}" if sgm.dashed else None
+        offs = (-DOUBLE_OFFSET, DOUBLE_OFFSET) if sgm.double else (0.0,)
+        for o in offs:
+            s.el("line", x1=X(sgm.x0), y1=Y(sgm.y0 + o), x2=X(sgm.x1), y2=Y(sgm.y1 + o), stroke_dasharray=dash,
+                 class_=sgm.kind)  # fmt: skip
+    s.close()
+    for t in layout.twins:
+        if t.zygosity == "unknown":
+            fs = TWIN_QUESTION * layout.symbol_size
+            s.el("text", "?", x=X(t.apex_x), y=Y(t.apex_y + 1.15 * fs), font_size=fs * S, text_anchor="middle",
+                 class_="twin-zygosity")  # fmt: skip
+
+    def shape_el(shape: str, cx: float, cy: float, h: float, **attrs) -> None:
+        if shape == "square":
+            s.el("rect", x=cx - h, y=cy - h, width=2 * h, height=2 * h, **attrs)
+        elif shape == "circle":
+            s.el("circle", cx=cx, cy=cy, r=h, **attrs)
+        else:
+            pts = f"{num(cx)},{num(cy - h)} {num(cx + h)},{num(cy)} {num(cx)},{num(cy + h)} {num(cx - h)},{num(cy)}"
+            s.el("polygon", points=pts, **attrs)
+
+    for i, pp in enumerate(layout.people):
+        m = marks[pp.person]
+        filled = m.affection == "affected"
+        cx, cy, h = X(pp.x), Y(pp.y), pp.size * S / 2
+        s.open("a", href=href(pp.person), class_="person")
+        s.el("title", text=symbol_title(m))
+        s.open("g", class_="symbol affected" if filled else "symbol", stroke="#000000", stroke_width=lw)
+        shape_el(m.shape, cx, cy, h, fill="#000000" if filled else "#FFFFFF")
+        slash = []
+        for k in symbol_marks(m, pp.x, pp.y, pp.size):
+            if k.meaning in ("carrier_line", "adopted"):
+                x0, y0, x1, y1 = k.seg
+                s.el("line", x1=X(x0), y1=Y(y0), x2=X(x1), y2=Y(y1), class_=k.meaning.replace("_", "-"))
+            elif k.meaning == "obligate_dot":
+                bx = k.box
+                s.el("circle", cx=X((bx.x0 + bx.x1) / 2), cy=Y((bx.y0 + bx.y1) / 2), r=(bx.x1 - bx.x0) / 2 * S,
+                     fill="#000000", stroke="none", class_="obligate-dot")  # fmt: skip
+            elif k.meaning == "unknown_affection":
+                bx = k.box
+                s.el("text", "?", x=X((bx.x0 + bx.x1) / 2), y=Y(bx.y1), font_size=(bx.y1 - bx.y0) / CAP * S,
+                     font_weight="bold", text_anchor="middle", stroke="none", fill="#000000",
+                     class_="unknown-affection")  # fmt: skip
+            elif k.meaning == "deceased":
+                slash.append(k.seg)
+                x0, y0, x1, y1 = k.seg
+                s.el("line", x1=X(x0), y1=Y(y0), x2=X(x1), y2=Y(y1), class_="deceased")
+        if slash and filled:  # the slash shows white across a filled symbol
+            clip = f"clip-{i}"
+            s.open("clipPath", id=clip)
+            shape_el(m.shape, cx, cy, h)
+            s.close()
+            for x0, y0, x1, y1 in slash:
+                s.el("line", x1=X(x0), y1=Y(y0), x2=X(x1), y2=Y(y1), stroke="#FFFFFF", clip_path=f"url(#{clip})")
+        s.close()  # g
+        s.close()  # a
+        if pp.arrow:
+            k = _arrow_marks(pp)
+            tx, ty, hx, hy = pp.arrow
+            s.el("line", x1=X(tx), y1=Y(ty), x2=X(hx), y2=Y(hy), stroke="#000000", stroke_width=lw,
+                 class_="proband-arrow")  # fmt: skip
+            ang = math.atan2(Y(hy) - Y(ty), X(hx) - X(tx))
+            L = 0.22 * S
+            pts = [(X(hx), Y(hy))] + [(X(hx) - L * math.cos(ang + da), Y(hy) - L * math.sin(ang + da))
+                                      for da in (0.44, -0.44)]  # fmt: skip
+            s.el("polygon", points=" ".join(f"{num(a)},{num(c)}" for a, c in pts), fill="#000000", stroke="none")
+            letter = k[1].box
+            s.el("text", "P", x=X(letter.x1), y=Y(letter.y1), font_size=0.34 * pp.size * S, font_weight="bold",
+                 text_anchor="end", class_="proband-letter")  # fmt: skip
+        s.open("g", class_="label", font_size=LABEL_FONT * S, text_anchor="middle", fill="#000000")
+        for t in text_marks(pp, m):
+            s.el("text", t.text, x=X(pp.x), y=Y(t.box.y1 - DESCENT * LABEL_FONT))
+        s.close()
+    return s.text()
+
+
+def family_pedigree(family: str, people: pd.DataFrame, genetic_results: pd.DataFrame | None = None,
+                    assessments: pd.DataFrame | None = None, variants: pd.DataFrame | None = None,
+                    *, names: bool = False) -> tuple[PedigreeLayout, dict[str, PersonMarks]]:  # fmt: skip
+    """The layout and the marks of ``family`` (links into another family are not drawn): what the PDF and
+    the SVG both draw.  Raises ``KeyError`` when the family has no members."""
+    members = people[people["family"] == family].reset_index(drop=True)
+    if members.empty:
+        raise KeyError(family)
+    codes = set(members["person"])
+    frame = members.copy()
+    for col in ("mother", "father", "twin_of"):  # links into another family are not drawn
+        if col in frame.columns:
+            frame.loc[frame[col].notna() & ~frame[col].isin(codes), col] = None
+    ped = Pedigree(frame)
+    marks = pedigree_marks(ped, frame, genetic_results, assessments, variants, family=family, names=names)
+    return layout_pedigree(ped, label_sizes(marks)), marks
+
+
+def write_pedigree_svg(family: str, people: pd.DataFrame, genetic_results: pd.DataFrame | None = None,
+                       assessments: pd.DataFrame | None = None, variants: pd.DataFrame | None = None,
+                       *, href=lambda code: f"/person/{code}") -> tuple[str, PedigreeLayout]:  # fmt: skip
+    """The pedigree of ``family`` as SVG text (codes only, no names) and the layout it was drawn from."""
+    layout, marks = family_pedigree(family, people, genetic_results, assessments, variants)
+    return pedigree_svg(layout, marks, family=family, href=href), layout

@@ -36,8 +36,8 @@ segment is what counts.  The scale covers the whole plausible data-entry range
 of the segmental codes (-50 to 30 %, migration 0002); a value outside it is
 drawn grey and marked.
 
-Pure: functions return geometry, colours or a :class:`Drawing`; nothing is
-read or written.
+Pure: functions return geometry (:class:`tracker.outputs.figure.Figure`), colours, a reportlab
+``Drawing`` or SVG text; nothing is read or written.
 """
 
 from __future__ import annotations
@@ -46,10 +46,13 @@ import math
 from collections.abc import Mapping
 from dataclasses import dataclass
 
-from reportlab.graphics.shapes import Drawing, Line, Polygon, Rect, String
-from reportlab.lib import colors
+from typing import TYPE_CHECKING
 
 from tracker.engines import segments as seg
+from tracker.outputs import figure as F
+
+if TYPE_CHECKING:
+    from reportlab.graphics.shapes import Drawing
 
 #: Plausible data-entry range of ls_segNN (%), migration 0002 (engineering default for data entry).
 SCALE_MIN_PCT = -50.0
@@ -186,10 +189,11 @@ def colour_for(value: float | None) -> str:
     return b.hex if b else OUT_OF_SCALE
 
 
-def _text_colour(fill: str) -> colors.Color:
-    c = colors.HexColor(fill)
-    luminance = 0.2126 * c.red + 0.7152 * c.green + 0.0722 * c.blue
-    return colors.white if luminance < 0.45 else colors.black
+def _text_hex(fill: str) -> str:
+    """White text on a dark segment, black on a light one."""
+    r, g, b = (int(fill[i:i + 2], 16) / 255 for i in (1, 3, 5))
+    luminance = 0.2126 * r + 0.7152 * g + 0.0722 * b
+    return "#FFFFFF" if luminance < 0.45 else "#000000"
 
 
 # --------------------------------------------------------------------------- drawing
@@ -205,8 +209,9 @@ def _ring_sector(cx: float, cy: float, g: SegmentGeometry, r: float, step_deg: f
     return [v for xy in points for v in xy]
 
 
-def polar_map_drawing(values: Mapping[int, float | None], diameter: float = 150.0, legend: bool = True) -> Drawing:
-    """A drawing of the map for ``values`` (segment number 1-17 -> peak strain %, None = not measured).
+def polar_map_figure(values: Mapping[int, float | None], diameter: float = 150.0, legend: bool = True) -> F.Figure:
+    """The geometry of the map for ``values`` (segment number 1-17 -> peak strain %, None = not measured),
+    drawn by the PDF (:func:`polar_map_drawing`) and the web page (:func:`polar_map_svg`).
 
     ``diameter`` in points; with ``legend`` the colour key is drawn to the right of the map.
     Every measured segment shows its value (one decimal); an unmeasured one shows "-" on white.
@@ -218,48 +223,57 @@ def polar_map_drawing(values: Mapping[int, float | None], diameter: float = 150.
     labels_pad = 12.0
     width = diameter + 2 * labels_pad + legend_w
     height = diameter + 2 * labels_pad
-    d = Drawing(width, height)
+    fig = F.Figure(width, height, title="Segmental peak longitudinal strain, 17 segments (%)")
     cx, cy = labels_pad + r, labels_pad + r
     for g in segment_geometry():
         v = values.get(g.number)
         v = None if v is None or not math.isfinite(float(v)) else float(v)
         fill = colour_for(v)
-        shape = Polygon(_ring_sector(cx, cy, g, r), fillColor=colors.HexColor(fill))
         if g.number == 17:
             tx, ty = cx, cy
         else:
             mid = (g.inner + g.outer) / 2.0 * r
             tx = cx + mid * math.cos(math.radians(g.centre_deg))
             ty = cy + mid * math.sin(math.radians(g.centre_deg))
-        shape.strokeColor = colors.HexColor("#444444")
-        shape.strokeWidth = 0.6
-        d.add(shape)
         text = "-" if v is None else f"{v:.1f}" + ("*" if bin_for(v) is None else "")
-        fc = _text_colour(fill)
-        d.add(String(tx, ty + 0.3, text, fontName="Helvetica-Bold", fontSize=value_pt, fillColor=fc,
-                     textAnchor="middle"))  # fmt: skip
-        d.add(String(tx, ty - 5.2, str(g.number), fontName="Helvetica", fontSize=number_pt, fillColor=fc,
-                     textAnchor="middle"))  # fmt: skip
-    small = dict(fontName="Helvetica", fontSize=6.5, fillColor=colors.HexColor("#333333"), textAnchor="middle")
-    d.add(String(cx, cy + r + 4, "anterior", **small))
-    d.add(String(cx, cy - r - 9, "inferior", **small))
-    d.add(String(cx - r - 2, cy - 2, "septal", **{**small, "textAnchor": "end"}))
-    d.add(String(cx + r + 2, cy - 2, "lateral", **{**small, "textAnchor": "start"}))
+        what = seg.segment_name(seg.AHA17, g.number)
+        title = f"{g.number} {what}: " + ("not measured" if v is None else f"{v:.1f} %")
+        fig.add(F.Poly(tuple(_ring_sector(cx, cy, g, r)), style=F.Style("#444444", fill, 0.6), role="segment",
+                       title=title))  # fmt: skip
+        fc = _text_hex(fill)
+        fig.add(F.Text(tx, ty + 0.3, text, size=value_pt, bold=True, colour=fc, anchor="middle", role="value"))
+        fig.add(F.Text(tx, ty - 5.2, str(g.number), size=number_pt, colour=fc, anchor="middle", role="number"))
+    small = dict(size=6.5, colour="#333333", role="wall")
+    fig.add(F.Text(cx, cy + r + 4, "anterior", anchor="middle", **small))
+    fig.add(F.Text(cx, cy - r - 9, "inferior", anchor="middle", **small))
+    fig.add(F.Text(cx - r - 2, cy - 2, "septal", anchor="end", **small))
+    fig.add(F.Text(cx + r + 2, cy - 2, "lateral", anchor="start", **small))
     if legend:
         x0 = labels_pad * 2 + diameter + 14
         box = 12.0
         top = min(height / 2 + 55.0, height - 12.0)  # the key (about 123 pt tall) centred, inside the drawing
-        d.add(String(x0, top + 6, "peak LS, %", fontName="Helvetica-Bold", fontSize=7))
+        fig.add(F.Text(x0, top + 6, "peak LS, %", size=7, bold=True, role="legend"))
+        key = F.Style("#444444", None, 0.4)
         for i, b in enumerate(COLOUR_BINS):
             y = top - (i + 1) * box
-            d.add(Rect(x0, y, box, box - 1.5, fillColor=colors.HexColor(b.hex),
-                       strokeColor=colors.HexColor("#444444"), strokeWidth=0.4))  # fmt: skip
-            d.add(String(x0 + box + 4, y + 3, b.label, fontName="Helvetica", fontSize=7))
+            fig.add(F.Rect(x0, y, box, box - 1.5, F.Style(key.stroke, b.hex, key.width), role="legend"))
+            fig.add(F.Text(x0 + box + 4, y + 3, b.label, size=7, role="legend"))
         y = top - (len(COLOUR_BINS) + 1) * box
-        d.add(Rect(x0, y, box, box - 1.5, fillColor=colors.white, strokeColor=colors.HexColor("#444444"),
-                   strokeWidth=0.4))  # fmt: skip
-        d.add(String(x0 + box + 4, y + 3, "- not measured", fontName="Helvetica", fontSize=7))
-        d.add(Line(x0, y - 4, x0 + 70, y - 4, strokeColor=colors.HexColor("#BBBBBB"), strokeWidth=0.3))
-        d.add(String(x0, y - 13, "lighter = more shortening", fontName="Helvetica", fontSize=6))
-        d.add(String(x0, y - 21, "small number = segment", fontName="Helvetica", fontSize=6))
-    return d
+        fig.add(F.Rect(x0, y, box, box - 1.5, F.Style(key.stroke, "#FFFFFF", key.width), role="legend"))
+        fig.add(F.Text(x0 + box + 4, y + 3, "- not measured", size=7, role="legend"))
+        fig.add(F.Line(x0, y - 4, x0 + 70, y - 4, F.Style("#BBBBBB", width=0.3), role="legend"))
+        fig.add(F.Text(x0, y - 13, "lighter = more shortening", size=6, role="legend"))
+        fig.add(F.Text(x0, y - 21, "small number = segment", size=6, role="legend"))
+    return fig
+
+
+def polar_map_drawing(values: Mapping[int, float | None], diameter: float = 150.0, legend: bool = True) -> Drawing:
+    """A reportlab drawing of the map (see :func:`polar_map_figure`)."""
+    return F.to_drawing(polar_map_figure(values, diameter, legend))
+
+
+def polar_map_svg(values: Mapping[int, float | None], diameter: float = 200.0, legend: bool = True) -> str:
+    """The same map as inline SVG for the web page."""
+    from tracker.outputs.svg import figure_svg
+
+    return figure_svg(polar_map_figure(values, diameter, legend), css_class="strain-map")

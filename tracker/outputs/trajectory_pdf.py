@@ -64,6 +64,7 @@ from reportlab.lib.styles import ParagraphStyle
 from reportlab.lib.units import mm
 from reportlab.platypus import CondPageBreak, KeepTogether, Paragraph, SimpleDocTemplate, Spacer, Table, TableStyle
 
+from tracker.outputs import figure as F
 from tracker.outputs import polar_map
 from tracker.outputs.pdf_pages import numbered_canvas, paragraph
 
@@ -113,6 +114,7 @@ _NORMAL_FILL = colors.HexColor("#DCEFD9")
 _BAND_FILL = colors.HexColor("#C9DAF0")
 _FIT = colors.HexColor("#1F4E9A")
 _THRESHOLD = colors.HexColor("#A3161A")
+_GREY_HEX, _NORMAL_HEX, _BAND_HEX, _FIT_HEX, _THRESHOLD_HEX = "#666666", "#DCEFD9", "#C9DAF0", "#1F4E9A", "#A3161A"
 
 
 # --------------------------------------------------------------------------- plain data
@@ -199,6 +201,7 @@ class Chart:
     normal: tuple[tuple[float, float, float], ...] = ()
     threshold: tuple[float, str] | None = None
     note: str = ""
+    projection: tuple[tuple[float, float], ...] = ()  # (age, value) beyond the fit; empty: not drawn
 
 
 @dataclass(frozen=True)
@@ -315,21 +318,23 @@ def _finite(*vals: float) -> list[float]:
     return [v for v in vals if v is not None and math.isfinite(v)]
 
 
-def chart_drawing(c: Chart, width: float, height: float) -> Drawing:
-    """Draw one chart (points, fitted line and band, normal range, threshold) in a ``width`` x ``height`` box."""
-    d = Drawing(width, height)
+def chart_figure(c: Chart, width: float, height: float) -> F.Figure:
+    """The geometry of one chart (points, fitted line and band, normal range, threshold, axes with the
+    unit) in a ``width`` x ``height`` box: drawn by the PDF (:func:`chart_drawing`) and the web page
+    (:func:`chart_svg`)."""
+    fig = F.Figure(width, height, title=c.title)
     left, right, bottom, top = 26.0, 6.0, 30.0, 30.0
     pw, ph = width - left - right, height - bottom - top
-    ages = _finite(*[p[0] for p in c.points], *[f[0] for f in c.fit])
-    ys = _finite(*[p[1] for p in c.points], *[v for f in c.fit for v in f[1:]],
+    ages = _finite(*[p[0] for p in c.points], *[f[0] for f in c.fit], *[p[0] for p in c.projection])
+    ys = _finite(*[p[1] for p in c.points], *[v for f in c.fit for v in f[1:]], *[p[1] for p in c.projection],
                  *[v for n in c.normal for v in n[1:]], *([c.threshold[0]] if c.threshold else []))  # fmt: skip
     name, _, rest = c.title.partition(" (")
-    d.add(String(0, height - 8, name, fontName="Helvetica-Bold", fontSize=7.5))
+    fig.add(F.Text(0, height - 8, name, size=7.5, bold=True, role="title"))
     if rest:
-        d.add(String(0, height - 17, "(" + rest, fontName="Helvetica", fontSize=6.5, fillColor=_GREY))
+        fig.add(F.Text(0, height - 17, "(" + rest, size=6.5, colour=_GREY_HEX, role="title"))
     if not ages or not ys:
-        d.add(String(left, bottom + ph / 2, "no values", fontName="Helvetica", fontSize=8))
-        return d
+        fig.add(F.Text(left, bottom + ph / 2, "no values", size=8, role="empty"))
+        return fig
     x0, x1 = min(ages), max(ages)
     pad_x = max((x1 - x0) * 0.06, 0.5)
     x0, x1 = x0 - pad_x, x1 + pad_x
@@ -343,7 +348,7 @@ def chart_drawing(c: Chart, width: float, height: float) -> Drawing:
     def Y(v: float) -> float:  # noqa: N802
         return bottom + (min(max(v, y0), y1) - y0) / (y1 - y0) * ph
 
-    d.add(Rect(left, bottom, pw, ph, fillColor=colors.white, strokeColor=colors.HexColor("#999999"), strokeWidth=0.5))
+    fig.add(F.Rect(left, bottom, pw, ph, F.Style("#999999", "#FFFFFF", 0.5), role="frame"))
     # normal range: lower/upper at each study; a missing side runs to the plot edge
     if c.normal:
         pts = sorted(c.normal)
@@ -352,39 +357,61 @@ def chart_drawing(c: Chart, width: float, height: float) -> Drawing:
             pts = [(a - pad_x, lo, hi), (a + pad_x, lo, hi)]
         lower = [(X(a), Y(lo if math.isfinite(lo) else y0)) for a, lo, _ in pts]
         upper = [(X(a), Y(hi if math.isfinite(hi) else y1)) for a, _, hi in reversed(pts)]
-        poly = [v for xy in lower + upper for v in xy]
-        d.add(Polygon(poly, fillColor=_NORMAL_FILL, strokeColor=None, strokeWidth=0))
+        poly = tuple(v for xy in lower + upper for v in xy)
+        fig.add(F.Poly(poly, style=F.Style(None, _NORMAL_HEX), role="normal", title="normal range"))
     # grid and ticks
     for t in nice_ticks(y0, y1):
-        d.add(Line(left, Y(t), left + pw, Y(t), strokeColor=colors.HexColor("#E6E6E6"), strokeWidth=0.3))
-        d.add(String(left - 3, Y(t) - 2.5, f"{t:g}", fontName="Helvetica", fontSize=6.5, textAnchor="end"))
+        fig.add(F.Line(left, Y(t), left + pw, Y(t), F.Style("#E6E6E6", width=0.3), role="grid"))
+        fig.add(F.Text(left - 3, Y(t) - 2.5, f"{t:g}", size=6.5, anchor="end", role="axis"))
     for t in nice_ticks(x0, x1, 6):
-        d.add(Line(X(t), bottom, X(t), bottom - 2.5, strokeColor=_GREY, strokeWidth=0.5))
-        d.add(String(X(t), bottom - 10, f"{t:g}", fontName="Helvetica", fontSize=6.5, textAnchor="middle"))
-    d.add(String(left + pw / 2, bottom - 19, "age (years)", fontName="Helvetica", fontSize=7, textAnchor="middle"))
-    d.add(String(left - 3, bottom + ph + 4, c.unit, fontName="Helvetica", fontSize=7, textAnchor="end"))
+        fig.add(F.Line(X(t), bottom, X(t), bottom - 2.5, F.Style(_GREY_HEX, width=0.5), role="tick"))
+        fig.add(F.Text(X(t), bottom - 10, f"{t:g}", size=6.5, anchor="middle", role="axis"))
+    fig.add(F.Text(left + pw / 2, bottom - 19, "age (years)", size=7, anchor="middle", role="axis"))
+    fig.add(F.Text(left - 3, bottom + ph + 4, c.unit, size=7, anchor="end", role="unit"))
     # fitted line and its band
     fit = [f for f in c.fit if math.isfinite(f[1])]
     band = [f for f in fit if math.isfinite(f[2]) and math.isfinite(f[3])]
     if len(band) >= 2:
-        poly = [v for f in band for v in (X(f[0]), Y(f[2]))] + [v for f in reversed(band) for v in (X(f[0]), Y(f[3]))]
-        d.add(Polygon(poly, fillColor=_BAND_FILL, strokeColor=None, strokeWidth=0, fillOpacity=0.85))
+        poly = tuple([v for f in band for v in (X(f[0]), Y(f[2]))]
+                     + [v for f in reversed(band) for v in (X(f[0]), Y(f[3]))])
+        fig.add(F.Poly(poly, style=F.Style(None, _BAND_HEX, opacity=0.85), role="band",
+                       title="95% confidence band of the trend line"))  # fmt: skip
     if len(fit) >= 2:
-        d.add(PolyLine([v for f in fit for v in (X(f[0]), Y(f[1]))], strokeColor=_FIT, strokeWidth=1.2))
+        fig.add(F.Poly(tuple(v for f in fit for v in (X(f[0]), Y(f[1]))), closed=False,
+                       style=F.Style(_FIT_HEX, width=1.2), role="fit", title="fitted straight-line trend"))  # fmt: skip
+    # projection of the trend beyond the last study (drawn when given)
+    if len(c.projection) >= 2:
+        fig.add(F.Poly(tuple(v for a, v in c.projection for v in (X(a), Y(v))), closed=False,
+                       style=F.Style(_FIT_HEX, width=0.9, dash=(1.5, 1.5)), role="projection",
+                       title="projection of the trend"))  # fmt: skip
     # diagnostic threshold
     if c.threshold is not None:
         tv, label = c.threshold
-        d.add(Line(left, Y(tv), left + pw, Y(tv), strokeColor=_THRESHOLD, strokeWidth=0.9, strokeDashArray=[3, 2]))
-        d.add(String(left + 3, Y(tv) + 2.5, label, fontName="Helvetica", fontSize=6.5, fillColor=_THRESHOLD))
+        fig.add(F.Line(left, Y(tv), left + pw, Y(tv), F.Style(_THRESHOLD_HEX, width=0.9, dash=(3, 2)),
+                       role="threshold", title=label))  # fmt: skip
+        fig.add(F.Text(left + 3, Y(tv) + 2.5, label, size=6.5, colour=_THRESHOLD_HEX, role="threshold"))
     # studies
     for a, v, in_fit in c.points:
         if not (math.isfinite(a) and math.isfinite(v)):
             continue
-        fill = colors.black if in_fit else colors.white
-        d.add(Circle(X(a), Y(v), 2.0, fillColor=fill, strokeColor=colors.black, strokeWidth=0.7))
+        fill = "#000000" if in_fit else "#FFFFFF"
+        fig.add(F.Circle(X(a), Y(v), 2.0, F.Style("#000000", fill, 0.7), role="point",
+                         title=f"age {a:.1f} y: {number(v, c.unit)}" + ("" if in_fit else " (not in the fit)")))
     if c.note:
-        d.add(String(0, 2, c.note, fontName="Helvetica", fontSize=6, fillColor=_GREY))
-    return d
+        fig.add(F.Text(0, 2, c.note, size=6, colour=_GREY_HEX, role="note"))
+    return fig
+
+
+def chart_drawing(c: Chart, width: float, height: float) -> Drawing:
+    """Draw one chart (points, fitted line and band, normal range, threshold) in a ``width`` x ``height`` box."""
+    return F.to_drawing(chart_figure(c, width, height))
+
+
+def chart_svg(c: Chart, width: float = 300.0, height: float = 190.0) -> str:
+    """The same chart as inline SVG for the web page."""
+    from tracker.outputs.svg import figure_svg
+
+    return figure_svg(chart_figure(c, width, height), css_class="trend-chart")
 
 
 CHART_LEGEND = (

@@ -172,12 +172,8 @@ def create_app(db: str | None = None, settings_path=None, *, idle_minutes: int =
     return app
 
 
-ENDED_WORDS = {
-    "idle": "Your session ended after a time without use. Please sign in again.",
-    "absolute": "Your session reached its time limit. Please sign in again.",
-    "disabled": "This account has been disabled.",
-    "reset": "Your password was reset. Sign in with the one-time password you were given.",
-}
+# Why a session ended, passed to the sign-in page to say so (its words are in pages/signin.py).
+ENDED_REASONS = ("idle", "absolute", "disabled", "reset")
 
 
 async def _not_signed_in(request: Request, exc: auth.NotSignedIn):
@@ -187,7 +183,7 @@ async def _not_signed_in(request: Request, exc: auth.NotSignedIn):
         return RedirectResponse("/password", status_code=303)
     target = "/signin"
     params = []
-    if exc.ended in ENDED_WORDS:
+    if exc.ended in ENDED_REASONS:
         params.append(f"ended={exc.ended}")
     if request.method == "GET" and request.url.path not in ("/", "/signin"):
         params.append("next=" + quote(request.url.path, safe="/"))

@@ -44,8 +44,6 @@ def pre_token(request: Request) -> str:
 
 def token_for(request: Request) -> str:
     """The CSRF token of this browser: from its session, else from its pre-session cookie."""
-    if "new_session" in request.state._state:  # signed in during this request
-        return _derive(request.state.new_session)
     session = request.cookies.get(SESSION_COOKIE)
     if session and getattr(request.state, "user", None) is not None:
         return _derive(session)

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from markupsafe import Markup
 from starlette.requests import Request
 from starlette.templating import Jinja2Templates
 
@@ -62,7 +61,3 @@ def field_errors(exc, fields=None) -> dict[str, list[str]]:
         else:
             out.setdefault(key, []).append(p.message)
     return out
-
-
-def markup(text: str) -> Markup:
-    return Markup(text)
