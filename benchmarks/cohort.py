@@ -48,12 +48,23 @@ reclassification
 proposals   the stored recall proposals (``benchmarks/worklist_bench.py``): ``recall --refresh``
             against the trend step, the worklist for a 90-day window read from the store
             against the query that reads the rows it lists, and the worklist recomputed
-per_person  ``tracker person``, ``recall``, ``cascade``, ``reclassify --dry-run`` and
-            ``report trajectory`` (in-process, ``--json``, best of three after one
+per_person  ``tracker person``, ``recall``, ``cascade``, ``reclassify --dry-run``,
+            ``report trajectory``, ``trends --family``, ``report pedigree`` and
+            ``report letter`` (in-process, ``--json``, best of three after one
             untimed run) on the largest single-variant family and its member with the
             most studies, in new stores of ``--per-person-sizes`` families (default 100
             and 1,000; synthetic, same seed); each time, and each size's time over the
             smallest's (the stores are made first, then timed in rounds over the sizes)
+families_sql
+            ``tracker families --json`` against one aggregate SQL query over the same
+            tables, on each ``--per-person-sizes`` store
+check_sql   ``tracker check --json`` against SQLite's integrity and foreign-key checks
+            and the orphan-row queries, on each store
+help        ``tracker --help`` (a new process) against a bare typer app with the same
+            command tree
+trends_memory
+            peak memory and time of ``tracker trends --json`` on the whole cohort, in
+            its own process, on each store
 memory      peak resident memory of this process (getrusage ru_maxrss)
 
 The database is a new SQLite file in a temporary folder unless ``--db`` says

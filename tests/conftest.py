@@ -18,7 +18,7 @@ from sqlalchemy import create_engine, inspect, text
 from tracker.cli.app import main
 
 # Property tests check results, never speed: no per-example deadline, so a busy machine
-# cannot fail them (speed targets live in the benchmark, tracker/bench.py).
+# cannot fail them (speed targets live in the benchmark, benchmarks/cohort.py).
 hypothesis_settings.register_profile("no_deadline", deadline=None)
 hypothesis_settings.load_profile("no_deadline")
 

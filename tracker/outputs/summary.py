@@ -32,16 +32,15 @@ def family_rows(
     res = results.assign(family=results["person"].map(fam_of))
     members = people.loc[~people["placeholder"].astype(bool), "family"].value_counts()
     first_proband = people[people["proband"].astype(bool)].drop_duplicates("family").set_index("family")["person"]
-    variant_text: dict[str, str] = {}
-    for fam, v in current.groupby("family", sort=False):
-        variant_text[fam] = "; ".join(
-            f"{r.gene} {r.transcript}:{r.hgvs_c} ({ACMG_SHORT[r.acmg_class]})" for r in v.itertuples()
-        )
+    parts: dict[str, list[str]] = {}  # one pass over the rows, in frame order within each family
+    for fam, gene, tx, c, cls in zip(current["family"], current["gene"], current["transcript"], current["hgvs_c"],
+                                     current["acmg_class"]):  # fmt: skip
+        parts.setdefault(fam, []).append(f"{gene} {tx}:{c} ({ACMG_SHORT[cls]})")
+    variant_text = {fam: "; ".join(texts) for fam, texts in parts.items()}
     counts = res.groupby(["family", "result"]).size()
     counts = {k: int(n) for k, n in counts.items()}
     rows = []
-    for fam in families.itertuples(index=False):
-        f = fam.family
+    for f, condition in zip(families["family"], families["condition"]):
         if f in variant_text:
             variant = variant_text[f]
         elif counts.get((f, "no_variant_found"), 0):
@@ -52,7 +51,7 @@ def family_rows(
         rows.append(
             {
                 "family": f,
-                "condition": fam.condition,
+                "condition": condition,
                 "proband": first_proband.get(f),
                 "variant": variant,
                 "members": int(members.get(f, 0)),

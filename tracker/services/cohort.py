@@ -28,15 +28,32 @@ def _study_stats(conn: Connection) -> tuple[dict[str, tuple[int, str | None, str
         .group_by(Family.code)
     )
     stats = {code: (int(n), _iso(first), _iso(last)) for code, n, first, last in conn.execute(per_family)}
-    n, first, last = conn.execute(
-        select(func.count(Study.id), func.min(Study.study_date), func.max(Study.study_date))
-        .select_from(Study).join(Person, Study.person_id == Person.id).where(*live)
-    ).one()  # fmt: skip
+    # every person belongs to a family (person.family_id is required), so the totals are the families' sums
+    n = sum(v[0] for v in stats.values())
+    first = min((v[1] for v in stats.values() if v[1] is not None), default=None)
+    last = max((v[2] for v in stats.values() if v[2] is not None), default=None)
     values = conn.execute(
         select(func.count(Measurement.id)).select_from(Measurement)
         .join(Study, Measurement.study_id == Study.id).join(Person, Study.person_id == Person.id).where(*live)
     ).scalar_one()  # fmt: skip
     return stats, {"studies": int(n), "measurements": int(values), "first_study": _iso(first), "last_study": _iso(last)}
+
+
+def _people(conn: Connection):
+    """The four columns of ``repository.load_people`` the summary reads (person, family, placeholder,
+    proband), same rows and order, without the other columns' joins and conversions."""
+    import pandas as pd
+
+    rows = conn.execute(
+        select(Person.code, Family.code, Person.is_placeholder, Person.is_proband)
+        .join(Family, Person.family_id == Family.id)
+        .where(Person.removed_at.is_(None))
+        .order_by(Person.code)
+    ).all()
+    df = pd.DataFrame([tuple(r) for r in rows], columns=["person", "family", "placeholder", "proband"], dtype=object)
+    df["placeholder"] = df["placeholder"].astype(bool)
+    df["proband"] = df["proband"].astype(bool)
+    return df
 
 
 def cohort_summary(conn: Connection) -> dict:
@@ -45,7 +62,7 @@ def cohort_summary(conn: Connection) -> dict:
     from tracker.store import repository as repo
 
     fams = repo.load_families(conn)
-    people = repo.load_people(conn)
+    people = _people(conn)
     variants = repo.load_variants(conn)
     results = repo.load_genetic_results(conn)
     stats, study_totals = _study_stats(conn)

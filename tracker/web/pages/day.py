@@ -20,7 +20,7 @@ from tracker.store.database import reading, writing
 from tracker.web import auth
 from tracker.web.templating import field_errors, render
 
-DEFAULT_WEEKS = 6
+DEFAULT_WEEKS = 6  # the look-ahead window shown by default (a planning choice of this project, not a clinical value)
 MAX_WINDOW_DAYS = 2 * 366  # a longer window is refused (engineering limit: the page stays readable)
 REASONS = {
     "": "everything",
