@@ -10,7 +10,7 @@ import pytest
 from sqlalchemy import text
 
 from conftest import MINI, dump
-from tracker.store.edits import ASSESSMENT_FIELDS, PERSON_FIELDS, STUDY_FIELDS
+from tracker.services.edits import ASSESSMENT_FIELDS, PERSON_FIELDS, STUDY_FIELDS
 
 INVISIBLE = "\u202e"  # right-to-left override
 

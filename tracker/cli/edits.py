@@ -1,6 +1,6 @@
 """`tracker edit ...`, `tracker remove ...`, `tracker reinstate ...`, `tracker removed`: audited corrections.
 
-Thin layer over :mod:`tracker.store.edits`: each command is one write
+Thin layer over :mod:`tracker.services.edits`: each command is one write
 transaction that records the values before and after in the audit trail.
 """
 
@@ -15,7 +15,7 @@ from tracker.cli.common import print_table, table_limit
 from tracker.errors import UserError
 from tracker.lazy import lazy_module
 
-edits = lazy_module("tracker.store.edits")
+edits = lazy_module("tracker.services.edits")
 from tracker.store.database import reading, writing
 
 edit_app = typer.Typer(

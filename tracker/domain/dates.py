@@ -143,3 +143,21 @@ def age_bounds(birth: PartialDate, end: PartialDate | dt.date) -> tuple[int, int
     lo = completed_years(birth.latest(), lo_end) if lo_end >= birth.latest() else 0
     hi = completed_years(birth.earliest(), hi_end) if hi_end >= birth.earliest() else 0
     return max(lo, 0), max(hi, 0)
+
+
+# --------------------------------------------------------------------------- stored form
+
+
+def partial_to_storage(iso: str | None) -> tuple[dt.date | None, str | None]:
+    """ISO text (``YYYY-MM-DD`` or ``YYYY``) -> (date, precision) as stored."""
+    if iso is None:
+        return None, None
+    p = parse_partial_date(iso)
+    return p.value, p.precision
+
+
+def partial_from_storage(value: dt.date | None, precision: str | None) -> str | None:
+    """Stored (date, precision) -> ISO text."""
+    if value is None:
+        return None
+    return PartialDate(value, precision or "day").isoformat()

@@ -20,7 +20,7 @@ import math
 import re
 from dataclasses import dataclass, field
 
-from tracker.domain.dates import PartialDate, parse_partial_date
+from tracker.domain.dates import partial_from_storage, partial_to_storage  # noqa: F401  (stored form; kept importable here)
 
 if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
     import numpy as np
@@ -360,16 +360,3 @@ def format_cell(value) -> str:
     return str(value)
 
 
-def partial_to_storage(iso: str | None) -> tuple[dt.date | None, str | None]:
-    """ISO text (``YYYY-MM-DD`` or ``YYYY``) -> (date, precision) as stored."""
-    if iso is None:
-        return None, None
-    p = parse_partial_date(iso)
-    return p.value, p.precision
-
-
-def partial_from_storage(value: dt.date | None, precision: str | None) -> str | None:
-    """Stored (date, precision) -> ISO text."""
-    if value is None:
-        return None
-    return PartialDate(value, precision or "day").isoformat()

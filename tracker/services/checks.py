@@ -29,7 +29,7 @@ def check_findings(conn: Connection, today: dt.date, rereview_months: int, setti
         findings += dc.record_findings(people)
         findings += dc.range_findings(studies, repo.load_measures(conn))
         findings += dc.placeholder_findings(people, studies, assessments, results)
-        findings += checks.rule_findings(conn)
+        findings += rule_findings(conn)
         # Families whose links cannot form a pedigree are reported above; recall needs a pedigree.
         broken = {f.where.removeprefix("family ") for f in findings if f.check == "pedigree"}
         findings += recall_findings(people[~people["family"].isin(broken)], repo.load_variants(conn), results,
@@ -63,3 +63,60 @@ def proposal_findings(conn: Connection, settings=None, broken: set[str] = frozen
     conf, rule_set, policy = recall_rules(settings, None)
     return [Finding("recall proposal", f"person {p}", f"stored recall proposal differs from a recomputation: {what}; "
                     "run `tracker recall --refresh`") for p, what in SP.differing(conn, conf, rule_set, policy, skip=broken)]  # fmt: skip
+
+
+def _cells(values):
+    """Stored values as CSV cells (:func:`tracker.io.columns.format_cell`), formatted once per distinct value."""
+    import numpy as np
+    import pandas as pd
+
+    from tracker.io.columns import format_cell
+
+    codes, distinct = pd.factorize(values.astype(object).to_numpy(dtype=object), use_na_sentinel=True)
+    texts = np.array([format_cell(v) for v in distinct] + [""], dtype=object)
+    return texts[codes]  # code -1 (empty) takes the last text, ""
+
+
+def rule_findings(conn: Connection, family: str | None = None, today=None) -> list:
+    """The importer's own row, cross-row and store checks run over the stored records.
+
+    Each kind of record is checked as if the whole store were imported again
+    (:data:`tracker.io.validation.CHECKS`, against the stored records), so a record
+    the importer would refuse is found however it reached the store (an edit, an
+    older version of the tool, a change made outside the tool).  ``family``: only
+    that family's records (checked against the whole store).
+    """
+    import pandas as pd
+
+    from tracker.domain.consistency import Finding
+    from tracker.io import validation
+    from tracker.io.csv_import import context
+    from tracker.io.layouts import LAYOUTS
+    from tracker.store import repository as repo
+
+    ctx = context(conn, today or dt.date.today())
+    people = ctx.people
+    mine = set(people["person"] if family is None else people.loc[people["family"] == family, "person"])
+    frames = {
+        "families": (ctx.families, lambda r: f"family {r['family']}"),
+        "people": (people, lambda r: f"person {r['person']}"),
+        "variants": (ctx.variants, lambda r: f"variant {r['family']} {r['transcript']}:{r['hgvs_c']}"),
+        "genetic-results": (ctx.results, lambda r: f"genetic result {r['person']} {r['test_date']} {r['test_type']}"),
+        "assessments": (repo.load_assessments(conn), lambda r: f"assessment {r['person']} {r['assessment_date']}"),
+        "studies": (repo.load_studies(conn), lambda r: f"study {r['person']} {r['study_date']} {r['modality']}"),
+    }
+    out: list[Finding] = []
+    for kind, (frame, where) in frames.items():
+        if family is not None:
+            frame = frame[frame["family"] == family] if "family" in frame.columns and kind != "people" else frame
+            frame = frame[frame["person"].isin(mine)] if "person" in frame.columns else frame
+        layout = LAYOUTS[kind]
+        # Stored values back to CSV cells, read by the importer's own parsers, then its file checks.
+        cells = pd.DataFrame({c: _cells(frame[c]) for c in layout.names})
+        cells.index = cells.index + 2  # row numbers as in a file (row 1 is the header)
+        checked = validation.parse_cells(layout, kind, cells, ctx.today)
+        validation.CHECKS[kind](checked, ctx)
+        for p in checked.problems:
+            key = where(frame.iloc[p.row - 2]) if p.row is not None else f"{kind}" + (f" of family {family}" if family else "")
+            out.append(Finding("rules", key, f"{p.column}: {p.message}" if p.column else p.message))
+    return out

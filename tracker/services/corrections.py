@@ -1,4 +1,4 @@
-"""Correcting or removing one person from a form: :mod:`tracker.store.edits` (the importer's cell checks,
+"""Correcting or removing one person from a form: :mod:`tracker.services.edits` (the importer's cell checks,
 the consistency checks, one audited change) with its one-line errors given back per form field.
 
 Runs inside the caller's write transaction; on any error nothing is written (the transaction is
@@ -13,7 +13,7 @@ from sqlalchemy import Connection
 
 from tracker.errors import UserError
 from tracker.io.reading import InputRejected, Problem
-from tracker.store import edits
+from tracker.services import edits
 
 SOURCE = "form"
 EDITABLE = tuple(f for f in edits.PERSON_FIELDS if f not in ("given_name", "family_name", "external_id"))

@@ -12,7 +12,7 @@ column, or ``value.CODE`` / ``unit.CODE`` for a study value of measure CODE.
 
 A form may only add: a row whose key is already stored with the same values is refused here
 ("already recorded"), and one stored with other values is refused by the importer (stored values
-are corrected one by one, with history: :mod:`tracker.store.edits`).
+are corrected one by one, with history: :mod:`tracker.services.edits`).
 """
 
 from __future__ import annotations

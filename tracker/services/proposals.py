@@ -4,7 +4,7 @@
 that can change a proposal calls it inside its own transaction, for the families it wrote
 (the family is the unit: a relative's result, diagnosis or removal changes the others'
 proposals): the imports (:mod:`tracker.io.csv_import`, FHIR, DICOM SR), the edits, removals
-and reinstatements (:mod:`tracker.store.edits`), a reclassification
+and reinstatements (:mod:`tracker.services.edits`), a reclassification
 (:func:`tracker.services.reclassification.write`) and a task marked done. A new write path
 must call it too (``docs/design.md``).
 

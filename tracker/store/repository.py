@@ -1,6 +1,6 @@
 """Reading the store into DataFrames that use codes, not row ids.
 
-People and studies that were removed (soft delete, see :mod:`tracker.store.edits`)
+People and studies that were removed (soft delete, see :mod:`tracker.services.edits`)
 are left out of every frame, and so are the records of a removed person.
 
 Each ``load_*`` function returns the records of one kind in the clean form of
@@ -18,7 +18,7 @@ from sqlalchemy import Connection, String, select, type_coerce
 from sqlalchemy.orm import aliased
 
 from tracker.gcpause import gc_paused
-from tracker.io.columns import partial_from_storage
+from tracker.domain.dates import partial_from_storage
 from tracker.store.models import (
     Assessment,
     Booking,

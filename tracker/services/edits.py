@@ -28,7 +28,7 @@ from tracker.domain import units
 from tracker.errors import UserError
 from tracker.io.columns import partial_to_storage, parse
 from tracker.io.layouts import ASSESSMENTS, PEOPLE, STUDIES
-from tracker.store import audit, checks
+from tracker.store import audit
 from tracker.store import repository as repo
 from tracker.store.models import Assessment, Family, Measure, Measurement, Person, Study
 
@@ -116,7 +116,9 @@ def _findings(conn: Connection, family: str) -> set[tuple[str, str, str]]:
     found += dc.record_findings(people.reset_index(drop=True))
     found += dc.placeholder_findings(people, studies, assessments, results)
     # Every check an import of the edited records would make (row, cross-row and against the store).
-    found += checks.rule_findings(conn, family)
+    from tracker.services.checks import rule_findings
+
+    found += rule_findings(conn, family)
     return {(f.check, f.where, f.message) for f in found}
 
 
