@@ -8,10 +8,14 @@ a person whose stored proposal has progression, a projected crossing, a "criteri
 flag, or is affected (a conversion shows as affected) is a candidate; their families' trends are
 then computed and only the rows the trend table flags are listed. A person flagged by the trend
 table whose stored proposal shows none of these (e.g. a stale row) is listed on their family's
-page, not in the flagged list.
+page, not in the flagged list; so is one whose row is stale or out of date (the next write or worklist
+read recomputes it). Rows computed under other settings are not told apart here: they only choose
+which families' trends are computed, never what a row shows.
 """
 
 from __future__ import annotations
+
+import datetime as dt
 
 from sqlalchemy import Connection, func, or_, select
 
@@ -38,9 +42,12 @@ def family_page(conn: Connection, page: int, size: int = PAGE_FAMILIES) -> list[
     return [r[0] for r in conn.execute(stmt).all()]
 
 
-def flagged_families(conn: Connection) -> list[str]:
-    """Families (code order) with a person whose stored proposal carries a trend flag or who is affected."""
+def flagged_families(conn: Connection, on: dt.date | None = None) -> list[str]:
+    """Families (code order) with a person whose stored proposal, readable on ``on`` (default today:
+    not stale, computed for that day or before, still valid), carries a trend flag or is affected."""
+    on = on or dt.date.today()
     stmt = (select(Family.code).join(P, P.family_id == Family.id).join(Person, P.person_id == Person.id)
-            .where(Person.removed_at.is_(None), or_(*(P.reasons.contains(m, autoescape=True) for m in _MARKS)))
+            .where(Person.removed_at.is_(None), P.stale.is_(False), P.as_of <= on, P.valid_until >= on,
+                   or_(*(P.reasons.contains(m, autoescape=True) for m in _MARKS)))
             .distinct().order_by(Family.code))  # fmt: skip
     return [r[0] for r in conn.execute(stmt).all()]
