@@ -21,8 +21,10 @@ from sqlalchemy import Connection, func, or_, select
 
 from tracker.store.models import Family, Person, RecallProposal as P
 
-PAGE_FAMILIES = 20  # families per page (engineering choice: about 0.1 s of trend computation each)
-FLAGGED_FAMILIES = 20  # families whose flagged rows are listed per page of the flagged list
+# Engineering choices: each family's trends take about 50 ms on the benchmark machine (synthetic
+# cohort, docs/performance.md "Web"), so a page of 10 plus 10 flagged families stays near 1 s.
+PAGE_FAMILIES = 10  # families per page
+FLAGGED_FAMILIES = 10  # families whose flagged rows are listed first on page 1, and per page of the flagged list
 
 # Substrings of the stored proposal JSON (tracker.services.proposals.Computed.reasons) that mark a
 # trend-derived flag or an affected person.

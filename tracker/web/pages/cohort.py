@@ -87,7 +87,7 @@ def cohort_page(request: Request):
                            f"{', '.join(families) or 'none'}", now=auth.now(request))  # fmt: skip
     return render(request, "cohort.html", {"f": f, "flags": FLAGS, "result": result, "rows": rows,
                                            "flagged": _flagged, "horizon": HORIZON_YEARS,
-                                           "paging": paging})  # fmt: skip
+                                           "paging": paging, "flagged_families": CV.FLAGGED_FAMILIES})  # fmt: skip
 
 
 def _read(conn, CV, SR, f: dict, page: int, settings) -> tuple[dict, dict | None]:
