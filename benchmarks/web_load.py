@@ -240,7 +240,7 @@ def request(client: Client, page: str, rng: random.Random, fams: list[str], peop
 def service_call(page: str, db: Path, fams: list[str], people: list[str], rng: random.Random):
     """The service calls behind ``page`` (as the page makes them), as a zero-argument function; None when
     not known here.  Keep in step with the pages: /day is ``tracker.web.pages.day.day_data``, /cohort is
-    ``tracker.web.pages.cohort.cohort_page``, /family and /person the views service as their pages call it."""
+    ``tracker.web.pages.cohort._read`` (page 1), /family and /person the views service as their pages call it."""
     from tracker.settings import load_settings
     from tracker.store.database import locate, make_engine, reading
 
@@ -262,14 +262,16 @@ def service_call(page: str, db: Path, fams: list[str], people: list[str], rng: r
 
             return day
         if page == "cohort":
+            from tracker.services import cohort_view as CV
             from tracker.services import review as SR
-            from tracker.web.pages.cohort import HORIZON_YEARS
+            from tracker.web.pages.cohort import _read
 
             settings = load_settings(None)
+            first_page = {"family": "", "measure": "", "flag": "", "page": "1"}
 
-            def cohort():
+            def cohort():  # the page's reads: page 1 of the families, with the flagged rows first
                 with reading(engine) as conn:
-                    SR.trends(conn, None, None, settings, HORIZON_YEARS)
+                    _read(conn, CV, SR, first_page, 1, settings)
 
             return cohort
         if page in ("family", "person"):

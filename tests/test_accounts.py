@@ -189,3 +189,34 @@ def _rows(db: str, sql: str) -> list:
             return conn.execute(text(sql)).all()
     finally:
         engine.dispose()
+
+
+def test_sign_in_decision_rechecks_the_account_after_the_slow_check(store):
+    """The password is verified outside the write lock; the write then re-reads the account: failures
+    made in between are counted on top (not overwritten), a password reset in between voids the
+    verdict, and a disabled account is refused even with the right password."""
+    engine = make_engine(locate(store))
+    with writing(engine) as conn:
+        once = AC.add_account(conn, "r.nurse", "nurse", by="t", now=T0)
+    with reading(engine) as conn:
+        wrong1 = AC.check_password(conn, "r.nurse", "wrong-1")
+        wrong2 = AC.check_password(conn, "r.nurse", "wrong-2")
+        right = AC.check_password(conn, "r.nurse", once)
+    assert right.matched and not wrong1.matched
+    for check in (wrong1, wrong2):  # two sign-ins verified at the same time, written one after the other
+        with writing(engine) as conn:  # the refusal is committed (counted and audited), as the web does
+            with pytest.raises(AC.SignInRefused):
+                AC.record_sign_in(conn, check, now=T0)
+    with reading(engine) as conn:
+        assert conn.execute(text("SELECT failed_count FROM account WHERE name = 'r.nurse'")).scalar() == 2
+    with writing(engine) as conn:
+        AC.reset_password(conn, "r.nurse", by="t", now=T0)
+    with writing(engine) as conn:
+        with pytest.raises(AC.SignInRefused):  # verified against the old hash: no longer holds
+            AC.record_sign_in(conn, right, now=T0 + dt.timedelta(hours=1))
+    with reading(engine) as conn:
+        row = conn.execute(text("SELECT failed_count, password_hash FROM account WHERE name = 'r.nurse'")).one()
+        assert row.password_hash != right.password_hash
+        assert "password changed during sign-in" in conn.execute(
+            text("SELECT what FROM audit_entry ORDER BY id DESC")).first()[0]  # fmt: skip
+    engine.dispose()

@@ -231,7 +231,7 @@ def test_audit_trail_filters(browser, web_db):
     browser("nurse").get("/day?family=HV01")
     r = admin.get("/admin/audit?action=read")
     assert r.status_code == 200
-    actions = re.findall(r"<tr><td>\d+</td><td>[^<]*</td><td class=\"code\">[^<]*</td><td>([^<]+)</td>", r.text)
+    actions = re.findall(r"<tr><td>\d+</td><td class=\"date\">[^<]*</td><td class=\"code\">[^<]*</td><td>([^<]+)</td>", r.text)
     assert actions and set(actions) == {"read"}
     r = admin.get("/admin/audit?family=HV01&since=2020-01-01&until=2030-12-31")
     assert r.status_code == 200 and "HV01" in r.text

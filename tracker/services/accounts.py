@@ -223,23 +223,43 @@ def wait_seconds(failed_count: int) -> int:
     return min(FIRST_WAIT_SECONDS * 2 ** (failed_count - FREE_FAILURES), MAX_WAIT_SECONDS)
 
 
-def authenticate(conn: Connection, name: str, password: str, *, now: dt.datetime | None = None,
-                 client: str | None = None) -> User:
-    """The account's user when the password is right and the account may sign in; else :class:`SignInRefused`.
+@dataclass(frozen=True)
+class PasswordCheck:
+    """What :func:`check_password` found, outside any write transaction: the account as read
+    (None: unknown name) and whether the password matched the hash read."""
 
-    Audited either way.  The refusal says the same for an unknown name and a wrong
-    password; it says when to try again while the account waits.
-    """
-    now = now or audit.now_utc()
+    name: str
+    account_id: int | None
+    password_hash: str | None
+    matched: bool
+
+
+def check_password(conn: Connection, name: str, password: str) -> PasswordCheck:
+    """Read the account and verify the password against its hash (the slow argon2 step).
+
+    Reads only: call it before taking the write lock, then :func:`record_sign_in` in a short
+    write transaction, which re-checks what the verdict depends on."""
     name = (name or "").strip()
-    where = f" from {client}" if client else ""
     row = _account(conn, name) if name and len(name) <= 100 else None
     if row is None:
         _verify(_dummy_hash(), password)  # the same work as for a real account
+        return PasswordCheck(name, None, None, False)
+    return PasswordCheck(name, row.id, row.password_hash, _verify(row.password_hash, password))
+
+
+def record_sign_in(conn: Connection, check: PasswordCheck, *, now: dt.datetime | None = None,
+                   client: str | None = None) -> User:
+    """Inside the caller's write transaction: re-read the account and decide from the stored row
+    (failures counted so far, waiting window, disabled) and ``check``; write the failed count or
+    clear it. Audited either way; :class:`SignInRefused` on refusal. If the password hash changed
+    since ``check`` read it (a reset or change in between), the verdict no longer holds: refused."""
+    now = now or audit.now_utc()
+    where = f" from {client}" if client else ""
+    a = _account(conn, check.name) if check.account_id is not None else None
+    if a is None or a.id != check.account_id:
         audit.record(conn, action="sign_in_refused", table="account", what=f"sign-in refused: unknown name{where}",
                      user="web", at=now)  # fmt: skip
         raise SignInRefused("name or password not recognised")
-    a = row
     wait = wait_seconds(a.failed_count)
     if wait and a.last_failed_at is not None and now < a.last_failed_at + dt.timedelta(seconds=wait):
         until = a.last_failed_at + dt.timedelta(seconds=wait)
@@ -247,15 +267,30 @@ def authenticate(conn: Connection, name: str, password: str, *, now: dt.datetime
                      what=f"sign-in refused: {a.name} waiting after {a.failed_count} failures{where}",
                      user=a.name, at=now)  # fmt: skip
         raise SignInRefused(f"too many failed sign-ins: try again after {until.isoformat(timespec='seconds')}Z")
-    if a.disabled or not _verify(a.password_hash, password):
-        failed = a.failed_count + 1
-        conn.execute(update(Account).where(Account.id == a.id).values(failed_count=failed, last_failed_at=now))
-        why = "account disabled" if a.disabled else f"wrong password (failure {failed})"
+    changed = a.password_hash != check.password_hash
+    if a.disabled or changed or not check.matched:
+        failed = a.failed_count + (0 if changed else 1)
+        if not changed:
+            conn.execute(update(Account).where(Account.id == a.id).values(failed_count=failed, last_failed_at=now))
+        why = ("account disabled" if a.disabled else "password changed during sign-in" if changed
+               else f"wrong password (failure {failed})")  # fmt: skip
         audit.record(conn, action="sign_in_refused", table="account", row_id=a.id,
                      what=f"sign-in refused: {a.name}: {why}{where}", user=a.name, at=now)  # fmt: skip
         raise SignInRefused("name or password not recognised")
     conn.execute(update(Account).where(Account.id == a.id).values(failed_count=0, last_failed_at=None))
     return User(a.name, a.role, a.id, bool(a.must_change_password))
+
+
+def authenticate(conn: Connection, name: str, password: str, *, now: dt.datetime | None = None,
+                 client: str | None = None) -> User:
+    """The account's user when the password is right and the account may sign in; else :class:`SignInRefused`.
+
+    Audited either way.  The refusal says the same for an unknown name and a wrong
+    password; it says when to try again while the account waits.  One connection for both
+    steps (the CLI and tests); the web verifies first, outside the write lock
+    (:func:`check_password`, then :func:`record_sign_in`).
+    """
+    return record_sign_in(conn, check_password(conn, name, password), now=now, client=client)
 
 
 _DUMMY: list[str] = []

@@ -62,21 +62,39 @@ def person_review(conn: Connection, code: str, settings, horizon: float) -> dict
 
 def trends(conn: Connection, family: str | None, measure: str | None, settings, horizon: float) -> dict[str, Any]:
     """Per-person trend rows of one family (``family``) or of the cohort (None), plain data."""
+    return trends_of(conn, None if family is None else [family], measure, settings, horizon)
+
+
+def trends_of(conn: Connection, families: list[str] | None, measure: str | None, settings,
+              horizon: float) -> dict[str, Any]:  # fmt: skip
+    """Per-person trend rows of ``families`` (None: the cohort), reading only those families.
+
+    The rows are those of the cohort's table for these families, in the same order (most
+    concerning first, then person and measure), except the pooled ``slope_eb_per_year``,
+    which pools the families read."""
     scope = None
-    if family is not None:
+    if families == []:  # nothing to read: the measure is still checked
+        if measure is not None and measure not in set(repo.load_measures(conn)["code"]):
+            raise UserError(f"unknown measure code {measure!r} (see `tracker measures`)")
+        return {"guideline": guideline(settings), "horizon_years": horizon, "family": None, "measure": measure,
+                "rows": [], "not_pooled": review.NOT_POOLED, "caution": review.CAUTION}  # fmt: skip
+    if families is not None:
         from sqlalchemy import select
 
         from tracker.store.models import Family
 
-        if conn.execute(select(Family.id).where(Family.code == family)).first() is None:
-            raise UserError(f"unknown family code {family!r}")
-        scope = Scope.families([family])
+        known = {r[0] for r in conn.execute(select(Family.code).where(Family.code.in_(families))).all()}
+        for f in families:
+            if f not in known:
+                raise UserError(f"unknown family code {f!r}")
+        scope = Scope.families(list(families))
     data = load(conn, scope)
     people = data["people"]
-    if family is not None:
-        if family not in set(people["family"]):
+    family = families[0] if families is not None and len(families) == 1 else None
+    if families is not None:
+        if family is not None and family not in set(people["family"]):
             raise UserError(f"unknown family code {family!r}")
-        people = people[people["family"] == family]
+        people = people[people["family"].isin(set(families))]
     if measure is not None and measure not in set(data["measures"]["code"]):
         raise UserError(f"unknown measure code {measure!r} (see `tracker measures`)")
     ctx = review.clinical_context(people, data["results"], data["variants"], data["assessments"])

@@ -39,9 +39,9 @@ class Refused(Exception):
     """The request is refused (403) with a reason shown to the user; nothing was written."""
 
     def __init__(self, reason: str, status: int = 403):
-        self.reason = reason
+        self.reason = reason[:1].upper() + reason[1:]  # shown as a sentence
         self.status = status
-        super().__init__(reason)
+        super().__init__(self.reason)
 
 
 def now(request: Request) -> dt.datetime:

@@ -7,7 +7,7 @@ from starlette.responses import RedirectResponse
 from starlette.routing import Route
 
 from tracker.services import accounts as AC
-from tracker.store.database import writing
+from tracker.store.database import reading, writing
 from tracker.web import auth
 from tracker.web.app import delete_cookie, set_cookie
 from tracker.web.templating import field_errors, render
@@ -58,9 +58,11 @@ def signin(request: Request):
                       status_code=400)  # fmt: skip
     t = auth.now(request)
     refusal = None
+    with reading(auth.engine(request)) as conn:  # the slow password check holds no write lock
+        check = AC.check_password(conn, name, password)
     with writing(auth.engine(request)) as conn:  # a refusal is committed too: it is audited and counted
         try:
-            user = AC.authenticate(conn, name, password, now=t, client=_client(request))
+            user = AC.record_sign_in(conn, check, now=t, client=_client(request))
             token = AC.start_session(conn, user, now=t, client=_client(request))
         except AC.SignInRefused as exc:
             refusal = str(exc)

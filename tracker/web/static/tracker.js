@@ -14,3 +14,28 @@ document.addEventListener("htmx:beforeSwap", function (event) {
     event.detail.isError = false;
   }
 });
+
+// Every date field shows the format the server reads (ISO 8601), since browsers render date
+// inputs in their own locale; a template may already give it (a .fmt element named by
+// aria-describedby). The server's parser stays the one check of what was typed.
+function addDateFormats(root) {
+  var inputs = (root || document).querySelectorAll('input[type="date"]');
+  for (var i = 0; i < inputs.length; i++) {
+    var input = inputs[i];
+    var next = input.nextElementSibling;
+    if (next && next.classList.contains("fmt")) {
+      continue;
+    }
+    var help = document.createElement("span");
+    help.className = "fmt";
+    help.textContent = "YYYY-MM-DD";
+    if (input.id) {
+      help.id = "fmt-" + input.id;
+      var described = input.getAttribute("aria-describedby");
+      input.setAttribute("aria-describedby", (described ? described + " " : "") + help.id);
+    }
+    input.insertAdjacentElement("afterend", help);
+  }
+}
+document.addEventListener("DOMContentLoaded", function () { addDateFormats(document); });
+document.addEventListener("htmx:afterSwap", function () { addDateFormats(document); });
