@@ -9,6 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 
 from tracker.domain import vocabulary as V
+from tracker.io import kinds
 from tracker.io.columns import (
     CODE_RE,
     GENE_RE,
@@ -240,5 +241,7 @@ LAYOUTS = {
 }
 FAMILIES, PEOPLE, VARIANTS, GENETIC_RESULTS, ASSESSMENTS, STUDIES = LAYOUTS.values()
 IMPORT_ORDER = tuple(LAYOUTS)
+if IMPORT_ORDER != kinds.IMPORT_ORDER:  # the light copy the command line names the kinds with
+    raise AssertionError(f"tracker.io.kinds.IMPORT_ORDER {kinds.IMPORT_ORDER} != the layouts' {IMPORT_ORDER}")
 
 __all__ = ["LAYOUTS", "IMPORT_ORDER", "Layout", "CODE_RE"]
