@@ -102,12 +102,12 @@ def test_rows_agree_with_the_frames_on_the_demo(demo, run):
     _compare(run, demo)
 
 
-def test_rows_agree_with_the_frames_on_edge_cases(tmp_path, run):
+def test_rows_agree_with_the_frames_on_edge_cases(tmp_path, db_url, run):
     """Invented additions to the demo: a family with nobody in it yet, a second variant classified the same
     day as the first (HV01), a second variant whose class is later than the first's but whose transcript
     sorts first (HV03: the text lists the variants by the date of their current class), a reclassified
     variant (HV04, in the demo), and an added carrier removed again (HV03: members and carriers are those of
-    the people not removed)."""
+    the people not removed). On SQLite and, when configured, PostgreSQL."""
     import shutil
     from pathlib import Path
 
@@ -122,7 +122,7 @@ def test_rows_agree_with_the_frames_on_edge_cases(tmp_path, run):
         f.write("HV03-I-9,HV03,Invented,Person,female,,1950,alive,,,,no,no" + "," * 13 + "\n")
     with open(folder / "genetic_results.csv", "a", encoding="utf-8") as f:
         f.write("HV03-I-9,2017-01-09,predictive,NM_000363.5:c.508C>T,carrier,Invented laboratory,INV-1\n")
-    db = str(tmp_path / "edge.sqlite")
+    db = db_url
     assert run("init", db=db).code == 0
     r = run("import", "all", folder, db=db)
     assert r.code == 0, r
