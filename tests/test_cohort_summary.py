@@ -107,7 +107,7 @@ def test_rows_agree_with_the_frames_on_edge_cases(tmp_path, db_url, run):
     day as the first (HV01), a second variant whose class is later than the first's but whose transcript
     sorts first (HV03: the text lists the variants by the date of their current class), a reclassified
     variant (HV04, in the demo), and an added carrier removed again (HV03: members and carriers are those of
-    the people not removed). On SQLite and, when configured, PostgreSQL."""
+    the people not removed; its study and values leave the totals). On SQLite and, when configured, PostgreSQL."""
     import shutil
     from pathlib import Path
 
@@ -122,15 +122,21 @@ def test_rows_agree_with_the_frames_on_edge_cases(tmp_path, db_url, run):
         f.write("HV03-I-9,HV03,Invented,Person,female,,1950,alive,,,,no,no" + "," * 13 + "\n")
     with open(folder / "genetic_results.csv", "a", encoding="utf-8") as f:
         f.write("HV03-I-9,2017-01-09,predictive,NM_000363.5:c.508C>T,carrier,Invented laboratory,INV-1\n")
+    with open(folder / "studies.csv", "a", encoding="utf-8") as f:
+        f.write("HV03-I-9,2017-02-01,echo,Invented site,165,60,mwt_echo,11.0,mm\n")
+        f.write("HV03-I-9,2017-02-01,echo,Invented site,165,60,lvef_echo,62,%\n")
     db = db_url
     assert run("init", db=db).code == 0
     r = run("import", "all", folder, db=db)
     assert r.code == 0, r
-    by = {row["family"]: row for row in _compare(run, db)["families"]}
+    data = _compare(run, db)
+    before, by = data["totals"], {row["family"]: row for row in data["families"]}
     assert (by["HV03"]["proband"], by["HV03"]["members"], by["HV03"]["carriers"]) == ("HV03-II-1", 11, 3)
     r = run("remove", "person", "HV03-I-9", "--reason", "entered in the wrong family", db=db)
     assert r.code == 0, r
     data = _compare(run, db)
+    assert (data["totals"]["studies"], data["totals"]["measurements"]) == (before["studies"] - 1,
+                                                                         before["measurements"] - 2)
     by = {row["family"]: row for row in data["families"]}
     assert by["HV06"]["variant"] == "not tested" and by["HV06"]["members"] == 0 and by["HV06"]["proband"] is None
     assert (by["HV03"]["proband"], by["HV03"]["members"], by["HV03"]["carriers"]) == ("HV03-II-1", 10, 2)
