@@ -78,8 +78,10 @@ def _reference_rows(db: str) -> tuple[list[dict], dict]:
     proband = people[people["proband"].astype(bool)].drop_duplicates("family").set_index("family")["person"]
     rows = []
     for f, condition in zip(fams["family"], fams["condition"]):
-        variant = ("; ".join(texts[f]) if f in texts
-                   else "no causal variant found" if counts.get((f, "no_variant_found"), 0) else "not tested")  # fmt: skip
+        if f in texts:
+            variant = "; ".join(texts[f])
+        else:
+            variant = "no causal variant found" if counts.get((f, "no_variant_found"), 0) else "not tested"
         rows.append({"family": f, "condition": condition, "proband": proband.get(f), "variant": variant,
                      "members": int(members.get(f, 0)), "carriers": counts.get((f, "carrier"), 0),
                      "non_carriers": counts.get((f, "non_carrier"), 0)})  # fmt: skip

@@ -26,7 +26,7 @@ def _study_stats(conn: Connection) -> tuple[dict[int, tuple[int, str | None, str
         .where(*live)
         .group_by(Person.family_id)
     )
-    stats = {fid: (int(n), _iso(first), _iso(last)) for fid, n, first, last in conn.execute(per_family)}
+    stats = {fid: (int(n), _iso(first), _iso(last)) for fid, n, first, last in conn.execute(per_family).all()}
     # every person belongs to a family (person.family_id is required), so the totals are the families' sums
     n = sum(v[0] for v in stats.values())
     first = min((v[1] for v in stats.values() if v[1] is not None), default=None)
@@ -39,7 +39,9 @@ def _study_stats(conn: Connection) -> tuple[dict[int, tuple[int, str | None, str
         .where(or_(Study.removed_at.is_not(None), Person.removed_at.is_not(None)))
     )  # fmt: skip
     every = conn.execute(select(func.count()).select_from(Measurement)).scalar_one()
-    gone = conn.execute(select(func.count()).select_from(Measurement).where(Measurement.study_id.in_(removed))).scalar_one()
+    gone = conn.execute(
+        select(func.count()).select_from(Measurement).where(Measurement.study_id.in_(removed))
+    ).scalar_one()
     values = every - gone
     return stats, {"studies": int(n), "measurements": int(values), "first_study": _iso(first), "last_study": _iso(last)}
 
@@ -64,7 +66,7 @@ def _variant_texts(conn: Connection) -> dict[str, str]:
         .order_by(Family.code, VariantClassification.classified_on, Variant.transcript, Variant.hgvs_c)
     )  # fmt: skip
     parts: dict[str, list[str]] = {}
-    for fam, gene, tx, c, cls in conn.execute(stmt):
+    for fam, gene, tx, c, cls in conn.execute(stmt).all():
         parts.setdefault(fam, []).append(f"{gene} {tx}:{c} ({ACMG_SHORT[cls]})")
     return {fam: "; ".join(texts) for fam, texts in parts.items()}
 
@@ -82,7 +84,7 @@ def _people_counts(conn: Connection) -> dict[int, tuple[int, int, str | None]]:
         .where(Person.removed_at.is_(None))
         .group_by(Person.family_id)
     )
-    return {fid: (int(n), int(ph), proband) for fid, n, ph, proband in conn.execute(stmt)}
+    return {fid: (int(n), int(ph), proband) for fid, n, ph, proband in conn.execute(stmt).all()}
 
 
 def _result_counts(conn: Connection) -> dict[tuple[int, str], int]:
@@ -94,7 +96,7 @@ def _result_counts(conn: Connection) -> dict[tuple[int, str], int]:
         .where(Person.removed_at.is_(None))
         .group_by(Person.family_id, GeneticResult.result)
     )
-    return {(fid, result): int(n) for fid, result, n in conn.execute(stmt)}
+    return {(fid, result): int(n) for fid, result, n in conn.execute(stmt).all()}
 
 
 def cohort_summary(conn: Connection) -> dict:
