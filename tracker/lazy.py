@@ -21,3 +21,9 @@ def lazy_module(name: str) -> ModuleType:
     sys.modules[name] = module
     loader.exec_module(module)
     return module
+
+
+def load_now(module: ModuleType) -> ModuleType:
+    """Execute a module made by :func:`lazy_module` now (before a write lock is taken, say)."""
+    module.__dict__  # noqa: B018  (any attribute read runs the module)
+    return module

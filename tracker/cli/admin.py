@@ -11,7 +11,6 @@ import typer
 from tracker.cli.common import engine_for, DbOption, JsonOption, UserOption, open_store, print_json, print_table
 from tracker.cli.common import AllOption, SettingsOption, table_limit
 from tracker.store import migrate
-from sqlalchemy.exc import DBAPIError
 
 from tracker.store.database import DatabaseUnreadable, locate, make_engine, reading, unreadable_reason
 
@@ -91,6 +90,8 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
 
     Example: tracker check --json
     """
+    from sqlalchemy.exc import DBAPIError
+
     from tracker.domain import consistency as dc
     from tracker.domain.genetics import SRC_REREVIEW
     from tracker.settings import load_settings

@@ -11,8 +11,11 @@ from tracker.cli.common import AllOption, DbOption, JsonOption, SettingsOption, 
 from tracker.cli.common import table_limit
 from tracker.domain.dates import parse_date
 from tracker.errors import UserError
-from tracker.store import audit
+from tracker.lazy import lazy_module
+from tracker.store.audit_actions import ACTIONS
 from tracker.store.database import reading
+
+audit = lazy_module("tracker.store.audit")
 
 
 def _day(text: str | None, option: str):
@@ -45,7 +48,7 @@ def audit_(
     family: Annotated[str | None, typer.Option("--family", help="Only entries about this family code.")] = None,
     since: Annotated[str | None, typer.Option("--from", help="From this day (YYYY-MM-DD, UTC), inclusive.")] = None,
     until: Annotated[str | None, typer.Option("--to", help="To this day (YYYY-MM-DD, UTC), inclusive.")] = None,
-    action: Annotated[str | None, typer.Option("--action", help=f"Only one kind: {', '.join(audit.ACTIONS)}.")] = None,
+    action: Annotated[str | None, typer.Option("--action", help=f"Only one kind: {', '.join(ACTIONS)}.")] = None,
     db: DbOption = None,
     json_out: JsonOption = False,
     all_: AllOption = False,
@@ -58,8 +61,8 @@ def audit_(
 
     Example: tracker audit --family HV01 --from 2026-11-01
     """
-    if action is not None and action not in audit.ACTIONS:
-        raise UserError(f"--action: {action!r} is not one of: {', '.join(audit.ACTIONS)}")
+    if action is not None and action not in ACTIONS:
+        raise UserError(f"--action: {action!r} is not one of: {', '.join(ACTIONS)}")
     start, end = _day(since, "--from"), _day(until, "--to")
     if start and end and end < start:
         raise UserError(f"--to {end.isoformat()} is before --from {start.isoformat()}")

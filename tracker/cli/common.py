@@ -6,16 +6,17 @@ import datetime as dt
 import json
 import sys
 from pathlib import Path
-from typing import Annotated, Any
+from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 from rich.console import Console
 from rich.table import Table
-from sqlalchemy import Engine
-
 from tracker.errors import UserError
 from tracker.store import migrate
 from tracker.store.database import ENV_VAR, locate, make_engine, reading
+
+if TYPE_CHECKING:  # SQLAlchemy is imported where used, so `tracker --help` does not load it
+    from sqlalchemy import Engine
 
 DbOption = Annotated[
     str | None,

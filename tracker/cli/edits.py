@@ -13,7 +13,7 @@ import typer
 from tracker.cli.common import AllOption, DbOption, JsonOption, SettingsOption, UserOption, open_store, print_json
 from tracker.cli.common import print_table, table_limit
 from tracker.errors import UserError
-from tracker.lazy import lazy_module
+from tracker.lazy import lazy_module, load_now
 
 edits = lazy_module("tracker.services.edits")
 from tracker.store.database import reading, writing
@@ -44,11 +44,12 @@ ModalityArg = Annotated[str, typer.Argument(help="echo, cmr, ecg or clinic.")]
 
 
 def _writing(engine):
-    """The write transaction of an edit, with what the proposals' refresh needs loaded first
+    """The write transaction of an edit, with the edit code and what the proposals' refresh needs loaded first
     (:func:`tracker.services.proposals.prepare`), so the lock is held for the work only."""
     from tracker.services.proposals import prepare
 
     prepare()
+    load_now(edits)  # its imports (the layouts, the audit trail) are no longer loaded at start-up
     return writing(engine)
 
 

@@ -7,15 +7,17 @@ writes the file and reports what was written.
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import typer
-from sqlalchemy import Connection
 
 from tracker.cli.common import DbOption, JsonOption, open_store, print_json
 from tracker.errors import UserError
 from tracker.outfiles import check_output, write_output
 from tracker.store.database import reading
+
+if TYPE_CHECKING:  # SQLAlchemy is imported where used, so `tracker --help` does not load it
+    from sqlalchemy import Connection
 
 
 def _write_atomic(path: Path, text: str, force: bool = True) -> None:

@@ -25,7 +25,7 @@ from tracker.cli.common import (
 )
 from tracker.errors import UserError
 from tracker.outfiles import check_output
-from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
+from tracker.io.kinds import IMPORT_ORDER
 from tracker.lazy import lazy_module
 from tracker.store import migrate
 from tracker.store.database import locate, make_engine, reading, writing

@@ -21,39 +21,41 @@ from tracker.domain.genetics import ACMG_CLASSES
 from tracker.engines.cascade import RULE_SETS as CASCADE_RULE_SETS
 from tracker.engines.schedule import CAUTIONS
 from tracker.errors import UserError
-from tracker.outputs import ics
+from tracker.lazy import lazy_module
 from tracker.settings import load_settings
 from tracker.outfiles import write_output
-from tracker.store import audit
 from tracker.store.database import check_row_id, reading, writing
-from tracker.services.cascade import (  # noqa: F401  (moved to the service layer; names kept for callers)
-    _contact_dates,
-    _rereview_dict,
-    _screening_item,
-    _testing_item,
-    _variant_dict,
-    _variant_rereview,
-)
-from tracker.services.reclassification import _reclassify_one, _targets  # noqa: F401
-from tracker.services.worklist import _entry, due_proposals, worklist_lists  # noqa: F401
-from tracker.services.recall import (  # noqa: F401
-    TREND_CHUNK_PEOPLE,
-    _batches,
-    _family_state,
-    _Frames,
-    _iso,
-    _load,
-    _open_task_people,
-    _progression_text,
-    _proposal_dict,
-    _reason,
-    _recall_rules,
-    _release_basis,
-    _risk_scd,
-    _unscheduled_dict,
-    _with_trends,
-    with_trend_texts,
-)
+
+ics = lazy_module("tracker.outputs.ics")
+audit = lazy_module("tracker.store.audit")
+
+# Names that moved to the service layer, kept for callers (`tracker.cli.recall._load`, ...); the services
+# (and SQLAlchemy with the table models) are imported on first use, so `tracker --help` stays light.
+_MOVED = {
+    "tracker.services.cascade": ("_contact_dates", "_rereview_dict", "_screening_item", "_testing_item",
+                                 "_variant_dict", "_variant_rereview"),
+    "tracker.services.reclassification": ("_reclassify_one", "_targets"),
+    "tracker.services.worklist": ("_entry", "due_proposals", "worklist_lists"),
+    "tracker.services.recall": ("TREND_CHUNK_PEOPLE", "_batches", "_family_state", "_Frames", "_iso", "_load",
+                                "_open_task_people", "_progression_text", "_proposal_dict", "_reason",
+                                "_release_basis", "_risk_scd", "_unscheduled_dict", "_with_trends",
+                                "with_trend_texts"),
+}  # fmt: skip
+_MOVED_FROM = {name: module for module, names in _MOVED.items() for name in names}
+
+
+def __getattr__(name: str):
+    if name in _MOVED_FROM:
+        import importlib
+
+        return getattr(importlib.import_module(_MOVED_FROM[name]), name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def _recall_rules(settings, guideline):
+    from tracker.services.recall import _recall_rules as rules
+
+    return rules(settings, guideline)
 
 
 AcmgClass = Enum("AcmgClass", {c: c for c in ACMG_CLASSES}, type=str)
@@ -241,10 +243,9 @@ def tasks_list(
 
     Example: tracker tasks --family HV03 --json
     """
-    from tracker.engines.reclassification import CAUTION as RECLASSIFICATION_CAUTION
-
-    if ctx.invoked_subcommand is not None:
+    if ctx.invoked_subcommand is not None:  # `tasks done ...` (and its --help): nothing to list or load
         return
+    from tracker.engines.reclassification import CAUTION as RECLASSIFICATION_CAUTION
     from tracker.services import tasks as TS
 
     engine = open_store(db)

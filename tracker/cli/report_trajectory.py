@@ -38,8 +38,10 @@ from tracker.cli import review as RV
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, open_store, print_json
 from tracker.outfiles import output_path
 from tracker.errors import UserError
-from tracker.outputs import ics
+from tracker.lazy import lazy_module
 from tracker.store.database import reading
+
+ics = lazy_module("tracker.outputs.ics")
 
 
 if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light

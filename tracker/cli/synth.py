@@ -9,7 +9,6 @@ import typer
 
 from tracker.cli.common import JsonOption, print_json
 from tracker.errors import UserError
-from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
 
 
 def synth(
@@ -30,6 +29,7 @@ def synth(
     Example: tracker synth --families 1000 --seed 7 --out synth1000 && tracker import all synth1000
     """
     from tracker import synth as generator
+    from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
 
     names = [LAYOUTS[k].file_name for k in IMPORT_ORDER] + [generator.TRUTH_FILE]
     if out.exists() and not out.is_dir():

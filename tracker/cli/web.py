@@ -11,8 +11,10 @@ from typing import Annotated
 import typer
 
 from tracker.cli.common import DbOption, JsonOption, SettingsOption, UserOption, open_store, print_json, print_table
-from tracker.store import audit
+from tracker.lazy import lazy_module
 from tracker.store.database import reading, writing
+
+audit = lazy_module("tracker.store.audit")
 
 ROLE_HELP = "nurse, cardiologist, counsellor or admin"
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 
 from tracker.domain import vocabulary as V
+from tracker.io import kinds
 from tracker.io.columns import (
     CODE_RE,
     GENE_RE,
@@ -354,5 +355,7 @@ CONTACT_LAYOUTS = {
     for layout in (CONTACT_EVENTS, CONTACT_WISHES, LETTERS_SENT, EXTERNAL_RESULTS, BOOKINGS, DISCHARGES)
 }
 CONTACT_EVENTS, CONTACT_WISHES, LETTERS_SENT, EXTERNAL_RESULTS, BOOKINGS, DISCHARGES = CONTACT_LAYOUTS.values()
+if IMPORT_ORDER != kinds.IMPORT_ORDER:  # the light copy the command line names the kinds with
+    raise AssertionError(f"tracker.io.kinds.IMPORT_ORDER {kinds.IMPORT_ORDER} != the layouts' {IMPORT_ORDER}")
 
 __all__ = ["LAYOUTS", "IMPORT_ORDER", "Layout", "CODE_RE"]

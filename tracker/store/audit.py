@@ -31,19 +31,11 @@ from typing import Any, TYPE_CHECKING
 from sqlalchemy import Connection, insert, select
 
 from tracker.errors import UserError
+from tracker.store.audit_actions import ACTIONS  # noqa: F401  (audit.ACTIONS for callers)
 from tracker.store.models import AuditEntry
 
 if TYPE_CHECKING:  # for annotations only: loaded where used, so start-up stays light
     import pandas as pd
-
-ACTIONS = ("import", "edit", "remove", "reinstate", "reclassify", "task_done", "restore",
-           # The web interface (tracker/services/accounts.py): who read which family or person's records,
-           # sign-ins (accepted and refused), sign-outs and changes to accounts.
-           "read", "sign_in", "sign_in_refused", "sign_out", "account",
-           # The web forms (tracker/services/entry.py): a record entered by form.
-           "entry",
-           # The contact log (tracker/services/contacts.py): a new record of the log.
-           "record")
 
 
 def actor(user: str | None) -> str:

@@ -19,14 +19,13 @@ import sqlite3
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Iterator
+from typing import TYPE_CHECKING, Iterator
 from urllib.parse import quote
 
-from sqlalchemy import Connection, Engine, create_engine, event, text
-from sqlalchemy.engine import URL, make_url
-from sqlalchemy.exc import ArgumentError
-
 from tracker.errors import UserError
+
+if TYPE_CHECKING:  # SQLAlchemy is imported where used, so `tracker --help` does not load it
+    from sqlalchemy import Connection, Engine
 
 DEFAULT_FILE = "tracker.sqlite"
 ENV_VAR = "TRACKER_DB"
@@ -110,6 +109,8 @@ class Location:
         """A printable name that never shows a password."""
         if self.sqlite_path is not None:
             return str(self.sqlite_path)
+        from sqlalchemy.engine import make_url
+
         return make_url(self.url).render_as_string(hide_password=True)
 
 
@@ -117,6 +118,9 @@ def locate(db: str | None) -> Location:
     """Resolve ``--db`` / ``TRACKER_DB`` / the default file into a :class:`Location`."""
     target = db or os.environ.get(ENV_VAR) or DEFAULT_FILE
     if "://" in target:
+        from sqlalchemy.engine import make_url
+        from sqlalchemy.exc import ArgumentError
+
         try:
             url = make_url(target)
         except ArgumentError:
@@ -146,6 +150,10 @@ def _make_private(path: Path) -> None:
 
 def make_engine(location: Location, *, create: bool = False) -> Engine:
     """An engine for ``location``; with ``create`` a missing SQLite file is made (mode 0600)."""
+    from sqlalchemy import create_engine
+    from sqlalchemy.engine import URL
+    from sqlalchemy.exc import ArgumentError
+
     if location.sqlite_path is not None:
         if not location.sqlite_path.exists():
             if not create:
@@ -189,6 +197,8 @@ def _read_only_params(path: Path) -> dict[str, str]:
 
 
 def _configure_sqlite(engine: Engine) -> None:
+    from sqlalchemy import event
+
     @event.listens_for(engine, "connect")
     def _on_connect(dbapi_conn, _record):  # pragma: no cover - exercised by every test
         # Let SQLAlchemy's BEGIN below, not the driver, open transactions.
@@ -270,4 +280,6 @@ def table_names(conn: Connection) -> list[str]:
 
 
 def scalar(conn: Connection, sql: str, **params):
+    from sqlalchemy import text
+
     return conn.execute(text(sql), params).scalar()

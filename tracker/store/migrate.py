@@ -11,14 +11,13 @@ import importlib
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from sqlalchemy import Connection, Engine
-
 import tracker
 from tracker.errors import UserError
 from tracker.store.database import writing
 
 if TYPE_CHECKING:
     from alembic.config import Config
+    from sqlalchemy import Connection, Engine
 
 # Alembic is loaded when a revision is read or changed, not when the command line starts
 # (it took about half of `tracker --help`); `migrate.ScriptDirectory` etc. still resolve.
