@@ -25,7 +25,7 @@ from tracker.cli.common import (
 )
 from tracker.errors import UserError
 from tracker.outfiles import check_output
-from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
+from tracker.io.layouts import CONTACT_LAYOUTS, IMPORT_ORDER, LAYOUTS
 from tracker.lazy import lazy_module
 from tracker.store import migrate
 from tracker.store.database import locate, make_engine, reading, writing
@@ -261,7 +261,8 @@ def _export_pseudonymised(kind, out: Path, dates: str, min_cell, settings_path, 
     pseudonymise.check_folder(out)
     engine = open_store(db)
     with reading(engine) as conn:
-        frames = {k: repo.LOADERS[k](conn) for k in IMPORT_ORDER}
+        frames = {k: export.export_frame(conn, k) if k in CONTACT_LAYOUTS else repo.LOADERS[k](conn)
+                  for k in IMPORT_ORDER}  # fmt: skip
     extract = pseudonymise.pseudonymise(frames, key, dates=dates, min_cell=threshold, today=dt.date.today())
     counts = pseudonymise.write_extract(extract, out)
     small = extract.small_cells

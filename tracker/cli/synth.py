@@ -9,7 +9,7 @@ import typer
 
 from tracker.cli.common import JsonOption, print_json
 from tracker.errors import UserError
-from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
+from tracker.io.layouts import LAYOUTS, RECORD_KINDS as IMPORT_ORDER
 
 
 def synth(
