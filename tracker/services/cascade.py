@@ -164,4 +164,4 @@ def family_cascade(conn: Connection, family: str, on: dt.date, conf: Settings, g
                    scope: Scope | None = None) -> dict:  # fmt: skip
     """A family's cascade plan, reading only that family's records (``scope``: read these families
     instead, e.g. the cohort ``Scope()``; the result is the same)."""
-    return cascade_data(_load(conn, scope if scope is not None else family_scope(family)), family, on, conf, gid)
+    return cascade_data(_load(conn, scope if scope is not None else family_scope(family), on), family, on, conf, gid)
