@@ -55,6 +55,9 @@ class _Frames:
     assessments: pd.DataFrame
     studies: pd.DataFrame
     pending: frozenset[str]
+    # Recorded discharges of variant-negative relatives (revision 0012), as they stood on the day asked:
+    # person, discharge_date, variant, acmg_class (the class relied on), classified_on, advice.
+    discharges: pd.DataFrame | None = None
 
 
 def _load(conn: Connection, scope: Scope | None = None, as_of: dt.date | None = None) -> _Frames:
@@ -70,10 +73,45 @@ def _load(conn: Connection, scope: Scope | None = None, as_of: dt.date | None = 
         **with_external_results(conn, repo.load_genetic_results(conn, scope), repo.load_assessments(conn, scope),
                                 repo.load_studies(conn, entered=False, scope=scope), scope, as_of),
         pending=frozenset(_open_task_people(conn, scope)),
+        discharges=discharges_as_of(conn, scope, as_of),
     )
 
 
 load = _load
+
+
+def discharges_as_of(conn: Connection, scope: Scope | None, as_of: dt.date | None) -> pd.DataFrame:
+    """The recorded discharges in ``scope`` dated on or before ``as_of`` (all without it), the newest per person last."""
+    from tracker.store import repository as repo
+
+    frame = repo.load_discharges(conn, scope)
+    if as_of is not None and len(frame):
+        frame = frame[frame["discharge_date"] <= as_of.isoformat()]
+    return frame.reset_index(drop=True)
+
+
+def discharge_of(frames: _Frames, person: str, current_class: str | None) -> dict | None:
+    """The person's latest recorded discharge (as it stood on the day asked) with whether it still holds:
+    the class it relied on was P/LP, and ``current_class`` (the family variant's class that day) is
+    still pathogenic or likely pathogenic."""
+    from tracker.domain.genetics import ACTIONABLE_CLASSES
+
+    d = frames.discharges
+    if d is None or not len(d):
+        return None
+    mine = d[d["person"] == person]
+    if not len(mine):
+        return None
+    row = mine.iloc[-1]
+    holds = current_class in ACTIONABLE_CLASSES
+    relied = str(row["acmg_class"]).replace("_", " ")
+    words = (f"discharged from screening on {row['discharge_date']}, relying on the variant {row['variant']} "
+             f"being {relied} (classified {row['classified_on']})")  # fmt: skip
+    if not holds:
+        now = (current_class or "not classified").replace("_", " ")
+        words += f"; the variant is now {now}: the discharge no longer holds, recall"
+    return {"discharged_on": row["discharge_date"], "variant": row["variant"], "relied_class": row["acmg_class"],
+            "relied_class_on": row["classified_on"], "advice": row["advice"], "holds": holds, "words": words}
 
 EXTERNAL = "(external)"
 
@@ -472,6 +510,10 @@ def recall_data(frames: _Frames, person: str, on: dt.date, conf: Settings, rule_
     result["policy"] = policy.point
     result["trend_modifiers"] = trend
     result["release_basis"] = _release_basis(st, person)
+    discharge = discharge_of(frames, person, st.variant_class)
+    if discharge is not None:  # only when one is recorded (the JSON of everyone else is unchanged)
+        result["discharge"] = discharge
+        result.setdefault("notes", []).append(discharge["words"])
     result["risk_scd"] = _risk_scd(frames, person, fam.iloc[0], st, on)
     return result
 
