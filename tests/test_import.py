@@ -83,7 +83,9 @@ def _content(url):
 
     engine = make_engine(locate(url))
     with reading(engine) as conn:
-        frames = {kind: load(conn).to_dict("records") for kind, load in repo.LOADERS.items()}
+        # When and by whom a contact-log row was entered is the import's own (the audit trail keeps it).
+        frames = {kind: load(conn).drop(columns=["entered_at", "entered_by"], errors="ignore").to_dict("records")
+                  for kind, load in repo.LOADERS.items()}  # fmt: skip
         frames["stored values"] = repo.load_studies(conn, entered=False).to_dict("records")
         frames["catalogue"] = repo.load_measures(conn).to_dict("records")
     engine.dispose()

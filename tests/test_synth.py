@@ -17,7 +17,7 @@ from tracker import synth
 from tracker.cli.synth import synth as synth_command
 from tracker.engines.trends import per_person_ols
 from tracker.errors import UserError
-from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
+from tracker.io.layouts import LAYOUTS, RECORD_KINDS as IMPORT_ORDER  # a synthetic cohort has no contact log
 
 FILES = [LAYOUTS[k].file_name for k in IMPORT_ORDER]
 

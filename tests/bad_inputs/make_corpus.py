@@ -284,6 +284,91 @@ add("assessments_bidi_symptoms.csv", "assessments", ass(symptoms="\u202adyspnoea
 add("variants_zero_width_reason.csv", "variants", variant(reason="re\u2060view", on="2024-01-01"), 2, "reason",
     "invisible formatting")
 
+# The contact log's layouts (revision 0012), loaded with `tracker import KIND FILE` or in a folder with
+# `tracker import all`: each row is checked as the matching form checks it.
+H["contact-events"] = "person,event_date,channel,by_role,via,outcome,later_date,notes"
+H["contact-wishes"] = "person,wish,via,recorded_date,notes,ended_date"
+H["letters-sent"] = "person,kind,template,template_version,sent_date,sent_to,via,reply_date,notes"
+H["external-results"] = "person,kind,result_date,centre,variant,result,document_ref,notes"
+H["bookings"] = "person,visit_date,purpose,notes,cancelled_date"
+H["discharges"] = "person,discharge_date,variant,acmg_class,classified_on,advice,notes"
+
+
+def ce(person="T1-07", date="2024-03-01", channel="phone", by="nurse", via="", outcome="informed", later="",
+       notes=""):  # fmt: skip
+    return ",".join([person, date, channel, by, via, outcome, later, notes])
+
+
+def cw(person="T1-05", wish="only_via_family_member", via="T1-03", on="2024-03-01", notes="", ended=""):
+    return ",".join([person, wish, via, on, notes, ended])
+
+
+def ls(person="T1-05", kind="first_contact", template="first_contact", version="sha256:0123456789ab",
+       on="2024-03-01", to="person", via="", reply="", notes=""):  # fmt: skip
+    return ",".join([person, kind, template, version, on, to, via, reply, notes])
+
+
+def er(person="T1-07", kind="genetic_test", on="2024-03-01", centre="Invented Fell Hospital",
+       variant="NM_000256.3:c.1504C>T", result="carrier", ref="IFH-0001", notes=""):  # fmt: skip
+    return ",".join([person, kind, on, centre, variant, result, ref, notes])
+
+
+def bk(person="T1-07", on="2024-03-01", purpose="first screening", notes="", cancelled=""):
+    return ",".join([person, on, purpose, notes, cancelled])
+
+
+def dc(person="T1-05", on="2024-03-01", variant="NM_000256.3:c.1504C>T", cls="likely_pathogenic", since="2018-06-15",
+       advice="come back with symptoms or if the variant is reclassified", notes=""):  # fmt: skip
+    return ",".join([person, on, variant, cls, since, advice, notes])
+
+
+add("contact_events_bad_channel.csv", "contact-events", ce(channel="fax"), 2, "channel", "not one of")
+add("contact_events_bad_outcome.csv", "contact-events", ce(outcome="reached"), 2, "outcome", "not one of")
+add("contact_events_later_missing.csv", "contact-events", ce(outcome="contact_later"), 2, "later_date", "is empty")
+add("contact_events_via_other_family.csv", "contact-events", ce(channel="via_family", by="", via="T2-01"), 2, "via",
+    "belongs to another family")
+add("contact_events_before_birth.csv", "contact-events", ce(date="2005-01-01"), 2, "event_date",
+    "before the date of birth")
+add("contact_events_future.csv", "contact-events", ce(date="2099-01-01"), 2, "event_date", "in the future")
+add("contact_events_duplicate.csv", "contact-events", ce() + "\n" + ce(), 3, None, "duplicates row 2")
+add("contact_events_unknown_person.csv", "contact-events", ce(person="T7-77"), 2, "person", "not a person in the store")
+add("contact_wishes_bad_wish.csv", "contact-wishes", cw(wish="letters_only"), 2, "wish", "not one of")
+add("contact_wishes_via_other_family.csv", "contact-wishes", cw(via="T2-01"), 2, "via", "belongs to another family")
+add("contact_wishes_before_birth.csv", "contact-wishes", cw(on="1990-01-01"), 2, "recorded_date",
+    "before the date of birth")
+add("contact_wishes_future.csv", "contact-wishes", cw(on="2099-01-01"), 2, "recorded_date", "in the future")
+add("contact_wishes_duplicate.csv", "contact-wishes", cw() + "\n" + cw(), 3, None, "duplicates row 2")
+add("contact_wishes_unknown_person.csv", "contact-wishes", cw(person="T7-77"), 2, "person", "not a person in the store")
+add("letters_sent_bad_kind.csv", "letters-sent", ls(kind="postcard"), 2, "kind", "not one of")
+add("letters_sent_via_other_family.csv", "letters-sent", ls(to="via_family", via="T2-01"), 2, "via",
+    "belongs to another family")
+add("letters_sent_before_birth.csv", "letters-sent", ls(on="1990-01-01"), 2, "sent_date", "before the date of birth")
+add("letters_sent_future.csv", "letters-sent", ls(on="2099-01-01"), 2, "sent_date", "in the future")
+add("letters_sent_duplicate.csv", "letters-sent", ls() + "\n" + ls(), 3, None, "duplicates row 2")
+add("letters_sent_unknown_person.csv", "letters-sent", ls(person="T7-77"), 2, "person", "not a person in the store")
+add("external_results_bad_result.csv", "external-results", er(kind="screening", variant="", result="carrier"), 2,
+    "result", "not one of")
+add("external_results_other_family_variant.csv", "external-results", er(person="T2-02"), 2, "variant",
+    "not a variant of family FAM-T2")
+add("external_results_before_birth.csv", "external-results", er(on="2005-01-01"), 2, "result_date",
+    "before the date of birth")
+add("external_results_future.csv", "external-results", er(on="2099-01-01"), 2, "result_date", "in the future")
+add("external_results_duplicate.csv", "external-results", er() + "\n" + er(), 3, None, "duplicates row 2")
+add("external_results_unknown_person.csv", "external-results", er(person="T7-77"), 2, "person",
+    "not a person in the store")
+add("bookings_missing_purpose.csv", "bookings", bk(purpose=""), 2, "purpose", "is empty")
+add("bookings_before_birth.csv", "bookings", bk(on="2005-01-01"), 2, "visit_date", "before the date of birth")
+add("bookings_too_far_ahead.csv", "bookings", bk(on="2099-01-01"), 2, "visit_date", "years ahead")
+add("bookings_duplicate.csv", "bookings", bk() + "\n" + bk(), 3, None, "duplicates row 2")
+add("bookings_unknown_person.csv", "bookings", bk(person="T7-77"), 2, "person", "not a person in the store")
+add("discharges_bad_class.csv", "discharges", dc(cls="benign-ish"), 2, "acmg_class", "not one of")
+add("discharges_carrier.csv", "discharges", dc(person="T1-06"), 2, "person", "no non-carrier result")
+add("discharges_class_differs.csv", "discharges", dc(cls="pathogenic"), 2, "acmg_class",
+    "the store has the variant likely_pathogenic")
+add("discharges_future.csv", "discharges", dc(on="2099-01-01"), 2, "discharge_date", "in the future")
+add("discharges_duplicate.csv", "discharges", dc() + "\n" + dc(), 3, None, "duplicates row 2")
+add("discharges_unknown_person.csv", "discharges", dc(person="T7-77"), 2, "person", "not a person in the store")
+
 if __name__ == "__main__":
     for old in HERE.glob("*.csv"):
         old.unlink()

@@ -109,7 +109,8 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
         findings = [dc.Finding("integrity", "database file", f"{location.describe()}: {reason}")]
     result = {"database": location.describe(), "ok": not findings,
               "findings": [f.as_dict() for f in findings],
-              "reminders": [dict(f.as_dict(), source=SRC_REREVIEW) for f in reminders]}  # fmt: skip
+              "reminders": [dict(f.as_dict(), source=SRC_REREVIEW if f.check == "variant_rereview" else None)
+                            for f in reminders]}  # fmt: skip
     if json_out:
         print_json(result)
     elif findings:
@@ -118,9 +119,14 @@ def check(db: DbOption = None, json_out: JsonOption = False, settings: SettingsO
     else:
         typer.echo(f"{location.describe()}: no problems found")
     if reminders and not json_out:
-        for f in reminders:
+        rereview = [f for f in reminders if f.check == "variant_rereview"]
+        for f in rereview:
             typer.echo(f"reminder: {f.where}: {f.message}")
-        typer.echo(f"  source: {SRC_REREVIEW}")
+        if rereview:
+            typer.echo(f"  source: {SRC_REREVIEW}")
+        for f in reminders:
+            if f.check != "variant_rereview":
+                typer.echo(f"reminder: {f.where}: {f.message}")
     if findings:
         raise typer.Exit(1)
 

@@ -261,7 +261,10 @@ def _export_pseudonymised(kind, out: Path, dates: str, min_cell, settings_path, 
     pseudonymise.check_folder(out)
     engine = open_store(db)
     with reading(engine) as conn:
-        frames = {k: repo.LOADERS[k](conn) for k in IMPORT_ORDER}
+        from tracker.io.layouts import CONTACT_LAYOUTS
+
+        frames = {k: export.export_frame(conn, k) if k in CONTACT_LAYOUTS else repo.LOADERS[k](conn)
+                  for k in IMPORT_ORDER}  # fmt: skip
     extract = pseudonymise.pseudonymise(frames, key, dates=dates, min_cell=threshold, today=dt.date.today())
     counts = pseudonymise.write_extract(extract, out)
     small = extract.small_cells

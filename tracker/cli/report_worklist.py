@@ -68,7 +68,7 @@ def worklist_report(
         raise UserError(f"--out {out} is a file; give a folder")
     engine = open_store(db)
     with reading(engine) as conn:
-        frames = R._load(conn)
+        frames = R._load(conn, as_of=on)
     due_rows, affected_rows, trend, gap_rows, booking = worklist_rows(frames, conf, rule_set, policy, start, end, on, slots)
     from tracker.services import worklist as SW
 

@@ -29,9 +29,9 @@ def synth(
     Example: tracker synth --families 1000 --seed 7 --out synth1000 && tracker import all synth1000
     """
     from tracker import synth as generator
-    from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
+    from tracker.io.layouts import LAYOUTS, RECORD_KINDS
 
-    names = [LAYOUTS[k].file_name for k in IMPORT_ORDER] + [generator.TRUTH_FILE]
+    names = [LAYOUTS[k].file_name for k in RECORD_KINDS] + [generator.TRUTH_FILE]
     if out.exists() and not out.is_dir():
         raise UserError(f"--out {out} is a file; give a folder")
     present = [n for n in names if (out / n).exists()]

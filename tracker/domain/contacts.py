@@ -106,9 +106,30 @@ class ContactState:
         }  # fmt: skip
 
 
-def derive_state(person: str, events: Iterable[Mapping], wishes: Iterable[Mapping] = ()) -> ContactState:
+def as_it_stood(events: Iterable[Mapping], wishes: Iterable[Mapping], as_of: dt.date | None) -> tuple[list, list]:
+    """The events and wishes as the log stood on ``as_of`` (None: all): events dated on or before it (an
+    undated event, kept from an older store's single status, always counts), wishes recorded on or before
+    it, a wish ended after it still open."""
+    events, wishes = list(events), list(wishes)
+    if as_of is None:
+        return events, wishes
+    events = [e for e in events if e.get("event_date") is None or e["event_date"] <= as_of]
+    kept = []
+    for w in wishes:
+        recorded = w.get("recorded_date")
+        if recorded is not None and recorded > as_of:
+            continue
+        ended = w.get("ended_date")
+        kept.append({**w, "ended_date": None} if ended is not None and ended > as_of else w)
+    return events, kept
+
+
+def derive_state(person: str, events: Iterable[Mapping], wishes: Iterable[Mapping] = (),
+                 as_of: dt.date | None = None) -> ContactState:  # fmt: skip
     """The state of ``person`` from their events (dicts: event_date (date|None), outcome, channel, via,
-    later_date, id) and wishes (dicts: wish, via, recorded_date, ended_date)."""
+    later_date, id) and wishes (dicts: wish, via, recorded_date, ended_date), as the log stood on
+    ``as_of`` (default: everything recorded; see :func:`as_it_stood`)."""
+    events, wishes = as_it_stood(events, wishes, as_of)
     ordered = sorted(events, key=event_order)
     open_wishes = [w for w in wishes if w.get("ended_date") is None]
     # Two open wishes cannot be recorded (the service refuses); if a store holds them, the stricter wins.
@@ -145,8 +166,11 @@ def derive_state(person: str, events: Iterable[Mapping], wishes: Iterable[Mappin
     )
 
 
-def derive_states(events: Iterable[Mapping], wishes: Iterable[Mapping] = ()) -> dict[str, ContactState]:
-    """Person code -> :class:`ContactState`, for every person with an event or a wish (key ``person``)."""
+def derive_states(events: Iterable[Mapping], wishes: Iterable[Mapping] = (),
+                  as_of: dt.date | None = None) -> dict[str, ContactState]:  # fmt: skip
+    """Person code -> :class:`ContactState`, for every person with an event or a wish (key ``person``),
+    as the log stood on ``as_of`` (default: everything recorded)."""
+    events, wishes = as_it_stood(events, wishes, as_of)
     by_person: dict[str, list] = {}
     wishes_by: dict[str, list] = {}
     for e in events:

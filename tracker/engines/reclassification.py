@@ -45,6 +45,9 @@ Counselling practice (when the caller gives the family context):
   stepwise (:func:`tracker.domain.genetics.stepwise_route`): a relative whose
   at-risk relative nearer the carrier can be asked first is deferred, with
   that reason.
+* ``discharges`` (person -> the recorded discharge: ``discharge_date``, ``acmg_class`` relied on,
+  ``classified_on``): a downgrade recalls each discharged variant-negative relative with an item
+  naming the discharge and the class it relied on.
 * ``contact_dates`` / ``declined_reapproach_months`` / ``on``: a relative who
   declined is named as such, and the clinic's policy decides whether to
   re-approach (default: not re-approached; common practice).
@@ -185,6 +188,7 @@ def impact(
     contact_dates: Mapping[str, object] | None = None,
     declined_reapproach_months: int | None = None,
     on=None,
+    discharges: Mapping[str, Mapping] | None = None,
 ) -> list[ImpactItem]:
     """Impact items of a reclassification, family-level items first, then
     people in the order of ``statuses_after``.  Empty when the class is unchanged.
@@ -194,6 +198,7 @@ def impact(
     if kind == "none":
         return []
     states = _states(screening)
+    discharges = dict(discharges or {})
     affected = dict(affected or {})
     contact_dates = dict(contact_dates or {})
 
@@ -253,8 +258,18 @@ def impact(
         if kind == "downgrade":
             if b == "non_carrier":
                 was_released, relied = released(person)
+                gone = discharges.get(person)
                 if is_affected(person):
                     pass  # an affected member is never released on a genotype: stays in affected follow-up
+                elif gone is not None:
+                    own.append(ImpactItem(
+                        person, "return_to_surveillance",
+                        f"discharged from screening on {gone['discharge_date']}, relying on the variant being "
+                        f"{_class_words(gone['acmg_class'])} (classified {gone['classified_on']}); now "
+                        f"{_class_words(new_class)}: the discharge no longer holds",
+                        "recall: tell them the discharge no longer holds; return to clinical surveillance on the "
+                        "genotype-unknown schedule",
+                        SRC_DOWNGRADE_RELEASED, b, a))
                 elif was_released:
                     own.append(ImpactItem(
                         person, "return_to_surveillance",

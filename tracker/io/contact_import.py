@@ -16,12 +16,9 @@ from sqlalchemy import Connection
 
 from tracker.io import validation
 from tracker.io.columns import format_cell
-from tracker.io.layouts import CONTACT_LAYOUTS
+from tracker.io.layouts import CONTACT_IMPORT_ORDER, CONTACT_LAYOUTS
 from tracker.io.reading import InputRejected, Problem, read_table
 
-# The order a folder is read in: letters before wishes (a letter sent before a later wish stays valid).
-CONTACT_IMPORT_ORDER = ("contact-events", "external-results", "discharges", "bookings", "letters-sent",
-                        "contact-wishes")  # fmt: skip
 
 # Service field -> layout column, per kind (for the problem's column).
 _COLUMN = {
@@ -46,8 +43,10 @@ def _key(values, names) -> tuple:
 
 
 def import_contacts(conn: Connection, kind: str, path: Path, *, user: str | None = None,
-                    today: dt.date | None = None) -> dict:  # fmt: skip
-    """Check and write one contact-log file inside the caller's transaction; returns the counts."""
+                    today: dt.date | None = None, touched: set | None = None) -> dict:  # fmt: skip
+    """Check and write one contact-log file inside the caller's transaction; returns the counts.
+    ``touched``: the codes of the families written to are added to it (each write has already
+    refreshed its family's stored recall proposals, :func:`tracker.services.contacts._after_write`)."""
     from tracker.io.export import contact_frame
     from tracker.services import contacts as SC
 
@@ -73,40 +72,44 @@ def import_contacts(conn: Connection, kind: str, path: Path, *, user: str | None
             already += 1
             continue
         try:
-            _write(SC, conn, kind, v, user, today)
+            family = _write(SC, conn, kind, v, user, today)
         except InputRejected as exc:
             p = exc.problems[0]
             column = _COLUMN[kind].get(p.column, p.column)
             raise InputRejected([Problem(path.name, int(row_no), column, p.message)]) from None
         added += 1
+        if touched is not None and family:
+            touched.add(family)
     return {"kind": kind, "file": path.name, "rows_read": len(checked.rows), "rows_added": added,
             "rows_already_stored": already}  # fmt: skip
 
 
-def _write(SC, conn, kind: str, v: dict, user, today: dt.date) -> None:
+def _write(SC, conn, kind: str, v: dict, user, today: dt.date) -> str | None:
+    """Write one row through the service; returns the family code written to."""
+    r: dict = {}
     if kind == "contact-events":
-        SC.record_contact(conn, v["person"], on=v["event_date"], channel=v["channel"], by=v["by_role"],
+        r = SC.record_contact(conn, v["person"], on=v["event_date"], channel=v["channel"], by=v["by_role"],
                           outcome=v["outcome"], notes=v["notes"], later=v["later_date"], via=v["via"], user=user,
                           today=today)  # fmt: skip
     elif kind == "contact-wishes":
-        SC.record_wish(conn, v["person"], wish=v["wish"], on=v["recorded_date"], via=v["via"], notes=v["notes"],
+        r = SC.record_wish(conn, v["person"], wish=v["wish"], on=v["recorded_date"], via=v["via"], notes=v["notes"],
                        user=user, today=today)  # fmt: skip
         if v["ended_date"]:
             SC.end_wish(conn, v["person"], on=v["ended_date"], user=user, today=today)
     elif kind == "letters-sent":
-        SC.record_letter_sent(conn, v["person"], kind=v["kind"], template=v["template"],
+        r = SC.record_letter_sent(conn, v["person"], kind=v["kind"], template=v["template"],
                               template_version=v["template_version"], on=v["sent_date"], to=v["sent_to"],
                               via=v["via"], notes=v["notes"], user=user, today=today, history=True)  # fmt: skip
         if v["reply_date"]:
             SC.record_letter_reply(conn, v["person"], sent_date=v["sent_date"], kind=v["kind"], on=v["reply_date"],
                                    user=user, today=today)  # fmt: skip
     elif kind == "external-results":
-        SC.record_external_result(conn, v["person"], kind=v["kind"], on=v["result_date"], centre=v["centre"],
+        r = SC.record_external_result(conn, v["person"], kind=v["kind"], on=v["result_date"], centre=v["centre"],
                                   result=v["result"], variant=v["variant"], document_ref=v["document_ref"],
                                   notes=v["notes"], user=user, today=today)  # fmt: skip
     elif kind == "bookings":
         visit = dt.date.fromisoformat(v["visit_date"])
-        SC.record_booking(conn, v["person"], on=visit, purpose=v["purpose"], notes=v["notes"], user=user,
+        r = SC.record_booking(conn, v["person"], on=visit, purpose=v["purpose"], notes=v["notes"], user=user,
                           today=min(today, visit), history=True)  # fmt: skip
         if v["cancelled_date"]:
             SC.cancel_booking(conn, v["person"], visit_date=visit, on=v["cancelled_date"], user=user,
@@ -118,6 +121,7 @@ def _write(SC, conn, kind: str, v: dict, user, today: dt.date) -> None:
             raise InputRejected([Problem("discharge", None, "acmg_class",
                                          f"the store has the variant {r['acmg_class']} since {r['classified_on']} "
                                          f"on that day, not {v['acmg_class']} since {v['classified_on']}")])
+    return r.get("family")
 
 
 def import_contact_folder(conn: Connection, folder: Path, *, user: str | None = None) -> list[dict]:

@@ -22,7 +22,7 @@ from sqlalchemy import Connection, Date, insert, select
 from tracker.gcpause import gc_paused
 from tracker.io import validation
 from tracker.io.columns import partial_to_storage
-from tracker.io.layouts import IMPORT_ORDER, LAYOUTS, Layout
+from tracker.io.layouts import CONTACT_LAYOUTS, IMPORT_ORDER, LAYOUTS, Layout
 from tracker.io.reading import InputRejected, Problem, read_table
 from tracker.regular_file import NotReadable, open_regular
 from tracker.store import repository as repo
@@ -140,6 +140,8 @@ def import_file(
     """
     today = today or (ctx.today if ctx is not None else dt.date.today())
     user = audit.actor(user)  # checked (length) before anything is read or written
+    if kind in CONTACT_LAYOUTS:
+        return _import_contact_file(conn, kind, path, today=today, user=user, progress=progress, refresh=refresh)
     with gc_paused():  # millions of short-lived cells and tuples, no cycles (see tracker.gcpause)
         ctx = ctx if ctx is not None else context(conn, today)
         checked = check_file(conn, kind, path, today, ctx)
@@ -147,6 +149,24 @@ def import_file(
         writer = _WRITERS[kind]
         added, already = writer(conn, checked, progress or (lambda n: None), ctx)
     summary = ImportSummary(kind, path.name, len(checked.rows), added, already, touched(checked, ctx, added))
+    _record_run(conn, summary, path, user)
+    if refresh:
+        refresh_proposals(conn, summary.families, today)
+    return summary
+
+
+def _import_contact_file(conn: Connection, kind: str, path: Path, *, today: dt.date, user: str,
+                         progress: Progress | None, refresh: bool) -> ImportSummary:  # fmt: skip
+    """A contact-log file (revision 0012): each row checked as the matching form checks it
+    (:mod:`tracker.io.contact_import`), all or nothing, inside the caller's transaction."""
+    from tracker.io.contact_import import import_contacts
+
+    families: set[str] = set()
+    counts = import_contacts(conn, kind, path, user=user, today=today, touched=families)
+    if progress is not None:
+        progress(counts["rows_read"])
+    summary = ImportSummary(kind, path.name, counts["rows_read"], counts["rows_added"],
+                            counts["rows_already_stored"], frozenset(families))  # fmt: skip
     _record_run(conn, summary, path, user)
     if refresh:
         refresh_proposals(conn, summary.families, today)

@@ -25,6 +25,8 @@ from tracker.store import repository as repo
 
 def export_frame(conn: Connection, kind: str) -> pd.DataFrame:
     """The stored records of ``kind`` in its layout's clean form and column order."""
+    if kind in CONTACT_LAYOUTS:
+        return contact_frame(conn, kind)
     return repo.LOADERS[kind](conn)[LAYOUTS[kind].names]
 
 
@@ -58,7 +60,8 @@ def export_kind(conn: Connection, kind: str, path: Path) -> int:
 
 
 def export_all(conn: Connection, folder: Path, *, force: bool = True) -> dict[str, int]:
-    """Write every kind into ``folder`` under its layout file name (refuses to replace a file without ``force``)."""
+    """Write every kind (the contact log's six included) into ``folder`` under its layout file name
+    (refuses to replace a file without ``force``)."""
     folder.mkdir(parents=True, exist_ok=True)
     for kind in LAYOUTS:
         check_output(folder / LAYOUTS[kind].file_name, force=force)

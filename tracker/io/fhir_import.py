@@ -46,7 +46,7 @@ from tracker.domain.vocabulary import ACMG_SHORT
 from tracker.io import csv_import, validation
 from tracker.io.columns import format_cell
 from tracker.io.export import export_frame
-from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
+from tracker.io.layouts import LAYOUTS, RECORD_KINDS as IMPORT_ORDER
 from tracker.io.reading import MAX_FILE_BYTES, InputRejected, Problem
 from tracker.outputs import fhir_codes as fc
 

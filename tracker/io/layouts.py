@@ -343,19 +343,27 @@ def _with_store_limits(layout: Layout) -> Layout:
     return replace(layout, columns=tuple(cols))
 
 
-LAYOUTS = {
-    layout.kind: _with_store_limits(layout)
-    for layout in (FAMILIES, PEOPLE, VARIANTS, GENETIC_RESULTS, ASSESSMENTS, STUDIES)
-}
-FAMILIES, PEOPLE, VARIANTS, GENETIC_RESULTS, ASSESSMENTS, STUDIES = LAYOUTS.values()
-IMPORT_ORDER = tuple(LAYOUTS)
+# The records of a family (the layouts FHIR Bundles, the synthetic cohort and the store checks map).
+RECORD_KINDS = kinds.RECORD_KINDS
 # The contact log's layouts (revision 0012): the service checks a form field as the importer checks a cell.
 CONTACT_LAYOUTS = {
     layout.kind: _with_store_limits(layout)
     for layout in (CONTACT_EVENTS, CONTACT_WISHES, LETTERS_SENT, EXTERNAL_RESULTS, BOOKINGS, DISCHARGES)
 }
 CONTACT_EVENTS, CONTACT_WISHES, LETTERS_SENT, EXTERNAL_RESULTS, BOOKINGS, DISCHARGES = CONTACT_LAYOUTS.values()
-if IMPORT_ORDER != kinds.IMPORT_ORDER:  # the light copy the command line names the kinds with
-    raise AssertionError(f"tracker.io.kinds.IMPORT_ORDER {kinds.IMPORT_ORDER} != the layouts' {IMPORT_ORDER}")
+# The order a folder's contact-log files are read in, after the people: letters before wishes (a letter
+# sent before a later wish stays valid), results before discharges (a discharge needs the negative result).
+CONTACT_IMPORT_ORDER = kinds.CONTACT_IMPORT_ORDER
+# Every layout: `tracker import all` / `tracker export all` read and write each of them.
+LAYOUTS = {
+    **{layout.kind: _with_store_limits(layout)
+       for layout in (FAMILIES, PEOPLE, VARIANTS, GENETIC_RESULTS, ASSESSMENTS, STUDIES)},
+    **CONTACT_LAYOUTS,
+}  # fmt: skip
+FAMILIES, PEOPLE, VARIANTS, GENETIC_RESULTS, ASSESSMENTS, STUDIES = (LAYOUTS[k] for k in RECORD_KINDS)
+IMPORT_ORDER = RECORD_KINDS + CONTACT_IMPORT_ORDER
+CONTACT_KINDS = frozenset(CONTACT_LAYOUTS)
+if set(LAYOUTS) != set(kinds.IMPORT_ORDER):  # the light list the command line names the kinds with
+    raise AssertionError(f"tracker.io.kinds.IMPORT_ORDER {kinds.IMPORT_ORDER} != the layouts {sorted(LAYOUTS)}")
 
-__all__ = ["LAYOUTS", "IMPORT_ORDER", "Layout", "CODE_RE"]
+__all__ = ["LAYOUTS", "IMPORT_ORDER", "RECORD_KINDS", "CONTACT_KINDS", "CONTACT_LAYOUTS", "Layout", "CODE_RE"]

@@ -116,7 +116,25 @@ KEPT: dict[str, dict[str, str]] = {
         "person": PERSON, "study_date": DATE, "modality": KEEP, "site": SITE, "height_cm": KEEP,
         "weight_kg": KEEP, "measure": KEEP, "value": KEEP, "unit": KEEP,
     },
+    # The contact log (revision 0012): the controlled words, the dates and the family member (hashed)
+    # stay; notes, the letter's template name, the other centre, its document reference, a visit's
+    # purpose and the discharge advice are free text and are dropped (as every other free text).
+    "contact-events": {
+        "person": PERSON, "event_date": DATE, "channel": KEEP, "by_role": KEEP, "via": PERSON, "outcome": KEEP,
+        "later_date": DATE,
+    },
+    "contact-wishes": {"person": PERSON, "wish": KEEP, "via": PERSON, "recorded_date": DATE, "ended_date": DATE},
+    "letters-sent": {
+        "person": PERSON, "kind": KEEP, "sent_date": DATE, "sent_to": KEEP, "via": PERSON, "reply_date": DATE,
+    },
+    "external-results": {"person": PERSON, "kind": KEEP, "result_date": DATE, "variant": KEEP, "result": KEEP},
+    "bookings": {"person": PERSON, "visit_date": DATE, "cancelled_date": DATE},
+    "discharges": {
+        "person": PERSON, "discharge_date": DATE, "variant": KEEP, "acmg_class": KEEP, "classified_on": DATE,
+    },
 }  # fmt: skip
+# The contact log's kinds: an older caller may leave them out (they are then not written).
+CONTACT_KINDS = ("contact-events", "contact-wishes", "letters-sent", "external-results", "bookings", "discharges")
 
 # The column names a date becomes in ages mode.
 AGE_NAMES = {
@@ -126,6 +144,17 @@ AGE_NAMES = {
     ("genetic-results", "test_date"): "age_at_test",
     ("assessments", "assessment_date"): "age_at_assessment",
     ("studies", "study_date"): "age_at_study",
+    ("contact-events", "event_date"): "age_at_contact",
+    ("contact-events", "later_date"): "age_at_contact_asked_for",
+    ("contact-wishes", "recorded_date"): "age_at_wish",
+    ("contact-wishes", "ended_date"): "age_at_wish_ended",
+    ("letters-sent", "sent_date"): "age_at_letter",
+    ("letters-sent", "reply_date"): "age_at_reply",
+    ("external-results", "result_date"): "age_at_external_result",
+    ("bookings", "visit_date"): "age_at_booked_visit",
+    ("bookings", "cancelled_date"): "age_at_booking_cancelled",
+    ("discharges", "discharge_date"): "age_at_discharge",
+    ("discharges", "classified_on"): "age_at_class_relied_on",
 }
 
 
@@ -275,13 +304,16 @@ def pseudonymise(
     if min_cell < 1:
         raise UserError("the small-cell threshold must be a whole number of at least 1")
     k = key_bytes(key)
-    missing = [kind for kind in KEPT if kind not in frames]
+    missing = [kind for kind in KEPT if kind not in frames and kind not in CONTACT_KINDS]
     if missing:
         raise ValueError(f"frames missing for {', '.join(missing)}")
     people = frames["people"]
+    contact = [kd for kd in CONTACT_KINDS if kd in frames]
 
     person_codes = pd.concat([people[c] for c in ("person", "mother", "father", "twin_of")]
-                             + [frames[kd]["person"] for kd in ("genetic-results", "assessments", "studies")])
+                             + [frames[kd]["person"] for kd in ("genetic-results", "assessments", "studies")]
+                             + [frames[kd][c] for kd in contact for c in ("person", "via")
+                                if c in frames[kd].columns])  # fmt: skip
     persons = code_map(person_codes, lambda c: person_code(k, c), "person")
     family_codes = pd.concat([frames[kd]["family"] for kd in ("families", "people", "variants")])
     fams = code_map(family_codes, lambda c: family_code(k, c), "family")
@@ -295,6 +327,8 @@ def pseudonymise(
     kept: dict[str, list[str]] = {}
     dropped: dict[str, list[str]] = {}
     for kind, rules in KEPT.items():
+        if kind not in frames:
+            continue
         src = frames[kind]
         order = [c for c in LAYOUTS[kind].names if c in rules]
         dropped[kind] = [c for c in src.columns if c not in rules]

@@ -117,7 +117,38 @@ def cascade_data(frames: _Frames, family: str, on: dt.date, conf: Settings, gid:
         "caution": plan.caution + " " + GENOTYPE_CAUTION,
     }
     _mark_wishes(result, st)
+    _mark_discharges(result, frames, st)
     return result
+
+
+_LISTS = ("released", "clinical_screening", "gaps", "predictive_testing", "deferred", "segregation_testing")
+
+
+def _mark_discharges(result: dict, frames: _Frames, st: fs.FamilyState) -> None:
+    """A relative with a recorded discharge (revision 0012) is shown as discharged: each list item for them
+    carries ``discharge`` (the day, the class it relied on, whether it still holds); while it holds they are
+    not a gap; once the variant is no longer P/LP they are a gap ``discharge_no_longer_holds`` (recalled)."""
+    from tracker.services.recall import discharge_of
+
+    for person in sorted(st.pedigree):
+        d = discharge_of(frames, person, st.variant_class)
+        if d is None:
+            continue
+        found = False
+        for key in _LISTS:
+            for item in result[key]:
+                if item.get("person") == person:
+                    item["discharge"] = d
+                    found = True
+        if d["holds"]:
+            result["gaps"] = [g for g in result["gaps"] if g.get("person") != person]
+        elif not any(g.get("person") == person for g in result["gaps"]):
+            result["gaps"].append({"person": person, "gap": "discharge_no_longer_holds", "reason": d["words"],
+                                   "recalled": True, "discharge": d})  # fmt: skip
+        elif found:
+            for g in result["gaps"]:
+                if g.get("person") == person:
+                    g["reason"] = f"{g['reason']}; {d['words']}"
 
 
 def _gap(g, st: fs.FamilyState, on: dt.date, wait_weeks: int) -> dict:
@@ -164,4 +195,4 @@ def family_cascade(conn: Connection, family: str, on: dt.date, conf: Settings, g
                    scope: Scope | None = None) -> dict:  # fmt: skip
     """A family's cascade plan, reading only that family's records (``scope``: read these families
     instead, e.g. the cohort ``Scope()``; the result is the same)."""
-    return cascade_data(_load(conn, scope if scope is not None else family_scope(family)), family, on, conf, gid)
+    return cascade_data(_load(conn, scope if scope is not None else family_scope(family), on), family, on, conf, gid)

@@ -268,6 +268,9 @@ def record_booking(conn: Connection, person: str, *, on, purpose: str, user: str
     if prow.is_placeholder:
         raise _refuse(form, "person", f"{prow.code} is a placeholder (a pedigree position, not a person)")
     day = _date(form, "on", on, today=today, future=True, not_before=today, before_what="today")
+    birth = _birth_day(prow)
+    if birth is not None and day < birth:  # an imported past booking: never before the person was born
+        raise _refuse(form, "on", f"{day.isoformat()} is before the date of birth ({birth.isoformat()})")
     purpose = _text(form, "purpose", purpose, required=True, limit=Booking.__table__.c.purpose.type.length)
     notes = _text(form, "notes", notes)
     if not history:

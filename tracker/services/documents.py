@@ -70,7 +70,7 @@ def trajectory(conn: Connection, person: str, on: dt.date, conf: Settings, rule_
 
     if scope is None:
         scope = family_scope(person_family(conn, person))
-    frames = _load(conn, scope)
+    frames = _load(conn, scope, on)
     measures = repo.load_measures(conn)
     if person not in set(frames.people["person"]):
         raise UserError(f"unknown person {person!r}")
@@ -137,7 +137,7 @@ def letter_state(conn: Connection, person: str, on: dt.date) -> tuple[pd.DataFra
     from tracker.services.recall import with_contact_columns
 
     scope = family_scope(person_family(conn, person))
-    people = with_contact_columns(conn, repo.load_people(conn, scope), scope)
+    people = with_contact_columns(conn, repo.load_people(conn, scope), scope, on)
     if person not in set(people["person"]):
         raise UserError(f"unknown person {person!r}")
     family = people.loc[people["person"] == person, "family"].iloc[0]

@@ -288,7 +288,7 @@ def refresh_families(conn: Connection, families: Iterable[str], on: dt.date | No
         conf, rule_set, policy = _settings_for_write(conf, rule_set, policy)
     except UserError:
         return mark_stale(conn, fams)
-    frames = load(conn, family_scope(fams[0]) if len(fams) == 1 else Scope.families(fams))
+    frames = load(conn, family_scope(fams[0]) if len(fams) == 1 else Scope.families(fams), on)
     computed, _trend = compute(frames, fams, on, conf, rule_set, policy)
     return store(conn, fams, computed, on, rules_key(conf, rule_set, policy))
 
@@ -323,7 +323,7 @@ def _refresh_chunk(conn, chunk, on, conf, rule_set, policy, key) -> int:
     from tracker.services.recall import load
     from tracker.store.repository import Scope
 
-    frames = load(conn, Scope.families(chunk))
+    frames = load(conn, Scope.families(chunk), on)
     computed, _trend = compute(frames, chunk, on, conf, rule_set, policy)
     return store(conn, chunk, computed, on, key)
 
@@ -402,7 +402,7 @@ def differing(conn: Connection, conf: Settings, rule_set, policy: Policy,
     for day, fams in sorted(by_day.items()):
         for i in range(0, len(fams), CHUNK_FAMILIES):
             chunk = sorted(fams[i:i + CHUNK_FAMILIES])
-            computed, _ = compute(load(conn, Scope.families(chunk)), chunk, day, conf, rule_set, policy)
+            computed, _ = compute(load(conn, Scope.families(chunk), day), chunk, day, conf, rule_set, policy)
             fresh = {c.person: c for c in computed}
             for fam in chunk:
                 for r in stored[(day, fam)]:

@@ -55,29 +55,70 @@ class _Frames:
     assessments: pd.DataFrame
     studies: pd.DataFrame
     pending: frozenset[str]
+    # Recorded discharges of variant-negative relatives (revision 0012), as they stood on the day asked:
+    # person, discharge_date, variant, acmg_class (the class relied on), classified_on, advice.
+    discharges: pd.DataFrame | None = None
 
 
-def _load(conn: Connection, scope: Scope | None = None) -> _Frames:
-    """The frames a family state is built from, for the families in ``scope`` (default: the cohort)."""
+def _load(conn: Connection, scope: Scope | None = None, as_of: dt.date | None = None) -> _Frames:
+    """The frames a family state is built from, for the families in ``scope`` (default: the cohort).
+    ``as_of``: the contact log, the wishes, bookings, letter replies and results from other centres as
+    they stood on that day (only what was recorded on or before it; default: everything recorded)."""
     from tracker.store import repository as repo
 
     return _Frames(
         families=repo.load_families(conn, scope),
-        people=with_contact_columns(conn, repo.load_people(conn, scope), scope),
+        people=with_contact_columns(conn, repo.load_people(conn, scope), scope, as_of),
         variants=repo.load_variants(conn, scope),
         **with_external_results(conn, repo.load_genetic_results(conn, scope), repo.load_assessments(conn, scope),
-                                repo.load_studies(conn, entered=False, scope=scope), scope),
+                                repo.load_studies(conn, entered=False, scope=scope), scope, as_of),
         pending=frozenset(_open_task_people(conn, scope)),
+        discharges=discharges_as_of(conn, scope, as_of),
     )
 
 
 load = _load
 
+
+def discharges_as_of(conn: Connection, scope: Scope | None, as_of: dt.date | None) -> pd.DataFrame:
+    """The recorded discharges in ``scope`` dated on or before ``as_of`` (all without it), the newest per person last."""
+    from tracker.store import repository as repo
+
+    frame = repo.load_discharges(conn, scope)
+    if as_of is not None and len(frame):
+        frame = frame[frame["discharge_date"] <= as_of.isoformat()]
+    return frame.reset_index(drop=True)
+
+
+def discharge_of(frames: _Frames, person: str, current_class: str | None) -> dict | None:
+    """The person's latest recorded discharge (as it stood on the day asked) with whether it still holds:
+    the class it relied on was P/LP, and ``current_class`` (the family variant's class that day) is
+    still pathogenic or likely pathogenic."""
+    from tracker.domain.genetics import ACTIONABLE_CLASSES
+
+    d = frames.discharges
+    if d is None or not len(d):
+        return None
+    mine = d[d["person"] == person]
+    if not len(mine):
+        return None
+    row = mine.iloc[-1]
+    holds = current_class in ACTIONABLE_CLASSES
+    relied = str(row["acmg_class"]).replace("_", " ")
+    words = (f"discharged from screening on {row['discharge_date']}, relying on the variant {row['variant']} "
+             f"being {relied} (classified {row['classified_on']})")  # fmt: skip
+    if not holds:
+        now = (current_class or "not classified").replace("_", " ")
+        words += f"; the variant is now {now}: the discharge no longer holds, recall"
+    return {"discharged_on": row["discharge_date"], "variant": row["variant"], "relied_class": row["acmg_class"],
+            "relied_class_on": row["classified_on"], "advice": row["advice"], "holds": holds, "words": words}
+
 EXTERNAL = "(external)"
 
 
 def with_external_results(conn: Connection, results: pd.DataFrame, assessments: pd.DataFrame,
-                          studies: pd.DataFrame, scope: Scope | None = None) -> dict:  # fmt: skip
+                          studies: pd.DataFrame, scope: Scope | None = None,
+                          as_of: dt.date | None = None) -> dict:  # fmt: skip
     """The results, assessments and studies frames with what was done at other centres counted in
     (revision 0012; docs/contacts-and-letters.md), each marked external:
 
@@ -85,12 +126,17 @@ def with_external_results(conn: Connection, results: pd.DataFrame, assessments: 
       so it counts in the genotype status like a local one;
     * a screening: an assessment (the phenotype found, a note naming the centre) and a clinic study on
       that day (site = the centre, "(external)"), so it counts as a screening visit for recall.
+
+    ``as_of``: only results dated on or before that day.
     """
     import pandas as pd
 
     from tracker.store import repository as repo
 
     ext = repo.load_external_results(conn, scope)
+    if as_of is not None and len(ext):
+        day = as_of.isoformat()
+        ext = ext[ext["result_date"] <= day]
     results = results.copy()
     results["external"] = False
     if not len(ext):
@@ -132,18 +178,38 @@ def with_external_results(conn: Connection, results: pd.DataFrame, assessments: 
 CONTACT_COLUMNS = ("contact_wish", "contact_via", "contact_later_on", "informed_on", "contact_responded")
 
 
-def with_contact_columns(conn: Connection, people: pd.DataFrame, scope: Scope | None = None) -> pd.DataFrame:
+def with_contact_columns(conn: Connection, people: pd.DataFrame, scope: Scope | None = None,
+                         as_of: dt.date | None = None) -> pd.DataFrame:  # fmt: skip
     """The people frame with the contact log's current state beside each person (plain values the
     engines read: the open wish and its family member, the day asked to be contacted, the day first
-    informed, and whether a booking or a letter reply came since)."""
+    informed, and whether a booking or a letter reply came since).
+
+    ``as_of``: the state as it stood on that day (:func:`tracker.domain.contacts.as_it_stood`): events
+    dated and wishes recorded on or before it, a wish ended after it still open, bookings made on or
+    before it and not cancelled by then, replies received by then; ``contact_status`` and
+    ``contact_status_date`` are then that day's too."""
     import pandas as pd
 
     from tracker.store import repository as repo
 
-    states = repo.contact_states(conn, scope)
+    states = repo.contact_states(conn, scope, as_of)
     bookings = repo.load_bookings(conn, scope)
     letters = repo.load_letters(conn, scope)
     people = people.copy()
+    if as_of is not None:
+        day = as_of.isoformat()
+        if len(bookings):
+            bookings = bookings[bookings["entered_at"].str[:10] <= day].copy()
+            bookings.loc[bookings["cancelled_date"].notna() & (bookings["cancelled_date"] > day),
+                         "cancelled_date"] = None  # fmt: skip
+        if len(letters):
+            letters = letters[letters["sent_date"] <= day].copy()
+            letters.loc[letters["reply_date"].notna() & (letters["reply_date"] > day), "reply_date"] = None
+        people["contact_status"] = pd.Series([states[p].legacy if p in states else None for p in people["person"]],
+                                             index=people.index, dtype=object)  # fmt: skip
+        people["contact_status_date"] = pd.Series(
+            [_iso(states[p].status_date) if p in states else None for p in people["person"]],
+            index=people.index, dtype=object)  # fmt: skip
     cols: dict[str, list] = {c: [] for c in CONTACT_COLUMNS}
     for p in people["person"]:
         st = states.get(p)
@@ -444,6 +510,10 @@ def recall_data(frames: _Frames, person: str, on: dt.date, conf: Settings, rule_
     result["policy"] = policy.point
     result["trend_modifiers"] = trend
     result["release_basis"] = _release_basis(st, person)
+    discharge = discharge_of(frames, person, st.variant_class)
+    if discharge is not None:  # only when one is recorded (the JSON of everyone else is unchanged)
+        result["discharge"] = discharge
+        result.setdefault("notes", []).append(discharge["words"])
     result["risk_scd"] = _risk_scd(frames, person, fam.iloc[0], st, on)
     return result
 
@@ -454,4 +524,4 @@ def person_recall(conn: Connection, person: str, on: dt.date, conf: Settings, ru
     instead, e.g. the cohort ``Scope()``; the result is the same)."""
     if scope is None:
         scope = family_scope(person_family(conn, person))
-    return recall_data(_load(conn, scope), person, on, conf, rule_set, policy)
+    return recall_data(_load(conn, scope, on), person, on, conf, rule_set, policy)

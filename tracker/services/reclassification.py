@@ -64,10 +64,20 @@ def _impact(frames: _Frames, v: fs.VariantInfo, new_class: str, on: dt.date, rul
             state.pedigree, state.results, v.current_class, new_class, screening, variant=v.key,
             affected=state.affected, history=v.history, contact_dates=_contact_dates(frames, v.family),
             declined_reapproach_months=conf.cascade.declined_reapproach_months, on=on,
+            discharges=_discharges(frames, v),
         ), state, v.current_class, new_class),
         state,
     )  # fmt: skip
     return items, notes
+
+
+def _discharges(frames: _Frames, v: fs.VariantInfo) -> dict[str, dict]:
+    """Person -> their latest recorded discharge that relied on ``v`` (revision 0012)."""
+    d = frames.discharges
+    if d is None or not len(d):
+        return {}
+    mine = d[d["variant"] == v.key]
+    return {r["person"]: r for r in mine.to_dict("records")}
 
 
 def _item_dict(iid: int | None, it) -> dict:

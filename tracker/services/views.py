@@ -40,7 +40,7 @@ def family_view(conn: Connection, family: str, on: dt.date, conf: Settings, rule
     from tracker.services import cascade as SC
     from tracker.services import recall as SR
 
-    frames = SR.load(conn, SR.family_scope(family))
+    frames = SR.load(conn, SR.family_scope(family), on)
     if family not in set(frames.families["family"]):
         raise UserError(f"family {family} is not in the database")
     people = frames.people[frames.people["family"] == family]

@@ -164,7 +164,7 @@ def _recomputed(conn, families: set[str], on: dt.date, conf: Settings, rule_set,
     if not families:
         return [], {}, set(), False
     scope = Scope() if len(families) > SP.CHUNK_FAMILIES else Scope.families(sorted(families))
-    computed, _trend = SP.compute(load(conn, scope), families, on, conf, rule_set, policy)
+    computed, _trend = SP.compute(load(conn, scope, on), families, on, conf, rule_set, policy)
     props = [c.proposal for c in computed if c.proposal is not None]
     return (props, {c.person: c.family for c in computed}, {c.person for c in computed if c.affected},
             any(c.trend_values for c in computed))

@@ -391,11 +391,12 @@ def _wish_rows(conn: Connection, scope: Scope | None):
     return [dict(zip(cols, r)) for r in conn.execute(stmt).all()]
 
 
-def contact_states(conn: Connection, scope: Scope | None = None) -> dict:
-    """Person code -> :class:`tracker.domain.contacts.ContactState` for everyone in scope with an event or wish."""
+def contact_states(conn: Connection, scope: Scope | None = None, as_of: dt.date | None = None) -> dict:
+    """Person code -> :class:`tracker.domain.contacts.ContactState` for everyone in scope with an event or wish,
+    as the log stood on ``as_of`` (default: everything recorded)."""
     from tracker.domain.contacts import derive_states
 
-    return derive_states(_contact_rows(conn, scope), _wish_rows(conn, scope))
+    return derive_states(_contact_rows(conn, scope), _wish_rows(conn, scope), as_of)
 
 
 def _dated_frame(rows: list[dict], cols: list[str], dates: tuple[str, ...], times: tuple[str, ...] = ()) -> pd.DataFrame:
@@ -519,4 +520,11 @@ LOADERS = {
     "genetic-results": load_genetic_results,
     "assessments": load_assessments,
     "studies": load_studies,
+    # The contact log (revision 0012); the export writes the entered events only (tracker.io.export.contact_frame).
+    "contact-events": load_contact_events,
+    "contact-wishes": load_contact_wishes,
+    "letters-sent": load_letters,
+    "external-results": load_external_results,
+    "bookings": load_bookings,
+    "discharges": load_discharges,
 }
