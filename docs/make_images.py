@@ -11,6 +11,8 @@ and renders its first page to PNG with :func:`tracker.outputs.letter_pdf.render_
   the demo's invented assessments record his HCM Risk-SCD answers); the demo gives him
   17-segment strain, so this page shows the polar map beside the charts (the script checks it does)
 * docs/images/trajectory-page2-example.png  second page of the same report (tables, notes and sources)
+* docs/images/uptake-example.png    second page of the clinic's cascade uptake report up to 2026-12-01
+  (the cascade funnel and the time-to-contact and time-to-test curves)
 
 Dates are fixed (letter date and worklist "as of" 2026-12-01) so the pictures
 do not change from day to day.  All data are invented.
@@ -78,6 +80,7 @@ def main() -> None:
         _tracker("report", "trajectory", TRAJECTORY, "--out", str(out), "--as-of", ON, "--settings", str(SETTINGS),
                  "--db", db)  # fmt: skip
         _check_map_on_first_page(out / f"trajectory-{TRAJECTORY}.pdf")
+        _tracker("report", "uptake", "--to", ON, "--out", str(out), "--settings", str(SETTINGS), "--db", db)
         made = {
             "letter-HV01-IV-5.pdf": "letter-example.png",
             "pedigree-HV01.pdf": "pedigree-HV01.png",
@@ -89,6 +92,8 @@ def main() -> None:
             print(f"wrote {path.relative_to(ROOT)}")
         path = render_png(out / f"trajectory-{TRAJECTORY}.pdf", IMAGES / "trajectory-page2-example.png", page=1,
                           scale=2.0)  # fmt: skip
+        print(f"wrote {path.relative_to(ROOT)}")
+        path = render_png(out / f"uptake-to-{ON}.pdf", IMAGES / "uptake-example.png", page=1, scale=2.0)
         print(f"wrote {path.relative_to(ROOT)}")
 
 

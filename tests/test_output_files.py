@@ -46,6 +46,9 @@ WRITERS = [
      "trajectory-HV02-III-2.pdf"),
     ("worklist pdf", lambda p: ("report", "worklist", "--from", "2026-01-01", "--to", "2026-12-31", "--out", p),
      "worklist-2026-01-01-2026-12-31.pdf"),
+    ("uptake csv", lambda p: ("uptake", "--to", "2026-12-01", "--csv", p), None),
+    ("uptake pdf", lambda p: ("report", "uptake", "--from", "2012-01-01", "--to", "2026-12-01", "--out", p),
+     "uptake-2012-01-01-2026-12-01.pdf"),
 ]
 IDS = [w[0] for w in WRITERS]
 

@@ -27,7 +27,8 @@ print(",".join(m for m in {heavy!r} if m in sys.modules))
                                   ["families", "--help"], ["import", "--help"], ["edit", "--help"],
                                   ["report", "--help"], ["report", "trajectory", "--help"],
                                   ["report", "pedigree", "--help"], ["report", "letter", "--help"],
-                                  ["user", "--help"], ["user", "add", "--help"], ["serve", "--help"]])  # fmt: skip
+                                  ["user", "--help"], ["user", "add", "--help"], ["serve", "--help"],
+                                  ["uptake", "--help"], ["report", "uptake", "--help"]])  # fmt: skip
 def test_help_loads_no_heavy_library(argv):
     out = subprocess.run([sys.executable, "-c", SCRIPT.format(argv=argv, heavy=HEAVY)], capture_output=True,
                          text=True, check=True)  # fmt: skip

@@ -91,6 +91,8 @@ def test_pedigree_svg_has_one_linked_symbol_per_person(frames, family):
         shapes = [e for e in a.iter() if e.tag.split("}")[1] in ("rect", "circle", "polygon")]
         assert shapes  # the symbol itself is the link
     assert {a.get("href") for a in links} == {f"/person/{c}" for c in codes}
+    # links inside role="img" are nested interactive content (axe-core "nested-interactive"): a group
+    assert root.get("role") == "group" and root.get("aria-label") == f"Pedigree of family {family}"
 
 
 def test_pedigree_svg_shows_no_name_and_no_full_date(frames):

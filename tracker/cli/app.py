@@ -8,7 +8,7 @@ import sys
 import typer
 
 from tracker import __version__
-from tracker.cli import admin, audit, contacts, edits, families, recall, reports, review, web
+from tracker.cli import admin, audit, contacts, edits, families, recall, reports, review, uptake, web
 from tracker.cli.common import dispose_engines
 from tracker.errors import UserError
 
@@ -49,6 +49,7 @@ edits.register(app)
 contacts.register(app)
 audit.register(app)
 reports.register(app)
+uptake.register(app)
 web.register(app)
 
 

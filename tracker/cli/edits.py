@@ -43,6 +43,15 @@ DateArg = Annotated[str, typer.Argument(help="Study date (YYYY-MM-DD).")]
 ModalityArg = Annotated[str, typer.Argument(help="echo, cmr, ecg or clinic.")]
 
 
+def _writing(engine):
+    """The write transaction of an edit, with what the proposals' refresh needs loaded first
+    (:func:`tracker.services.proposals.prepare`), so the lock is held for the work only."""
+    from tracker.services.proposals import prepare
+
+    prepare()
+    return writing(engine)
+
+
 def _pairs(sets: list[str]) -> dict[str, str]:
     out: dict[str, str] = {}
     for item in sets:
@@ -73,7 +82,7 @@ def edit_person(person: PersonArg, sets: Sets, reason: Reason, user: UserOption 
     Example: tracker edit person HV01-III-4 --set vital_status=deceased --set death_date=2026-10-02 --reason "GP letter"
     """
     engine = open_store(db)
-    with writing(engine) as conn:
+    with _writing(engine) as conn:
         change = edits.edit_person(conn, person, _pairs(sets), reason=reason, user=user)
     _show(change, json_out)
 
@@ -86,7 +95,7 @@ def edit_study(person: PersonArg, study_date: DateArg, modality: ModalityArg, se
     Example: tracker edit study HV01-III-4 2025-03-14 echo --set height_cm=171 --reason "height misread"
     """
     engine = open_store(db)
-    with writing(engine) as conn:
+    with _writing(engine) as conn:
         change = edits.edit_study(conn, person, study_date, modality, _pairs(sets), reason=reason, user=user)
     _show(change, json_out)
 
@@ -109,7 +118,7 @@ def edit_assessment(
     Example: tracker edit assessment HV01-IV-2 2026-06-05 --set nsvt=yes --reason "48-h Holter 2026-06-20"
     """
     engine = open_store(db)
-    with writing(engine) as conn:
+    with _writing(engine) as conn:
         change = edits.edit_assessment(conn, person, assessment_date, _pairs(sets), reason=reason, user=user)
     _show(change, json_out)
 
@@ -132,7 +141,7 @@ def edit_value(
     Example: tracker edit value HV01-III-4 2025-03-14 echo mwt_echo 12.5 mm --reason "re-measured from stored images"
     """
     engine = open_store(db)
-    with writing(engine) as conn:
+    with _writing(engine) as conn:
         change = edits.edit_value(conn, person, study_date, modality, measure, value, unit, reason=reason, user=user)
     _show(change, json_out)
 
@@ -145,7 +154,7 @@ def remove_person(person: PersonArg, reason: Reason, user: UserOption = None, db
     Example: tracker remove person HV02-III-7 --reason "duplicate of HV02-III-6"
     """
     engine = open_store(db)
-    with writing(engine) as conn:
+    with _writing(engine) as conn:
         change = edits.remove_person(conn, person, reason=reason, user=user)
     _show(change, json_out)
 
@@ -158,7 +167,7 @@ def remove_study(person: PersonArg, study_date: DateArg, modality: ModalityArg, 
     Example: tracker remove study HV02-II-3 2024-05-02 echo --reason "belongs to another patient"
     """
     engine = open_store(db)
-    with writing(engine) as conn:
+    with _writing(engine) as conn:
         change = edits.remove_study(conn, person, study_date, modality, reason=reason, user=user)
     _show(change, json_out)
 
@@ -171,7 +180,7 @@ def reinstate_person(person: PersonArg, reason: Reason, user: UserOption = None,
     Example: tracker reinstate person HV02-III-7 --reason "removed by mistake"
     """
     engine = open_store(db)
-    with writing(engine) as conn:
+    with _writing(engine) as conn:
         change = edits.reinstate_person(conn, person, reason=reason, user=user)
     _show(change, json_out)
 
@@ -184,7 +193,7 @@ def reinstate_study(person: PersonArg, study_date: DateArg, modality: ModalityAr
     Example: tracker reinstate study HV02-II-3 2024-05-02 echo --reason "removed by mistake"
     """
     engine = open_store(db)
-    with writing(engine) as conn:
+    with _writing(engine) as conn:
         change = edits.reinstate_study(conn, person, study_date, modality, reason=reason, user=user)
     _show(change, json_out)
 

@@ -15,10 +15,11 @@ report_app = typer.Typer(
 
 
 def register(app: typer.Typer) -> None:
-    from tracker.cli import report_letter, report_pedigree, report_trajectory, report_worklist
+    from tracker.cli import report_letter, report_pedigree, report_trajectory, report_worklist, uptake
 
     report_letter.register(report_app)
     report_pedigree.register(report_app)
     report_worklist.register(report_app)
     report_trajectory.register(report_app)
+    uptake.register_report(report_app)
     app.add_typer(report_app, name="report")

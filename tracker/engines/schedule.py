@@ -888,7 +888,7 @@ def valid_until(person: PersonState, rule_set: RuleSet, p: Proposal) -> dt.date:
     today = p.today
     if _holds_for_today_only(p):
         return today
-    end = dt.date.max
+    end = dt.date(9999, 12, 31)  # built here, not date.max: the same date class as the caller's dates
     if p.due is not None and p.due >= today:
         end = p.due - dt.timedelta(days=1) if p.never_screened else p.due
     birthday = next_band_birthday(person.birth, band_edge_ages(rule_set), today)

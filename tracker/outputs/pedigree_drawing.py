@@ -1008,7 +1008,7 @@ def pedigree_svg(layout: PedigreeLayout, marks: Mapping[str, PersonMarks], *, fa
         return oy + v * S
 
     lw = 0.045 * S
-    s = Svg(width, height, label=f"Pedigree of family {family}", css_class="pedigree")
+    s = Svg(width, height, label=f"Pedigree of family {family}", css_class="pedigree", role="group")  # symbols are links
     s.el("rect", x=0.0, y=0.0, width=width, height=height, fill="#FFFFFF", stroke="none")
     s.open("g", class_="generations", font_weight="bold", font_size=0.42 * S, fill="#000000")
     for g in layout.generations:

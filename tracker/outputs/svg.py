@@ -33,11 +33,13 @@ def _attr_value(v: object) -> str:
 class Svg:
     """Append-only SVG text builder.  ``open``/``close`` for groups and links, ``el`` for leaves."""
 
-    def __init__(self, width: float, height: float, *, label: str = "", css_class: str = ""):
+    def __init__(self, width: float, height: float, *, label: str = "", css_class: str = "", role: str = "img"):
+        # role "img": one picture, its parts hidden from assistive technology; a drawing whose parts are
+        # links must be a "group" instead (links inside an img are nested interactive content).
         self.parts: list[str] = []
         self._stack: list[str] = []
         attrs = {"xmlns": SVG_NS, "width": width, "height": height, "viewBox": f"0 0 {num(width)} {num(height)}",
-                 "role": "img", "font-family": "Helvetica, Arial, sans-serif"}
+                 "role": role, "font-family": "Helvetica, Arial, sans-serif"}
         if css_class:
             attrs["class"] = css_class
         if label:

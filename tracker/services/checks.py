@@ -34,7 +34,7 @@ def check_findings(conn: Connection, today: dt.date, rereview_months: int, setti
         broken = {f.where.removeprefix("family ") for f in findings if f.check == "pedigree"}
         findings += recall_findings(people[~people["family"].isin(broken)], repo.load_variants(conn), results,
                                     assessments, studies)  # fmt: skip
-        findings += proposal_findings(conn, settings)
+        findings += proposal_findings(conn, settings, broken)
         # re-review reminders: listed apart, not findings
         reminders = checks.variant_rereview_reminders(conn, today, rereview_months)
     return findings, reminders
@@ -51,14 +51,15 @@ def recall_findings(people, variants, results, assessments, studies):
             for st in states.values() for p, why in fs.unscheduled_at_risk(st, by_code)]  # fmt: skip
 
 
-def proposal_findings(conn: Connection, settings=None):
+def proposal_findings(conn: Connection, settings=None, broken: set[str] = frozenset()):
     """Stored recall proposals that differ from a recomputation from the records now stored
     (every write recomputes them, so a difference means a write that did not, or a change made
-    outside the tool). Rows computed under other settings are recomputed by the next read."""
+    outside the tool). Rows computed under other settings are recomputed by the next read; families
+    whose links cannot form a pedigree (``broken``, reported apart) cannot be recomputed."""
     from tracker.domain.consistency import Finding
     from tracker.services import proposals as SP
     from tracker.services.recall import recall_rules
 
     conf, rule_set, policy = recall_rules(settings, None)
     return [Finding("recall proposal", f"person {p}", f"stored recall proposal differs from a recomputation: {what}; "
-                    "run `tracker recall --refresh`") for p, what in SP.differing(conn, conf, rule_set, policy)]  # fmt: skip
+                    "run `tracker recall --refresh`") for p, what in SP.differing(conn, conf, rule_set, policy, skip=broken)]  # fmt: skip

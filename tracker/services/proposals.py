@@ -200,7 +200,8 @@ def compute(frames: _Frames, families: Iterable[str], on: dt.date, conf: Setting
             out.append(Computed(p, fam, prop.status, prop, None, s.phenotype == "positive",
                                 valid_until(s, rule_set, prop), values, versions[fam]))  # fmt: skip
         for p, why in st.not_scheduled.items():
-            out.append(Computed(p, fam, "not_scheduled", None, why, False, dt.date.max, values, versions[fam]))
+            out.append(Computed(p, fam, "not_scheduled", None, why, False, dt.date(9999, 12, 31), values,
+                                versions[fam]))  # fmt: skip
     return out, trend
 
 
@@ -249,6 +250,19 @@ def _settings_for_write(conf: Settings | None, rule_set, policy: Policy | None):
     from tracker.services.recall import recall_rules
 
     return recall_rules(None, None)
+
+
+def prepare() -> None:
+    """Load what :func:`refresh_families` uses (pandas, the engines, the rule set) before a
+    command takes the write lock, so that the lock is held for the computation only."""
+    import pandas  # noqa: F401
+    from tracker.engines import family_state, review  # noqa: F401
+    from tracker.normals import criteria  # noqa: F401
+
+    try:
+        _settings_for_write(None, None, None)
+    except UserError:  # refresh_families marks the rows stale then
+        pass
 
 
 def refresh_families(conn: Connection, families: Iterable[str], on: dt.date | None = None,
@@ -361,10 +375,13 @@ def any_trend_values(conn: Connection, skip: set[str] = frozenset()) -> bool:
 # --------------------------------------------------------------------------- checking
 
 
-def differing(conn: Connection, conf: Settings, rule_set, policy: Policy) -> list[tuple[str, str]]:
+def differing(conn: Connection, conf: Settings, rule_set, policy: Policy,
+              skip: Iterable[str] = ()) -> list[tuple[str, str]]:  # fmt: skip
     """Rows computed under ``conf``/``rule_set``/``policy`` that differ from a recomputation for
     the same day from the records now stored: (person, what differs). Rows computed under other
-    inputs or marked stale are not compared (the next read recomputes them)."""
+    inputs or marked stale are not compared (the next read recomputes them), nor the families in
+    ``skip`` (e.g. links that cannot form a pedigree)."""
+    skip = set(skip)
     from tracker.services.recall import load
     from tracker.store.repository import Scope
 
@@ -378,6 +395,8 @@ def differing(conn: Connection, conf: Settings, rule_set, policy: Policy) -> lis
         stored.setdefault((r.as_of, r[1]), []).append(r)
     by_day: dict[dt.date, list[str]] = {}
     for day, fam in stored:
+        if fam in skip:
+            continue
         by_day.setdefault(day, []).append(fam)
     out = []
     for day, fams in sorted(by_day.items()):

@@ -1,0 +1,1 @@
+"""Browser tests (marker ``browser``): Debian chromium driven by Playwright."""
