@@ -66,18 +66,14 @@ def waiting_words(row: dict) -> str:
 
 
 def contact_words(row: dict, booked: dict | None = None) -> str:
-    """The row's contact standing in words: the category with its dates, the family member contact goes
-    through, and a visit already booked."""
+    """The details of the row's contact standing (its category is shown as a tag beside them): the day
+    informed, the day asked for, the family member contact goes through, and a visit already booked."""
     parts = []
     cat = row.get("contact")
-    if cat == "no_response":
-        parts.append(f"informed {row.get('informed_on')}, no response since")
-    elif cat == "contact_later" and row.get("contact_later_on"):
-        parts.append(f"asked to be contacted on {row['contact_later_on']}")
-    elif cat:
-        parts.append(CONTACT_WORDS.get(cat, cat.replace("_", " ")))
+    if cat == "contact_later" and row.get("contact_later_on"):
+        parts.append(f"on {row['contact_later_on']}")
     elif row.get("informed_on"):
-        parts.append(f"informed {row['informed_on']}")
+        parts.append(f"informed {row['informed_on']}" + (", nothing back since" if cat == "no_response" else ""))
     if row.get("contact_via"):
         parts.append(f"only through {row['contact_via']}")
     if booked:
@@ -209,6 +205,7 @@ def day_page(request: Request):
     return render(request, "day.html", {
         "f": f, "reasons": REASONS, "data": data, "query": _query(f), "gap_words": GAP_WORDS,
         "flag_words": flag_words, "waiting_text": waiting_words, "contact_words": contact_words,
+        "contact_labels": CONTACT_WORDS,
         "needs_words": needs_words, "channels": CONTACT_CHANNELS, "outcomes": CONTACT_OUTCOMES,
         "today": data["on"].isoformat(), "done": DONE_WORDS.get(request.query_params.get("done", "")),
     })  # fmt: skip
