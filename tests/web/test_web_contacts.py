@@ -336,6 +336,16 @@ def test_recorded_contact_and_booking_show_on_the_list_straight_after(browser, w
     assert [e for e in _events(web_db, person) if e.event_date and str(e.event_date)[:10] == "2026-12-07"]
 
 
+def test_htmx_row_form_refreshes_the_contact_cell(browser):
+    nurse = browser("nurse")
+    person = _rows(nurse.get("/day").text)[0]
+    r = nurse.post(f"/day/booking/{person}", data={"csrf_token": nurse.token, "on": "2027-01-11", "purpose": "echo"},
+                   headers={"HX-Request": "true"})  # fmt: skip
+    assert r.status_code == 200 and "visit booked" in r.text
+    assert re.search(rf'<td class="contact-cell" id="contact-{re.escape(person)}" hx-swap-oob="true">[^<]*visit booked '
+                     r'for 2027-01-11', r.text)  # fmt: skip
+
+
 def test_no_response_and_must_not_approach_sections(browser, web_db):
     nurse, counsellor = browser("nurse"), browser("counsellor")
     people = _rows(nurse.get("/day").text)

@@ -290,10 +290,26 @@ def _row_form_result(request: Request, template: str, person: str, values: dict,
                                           "channels": CONTACT_CHANNELS, "outcomes": CONTACT_OUTCOMES,
                                           "today": auth.now(request).date().isoformat()},
                       status_code=400)  # fmt: skip
-    if request.headers.get("hx-request"):
-        return render(request, "_row_done.html", {"person": person, "what": values.get("_what", "recorded")})
+    if request.headers.get("hx-request"):  # the notice in place of the form, and the row's contact cell refreshed
+        return render(request, "_row_done.html", {"person": person, "what": values.get("_what", "recorded"),
+                                                  "standing": _standing_now(request, person)})  # fmt: skip
     kind = "contact" if template == "day_contact.html" else "booking"
     return RedirectResponse(f"/day?done={kind}#row-{person}", status_code=303)
+
+
+def _standing_now(request: Request, person: str) -> str:
+    """The row's contact details straight after a write, from the log (the tag waits for the next view)."""
+    from tracker.services import contact_view as CV
+    from tracker.services import contacts as SC
+
+    today = auth.now(request).date()
+    with reading(auth.engine(request)) as conn:
+        state = SC.contact_state(conn, person)
+        booked = CV.open_bookings(conn, [state["family"]], today).get(person)
+    row = {"informed_on": state["informed_date"], "contact_later_on": state["contact_later_on"],
+           "contact": "contact_later" if state["contact_later_on"] and state["contact_later_on"] > today.isoformat()
+           else None, "contact_via": state["wish_via"]}  # fmt: skip
+    return contact_words(row, booked)
 
 
 def _date_field(form, name: str, errors: dict) -> dt.date | None:
