@@ -25,7 +25,7 @@ from tracker.web import auth, csrf
 
 HERE = Path(__file__).resolve().parent
 # The page modules mounted, in this order.  Modules not present yet are skipped.
-PAGES = ("signin", "day", "cohort", "imports", "admin", "family", "person", "entry", "contacts")
+PAGES = ("signin", "day", "cohort", "imports", "admin", "family", "person", "entry", "contacts", "uptake")
 
 CSP = ("default-src 'self'; script-src 'self'; style-src 'self'; img-src 'self' data:; object-src 'none'; "
        "base-uri 'none'; form-action 'self'; frame-ancestors 'none'")  # fmt: skip

@@ -8,12 +8,16 @@ from __future__ import annotations
 from tracker.store.models import ROLES
 
 ALLOWED: dict[str, frozenset[str]] = {
-    "contact": frozenset({"nurse"}),  # record a contact attempt with a relative
-    "booking": frozenset({"nurse"}),  # book a visit
+    "contact": frozenset({"nurse", "counsellor"}),  # record a contact attempt with a relative
+    "booking": frozenset({"nurse"}),  # book a visit or cancel a booking
+    "wish": frozenset({"counsellor"}),  # record or end a relative's wish about contact
+    "letter_reply": frozenset({"nurse", "counsellor"}),  # record the reply to a letter sent
+    "external_result": frozenset({"counsellor"}),  # record a result from another centre
+    "discharge": frozenset({"counsellor"}),  # discharge a variant-negative relative from screening
     "pedigree": frozenset({"counsellor"}),  # edit people and their links
     "genetics": frozenset({"counsellor"}),  # genetic results
     "variant_class": frozenset({"counsellor"}),  # variant classifications
-    "letter": frozenset({"counsellor"}),  # family letters
+    "letter": frozenset({"counsellor"}),  # family letters, and recording one as sent
     "study": frozenset({"cardiologist"}),  # imaging studies and their measurements
     "assessment": frozenset({"cardiologist"}),  # clinical assessments
     "accounts": frozenset({"admin"}),  # add, disable, reset accounts; read the audit trail
@@ -22,7 +26,11 @@ ALLOWED: dict[str, frozenset[str]] = {
 
 ACTION_WORDS = {
     "contact": "record contacts",
-    "booking": "book visits",
+    "booking": "book or cancel visits",
+    "wish": "record wishes about contact",
+    "letter_reply": "record replies to letters",
+    "external_result": "record results from other centres",
+    "discharge": "record discharges",
     "pedigree": "edit the pedigree",
     "genetics": "record genetic results",
     "variant_class": "record variant classifications",

@@ -15,6 +15,7 @@ HERE = Path(__file__).resolve().parent
 NAV = [  # (path, label, action needed or None for everyone)
     ("/day", "Today's list", None),
     ("/cohort", "Cohort", None),
+    ("/uptake", "Cascade uptake", None),
     ("/import", "Import", "import"),
     ("/admin/accounts", "Accounts", "accounts"),
     ("/admin/audit", "Audit trail", "accounts"),

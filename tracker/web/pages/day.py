@@ -9,7 +9,6 @@ The lists come from :mod:`tracker.services.worklist` exactly as ``tracker workli
 from __future__ import annotations
 
 import datetime as dt
-import importlib.util
 
 from starlette.requests import Request
 from starlette.responses import RedirectResponse, Response
@@ -38,9 +37,48 @@ CONTACT_FIELDS = ("on", "channel", "outcome", "later", "via", "notes")
 BOOKING_FIELDS = ("on", "purpose", "notes")
 
 
-def contacts_available() -> bool:
-    """Whether the contact-log service is installed (it is built beside this page)."""
-    return importlib.util.find_spec("tracker.services.contacts") is not None
+# Where a row stands with contact (the worklist's ``contact`` category, docs/contacts-and-letters.md).
+CONTACT_WORDS = {
+    "must_not_approach": "must not be approached",
+    "declined": "declined contact",
+    "lost_to_follow_up": "lost to follow-up",
+    "contact_later": "asked to be contacted later",
+    "not_informed": "not yet informed",
+    "no_response": "informed, no response",
+}
+
+
+def waiting_words(row: dict) -> str:
+    """The "Waiting" column: the never-screened phrase, 'declined: not recalled', else how long overdue
+    in words ("4025 days overdue", "due today", "due in 12 days")."""
+    if row.get("waiting"):
+        return row["waiting"]
+    if row.get("status") == "not_recalled":
+        return "declined: not recalled"
+    days = row.get("days_overdue")
+    if days is None:
+        return ""
+    if days == 0:
+        return "due today"
+    if days < 0:
+        return f"due in {-days} day{'s' if days != -1 else ''}"
+    return f"{days} day{'s' if days != 1 else ''} overdue"
+
+
+def contact_words(row: dict, booked: dict | None = None) -> str:
+    """The details of the row's contact standing (its category is shown as a tag beside them): the day
+    informed, the day asked for, the family member contact goes through, and a visit already booked."""
+    parts = []
+    cat = row.get("contact")
+    if cat == "contact_later" and row.get("contact_later_on"):
+        parts.append(f"on {row['contact_later_on']}")
+    elif row.get("informed_on"):
+        parts.append(f"informed {row['informed_on']}" + (", nothing back since" if cat == "no_response" else ""))
+    if row.get("contact_via"):
+        parts.append(f"only through {row['contact_via']}")
+    if booked:
+        parts.append(f"visit booked for {booked['visit_date']}")
+    return "; ".join(parts)
 
 
 def _day(text: str | None, field: str, default: dt.date, errors: dict) -> dt.date:
@@ -111,16 +149,34 @@ def day_data(request: Request, f: dict) -> dict:
                               conf.slots_per_week)
     with reading(auth.engine(request)) as conn:
         families = TS.list_tasks(conn, None) if f["reason"] in ("", "task") else []
-    rows = [r for r in lists["due"] + lists["affected"] + lists["contact_gaps"] if _matches(r, f)]
+    from tracker.services import contact_view as CV
+
+    every = [r for r in lists["due"] + lists["affected"] + lists["contact_gaps"] if _matches(r, f)]
+    # Relatives who asked for no further contact are never proposed: their own section, no row forms.
+    must_not = sorted((r for r in every if r.get("contact") == "must_not_approach"),
+                      key=lambda r: (r["family"], r["person"]))  # fmt: skip
+    rows = [r for r in every if r.get("contact") != "must_not_approach"]
     rows.sort(key=_urgency)
+    # Informed, no response after the wait: the longest wait first.
+    no_response = sorted((r for r in rows if r.get("contact") == "no_response"),
+                         key=lambda r: (r.get("informed_on") or "9999", _urgency(r)))  # fmt: skip
     tasks = [t for t in families if not f["family"] or t["family"] == f["family"]]
+    with reading(auth.engine(request)) as conn:
+        booked = CV.open_bookings(conn, [r["family"] for r in every], on)
     return {"lists": lists, "rows": rows, "tasks": tasks, "conf": conf, "rule_set": rule_set, "policy": policy,
-            "on": on}  # fmt: skip
+            "on": on, "no_response": no_response, "must_not_approach": must_not, "booked": booked,
+            "wait_weeks": conf_wait(lists)}  # fmt: skip
+
+
+def conf_wait(lists: dict) -> int | None:
+    """The reply wait (weeks) the worklist used, as its no-response list carries it."""
+    return lists["no_response"][0]["wait_weeks"] if lists.get("no_response") else None
 
 
 def _audit_view(request: Request, user: AC.User, data: dict, what: str) -> None:
-    people = sorted({r["person"] for r in data["rows"]} | {t["person"] for t in data["tasks"] if t["person"]})
-    families = sorted({r["family"] for r in data["rows"]} | {t["family"] for t in data["tasks"]})
+    shown = data["rows"] + data["must_not_approach"]
+    people = sorted({r["person"] for r in shown} | {t["person"] for t in data["tasks"] if t["person"]})
+    families = sorted({r["family"] for r in shown} | {t["family"] for t in data["tasks"]})
     with writing(auth.engine(request)) as conn:
         AC.audit_read(conn, user, family=families[0] if len(families) == 1 else None,
                       person=people[0] if len(people) == 1 else None,
@@ -136,7 +192,7 @@ def _query(f: dict) -> str:
 
 
 def day_page(request: Request):
-    from tracker.outputs.worklist_pdf import GAP_WORDS, flag_words, waiting_text
+    from tracker.outputs.worklist_pdf import GAP_WORDS, flag_words
     from tracker.outputs.ics import needs_words
 
     user = auth.current_user(request)
@@ -148,9 +204,10 @@ def day_page(request: Request):
     _audit_view(request, user, data, f"day list {f['from'].isoformat()} to {f['to'].isoformat()}")
     return render(request, "day.html", {
         "f": f, "reasons": REASONS, "data": data, "query": _query(f), "gap_words": GAP_WORDS,
-        "flag_words": flag_words, "waiting_text": waiting_text, "needs_words": needs_words,
-        "channels": CONTACT_CHANNELS, "outcomes": CONTACT_OUTCOMES, "contacts_ready": contacts_available(),
-        "today": data["on"].isoformat(),
+        "flag_words": flag_words, "waiting_text": waiting_words, "contact_words": contact_words,
+        "contact_labels": CONTACT_WORDS,
+        "needs_words": needs_words, "channels": CONTACT_CHANNELS, "outcomes": CONTACT_OUTCOMES,
+        "today": data["on"].isoformat(), "done": DONE_WORDS.get(request.query_params.get("done", "")),
     })  # fmt: skip
 
 
@@ -221,6 +278,10 @@ def _text(form, name: str) -> str | None:
     return v.strip() if isinstance(v, str) and v.strip() else None
 
 
+DONE_WORDS = {"contact": "The contact was recorded; the list below shows it.",
+              "booking": "The visit was booked; the list below shows it."}
+
+
 def _row_form_result(request: Request, template: str, person: str, values: dict, errors: dict | None):
     if errors:
         if request.headers.get("hx-request"):  # htmx: only the form, with its errors
@@ -229,9 +290,26 @@ def _row_form_result(request: Request, template: str, person: str, values: dict,
                                           "channels": CONTACT_CHANNELS, "outcomes": CONTACT_OUTCOMES,
                                           "today": auth.now(request).date().isoformat()},
                       status_code=400)  # fmt: skip
-    if request.headers.get("hx-request"):
-        return render(request, "_row_done.html", {"person": person, "what": values.get("_what", "recorded")})
-    return RedirectResponse("/day", status_code=303)
+    if request.headers.get("hx-request"):  # the notice in place of the form, and the row's contact cell refreshed
+        return render(request, "_row_done.html", {"person": person, "what": values.get("_what", "recorded"),
+                                                  "standing": _standing_now(request, person)})  # fmt: skip
+    kind = "contact" if template == "day_contact.html" else "booking"
+    return RedirectResponse(f"/day?done={kind}#row-{person}", status_code=303)
+
+
+def _standing_now(request: Request, person: str) -> str:
+    """The row's contact details straight after a write, from the log (the tag waits for the next view)."""
+    from tracker.services import contact_view as CV
+    from tracker.services import contacts as SC
+
+    today = auth.now(request).date()
+    with reading(auth.engine(request)) as conn:
+        state = SC.contact_state(conn, person)
+        booked = CV.open_bookings(conn, [state["family"]], today).get(person)
+    row = {"informed_on": state["informed_date"], "contact_later_on": state["contact_later_on"],
+           "contact": "contact_later" if state["contact_later_on"] and state["contact_later_on"] > today.isoformat()
+           else None, "contact_via": state["wish_via"]}  # fmt: skip
+    return contact_words(row, booked)
 
 
 def _date_field(form, name: str, errors: dict) -> dt.date | None:
@@ -248,21 +326,12 @@ def _date_field(form, name: str, errors: dict) -> dt.date | None:
         return None
 
 
-def _today(request: Request, service) -> dict:
-    """The app's day as ``today=`` when the service takes it (so tests can move the clock)."""
-    import inspect
-
-    return {"today": auth.now(request).date()} if "today" in inspect.signature(service).parameters else {}
-
-
 def record_contact(request: Request):
     from tracker.io.reading import InputRejected
 
-    user = auth.require_to(request, "contact")
-    if not contacts_available():
-        raise auth.Refused("recording contacts is not available in this installation; nothing was changed", 501)
     from tracker.services import contacts as SC
 
+    user = auth.require_to(request, "contact")
     person, form = _person(request), request.state.form
     values = {k: _text(form, k) or "" for k in CONTACT_FIELDS}
     errors: dict[str, list[str]] = {}
@@ -277,7 +346,7 @@ def record_contact(request: Request):
             with writing(auth.engine(request)) as conn:
                 SC.record_contact(conn, person, on=on, channel=values["channel"], by=None if via_family else user.role,
                                   outcome=values["outcome"], notes=values["notes"] or None, later=later,
-                                  via=values["via"] or None, user=user.name, **_today(request, SC.record_contact))  # fmt: skip
+                                  via=values["via"] or None, user=user.name, today=auth.now(request).date())  # fmt: skip
         except InputRejected as exc:
             errors = field_errors(exc, CONTACT_FIELDS)
     values["_what"] = "contact recorded"
@@ -287,11 +356,9 @@ def record_contact(request: Request):
 def record_booking(request: Request):
     from tracker.io.reading import InputRejected
 
-    user = auth.require_to(request, "booking")
-    if not contacts_available():
-        raise auth.Refused("booking visits is not available in this installation; nothing was changed", 501)
     from tracker.services import contacts as SC
 
+    user = auth.require_to(request, "booking")
     person, form = _person(request), request.state.form
     values = {k: _text(form, k) or "" for k in ("on", "purpose", "notes")}
     errors: dict[str, list[str]] = {}
@@ -302,7 +369,7 @@ def record_booking(request: Request):
         try:
             with writing(auth.engine(request)) as conn:
                 SC.record_booking(conn, person, on=on, purpose=values["purpose"], user=user.name,
-                                  notes=values["notes"] or None, **_today(request, SC.record_booking))  # fmt: skip
+                                  notes=values["notes"] or None, today=auth.now(request).date())  # fmt: skip
         except InputRejected as exc:
             errors = field_errors(exc, BOOKING_FIELDS)
     values["_what"] = "visit booked"

@@ -51,7 +51,8 @@ def _page(request: Request, user, family: str, extra: dict | None = None, status
     clinic.audit_read(request, user, family=family,
                       what=f"family page {family}: {len(data['members'])} members")  # fmt: skip
     ctx = {"d": data, "svg": Markup(data["svg"]), "acmg_classes": ACMG_CLASSES, "letter_kinds": LETTER_KINDS,
-           "kind_words": KIND_WORDS, "errors": {}, "values": {}, "impact": None}  # fmt: skip
+           "kind_words": KIND_WORDS, "errors": {}, "values": {}, "impact": None,
+           "today": clinic.today(request).isoformat()}  # fmt: skip
     ctx.update(extra or {})
     return render(request, "family.html", ctx, status_code=status_code)
 
@@ -85,6 +86,46 @@ def letter(request: Request):
     clinic.audit_read(request, user, family=family, person=person, what=f"family letter made for {person} (PDF)")
     return Response(pdf, media_type="application/pdf",
                     headers={"Content-Disposition": f'attachment; filename="{name}"'})  # fmt: skip
+
+
+def letter_sent(request: Request):
+    """POST: record the family letter to one member as sent (counsellor).  Making the PDF records nothing;
+    this form does, through the contacts service: the kind chosen from where the person stands on the day
+    (as ``tracker report letter --sent``), to the person or through a family member (``via``)."""
+    from tracker.io.reading import InputRejected
+    from tracker.services import contact_view as CV
+    from tracker.services import views as SV
+    from tracker.web.templating import field_errors
+
+    user = auth.require_to(request, "letter")
+    family = _code(request)
+    f = clinic.posted(request)
+    person = f.get("person", "").strip()
+    via = f.get("via", "").strip() or None
+    fields = ("person", "on", "via")
+    values = {f"sent_{k}": f.get(k, "") for k in fields}
+    with reading(auth.engine(request)) as conn:
+        people = SV.family_members(conn, family)
+    if person not in people:
+        errors = {"sent_person": [f"choose a member of family {family}"]}
+        return _page(request, user, family, {"errors": errors, "values": values}, status_code=400)
+    from tracker.domain.dates import parse_date
+
+    try:
+        on = parse_date(f.get("on", "").strip())
+    except ValueError as exc:
+        return _page(request, user, family, {"errors": {"sent_on": [str(exc)]}, "values": values}, status_code=400)
+    conf, rule_set, _policy = clinic.rules(request)
+    try:
+        with writing(auth.engine(request)) as conn:
+            done = CV.record_letter_as_sent(conn, person, on=on, conf=conf, gid=rule_set.id, via=via, user=user.name,
+                                            today=clinic.today(request))  # fmt: skip
+    except InputRejected as exc:
+        errors = {("sent_" + k if k else "sent_"): v for k, v in field_errors(exc, fields).items()}
+        return _page(request, user, family, {"errors": errors, "values": values}, status_code=400)
+    notice = (f"The {done['kind_words']} letter to {person} was recorded as sent on {done['sent_date']}"
+              + (f" through {done['via']}" if done.get("via") else "") + "; the entry is in the audit trail.")
+    return _page(request, user, family, {"notice": notice, "sent": done})
 
 
 def _reclass_form(f: dict, today: dt.date) -> tuple[dict, dict]:
@@ -145,4 +186,5 @@ routes = [
     Route("/family/{code}", family_page, methods=["GET"]),
     Route("/family/{code}/letter", letter, methods=["POST"]),
     Route("/family/{code}/reclassify", reclassify, methods=["POST"]),
+    Route("/family/{code}/letter-sent", letter_sent, methods=["POST"]),
 ]
