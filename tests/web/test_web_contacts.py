@@ -364,3 +364,31 @@ def test_no_response_and_must_not_approach_sections(browser, web_db):
     assert "no response" in _cell(html, quiet)
     entry = audit_rows(web_db, "read")[-1]
     assert stop in entry.what  # the read entry names everyone shown
+
+
+def test_day_list_draws_the_most_urgent_rows_and_links_to_all(browser, web_db, monkeypatch):
+    """The page draws a page of rows (most urgent first) with a count and a link to every row; the read
+    audit entry names the people drawn; downloads hold every row."""
+    import sqlite3
+
+    from tracker.web.pages import day
+
+    nurse = browser("nurse")
+    everyone = re.findall(r'<tr class="[^"]*" id="row-([^"]+)"', nurse.get("/day").text)
+    assert len(everyone) > 3
+    monkeypatch.setattr(day, "PAGE_ROWS", 3)
+    html = nurse.get("/day").text
+    drawn = re.findall(r'<tr class="[^"]*" id="row-([^"]+)"', html)
+    assert drawn == everyone[:3]
+    assert f"Showing the 3 most urgent of {len(everyone)} people" in html and "show=all" in html
+    html = nurse.get("/day?show=all").text
+    assert re.findall(r'<tr class="[^"]*" id="row-([^"]+)"', html) == everyone and 'id="more-rows"' not in html
+    csv_rows = nurse.get("/day.csv").text.strip().splitlines()
+    assert sum(1 for p in everyone if any(line.startswith(p + ",") or f",{p}," in line for line in csv_rows)) == len(everyone)
+    if web_db.endswith(".sqlite"):
+        with sqlite3.connect(web_db) as con:
+            what = con.execute("SELECT what FROM audit_entry WHERE action = 'read' AND what LIKE 'day list%' "
+                               "ORDER BY id").fetchall()  # fmt: skip
+        page, show_all, download = (w[0] for w in what[-3:])
+        assert "3 people" in page and f"{len(everyone)} people" in show_all  # the people drawn
+        assert "download" in download and f"{len(everyone)} people" in download  # a download holds every row

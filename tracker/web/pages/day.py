@@ -21,6 +21,8 @@ from tracker.web.templating import field_errors, render
 
 DEFAULT_WEEKS = 6  # the look-ahead window shown by default (a planning choice of this project, not a clinical value)
 MAX_WINDOW_DAYS = 2 * 366  # a longer window is refused (engineering limit: the page stays readable)
+PAGE_ROWS = 50  # rows of the main list drawn at once, most urgent first; "show all" draws every row (a
+# reading choice of this project, as the terminal's [display] table_rows; downloads always hold every row)
 REASONS = {
     "": "everything",
     "overdue": "overdue",
@@ -112,7 +114,8 @@ def filters(request: Request) -> tuple[dict, dict]:
     if reason not in REASONS:
         errors["reason"] = [f"not a choice: {', '.join(k for k in REASONS if k)}"]
         reason = ""
-    return {"from": start, "to": end, "family": family, "reason": reason}, errors
+    show_all = (q.get("show") or "") == "all"
+    return {"from": start, "to": end, "family": family, "reason": reason, "all": show_all}, errors
 
 
 def _matches(row: dict, f: dict) -> bool:
@@ -173,8 +176,13 @@ def conf_wait(lists: dict) -> int | None:
     return lists["no_response"][0]["wait_weeks"] if lists.get("no_response") else None
 
 
+def shown_rows(data: dict, f: dict) -> list[dict]:
+    """The rows of the main list the page draws: the most urgent PAGE_ROWS, or every row with "show all"."""
+    return data["rows"] if f.get("all") else data["rows"][:PAGE_ROWS]
+
+
 def _audit_view(request: Request, user: AC.User, data: dict, what: str) -> None:
-    shown = data["rows"] + data["must_not_approach"]
+    shown = data["shown"] + data["must_not_approach"]
     people = sorted({r["person"] for r in shown} | {t["person"] for t in data["tasks"] if t["person"]})
     families = sorted({r["family"] for r in shown} | {t["family"] for t in data["tasks"]})
     with writing(auth.engine(request)) as conn:
@@ -188,7 +196,7 @@ def _query(f: dict) -> str:
     from urllib.parse import urlencode
 
     return urlencode({"from": f["from"].isoformat(), "to": f["to"].isoformat(), "family": f["family"],
-                      "reason": f["reason"]})  # fmt: skip
+                      "reason": f["reason"]})  # fmt: skip  (downloads hold every row: no "show")
 
 
 def day_page(request: Request):
@@ -201,6 +209,7 @@ def day_page(request: Request):
         return render(request, "day.html", {"f": f, "errors": errors, "reasons": REASONS, "data": None},
                       status_code=400)  # fmt: skip
     data = day_data(request, f)
+    data["shown"] = shown_rows(data, f)
     _audit_view(request, user, data, f"day list {f['from'].isoformat()} to {f['to'].isoformat()}")
     return render(request, "day.html", {
         "f": f, "reasons": REASONS, "data": data, "query": _query(f), "gap_words": GAP_WORDS,
@@ -217,6 +226,7 @@ def _download(request: Request, kind: str):
     if errors:
         raise auth.Refused("; ".join(f"{k}: {' '.join(v)}" for k, v in errors.items()), status=400)
     data = day_data(request, f)
+    data["shown"] = data["rows"]  # a download holds every row
     _audit_view(request, user, data, f"day list {kind.upper()} download {f['from'].isoformat()} to {f['to'].isoformat()}")
     from tracker.services import worklist as SW
 
