@@ -97,7 +97,8 @@ import pandas as pd
 
 from tracker import synth
 from tracker.io import csv_import
-from tracker.io.layouts import IMPORT_ORDER, LAYOUTS
+from tracker.io.layouts import LAYOUTS
+from tracker.io.layouts import RECORD_KINDS as IMPORT_ORDER  # the six record files tracker synth writes
 
 # --------------------------------------------------------------------------- run state
 
