@@ -109,12 +109,13 @@ def add_accounts(db: Path) -> dict[str, tuple[str, str]]:
 
 
 def codes(db: Path) -> tuple[list[str], list[str]]:
-    """Family codes, and person codes of real people (not placeholders), from the store."""
+    """Family codes, and person codes of living people (not placeholders, not removed), from the store:
+    the contact and booking writes go to them (a deceased person or a placeholder is rightly refused)."""
     with sqlite3.connect(f"file:{db}?mode=ro", uri=True) as conn:
         fams = [r[0] for r in conn.execute("SELECT code FROM family ORDER BY code")]
-        cols = {r[1] for r in conn.execute("PRAGMA table_info(person)")}
-        where = "WHERE NOT placeholder" if "placeholder" in cols else ""
-        people = [r[0] for r in conn.execute(f"SELECT code FROM person {where} ORDER BY code")]
+        people = [r[0] for r in conn.execute(
+            "SELECT code FROM person WHERE NOT is_placeholder AND removed_at IS NULL "
+            "AND (vital_status IS NULL OR vital_status <> 'deceased') ORDER BY code")]  # fmt: skip
     return fams, people
 
 
