@@ -89,23 +89,6 @@ def contact_frame(conn: Connection, kind: str, scope=None) -> pd.DataFrame:
     return frame[CONTACT_LAYOUTS[kind].names].reset_index(drop=True)
 
 
-def contact_csv_text(frame: pd.DataFrame, kind: str) -> str:
-    layout = CONTACT_LAYOUTS[kind]
-    text_cols = {c.name for c in layout.columns if c.kind == "text"}
-    out = io.StringIO()
-    writer = csv.writer(out, lineterminator="\n")
-    writer.writerow(layout.names)
-    for rec in frame.itertuples(index=False):
-        cells = []
-        for name, value in zip(layout.names, rec):
-            cell = format_cell(value)
-            if name in text_cols and re.match(PROTECTED, cell):
-                cell = "'" + cell
-            cells.append(cell)
-        writer.writerow(cells)
-    return out.getvalue()
-
-
 def export_contacts(conn: Connection, folder: Path, *, force: bool = True) -> dict[str, int]:
     """Write the six contact-log kinds into ``folder`` under their layout file names (0600)."""
     folder.mkdir(parents=True, exist_ok=True)
@@ -114,6 +97,6 @@ def export_contacts(conn: Connection, folder: Path, *, force: bool = True) -> di
     counts = {}
     for kind, layout in CONTACT_LAYOUTS.items():
         frame = contact_frame(conn, kind)
-        write_private(folder / layout.file_name, contact_csv_text(frame, kind))
+        write_private(folder / layout.file_name, to_csv_text(frame, kind))
         counts[kind] = len(frame)
     return counts
