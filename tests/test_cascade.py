@@ -279,6 +279,29 @@ def test_esc_second_degree_through_deceased_relative():
     assert a["UNC"].categories == ("blood_relative_of_affected",)
 
 
+def test_no_variant_family_with_an_affected_partner_who_married_in():
+    """Without a P/LP variant every blood relative of an affected member is listed, placed by the
+    nearest affected member they are related to by blood; an affected partner who married in is no
+    blood relative of the proband's cousin, and must not stop the plan (invented family)."""
+    rows = [
+        dict(person="GM", sex_at_birth="female"), dict(person="GF", sex_at_birth="male"),
+        dict(person="DAD", mother="GM", father="GF", sex_at_birth="male"),
+        dict(person="UNC", mother="GM", father="GF", sex_at_birth="male"),
+        dict(person="MUM", sex_at_birth="female"),
+        dict(person="PRO", mother="MUM", father="DAD", sex_at_birth="male"),
+        dict(person="SP", sex_at_birth="female"),  # PRO's partner, affected too
+        dict(person="KID", mother="SP", father="PRO"),
+        dict(person="COUSIN", father="UNC"),
+    ]
+    p = ped(rows)
+    g = genotype_statuses(p, None, None)
+    pl = plan_cascade(p, g, None, ON, "esc_2023", affected={"PRO": "affected", "SP": "affected"})
+    s = by_person(pl.screening)
+    assert s["COUSIN"].categories == ("blood_relative_of_affected",)
+    assert "third-degree relative of affected PRO" in s["COUSIN"].reason
+    assert s["KID"].categories == ("first_degree_of_affected",)
+
+
 def test_new_carrier_extends_the_cascade():
     # recomputing statuses after a sibling tests positive brings in her own children
     rows = [

@@ -605,11 +605,14 @@ def plan_cascade(
         for q in people:
             if q in indicated or is_affected(q) or not _listable(pedigree, q):
                 continue
-            nearest = min(affected_people, key=lambda a: (_degree(pedigree, a, q), a))
-            if _degree(pedigree, nearest, q) is None:
+            # the nearest affected member q is related to by blood (an affected partner who married in
+            # is no blood relative of the other side of the family)
+            related = [(d, a) for a in affected_people if (d := _degree(pedigree, a, q)) is not None]
+            if not related:
                 continue
+            degree, nearest = min(related)
             indicate(q, "blood_relative_of_affected",
-                     f"{_ORDINAL.get(_degree(pedigree, nearest, q), 'more distant')}-degree relative of affected "
+                     f"{_ORDINAL.get(degree, 'more distant')}-degree relative of affected "
                      f"{nearest} in a family "
                      "without a P/LP variant: a normal screen of a relative in between does not exclude the "
                      "family's cause (age-related penetrance); screened while the cause is unknown",
