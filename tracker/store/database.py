@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import os
 import sqlite3
+import threading
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
@@ -223,14 +224,35 @@ def writing(engine: Engine) -> Iterator[Connection]:
     waits up to the busy timeout and then fails cleanly before it has read
     anything it might overwrite.
     """
-    with engine.connect() as conn:
-        if engine.dialect.name == "sqlite":
-            use_wal(conn)
-            conn = conn.execution_options(sqlite_begin="IMMEDIATE")
-        with conn.begin():
-            if engine.dialect.name == "postgresql":
-                _take_write_lock(conn)
-            yield conn
+    lock = _process_lock(engine)
+    if not lock.acquire(timeout=PROCESS_WAIT_S):
+        raise UserError(f"the store is busy: another write in this process held it for more than {PROCESS_WAIT_S} s; "
+                        "try again")  # fmt: skip
+    try:
+        with engine.connect() as conn:
+            if engine.dialect.name == "sqlite":
+                use_wal(conn)
+                conn = conn.execution_options(sqlite_begin="IMMEDIATE")
+            with conn.begin():
+                if engine.dialect.name == "postgresql":
+                    _take_write_lock(conn)
+                yield conn
+    finally:
+        lock.release()
+
+
+# Writers in one process (the web app's threads) queue here, in order, before they ask the database
+# for its write lock; the busy timeout is then only spent waiting for other processes. Without it,
+# twenty threads poll SQLite's lock at once and the one holding it is starved of time.
+PROCESS_WAIT_S = 120
+_PROCESS_LOCKS: dict[str, threading.RLock] = {}
+_PROCESS_LOCKS_GUARD = threading.Lock()
+
+
+def _process_lock(engine: Engine) -> threading.RLock:
+    key = engine.url.render_as_string(hide_password=True)
+    with _PROCESS_LOCKS_GUARD:
+        return _PROCESS_LOCKS.setdefault(key, threading.RLock())
 
 
 def use_wal(conn: Connection) -> None:
