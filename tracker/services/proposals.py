@@ -40,7 +40,7 @@ from tracker.store.models import Family, Person, RecallProposal
 if TYPE_CHECKING:  # for annotations only
     from tracker.services.recall import _Frames
 
-FORMAT = 1  # bump when what a row stores, or how a proposal is computed, changes: every row is then stale
+FORMAT = 2  # bump when what a row stores, or how a proposal is computed, changes: every row is then stale
 CHUNK_FAMILIES = 500  # families computed together by refresh_all (memory, not results)
 WRITE_COMPUTE_MAX_FAMILIES = 500  # a bulk import of more families marks their rows stale (computed at the first read)
 
@@ -226,14 +226,44 @@ def store(conn: Connection, families: Iterable[str], computed: list[Computed], o
         dict(person_id=person_ids[c.person], family_id=fam_ids[c.family], state=c.state,
              rule_id=c.proposal.rule_id if c.proposal else None,
              interval_months=c.proposal.interval_months if c.proposal else None,
-             due_on=c.proposal.due if c.proposal else None, as_of=on, reasons=c.reasons(),
+             due_on=c.proposal.due if c.proposal else None, as_of=on, reasons=reasons,
              inputs_version=f"{key}-{c.records_version}", computed_at=now, valid_until=c.valid_until,
-             stale=False, trend_values=c.trend_values)
-        for c in computed if c.person in person_ids and c.family in fam_ids
+             stale=False, trend_values=c.trend_values, **list_columns(c, reasons))
+        for c, reasons in ((c, c.reasons()) for c in computed) if c.person in person_ids and c.family in fam_ids
     ]  # fmt: skip
     if rows:
         conn.execute(insert(P), rows)
     return len(rows)
+
+
+LIST_FLAGS = ("affected", "never_screened", "triggered", "progression", "responded", "flagged")
+# Substrings of the stored proposal JSON (Computed.reasons) that mark a trend-derived flag or an affected
+# person: the cohort page lists such a person's family first (tracker.services.cohort_view).
+FLAG_MARKS = ('"progression":true', "criteria_not_assessable", "projected", "crossing", '"affected":true')
+LIST_COLUMNS = (*LIST_FLAGS, "person_code", "urgency_flags", "contact_status", "contact_wish", "contact_later_on",
+                "informed_on")  # fmt: skip
+
+
+def urgency_flags(never_screened: bool, triggered: bool) -> int:
+    """The day list's order after the due date, as one number: never screened first, then a trigger."""
+    return (0 if never_screened else 2) + (0 if triggered else 1)
+
+
+def list_columns(c: Computed, reasons: str | None = None) -> dict:
+    """The proposal's fields the day list chooses and orders rows by, and whether the cohort page lists
+    the person's family first (``flagged``), as columns (migration 0013). ``reasons``: ``c.reasons()``."""
+    reasons = c.reasons() if reasons is None else reasons
+    lowered = reasons.lower()
+    flagged = any(m in lowered for m in FLAG_MARKS)  # in any case, as SQL's LIKE on SQLite finds them
+    p = c.proposal
+    if p is None:
+        return dict(flagged=flagged, person_code=c.person, urgency_flags=urgency_flags(False, False), affected=c.affected,
+                    never_screened=False, triggered=False, progression=False, contact_status=None, contact_wish=None,
+                    contact_later_on=None, informed_on=None, responded=False)  # fmt: skip
+    return dict(flagged=flagged, person_code=c.person, urgency_flags=urgency_flags(p.never_screened, bool(p.triggers)),
+                affected=c.affected, never_screened=bool(p.never_screened), triggered=bool(p.triggers),
+                progression=bool(p.progression), contact_status=p.contact_status, contact_wish=p.contact_wish,
+                contact_later_on=p.contact_later_on, informed_on=p.informed_on, responded=bool(p.responded))
 
 
 def mark_stale(conn: Connection, families: Iterable[str] | None = None) -> int:
@@ -333,8 +363,8 @@ def _refresh_chunk(conn, chunk, on, conf, rule_set, policy, key) -> int:
 
 def invalid_families(conn: Connection, on: dt.date, key: str) -> set[str]:
     """Families with a row that cannot be read on ``on`` under inputs ``key``: stale, computed
-    under other inputs, computed for a later day, past its ``valid_until``; or with a person
-    (not removed) who has no row."""
+    under other inputs, computed for a later day, past its ``valid_until``, or of a person since
+    removed; or with a person (not removed) who has no row."""
     bad = or_(P.stale.is_(True), func.substr(P.inputs_version, 1, len(key)) != key, P.as_of > on,
               P.valid_until < on)  # fmt: skip
     stmt = select(Family.code).join(P, P.family_id == Family.id).where(bad).distinct()
@@ -343,7 +373,30 @@ def invalid_families(conn: Connection, on: dt.date, key: str) -> set[str]:
                .outerjoin(P, P.person_id == Person.id)
                .where(Person.removed_at.is_(None), P.id.is_(None)).distinct())  # fmt: skip
     out |= {r[0] for r in conn.execute(missing).all()}
+    removed = (select(Family.code).join(P, P.family_id == Family.id).join(Person, P.person_id == Person.id)
+               .where(Person.removed_at.is_not(None)).distinct())  # fmt: skip
+    out |= {r[0] for r in conn.execute(removed).all()}
     return out
+
+
+def all_hold(conn: Connection, on: dt.date, key: str) -> bool:
+    """Whether every stored row holds on ``on`` under ``key`` and every person recorded (not removed)
+    has one, i.e. :func:`invalid_families` is empty; by index lookups and two counts, so that a read
+    of a few rows does not pay for a scan of the table."""
+    lookups = (
+        select(P.id).where(P.stale.is_(True)),
+        select(P.id).where(P.valid_until < on),
+        select(P.id).where(P.as_of > on),
+        select(P.id).where(P.inputs_version < f"{key}-"),
+        select(P.id).where(P.inputs_version > f"{key}-~"),  # the records' hash is hexadecimal, below "~"
+        select(P.id).join(Person, P.person_id == Person.id).where(Person.removed_at.is_not(None)),
+    )
+    if any(conn.execute(q.limit(1)).first() is not None for q in lookups):
+        return False
+    rows = conn.execute(select(func.count()).select_from(P)).scalar_one()
+    people = conn.execute(select(func.count()).select_from(Person)).scalar_one()
+    removed = conn.execute(select(func.count()).select_from(Person).where(Person.removed_at.is_not(None))).scalar_one()
+    return rows == people - removed  # every row is a living person's (above), one row per person (unique person_id)
 
 
 def worklist_rows(conn: Connection, end: dt.date, skip: set[str] = frozenset()) -> list[tuple[str, str, Proposal, bool]]:
@@ -368,8 +421,10 @@ def worklist_rows(conn: Connection, end: dt.date, skip: set[str] = frozenset()) 
 
 def any_trend_values(conn: Connection, skip: set[str] = frozenset()) -> bool:
     """Whether a stored row (outside the families in ``skip``) had measured values to trend."""
-    stmt = select(Family.code).join(P, P.family_id == Family.id).where(P.trend_values.is_(True)).distinct()
-    return any(r[0] not in skip for r in conn.execute(stmt).all())
+    stmt = select(P.id).where(P.trend_values.is_(True))
+    if skip:
+        stmt = stmt.join(Family, P.family_id == Family.id).where(Family.code.not_in(sorted(skip)))
+    return conn.execute(stmt.limit(1)).first() is not None
 
 
 # --------------------------------------------------------------------------- checking
@@ -387,7 +442,7 @@ def differing(conn: Connection, conf: Settings, rule_set, policy: Policy,
 
     key = rules_key(conf, rule_set, policy)
     stmt = (select(Person.code, Family.code, P.state, P.rule_id, P.interval_months, P.due_on, P.as_of, P.reasons,
-                   P.inputs_version, P.valid_until, P.trend_values)
+                   P.inputs_version, P.valid_until, P.trend_values, *(getattr(P, k) for k in LIST_COLUMNS))
             .join(Person, P.person_id == Person.id).join(Family, P.family_id == Family.id)
             .where(P.stale.is_(False), func.substr(P.inputs_version, 1, len(key)) == key))  # fmt: skip
     stored: dict[tuple[dt.date, str], list] = {}
@@ -414,9 +469,10 @@ def differing(conn: Connection, conf: Settings, rule_set, policy: Policy,
                             "interval_months": c.proposal.interval_months if c.proposal else None,
                             "due_on": c.proposal.due if c.proposal else None, "reasons": c.reasons(),
                             "inputs_version": f"{key}-{c.records_version}", "valid_until": c.valid_until,
-                            "trend_values": c.trend_values}  # fmt: skip
+                            "trend_values": c.trend_values, **list_columns(c)}  # fmt: skip
                     have = {k: getattr(r, k) for k in want}
-                    have["trend_values"] = bool(have["trend_values"])
+                    for k in ("trend_values", *LIST_FLAGS):
+                        have[k] = None if have[k] is None else bool(have[k])
                     diff = [k for k in want if want[k] != have[k]]
                     if diff:
                         out.append((r[0], ", ".join(f"{k} {have[k] if k != 'reasons' else '(text)'} stored, "

@@ -53,6 +53,17 @@ def _entry(p: Proposal, family: str, lst: str) -> dict:
     }  # fmt: skip
 
 
+def list_row(p: Proposal, family: str, lst: str, wait_weeks: int) -> dict:
+    """One row of the worklist (list ``lst``: screening, affected or contact_gap), with where the
+    person stands with contact, from the contact log (docs/contacts-and-letters.md)."""
+    r = _entry(p, family, lst)
+    r["contact"] = contact_category(p, wait_weeks)
+    r["contact_later_on"] = _iso(p.contact_later_on)
+    r["contact_via"] = p.contact_via
+    r["informed_on"] = _iso(p.informed_on)
+    return r
+
+
 def lists(proposals: list[Proposal], family_of: dict[str, str], affected: set[str], trend: dict, start: dt.date,
           end: dt.date, on: dt.date, slots: int | None, reply_wait_weeks: int) -> dict:  # fmt: skip
     """Everything the worklist shows, from the proposals of ``on`` (at least everyone due or overdue by
@@ -67,18 +78,10 @@ def lists(proposals: list[Proposal], family_of: dict[str, str], affected: set[st
     screening_due = select_due([p for p in proposals if p.person_code not in affected], start, end)
     affected_due = select_due([p for p in proposals if p.person_code in affected], start, end)
     gaps = contact_gaps(screening_due + affected_due + [p for p in proposals if p.status == "not_recalled"])
-    due_rows = [_entry(p, family_of[p.person_code], "screening") for p in screening_due if reachable(p)]
-    affected_rows = [_entry(p, family_of[p.person_code], "affected") for p in affected_due if reachable(p)]
-    gap_rows = [_entry(p, family_of[p.person_code], "contact_gap") for p in gaps]
-    # Where each stands with contact, from the contact log (docs/contacts-and-letters.md).
     wait = reply_wait_weeks
-    by_code = {p.person_code: p for p in screening_due + affected_due + gaps}
-    for r in due_rows + affected_rows + gap_rows:
-        p = by_code[r["person"]]
-        r["contact"] = contact_category(p, wait)
-        r["contact_later_on"] = _iso(p.contact_later_on)
-        r["contact_via"] = p.contact_via
-        r["informed_on"] = _iso(p.informed_on)
+    due_rows = [list_row(p, family_of[p.person_code], "screening", wait) for p in screening_due if reachable(p)]
+    affected_rows = [list_row(p, family_of[p.person_code], "affected", wait) for p in affected_due if reachable(p)]
+    gap_rows = [list_row(p, family_of[p.person_code], "contact_gap", wait) for p in gaps]
     booking = None
     if slots is not None:
         plan = plan_bookings([p for p in screening_due if reachable(p)], start, end, slots, on)
@@ -181,25 +184,37 @@ def proposals_for(engine: Engine, end: dt.date, on: dt.date, conf: Settings, rul
     transaction that looks again for rows that do not hold (another command may have written).
     """
     from tracker.services import proposals as SP
+    from tracker.store.database import reading
+
+    key = SP.rules_key(conf, rule_set, policy)
+    left, stored = make_current(engine, on, conf, rule_set, policy, today)
+    with reading(engine) as conn:
+        out = _read(conn, SP.invalid_families(conn, on, key) if left else set(), end, on, conf, rule_set, policy, key)
+    out[4]["stored_families"] = stored
+    return out
+
+
+def make_current(engine: Engine, on: dt.date, conf: Settings, rule_set, policy: Policy,
+                 today: dt.date | None = None) -> tuple[set[str], int]:  # fmt: skip
+    """Store the proposals of the families whose stored rows do not hold on ``on``, when ``on`` is
+    ``today`` (default: the clock's date) and the store can be written, in one write transaction
+    that looks again for rows that do not hold (another command may have written). Returns the
+    families whose rows still do not hold (another day, a read-only store) and how many were stored."""
+    from tracker.services import proposals as SP
     from tracker.store.database import reading, writing
 
     today = today or dt.date.today()
     key = SP.rules_key(conf, rule_set, policy)
     with reading(engine) as conn:
-        invalid = SP.invalid_families(conn, on, key)
-        if not invalid or on != today:
-            return _read(conn, invalid, end, on, conf, rule_set, policy, key)
-    if _read_only(engine):
-        with reading(engine) as conn:
-            return _read(conn, SP.invalid_families(conn, on, key), end, on, conf, rule_set, policy, key)
+        invalid = set() if SP.all_hold(conn, on, key) else SP.invalid_families(conn, on, key)
+    if not invalid or on != today or _read_only(engine):
+        return invalid, 0
     with writing(engine) as conn:
         invalid = SP.invalid_families(conn, on, key)
         fams = sorted(invalid)
         for i in range(0, len(fams), SP.CHUNK_FAMILIES):
             SP._refresh_chunk(conn, fams[i:i + SP.CHUNK_FAMILIES], on, conf, rule_set, policy, key)
-        out = _read(conn, set(), end, on, conf, rule_set, policy, key)
-    out[4]["stored_families"] = len(invalid)
-    return out
+    return set(), len(invalid)
 
 
 def _read_only(engine: Engine) -> bool:

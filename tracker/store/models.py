@@ -20,11 +20,13 @@ from sqlalchemy import (
     DateTime,
     Float,
     ForeignKey,
+    Index,
     Integer,
     MetaData,
     String,
     Text,
     UniqueConstraint,
+    text,
 )
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
 
@@ -59,6 +61,9 @@ class Person(Base):
         CheckConstraint("vital_status IN ('alive','deceased','unknown')", name="vital_status"),
         CheckConstraint("twin_type IN ('monozygotic','dizygotic','unknown')", name="twin_type"),
         CheckConstraint("adoption IN ('in','out')", name="adoption"),
+        # Removed people only (migration 0013): reads of the living never use it.
+        Index("ix_person_removed", "id", sqlite_where=text("removed_at IS NOT NULL"),
+              postgresql_where=text("removed_at IS NOT NULL")),
         CheckConstraint(
             "contact_status IN ('not_contacted','contactable','declined','lost_to_follow_up')",
             name="contact_status",
@@ -407,6 +412,16 @@ class RecallProposal(Base):
     __tablename__ = "recall_proposal"
     __table_args__ = (
         CheckConstraint("state IN ('due','overdue','released','not_recalled','not_scheduled')", name="state"),
+        Index("ix_recall_proposal_day_list", "state", "due_on", "urgency_flags", "person_code", "contact_wish",
+              "contact_status", "contact_later_on", "affected", "never_screened", "triggered", "informed_on",
+              "responded"),
+        Index("ix_recall_proposal_no_response", "state", "responded", "informed_on", "due_on", "urgency_flags",
+              "person_code", "contact_status", "contact_wish", "contact_later_on", "affected", "never_screened",
+              "triggered"),
+        Index("ix_recall_proposal_contact_wish", "contact_wish", "state"),
+        Index("ix_recall_proposal_family_flagged", "family_id", "flagged"),
+        # Stale rows only (migration 0013): reads of current rows (stale IS false) never choose it.
+        Index("ix_recall_proposal_stale", "id", sqlite_where=text("stale IS 1"), postgresql_where=text("stale IS true")),
     )
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
@@ -416,13 +431,26 @@ class RecallProposal(Base):
     rule_id: Mapped[str | None] = mapped_column(String(80))
     interval_months: Mapped[int | None] = mapped_column(Integer)
     due_on: Mapped[dt.date | None] = mapped_column(Date, index=True)
-    as_of: Mapped[dt.date] = mapped_column(Date)
+    as_of: Mapped[dt.date] = mapped_column(Date, index=True)
     reasons: Mapped[str] = mapped_column(Text)
-    inputs_version: Mapped[str] = mapped_column(String(80))
+    inputs_version: Mapped[str] = mapped_column(String(80), index=True)
     computed_at: Mapped[dt.datetime] = mapped_column(DateTime)
     valid_until: Mapped[dt.date] = mapped_column(Date, index=True)
     stale: Mapped[bool] = mapped_column(Boolean)
     trend_values: Mapped[bool] = mapped_column(Boolean)
+    # The fields that choose and order the day list (migration 0013), copies of the proposal's own.
+    person_code: Mapped[str | None] = mapped_column(String(40))
+    urgency_flags: Mapped[int | None] = mapped_column(Integer)  # 0 never screened + trigger, 1 never screened, 2 trigger, 3 neither
+    flagged: Mapped[bool | None] = mapped_column(Boolean)  # a trend flag or affected (services.proposals.FLAG_MARKS)
+    affected: Mapped[bool | None] = mapped_column(Boolean)
+    never_screened: Mapped[bool | None] = mapped_column(Boolean)
+    triggered: Mapped[bool | None] = mapped_column(Boolean)
+    progression: Mapped[bool | None] = mapped_column(Boolean)
+    contact_status: Mapped[str | None] = mapped_column(String(30))
+    contact_wish: Mapped[str | None] = mapped_column(String(30))
+    contact_later_on: Mapped[dt.date | None] = mapped_column(Date)
+    informed_on: Mapped[dt.date | None] = mapped_column(Date)
+    responded: Mapped[bool | None] = mapped_column(Boolean)
 
 
 # --------------------------------------------------------------------------- the contact log (migration 0012)

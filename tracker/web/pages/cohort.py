@@ -103,17 +103,16 @@ def _read(conn, CV, SR, f: dict, page: int, settings) -> tuple[dict, dict | None
     if measure is not None:
         SR.trends_of(conn, [], measure, settings, HORIZON_YEARS)  # an unknown measure: the error first
     if f["flag"]:
-        flagged = CV.flagged_families(conn)
         size = CV.FLAGGED_FAMILIES
-        fams = flagged[(page - 1) * size: page * size]
-        total = len(flagged)
+        fams = CV.flagged_families(conn, limit=size, offset=(page - 1) * size)
+        total = CV.flagged_count(conn)
     else:
         size = CV.PAGE_FAMILIES
         fams = CV.family_page(conn, page, size)
         total = CV.family_count(conn)
     result = SR.trends_of(conn, fams, measure, settings, HORIZON_YEARS)
     if not f["flag"] and page == 1:
-        extra = [x for x in CV.flagged_families(conn)[: CV.FLAGGED_FAMILIES] if x not in set(fams)]
+        extra = [x for x in CV.flagged_families(conn, limit=CV.FLAGGED_FAMILIES) if x not in set(fams)]
         if extra:
             more = SR.trends_of(conn, extra, measure, settings, HORIZON_YEARS)["rows"]
             result["rows"] = _merge(result["rows"], [r for r in more if _flagged(r)])

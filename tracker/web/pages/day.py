@@ -2,8 +2,10 @@
 open reclassification tasks, most urgent first; the same list as CSV, iCalendar and PDF; and, on
 each row, forms to record a contact or book a visit.
 
-The lists come from :mod:`tracker.services.worklist` exactly as ``tracker worklist`` and
-``tracker tasks`` get them.  Each view is a read entry in the audit trail naming the people shown.
+The page reads a page of the list (the most urgent rows, with the size of each part) from
+:mod:`tracker.services.day_list`; the downloads hold every row of the worklist as
+``tracker worklist`` gets it (:mod:`tracker.services.worklist`), the tasks as ``tracker tasks``.
+Each view is a read entry in the audit trail naming the people shown.
 """
 
 from __future__ import annotations
@@ -23,6 +25,8 @@ DEFAULT_WEEKS = 6  # the look-ahead window shown by default (a planning choice o
 MAX_WINDOW_DAYS = 2 * 366  # a longer window is refused (engineering limit: the page stays readable)
 PAGE_ROWS = 50  # rows of the main list drawn at once, most urgent first; "show all" draws every row (a
 # reading choice of this project, as the terminal's [display] table_rows; downloads always hold every row)
+SECTION_ROWS = 20  # rows drawn of "informed, no response" and "must not be approached" (the same kind of choice;
+# everyone in the first is on the main list too; "show all" draws every row)
 REASONS = {
     "": "everything",
     "overdue": "overdue",
@@ -118,30 +122,34 @@ def filters(request: Request) -> tuple[dict, dict]:
     return {"from": start, "to": end, "family": family, "reason": reason, "all": show_all}, errors
 
 
-def _matches(row: dict, f: dict) -> bool:
-    if f["family"] and row.get("family") != f["family"]:
-        return False
-    r = f["reason"]
-    if r == "overdue":
-        return (row.get("days_overdue") or 0) > 0
-    if r == "due":
-        return row["list"] in ("screening", "affected") and not row.get("never_screened")
-    if r == "never_screened":
-        return bool(row.get("never_screened"))
-    if r == "contact_gap":
-        return row["list"] == "contact_gap"
-    if r == "task":
-        return False
-    return True
-
-
-def _urgency(row: dict) -> tuple:
-    """Most urgent first: most days overdue, then never screened, then the earliest due date."""
-    return (-(row.get("days_overdue") or 0), not row.get("never_screened"), row.get("due") or "9999")
-
-
 def day_data(request: Request, f: dict) -> dict:
-    """The lists of the page for the filters ``f`` (reads the store; writes nothing)."""
+    """What the page shows for the filters ``f``: a page of each part of the day list
+    (:func:`tracker.services.day_list.day_list`; every row with "show all"), the open
+    reclassification tasks and the visits already booked for the rows shown."""
+    from tracker.services import contact_view as CV
+    from tracker.services import day_list as DL
+    from tracker.services import recall as SV
+    from tracker.services import tasks as TS
+
+    conf, rule_set, policy = SV.recall_rules(request.app.state.settings_path, None)
+    on = auth.now(request).date()
+    # The app's clock says what today is: the proposals that do not hold are stored for that day.
+    page = DL.day_list(auth.engine(request), f["from"], f["to"], on, conf, rule_set, policy, f["family"],
+                       f["reason"], None if f.get("all") else PAGE_ROWS, today=on,
+                       section_limit=None if f.get("all") else SECTION_ROWS)  # fmt: skip
+    with reading(auth.engine(request)) as conn:
+        families = TS.list_tasks(conn, None) if f["reason"] in ("", "task") else []
+        tasks = [t for t in families if not f["family"] or t["family"] == f["family"]]
+        booked = CV.open_bookings(conn, [r["family"] for r in page.rows + page.must_not], on)
+    return {"rows": page.rows, "total": page.total, "no_response": page.no_response,
+            "no_response_total": page.no_response_total, "must_not_approach": page.must_not,
+            "must_not_total": page.must_not_total, "tasks": tasks, "rule_set": rule_set, "on": on,
+            "booked": booked, "wait_weeks": page.wait_weeks, "trend": page.trend}  # fmt: skip
+
+
+def download_data(request: Request, f: dict) -> dict:
+    """Every row of the day list for the filters ``f``, and the whole worklist (the PDF's sections)."""
+    from tracker.services import day_list as DL
     from tracker.services import recall as SV
     from tracker.services import tasks as TS
     from tracker.services import worklist as SW
@@ -149,40 +157,17 @@ def day_data(request: Request, f: dict) -> dict:
     conf, rule_set, policy = SV.recall_rules(request.app.state.settings_path, None)
     on = auth.now(request).date()
     lists = SW.nurse_worklist(auth.engine(request), f["from"], f["to"], on, conf, rule_set, policy,
-                              conf.slots_per_week)
+                              conf.slots_per_week)  # fmt: skip
+    page = DL.from_lists(lists, on, f["family"], f["reason"], None, conf.cascade.reply_wait_weeks)
     with reading(auth.engine(request)) as conn:
         families = TS.list_tasks(conn, None) if f["reason"] in ("", "task") else []
-    from tracker.services import contact_view as CV
-
-    every = [r for r in lists["due"] + lists["affected"] + lists["contact_gaps"] if _matches(r, f)]
-    # Relatives who asked for no further contact are never proposed: their own section, no row forms.
-    must_not = sorted((r for r in every if r.get("contact") == "must_not_approach"),
-                      key=lambda r: (r["family"], r["person"]))  # fmt: skip
-    rows = [r for r in every if r.get("contact") != "must_not_approach"]
-    rows.sort(key=_urgency)
-    # Informed, no response after the wait: the longest wait first.
-    no_response = sorted((r for r in rows if r.get("contact") == "no_response"),
-                         key=lambda r: (r.get("informed_on") or "9999", _urgency(r)))  # fmt: skip
-    tasks = [t for t in families if not f["family"] or t["family"] == f["family"]]
-    with reading(auth.engine(request)) as conn:
-        booked = CV.open_bookings(conn, [r["family"] for r in every], on)
-    return {"lists": lists, "rows": rows, "tasks": tasks, "conf": conf, "rule_set": rule_set, "policy": policy,
-            "on": on, "no_response": no_response, "must_not_approach": must_not, "booked": booked,
-            "wait_weeks": conf_wait(lists)}  # fmt: skip
-
-
-def conf_wait(lists: dict) -> int | None:
-    """The reply wait (weeks) the worklist used, as its no-response list carries it."""
-    return lists["no_response"][0]["wait_weeks"] if lists.get("no_response") else None
-
-
-def shown_rows(data: dict, f: dict) -> list[dict]:
-    """The rows of the main list the page draws: the most urgent PAGE_ROWS, or every row with "show all"."""
-    return data["rows"] if f.get("all") else data["rows"][:PAGE_ROWS]
+    return {"lists": lists, "rows": page.rows, "must_not_approach": page.must_not, "conf": conf,
+            "rule_set": rule_set, "policy": policy, "on": on,
+            "tasks": [t for t in families if not f["family"] or t["family"] == f["family"]]}  # fmt: skip
 
 
 def _audit_view(request: Request, user: AC.User, data: dict, what: str) -> None:
-    shown = data["shown"] + data["must_not_approach"]
+    shown = data["rows"] + data["must_not_approach"]
     people = sorted({r["person"] for r in shown} | {t["person"] for t in data["tasks"] if t["person"]})
     families = sorted({r["family"] for r in shown} | {t["family"] for t in data["tasks"]})
     with writing(auth.engine(request)) as conn:
@@ -209,7 +194,6 @@ def day_page(request: Request):
         return render(request, "day.html", {"f": f, "errors": errors, "reasons": REASONS, "data": None},
                       status_code=400)  # fmt: skip
     data = day_data(request, f)
-    data["shown"] = shown_rows(data, f)
     _audit_view(request, user, data, f"day list {f['from'].isoformat()} to {f['to'].isoformat()}")
     return render(request, "day.html", {
         "f": f, "reasons": REASONS, "data": data, "query": _query(f), "gap_words": GAP_WORDS,
@@ -225,8 +209,7 @@ def _download(request: Request, kind: str):
     f, errors = filters(request)
     if errors:
         raise auth.Refused("; ".join(f"{k}: {' '.join(v)}" for k, v in errors.items()), status=400)
-    data = day_data(request, f)
-    data["shown"] = data["rows"]  # a download holds every row
+    data = download_data(request, f)  # a download holds every row
     _audit_view(request, user, data, f"day list {kind.upper()} download {f['from'].isoformat()} to {f['to'].isoformat()}")
     from tracker.services import worklist as SW
 
