@@ -134,12 +134,14 @@ class App:
     def __init__(self, db: Path):
         self.port = free_port()
         self.url = f"http://127.0.0.1:{self.port}"
+        self.log = Path(f"{db}.server.log")  # the app's own messages (tracebacks of any error), kept beside the store
+        self._log = self.log.open("w")
         self.proc = subprocess.Popen([sys.executable, "-c", SERVER, str(db), str(self.port)],
-                                     stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)  # fmt: skip
+                                     stdout=subprocess.DEVNULL, stderr=self._log, text=True)  # fmt: skip
         deadline = time.monotonic() + 60
         while True:
             if self.proc.poll() is not None:
-                raise SystemExit(f"the app did not start: {self.proc.stderr.read()[-800:]}")
+                raise SystemExit(f"the app did not start: {self.log.read_text()[-800:]}")
             try:
                 socket.create_connection(("127.0.0.1", self.port), timeout=0.5).close()
                 return
@@ -155,6 +157,7 @@ class App:
             self.proc.wait(timeout=15)
         except subprocess.TimeoutExpired:
             self.proc.kill()
+        self._log.close()
 
 
 CSRF_FIELD = re.compile(r'name="csrf_token" value="([^"]+)"')
@@ -248,18 +251,20 @@ def service_call(page: str, db: Path, fams: list[str], people: list[str], rng: r
     engine = make_engine(locate(str(db)))
     try:
         if page == "day":
+            from tracker.services import contact_view as CV
+            from tracker.services import day_list as DL
             from tracker.services import recall as SV
             from tracker.services import tasks as TS
-            from tracker.services import worklist as SW
-            from tracker.web.pages.day import DEFAULT_WEEKS
+            from tracker.web.pages.day import DEFAULT_WEEKS, PAGE_ROWS, SECTION_ROWS
 
-            def day():
+            def day():  # as tracker.web.pages.day.day_data makes them
                 conf, rule_set, policy = SV.recall_rules(None, None)
                 on = dt.date.today()
-                SW.nurse_worklist(engine, on, on + dt.timedelta(weeks=DEFAULT_WEEKS), on, conf, rule_set, policy,
-                                  conf.slots_per_week)  # fmt: skip
+                page = DL.day_list(engine, on, on + dt.timedelta(weeks=DEFAULT_WEEKS), on, conf, rule_set, policy,
+                                   "", "", PAGE_ROWS, today=on, section_limit=SECTION_ROWS)  # fmt: skip
                 with reading(engine) as conn:
                     TS.list_tasks(conn, None)
+                    CV.open_bookings(conn, [r["family"] for r in page.rows + page.must_not], on)
 
             return day
         if page == "cohort":
@@ -306,6 +311,9 @@ def run_size(args, folder: Path, families: int) -> dict:
     db = folder / f"run-{families}-{secrets.token_hex(3)}.sqlite"
     db.write_bytes(template.read_bytes())
     tracker_cli("init", "--db", str(db))  # a kept store from an earlier schema revision is upgraded
+    # Every proposal stored for today before the clients come, as a clinic's nightly refresh leaves it
+    # (a bulk import of this many families leaves them to the first read).
+    tracker_cli("recall", "--refresh", "--db", str(db))
     accounts = add_accounts(db)
     fams, people = codes(db)
     today = dt.date.today()
@@ -351,6 +359,11 @@ def run_size(args, folder: Path, families: int) -> dict:
         out["load"] = load(args, app.url, accounts, present, fams, people, today, out["errors"])
     finally:
         app.stop()
+        if out["errors"]:  # the app's account of them
+            out["server_log"] = str(app.log)
+            print(f"   the app's messages: {app.log}\n" + app.log.read_text()[-3000:])
+        else:
+            app.log.unlink(missing_ok=True)
         if not args.keep:
             for suffix in ("", "-wal", "-shm"):
                 Path(str(db) + suffix).unlink(missing_ok=True)
